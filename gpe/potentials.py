@@ -1,0 +1,528 @@
+"""Static traps and moving Gaussian beams, in simulation units.
+
+Traps are ``(ny, nx)`` arrays built once. Hard-walled traps (disk, box, annulus, mask image)
+use a smooth wall ``V = V_wall * (1 + tanh(d / w_edge)) / 2`` with ``d`` the signed distance
+outside the allowed region (negative inside), so the wall is at half height on the region's
+edge and the spectral solver never sees a step.
+
+Beams are ``V0 exp(-2 r^2 / w^2)`` (``w`` the 1/e^2 intensity waist) with sin^2 switch-on/off
+ramps, moving on a path; a rigid array of beams moves with its path point.
+
+Units: lengths in xi, times in hbar/mu, energies in mu, speeds in c, angles in rad.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Protocol as _TypingProtocol, Sequence
+
+import numpy as np
+from scipy import ndimage
+
+from gpe.errors import ProtocolError
+from gpe.grid import Grid
+
+TRAP_SHAPES = ("harmonic", "disk", "box", "annulus", "mask")
+MASK_FORMATS = "a PNG/greyscale image readable by Pillow (.png, .bmp, .tif) or a 2D NumPy array (.npy)"
+
+
+# ------------------------------------------------------------------------------------------
+# traps
+# ------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class TrapConfig:
+    """A static trap, resolved to simulation units.
+
+    Parameters
+    ----------
+    shape : str
+        One of ``harmonic``, ``disk``, ``box``, ``annulus``, ``mask``.
+    wall_height : float or None
+        Wall height of hard-walled traps; cap of the harmonic trap (``None``: no cap).
+    edge_width : float
+        Width ``w_edge`` of the tanh wall.
+    radius, inner_radius, outer_radius, length_x, length_y : float
+        Sizes of the disk / annulus / box (0 where unused).
+    omega_x, omega_y : float
+        Harmonic angular frequencies (``V = (wx^2 x^2 + wy^2 y^2)/2``).
+    mask_file : str
+        Path of the mask image (absolute, or relative to the working directory).
+    mask_pixel_size : float
+        Size of one mask pixel.
+    mask_invert : bool
+        If true, dark pixels are the allowed region.
+
+    Units
+    -----
+    lengths xi, energies mu, frequencies rad per hbar/mu.
+    """
+
+    shape: str
+    wall_height: float | None = None
+    edge_width: float = 1.0
+    radius: float = field(default=0.0, metadata={"dim": "length"})
+    inner_radius: float = field(default=0.0, metadata={"dim": "length"})
+    outer_radius: float = field(default=0.0, metadata={"dim": "length"})
+    length_x: float = field(default=0.0, metadata={"dim": "length"})
+    length_y: float = field(default=0.0, metadata={"dim": "length"})
+    omega_x: float = field(default=0.0, metadata={"dim": "rate"})
+    omega_y: float = field(default=0.0, metadata={"dim": "rate"})
+    mask_file: str = ""
+    mask_pixel_size: float = field(default=0.0, metadata={"dim": "length"})
+    mask_invert: bool = False
+
+    def extent(self) -> tuple[float, float]:
+        """Full width along x and y of the region the condensate may fill. Units: xi.
+
+        For the harmonic trap this is the Thomas-Fermi diameter at mu = 1 (``2 sqrt(2)/omega``).
+        """
+        if self.shape == "harmonic":
+            return 2 * math.sqrt(2.0) / self.omega_x, 2 * math.sqrt(2.0) / self.omega_y
+        if self.shape == "disk":
+            return 2 * self.radius, 2 * self.radius
+        if self.shape == "annulus":
+            return 2 * self.outer_radius, 2 * self.outer_radius
+        if self.shape == "box":
+            return self.length_x, self.length_y
+        rows, cols = load_mask(self.mask_file).shape
+        return cols * self.mask_pixel_size, rows * self.mask_pixel_size
+
+
+def smooth_wall(distance: np.ndarray, wall_height: float, edge_width: float) -> np.ndarray:
+    """``V_wall (1 + tanh(d / w_edge)) / 2``; a sharp step if ``edge_width`` is 0.
+
+    Units: distance and edge width in xi, wall height in mu; returns mu.
+    """
+    if edge_width <= 0:
+        return np.where(distance > 0, wall_height, np.where(distance == 0, 0.5 * wall_height, 0.0))
+    return wall_height * 0.5 * (1.0 + np.tanh(distance / edge_width))
+
+
+def signed_distance_disk(X: np.ndarray, Y: np.ndarray, radius: float) -> np.ndarray:
+    """Signed distance to a centred disk (negative inside). Units: xi."""
+    return np.hypot(X, Y) - radius
+
+
+def signed_distance_annulus(X: np.ndarray, Y: np.ndarray, inner: float, outer: float) -> np.ndarray:
+    """Signed distance to a centred annulus ``inner < r < outer`` (negative inside). Units: xi."""
+    r = np.hypot(X, Y)
+    return np.maximum(inner - r, r - outer)
+
+
+def signed_distance_box(X: np.ndarray, Y: np.ndarray, length_x: float, length_y: float) -> np.ndarray:
+    """Exact signed distance to a centred rectangle (negative inside). Units: xi."""
+    qx = np.abs(X) - 0.5 * length_x
+    qy = np.abs(Y) - 0.5 * length_y
+    outside = np.hypot(np.maximum(qx, 0.0), np.maximum(qy, 0.0))
+    return outside + np.minimum(np.maximum(qx, qy), 0.0)
+
+
+def load_mask(path: str | Path, invert: bool = False) -> np.ndarray:
+    """Read a mask image as a boolean array (row 0 = top of the image, True = allowed region).
+
+    Bright pixels (above half the range between darkest and brightest) are the allowed region;
+    ``invert`` swaps that. Colour images are converted to greyscale, transparency is ignored.
+
+    Raises
+    ------
+    ProtocolError
+        If the file cannot be read, is not 2D, or contains no allowed pixel.
+    """
+    path = Path(path)
+    try:
+        if path.suffix.lower() == ".npy":
+            data = np.load(path, allow_pickle=False)
+        else:
+            from PIL import Image, UnidentifiedImageError  # lazy: Pillow only needed for masks
+
+            try:
+                with Image.open(path) as image:
+                    data = np.asarray(image.convert("L"), dtype=float)
+            except UnidentifiedImageError as exc:
+                raise ValueError("not an image Pillow can read") from exc
+    except (OSError, ValueError) as exc:
+        raise ProtocolError(
+            f"trap mask '{path}' cannot be read ({exc}); accepted: {MASK_FORMATS}, "
+            "with the allowed region bright (or set trap.invert = true)."
+        ) from None
+    data = np.asarray(data, dtype=float)
+    if data.ndim != 2 or min(data.shape) < 2 or not np.all(np.isfinite(data)):
+        raise ProtocolError(
+            f"trap mask '{path}' has shape {data.shape}; accepted: {MASK_FORMATS} holding a finite "
+            "2D array of at least 2 x 2 pixels."
+        )
+    low, high = float(data.min()), float(data.max())
+    inside = data > 0.5 * (low + high) if high > low else np.full(data.shape, high > 0)
+    if invert:
+        inside = ~inside
+    if not inside.any() or inside.all():
+        what = "no allowed (bright) pixel" if not inside.any() else "no wall (every pixel allowed)"
+        raise ProtocolError(
+            f"trap mask '{path}' has {what}{' after inversion' if invert else ''}; accepted: "
+            f"{MASK_FORMATS} with both an allowed region (bright unless trap.invert = true) and a wall."
+        )
+    return inside
+
+
+def _mask_on_grid(trap: TrapConfig, grid: Grid) -> np.ndarray:
+    """Signed distance to the mask region, the mask centred on the grid. Units: xi."""
+    inside = load_mask(trap.mask_file, trap.mask_invert).astype(float)
+    rows, cols = inside.shape
+    p = trap.mask_pixel_size
+    # image row 0 is the top (largest y); pixel centres at (j - cols/2 + 1/2) p, (rows/2 - i - 1/2) p
+    col = grid.X / p + 0.5 * cols - 0.5
+    row = 0.5 * rows - 0.5 - grid.Y / p
+    fraction = ndimage.map_coordinates(inside, [row, col], order=1, mode="constant", cval=0.0)
+    on_grid = fraction >= 0.5
+    sampling = (grid.dy, grid.dx)
+    # distances from cell centres to the nearest cell of the other kind, minus half a cell, so
+    # that the zero of d sits on the boundary between cells
+    half = 0.5 * min(grid.dx, grid.dy)
+    d_out = ndimage.distance_transform_edt(~on_grid, sampling=sampling) - half
+    d_in = ndimage.distance_transform_edt(on_grid, sampling=sampling) - half
+    return np.where(on_grid, -d_in, d_out)
+
+
+def build_trap(trap: TrapConfig, grid: Grid) -> np.ndarray:
+    """The static trap potential on the grid.
+
+    Parameters
+    ----------
+    trap : TrapConfig
+        Shape and sizes in simulation units.
+    grid : Grid
+        The simulation grid.
+
+    Returns
+    -------
+    numpy.ndarray
+        ``(ny, nx)`` float64 array.
+
+    Units
+    -----
+    mu.
+    """
+    X, Y = grid.X, grid.Y
+    if trap.shape == "harmonic":
+        V = 0.5 * (trap.omega_x**2 * X**2 + trap.omega_y**2 * Y**2)
+        return np.minimum(V, trap.wall_height) if trap.wall_height is not None else V
+    wall = float(trap.wall_height if trap.wall_height is not None else 0.0)
+    if trap.shape == "disk":
+        d = signed_distance_disk(X, Y, trap.radius)
+    elif trap.shape == "annulus":
+        d = signed_distance_annulus(X, Y, trap.inner_radius, trap.outer_radius)
+    elif trap.shape == "box":
+        d = signed_distance_box(X, Y, trap.length_x, trap.length_y)
+    elif trap.shape == "mask":
+        d = _mask_on_grid(trap, grid)
+    else:
+        raise ProtocolError(f"unknown trap shape {trap.shape!r}; accepted: {', '.join(TRAP_SHAPES)}")
+    return np.ascontiguousarray(smooth_wall(d, wall, trap.edge_width), dtype=np.float64)
+
+
+# ------------------------------------------------------------------------------------------
+# beams: ramps and paths
+# ------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class Ramp:
+    """sin^2 switch-on at ``on_time`` over ``on_duration``; cos^2 switch-off at ``off_time``.
+
+    ``off_time = None`` keeps the beam on. Durations of 0 give a sudden switch.
+
+    Units: hbar/mu.
+    """
+
+    on_time: float = field(default=0.0, metadata={"dim": "time"})
+    on_duration: float = field(default=0.0, metadata={"dim": "time"})
+    off_time: float | None = field(default=None, metadata={"dim": "time"})
+    off_duration: float = field(default=0.0, metadata={"dim": "time"})
+
+    def factor(self, t):
+        """Amplitude factor in [0, 1] at time(s) ``t``."""
+        t = np.asarray(t, dtype=float)
+        up = _ramp_up(t - self.on_time, self.on_duration)
+        if self.off_time is None:
+            return up
+        return up * (1.0 - _ramp_up(t - self.off_time, self.off_duration))
+
+
+def _ramp_up(s: np.ndarray, duration: float) -> np.ndarray:
+    if duration <= 0:
+        return (s >= 0).astype(float)
+    return np.sin(0.5 * np.pi * np.clip(s / duration, 0.0, 1.0)) ** 2
+
+
+class BeamPath(_TypingProtocol):
+    """What every path provides: ``position(t) -> (x, y)`` for scalar or array t."""
+
+    def position(self, t): ...
+
+    @property
+    def max_speed(self) -> float: ...
+
+
+@dataclass(frozen=True)
+class StaticPath:
+    """A beam at rest at ``(x, y)``. Units: xi."""
+
+    x: float = field(default=0.0, metadata={"dim": "length"})
+    y: float = field(default=0.0, metadata={"dim": "length"})
+
+    def position(self, t):
+        t = np.asarray(t, dtype=float)
+        return np.full(t.shape, self.x), np.full(t.shape, self.y)
+
+    @property
+    def max_speed(self) -> float:
+        return 0.0
+
+
+@dataclass(frozen=True)
+class LinePath:
+    """Straight sweep from ``start`` to ``end`` at constant ``speed``, beginning at ``start_time``.
+
+    ``mode = "once"`` stops at ``end``; ``"back_and_forth"`` reflects at both ends forever.
+
+    Units: xi, c, hbar/mu.
+    """
+
+    start: tuple[float, float] = field(metadata={"dim": "length"})
+    end: tuple[float, float] = field(metadata={"dim": "length"})
+    speed: float = field(metadata={"dim": "speed"})
+    mode: str = "once"
+    start_time: float = field(default=0.0, metadata={"dim": "time"})
+
+    @property
+    def length(self) -> float:
+        return math.hypot(self.end[0] - self.start[0], self.end[1] - self.start[1])
+
+    def position(self, t):
+        t = np.asarray(t, dtype=float)
+        L = self.length
+        s = self.speed * np.maximum(t - self.start_time, 0.0)
+        if self.mode == "back_and_forth":
+            s = np.mod(s, 2 * L)
+            s = np.where(s > L, 2 * L - s, s)
+        else:
+            s = np.minimum(s, L)
+        f = s / L
+        return (self.start[0] + f * (self.end[0] - self.start[0]),
+                self.start[1] + f * (self.end[1] - self.start[1]))
+
+    @property
+    def max_speed(self) -> float:
+        return self.speed
+
+
+@dataclass(frozen=True)
+class CirclePath:
+    """Uniform circular motion about ``centre``.
+
+    ``angular_speed`` > 0; ``sense`` = +1 counterclockwise, -1 clockwise; angle measured from
+    the +x axis, ``start_angle`` at ``start_time`` (the beam rests there before).
+
+    Units: xi, rad per hbar/mu, rad, hbar/mu.
+    """
+
+    radius: float = field(metadata={"dim": "length"})
+    angular_speed: float = field(metadata={"dim": "rate"})
+    centre: tuple[float, float] = field(default=(0.0, 0.0), metadata={"dim": "length"})
+    start_angle: float = 0.0
+    sense: int = 1
+    start_time: float = field(default=0.0, metadata={"dim": "time"})
+
+    def position(self, t):
+        t = np.asarray(t, dtype=float)
+        theta = self.start_angle + self.sense * self.angular_speed * np.maximum(t - self.start_time, 0.0)
+        return self.centre[0] + self.radius * np.cos(theta), self.centre[1] + self.radius * np.sin(theta)
+
+    @property
+    def max_speed(self) -> float:
+        return self.radius * self.angular_speed
+
+
+@dataclass(frozen=True)
+class PolylinePath:
+    """Piecewise straight motion through ``points`` with ``speeds[i]`` on segment i.
+
+    ``mode``: ``"once"`` stops at the last point; ``"back_and_forth"`` retraces the segments
+    backwards (same speed per segment) and repeats; ``"loop"`` closes the path from the last
+    point to the first (``speeds`` then has one entry per point) and repeats.
+
+    Units: xi, c, hbar/mu.
+    """
+
+    points: tuple[tuple[float, float], ...] = field(metadata={"dim": "length"})
+    speeds: tuple[float, ...] = field(metadata={"dim": "speed"})
+    mode: str = "once"
+    start_time: float = field(default=0.0, metadata={"dim": "time"})
+
+    def _legs(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Start points, end points and durations of the legs of one period."""
+        p = np.asarray(self.points, dtype=float)
+        v = np.asarray(self.speeds, dtype=float)
+        a, b = p[:-1], p[1:]
+        if self.mode == "loop":
+            a, b = p, np.roll(p, -1, axis=0)
+        elif self.mode == "back_and_forth":
+            a, b, v = np.vstack([a, b[::-1]]), np.vstack([b, a[::-1]]), np.concatenate([v, v[::-1]])
+        durations = np.hypot(*(b - a).T) / v
+        return a, b, durations
+
+    def position(self, t):
+        t = np.asarray(t, dtype=float)
+        a, b, durations = self._legs()
+        ends = np.cumsum(durations)
+        period = ends[-1]
+        s = np.maximum(t - self.start_time, 0.0)
+        s = np.mod(s, period) if self.mode in ("loop", "back_and_forth") else np.minimum(s, period)
+        leg = np.minimum(np.searchsorted(ends, s, side="right"), len(ends) - 1)
+        begin = ends[leg] - durations[leg]
+        f = np.clip((s - begin) / durations[leg], 0.0, 1.0)
+        x = a[leg, 0] + f * (b[leg, 0] - a[leg, 0])
+        y = a[leg, 1] + f * (b[leg, 1] - a[leg, 1])
+        return x, y
+
+    @property
+    def max_speed(self) -> float:
+        return float(max(self.speeds))
+
+
+def array_offsets(columns: int, rows: int, spacing_x: float, spacing_y: float,
+                  angle: float = 0.0) -> tuple[tuple[float, float], ...]:
+    """Offsets of a rigid ``rows`` x ``columns`` array of beams centred on the path point.
+
+    ``angle`` rotates the array counterclockwise (the array keeps this orientation while it moves).
+
+    Units: xi, rad.
+    """
+    ox = (np.arange(columns) - 0.5 * (columns - 1)) * spacing_x
+    oy = (np.arange(rows) - 0.5 * (rows - 1)) * spacing_y
+    OX, OY = np.meshgrid(ox, oy, indexing="xy")
+    c, s = math.cos(angle), math.sin(angle)
+    return tuple((float(c * x - s * y), float(s * x + c * y)) for x, y in zip(OX.ravel(), OY.ravel()))
+
+
+@dataclass(frozen=True)
+class Beam:
+    """One Gaussian beam (or rigid array of identical beams) ``height * exp(-2 r^2 / waist^2)``.
+
+    Units: waist xi, height mu.
+    """
+
+    waist: float = field(metadata={"dim": "length"})
+    height: float = field(metadata={"dim": "energy"})
+    path: object = field(default_factory=StaticPath)
+    ramp: Ramp = field(default_factory=Ramp)
+    offsets: tuple[tuple[float, float], ...] = field(default=((0.0, 0.0),), metadata={"dim": "length"})
+
+
+class BeamSet:
+    """All beams of a protocol, rigid arrays expanded into individual beams.
+
+    Parameters
+    ----------
+    beams : sequence of Beam
+        May be empty.
+
+    Units
+    -----
+    lengths xi, times hbar/mu, heights mu.
+    """
+
+    def __init__(self, beams: Sequence[Beam] = ()) -> None:
+        self.beams = tuple(beams)
+        self._slices = []
+        start = 0
+        for beam in self.beams:
+            n = len(beam.offsets)
+            self._slices.append((slice(start, start + n), np.asarray(beam.offsets, dtype=float).reshape(n, 2)))
+            start += n
+        self.n_beams = start
+        self.waists = np.array([b.waist for b in self.beams for _ in b.offsets], dtype=np.float64)
+        self.waists.setflags(write=False)
+
+    def evaluate(self, t: float, amp: np.ndarray, cx: np.ndarray, cy: np.ndarray) -> None:
+        """Fill ``amp``, ``cx``, ``cy`` (each ``(n_beams,)``) in place at time ``t``.
+
+        Units: t in hbar/mu; amp in mu (ramps included); centres in xi.
+        """
+        for beam, (sl, off) in zip(self.beams, self._slices):
+            x, y = beam.path.position(t)
+            amp[sl] = beam.height * float(beam.ramp.factor(t))
+            cx[sl] = off[:, 0]
+            cx[sl] += float(x)
+            cy[sl] = off[:, 1]
+            cy[sl] += float(y)
+
+    def positions(self, t: float) -> np.ndarray:
+        """Beam centres at time ``t``, shape ``(n_beams, 2)``. Units: xi."""
+        amp, cx, cy = np.empty(self.n_beams), np.empty(self.n_beams), np.empty(self.n_beams)
+        self.evaluate(t, amp, cx, cy)
+        return np.column_stack([cx, cy])
+
+    def amplitudes(self, t: float) -> np.ndarray:
+        """Peak heights including ramps at time ``t``, shape ``(n_beams,)``. Units: mu."""
+        amp, cx, cy = np.empty(self.n_beams), np.empty(self.n_beams), np.empty(self.n_beams)
+        self.evaluate(t, amp, cx, cy)
+        return amp
+
+    def potential(self, t: float, grid: Grid) -> np.ndarray:
+        """Total beam potential on the grid at time ``t`` (allocates; for diagnostics). Units: mu."""
+        amp, cx, cy = np.empty(self.n_beams), np.empty(self.n_beams), np.empty(self.n_beams)
+        self.evaluate(t, amp, cx, cy)
+        V = np.zeros(grid.shape)
+        for a, x0, y0, w in zip(amp, cx, cy, self.waists):
+            if a != 0.0:
+                V += a * np.exp(-2.0 * (grid.Y - y0) ** 2 / w**2) * np.exp(-2.0 * (grid.X - x0) ** 2 / w**2)
+        return V
+
+    def max_height(self) -> float:
+        """Largest peak height of a single beam (0 without beams). Units: mu."""
+        return max((b.height for b in self.beams), default=0.0)
+
+    def max_speed(self) -> float:
+        """Largest path speed of any beam. Units: c."""
+        return max((b.path.max_speed for b in self.beams), default=0.0)
+
+
+@dataclass(frozen=True)
+class BeamExcursion:
+    """Where and when a switched-on beam centre first comes closer than one waist to the edge."""
+
+    beam_index: int   # index into BeamSet.beams (the protocol's [[beams]] entry)
+    time: float       # hbar/mu
+    x: float          # xi
+    y: float          # xi
+    limit_x: float    # allowed |x| (xi)
+    limit_y: float    # allowed |y| (xi)
+
+
+def find_beam_excursion(beams: BeamSet, grid: Grid, duration: float) -> BeamExcursion | None:
+    """First time in ``[0, duration]`` a switched-on beam centre leaves the grid minus one waist.
+
+    Times are sampled finely enough that no beam moves more than a quarter waist between
+    samples. Returns ``None`` if every beam stays inside.
+
+    Units: hbar/mu, xi.
+    """
+    half_x = 0.5 * grid.length_x
+    half_y = 0.5 * grid.length_y
+    first: BeamExcursion | None = None
+    for index, beam in enumerate(beams.beams):
+        speed = beam.path.max_speed
+        n = 2 + int(min(math.ceil(duration * speed / (0.25 * beam.waist)), 200_000))
+        t = np.linspace(0.0, duration, max(n, 201))
+        x, y = beam.path.position(t)
+        on = beam.ramp.factor(t) > 0
+        limit_x, limit_y = half_x - beam.waist, half_y - beam.waist
+        for ox, oy in beam.offsets:
+            bad = on & ((np.abs(x + ox) > limit_x) | (np.abs(y + oy) > limit_y))
+            if bad.any():
+                k = int(np.argmax(bad))
+                if first is None or t[k] < first.time:
+                    first = BeamExcursion(index, float(t[k]), float(x[k] + ox), float(y[k] + oy),
+                                          limit_x, limit_y)
+    return first

@@ -1,0 +1,825 @@
+"""Parameter sweeps: a grid of protocol overrides -> one run per point and seed -> a summary table.
+
+A sweep file (TOML) names a base protocol, one or more axes (protocol keys in the protocol's own
+units, written exactly as ``--set`` overrides), the noise seeds and what to measure at the end.
+:func:`load_sweep` validates it; :func:`run_sweep` runs every point through an executor (anything
+with ``submit`` returning :class:`concurrent.futures.Future`: a local process pool, a dask
+distributed ``Client``), resumes an interrupted sweep from its output folder and writes the
+tables (CSV and HDF5, described in ``docs/sweep.md``).
+
+Units: axis values in the protocol's units (the key's suffix says which); measurement times in the
+protocol's time unit; beta in 1/E0 with E0 = rho kappa^2 / (4 pi); energies per vortex in E0.
+"""
+
+from __future__ import annotations
+
+import concurrent.futures as cf
+import difflib
+import itertools
+import json
+import math
+import os
+import time
+import tomllib
+import traceback
+from dataclasses import asdict, dataclass, field
+from pathlib import Path
+from typing import Any, Callable, Mapping, Sequence
+
+from gpe.errors import VorthermError
+
+# NumPy, h5py and the pipeline are imported inside functions on purpose: a spawned worker imports
+# this module first, and the thread-count variables set by ``_init_worker`` only take effect if no
+# numerical library has been loaded before.
+
+#: Quantities a sweep may measure: name -> (unit, description).
+QUANTITIES: dict[str, tuple[str, str]] = {
+    "beta": ("1/E0", "inverse temperature of the vortex gas, E0 = rho kappa^2/(4 pi)"),
+    "n_plus": ("count", "number of positive vortices"),
+    "n_minus": ("count", "number of negative vortices"),
+    "dipole_fraction": ("1", "fraction of vortices bound in +- dipoles"),
+    "cluster_fraction": ("1", "fraction of vortices in like-sign clusters"),
+    "free_fraction": ("1", "fraction of free vortices"),
+    "energy_per_vortex": ("E0", "point-vortex energy per vortex"),
+}
+
+#: Unit implied by the suffix of a protocol key (DESIGN.md: explicit SI suffixes or multiples).
+SUFFIX_UNITS = {"_um": "um", "_ms": "ms", "_hz": "Hz", "_nK": "nK", "_mu": "mu", "_c": "c",
+                "_xi": "xi", "_s": "s", "_m": "m", "_deg": "deg", "_rad": "rad"}
+
+SEED_KEY = "evolution.seed"
+SUMMARY_FORMAT_VERSION = 1
+
+_TOP_KEYS = ("base", "axes", "seeds", "measure", "name", "description")
+_AXIS_KEYS = ("key", "values", "range", "label", "unit")
+_RANGE_KEYS = ("start", "stop", "num", "scale")
+_MEASURE_KEYS = ("at_time", "window", "quantities")
+
+
+class SweepError(VorthermError):
+    """A sweep file, output folder or executor setting is invalid."""
+
+
+# -- the sweep file -----------------------------------------------------------------------------
+@dataclass(frozen=True)
+class Axis:
+    """One swept protocol key.
+
+    Units: ``values`` in the unit named by ``unit`` (the protocol's own unit for that key).
+    """
+
+    key: str
+    values: tuple
+    unit: str = ""
+    label: str = ""
+    scale: str = "linear"
+
+    @property
+    def title(self) -> str:
+        """Axis title for tables and plots, e.g. ``beam speed [c]``."""
+        name = self.label or self.key
+        return f"{name} [{self.unit}]" if self.unit else name
+
+
+@dataclass(frozen=True)
+class Measure:
+    """What to read from each finished run.
+
+    Units: ``at_time`` and ``window`` in the protocol's time unit (ms for an SI protocol, hbar/mu
+    for ``units = "healing"``); neither given means the final frame.
+    """
+
+    at_time: float | None = None
+    window: tuple[float, float] | None = None
+    quantities: tuple[str, ...] = tuple(QUANTITIES)
+
+
+@dataclass(frozen=True)
+class Point:
+    """One run of the sweep: a grid point and a noise seed.
+
+    ``point_id`` (``p003_s1``) is the grid index and the seed; it names the run file.
+    """
+
+    point_id: str
+    grid_id: str
+    index: int
+    seed: int
+    coords: tuple
+    overrides: tuple[str, ...]
+
+
+@dataclass(frozen=True)
+class Sweep:
+    """A validated sweep file. Build it with :func:`load_sweep` or :func:`parse_sweep`."""
+
+    source: str
+    base: Path
+    axes: tuple[Axis, ...]
+    seeds: tuple[int, ...]
+    measure: Measure
+    text: str = field(repr=False)
+
+    def points(self) -> list[Point]:
+        """All points, grid index major and seed minor (the first axis varies slowest)."""
+        n_grid = math.prod(len(a.values) for a in self.axes)
+        width = max(3, len(str(n_grid - 1)))
+        points = []
+        for index, coords in enumerate(itertools.product(*(a.values for a in self.axes))):
+            grid_id = f"p{index:0{width}d}"
+            base = tuple(f"{a.key}={format_value(v)}" for a, v in zip(self.axes, coords))
+            for seed in self.seeds:
+                points.append(Point(f"{grid_id}_s{seed}", grid_id, index, seed, coords,
+                                    base + (f"{SEED_KEY}={seed}",)))
+        return points
+
+
+def format_value(value: Any) -> str:
+    """Write a value as the right-hand side of a ``--set key=value`` override (TOML syntax)."""
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, (int, float)):
+        return repr(value)
+    return json.dumps(str(value))
+
+
+def _unknown(where: str, key: str, accepted: Sequence[str]) -> SweepError:
+    near = difflib.get_close_matches(key, accepted, n=1)
+    hint = f"did you mean '{near[0]}'? " if near else ""
+    return SweepError(f"{where}: unknown key '{key}'; {hint}accepted: {', '.join(accepted)}")
+
+
+def _check_keys(where: str, table: Mapping, accepted: Sequence[str]) -> None:
+    for key in table:
+        if key not in accepted:
+            raise _unknown(where, key, accepted)
+
+
+def _number(where: str, value: Any) -> float:
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+        raise SweepError(f"{where}: expected a finite number, got {value!r}")
+    return float(value)
+
+
+def _parse_axis(src: str, i: int, table: Any) -> Axis:
+    where = f"{src}: [[axes]] #{i + 1}"
+    if not isinstance(table, dict):
+        raise SweepError(f"{where}: each axis must be a table with key and values (or range)")
+    _check_keys(where, table, _AXIS_KEYS)
+    key = table.get("key")
+    if not isinstance(key, str) or not key or "=" in key or key != key.strip():
+        raise SweepError(f"{where}.key: expected a protocol key such as "
+                         f"'beams.0.path.speed_c' (same syntax as --set), got {key!r}")
+    if key == SEED_KEY:
+        raise SweepError(f"{where}.key: '{SEED_KEY}' is swept by the top-level 'seeds' entry")
+    where = f"{src}: axis '{key}'"
+    if ("values" in table) == ("range" in table):
+        raise SweepError(f"{where}: give exactly one of 'values = [...]' or "
+                         f"'range = {{start, stop, num, scale}}'")
+    scale = "linear"
+    if "values" in table:
+        values = table["values"]
+        if not isinstance(values, list) or not values:
+            raise SweepError(f"{where}.values: expected a non-empty list, got {values!r}")
+        for v in values:
+            if not isinstance(v, (int, float, str, bool)):
+                raise SweepError(f"{where}.values: {v!r} is not a number, string or boolean")
+        if len({json.dumps(v) for v in values}) != len(values):
+            raise SweepError(f"{where}.values: duplicate values in {values!r}")
+        values = tuple(values)
+    else:
+        rng = table["range"]
+        if not isinstance(rng, dict):
+            raise SweepError(f"{where}.range: expected {{start = .., stop = .., num = ..}}")
+        _check_keys(f"{where}.range", rng, _RANGE_KEYS)
+        for k in ("start", "stop", "num"):
+            if k not in rng:
+                raise SweepError(f"{where}.range: missing '{k}' (needs start, stop, num)")
+        start, stop = _number(f"{where}.range.start", rng["start"]), _number(
+            f"{where}.range.stop", rng["stop"])
+        num, scale = rng["num"], rng.get("scale", "linear")
+        if isinstance(num, bool) or not isinstance(num, int) or num < 1:
+            raise SweepError(f"{where}.range.num: expected an integer >= 1, got {num!r}")
+        if scale not in ("linear", "log"):
+            raise SweepError(f"{where}.range.scale: expected 'linear' or 'log', got {scale!r}")
+        if num > 1 and start == stop:
+            raise SweepError(f"{where}.range: start == stop gives {num} identical values")
+        if scale == "log" and (start <= 0 or stop <= 0):
+            raise SweepError(f"{where}.range: a log range needs start > 0 and stop > 0")
+        values = tuple(_spaced(start, stop, num, scale))
+    unit = table.get("unit", _suffix_unit(key))
+    label = table.get("label", "")
+    for name, v in (("unit", unit), ("label", label)):
+        if not isinstance(v, str):
+            raise SweepError(f"{where}.{name}: expected a string, got {v!r}")
+    return Axis(key, values, unit, label, scale)
+
+
+def _spaced(start: float, stop: float, num: int, scale: str) -> list[float]:
+    if num == 1:
+        return [start]
+    if scale == "log":
+        a, b = math.log(start), math.log(stop)
+        vals = [math.exp(a + (b - a) * i / (num - 1)) for i in range(num)]
+    else:
+        vals = [start + (stop - start) * i / (num - 1) for i in range(num)]
+    vals[0], vals[-1] = start, stop  # exact end points, whatever the rounding
+    # 12 significant digits keep ids and overrides readable without changing the physics.
+    return [float(f"{v:.12g}") for v in vals]
+
+
+def _suffix_unit(key: str) -> str:
+    last = key.rsplit(".", 1)[-1]
+    for suffix, unit in SUFFIX_UNITS.items():
+        if last.endswith(suffix):
+            return unit
+    return ""
+
+
+def _parse_seeds(src: str, seeds: Any) -> tuple[int, ...]:
+    where = f"{src}: seeds"
+    if isinstance(seeds, int) and not isinstance(seeds, bool):
+        if seeds < 1:
+            raise SweepError(f"{where}: expected a count >= 1 or a list of seeds, got {seeds}")
+        return tuple(range(seeds))
+    if isinstance(seeds, list) and seeds:
+        if any(isinstance(s, bool) or not isinstance(s, int) or s < 0 for s in seeds):
+            raise SweepError(f"{where}: seeds must be integers >= 0, got {seeds!r}")
+        if len(set(seeds)) != len(seeds):
+            raise SweepError(f"{where}: duplicate seeds in {seeds!r}")
+        return tuple(seeds)
+    raise SweepError(f"{where}: expected a count (seeds = 2) or a list (seeds = [1, 7]), "
+                     f"got {seeds!r}")
+
+
+def _parse_measure(src: str, table: Any) -> Measure:
+    where = f"{src}: [measure]"
+    if not isinstance(table, dict):
+        raise SweepError(f"{where}: expected a table")
+    _check_keys(where, table, _MEASURE_KEYS)
+    if "at_time" in table and "window" in table:
+        raise SweepError(f"{where}: give 'at_time' or 'window', not both")
+    at_time = window = None
+    if "at_time" in table:
+        at_time = _number(f"{where}.at_time", table["at_time"])
+    if "window" in table:
+        w = table["window"]
+        if not isinstance(w, list) or len(w) != 2:
+            raise SweepError(f"{where}.window: expected [t0, t1], got {w!r}")
+        window = (_number(f"{where}.window", w[0]), _number(f"{where}.window", w[1]))
+        if not window[0] < window[1]:
+            raise SweepError(f"{where}.window: needs t0 < t1, got {w!r}")
+    quantities = table.get("quantities", list(QUANTITIES))
+    if not isinstance(quantities, list) or not quantities:
+        raise SweepError(f"{where}.quantities: expected a non-empty list of names")
+    for q in quantities:
+        if q not in QUANTITIES:
+            raise _unknown(f"{where}.quantities", str(q), tuple(QUANTITIES))
+    if "beta" not in quantities:
+        quantities = ["beta", *quantities]  # the phase map and the negative-beta fraction need it
+    return Measure(at_time, window, tuple(dict.fromkeys(quantities)))
+
+
+def parse_sweep(text: str, source: str | os.PathLike, *, check_protocol: bool = True) -> Sweep:
+    """Parse and validate sweep-file text; ``source`` is the file path (base is relative to it).
+
+    With ``check_protocol`` the base protocol is loaded once per axis with that axis overridden,
+    so that a misspelt protocol key is reported now and not after a night of failed runs.
+    """
+    src = str(source)
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise SweepError(f"{src}: not valid TOML: {exc}") from None
+    _check_keys(src, data, _TOP_KEYS)
+    base = data.get("base")
+    if not isinstance(base, str) or not base:
+        raise SweepError(f"{src}: base: expected the protocol file, e.g. base = \"demo.toml\"")
+    base_path = (Path(source).parent / base).resolve()
+    if not base_path.is_file():
+        raise SweepError(f"{src}: base: protocol file '{base_path}' not found "
+                         f"(the path is relative to the sweep file)")
+    axes_data = data.get("axes")
+    if not isinstance(axes_data, list) or not axes_data:
+        raise SweepError(f"{src}: needs at least one [[axes]] table with key and values")
+    axes = tuple(_parse_axis(src, i, t) for i, t in enumerate(axes_data))
+    keys = [a.key for a in axes]
+    if len(set(keys)) != len(keys):
+        raise SweepError(f"{src}: the same key appears on two axes: {keys}")
+    seeds = _parse_seeds(src, data.get("seeds", 1))
+    measure = _parse_measure(src, data.get("measure", {}))
+    sweep = Sweep(src, base_path, axes, seeds, measure, text)
+    if check_protocol:
+        _check_axis_keys(sweep)
+    return sweep
+
+
+def load_sweep(path: str | os.PathLike, *, check_protocol: bool = True) -> Sweep:
+    """Read and validate a sweep file (see ``docs/sweep.md``)."""
+    try:
+        text = Path(path).read_text(encoding="utf-8")
+    except OSError as exc:
+        raise SweepError(f"cannot read sweep file '{path}': {exc.strerror}") from None
+    return parse_sweep(text, path, check_protocol=check_protocol)
+
+
+def _check_axis_keys(sweep: Sweep) -> None:
+    from gpe.errors import ProtocolError
+    from gpe.protocol import load_protocol
+
+    for axis in sweep.axes:
+        # A key is valid if the protocol accepts it with at least one of its values; a value that
+        # is only invalid at some points is reported per point when the sweep runs.
+        errors = []
+        for value in axis.values:
+            try:
+                load_protocol(sweep.base, [f"{axis.key}={format_value(value)}",
+                                           f"{SEED_KEY}={sweep.seeds[0]}"])
+                break
+            except ProtocolError as exc:
+                errors.append(str(exc))
+        else:
+            raise SweepError(f"{sweep.source}: axis '{axis.key}': the base protocol "
+                             f"{sweep.base.name} rejects every value: {errors[0]}")
+
+
+# -- one point ----------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class PointTask:
+    """Everything a worker needs for one point: plain data only, so it pickles anywhere.
+
+    Units: ``threads`` is the number of FFT/numba threads the point may use.
+    """
+
+    point_id: str
+    base: str
+    overrides: tuple[str, ...]
+    run_path: str
+    measure: Measure
+    threads: int | None = None
+
+
+def run_point(task: PointTask) -> dict:
+    """The default point function: simulate (or resume) the run, then analyse it.
+
+    A complete run file (verified by ``gpe.pipeline.is_complete``) is analysed without
+    simulating again; an incomplete one is resumed from its checkpoint.
+    """
+    from gpe import pipeline
+    from gpe.protocol import load_protocol
+
+    protocol = load_protocol(task.base, task.overrides)
+    run_path = Path(task.run_path)
+    if not pipeline.is_complete(run_path):
+        pipeline.simulate(protocol, run_path, resume=run_path.exists(), threads=task.threads)
+    scale = _time_to_simulation(protocol)
+    m = task.measure
+    at_time = None if m.at_time is None else m.at_time * scale
+    window = None if m.window is None else (m.window[0] * scale, m.window[1] * scale)
+    return pipeline.analyse(run_path, time=at_time, window=window)
+
+
+def _time_to_simulation(protocol: Any) -> float:
+    """Factor from the protocol's time unit (ms, or hbar/mu for healing units) to hbar/mu."""
+    system = str(getattr(protocol, "unit_system", getattr(protocol, "units_system", "si")))
+    if system.lower() == "healing":
+        return 1.0
+    return 1e-3 / protocol.units.time_s
+
+
+def _execute(point_fn: Callable[[PointTask], Mapping], task: PointTask) -> dict:
+    """Run one point in a worker; turn an ordinary failure into a record, so the sweep goes on.
+
+    ``KeyboardInterrupt`` is not caught: it stops the sweep.
+    """
+    start = time.perf_counter()
+    try:
+        raw = point_fn(task)
+        values = {}
+        for q in task.measure.quantities:
+            if q not in raw:
+                raise SweepError(f"the analysis returned no '{q}' (it gave {sorted(raw)})")
+            values[q] = float(raw[q])
+        record = {"status": "ok", "values": values, "error": ""}
+    except Exception as exc:  # noqa: BLE001 -- any failure of one point is recorded, not fatal
+        record = {"status": "failed", "values": {}, "error": f"{type(exc).__name__}: {exc}",
+                  "traceback": traceback.format_exc()}
+    record["elapsed_s"] = time.perf_counter() - start
+    return record
+
+
+# -- executors ----------------------------------------------------------------------------------
+def usable_cores() -> int:
+    """Cores this process may run on (affinity-aware)."""
+    try:
+        return len(os.sched_getaffinity(0))
+    except AttributeError:  # not on Linux
+        return os.cpu_count() or 1
+
+
+def plan_local(cores: int, workers: int | None = None, threads: int | None = None,
+               n_tasks: int | None = None) -> tuple[int, int]:
+    """Choose (workers, threads per worker) with workers x threads <= cores.
+
+    Independent runs scale better than threads inside one FFT, so the default is one worker
+    per core with one thread each; fewer tasks than workers hand the spare cores to threads.
+    """
+    for name, v in (("workers", workers), ("threads", threads)):
+        if v is not None and (isinstance(v, bool) or not isinstance(v, int) or v < 1):
+            raise SweepError(f"{name} must be an integer >= 1, got {v!r}")
+    if workers is not None and threads is not None and workers * threads > cores:
+        raise SweepError(f"{workers} workers x {threads} threads would oversubscribe the "
+                         f"{cores} cores; choose workers x threads <= {cores}")
+    if workers is not None and workers > cores:
+        raise SweepError(f"{workers} workers exceed the {cores} usable cores")
+    if workers is None:
+        workers = max(1, cores // threads) if threads else cores
+    if n_tasks is not None:
+        workers = max(1, min(workers, n_tasks))
+    if threads is None:
+        threads = max(1, cores // workers)
+    return workers, threads
+
+
+def _init_worker(threads: int) -> None:
+    # Set before numpy/numba/pyfftw are imported in this fresh (spawned) process.
+    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS",
+                "NUMBA_NUM_THREADS"):
+        os.environ[var] = str(threads)
+
+
+def local_executor(workers: int, threads: int) -> cf.ProcessPoolExecutor:
+    """A process pool of ``workers`` spawned processes, each limited to ``threads`` threads."""
+    import multiprocessing
+
+    return cf.ProcessPoolExecutor(max_workers=workers, mp_context=multiprocessing.get_context(
+        "spawn"), initializer=_init_worker, initargs=(threads,))
+
+
+def connect_scheduler(address: str) -> Any:
+    """A dask ``distributed.Client`` connected to the scheduler at ``address``."""
+    try:
+        from distributed import Client
+    except ImportError:
+        raise SweepError("running on a cluster needs dask.distributed, which is not installed; "
+                         "install it with `pip install vortherm[cluster]`") from None
+    try:
+        return Client(address, timeout="20s")
+    except OSError as exc:
+        raise SweepError(f"cannot reach the dask scheduler at '{address}': {exc}") from None
+
+
+def _as_executor(executor: Any) -> Any:
+    # A dask Client returns its own futures; its concurrent.futures view returns standard ones.
+    if hasattr(executor, "get_executor"):
+        return executor.get_executor(pure=False)
+    if not hasattr(executor, "submit"):
+        raise SweepError(f"executor {executor!r} has no submit(); pass a "
+                         f"concurrent.futures.Executor or a dask distributed Client")
+    return executor
+
+
+
+# -- running a sweep ----------------------------------------------------------------------------
+@dataclass(frozen=True)
+class Progress:
+    """A snapshot for the progress bar. ``eta_s`` is None until a point has finished.
+
+    Units: seconds of wall-clock time.
+    """
+
+    total: int
+    done: int
+    skipped: int
+    running: int
+    failed: int
+    pending: int
+    elapsed_s: float
+    eta_s: float | None
+
+
+@dataclass(frozen=True)
+class SweepResult:
+    """What :func:`run_sweep` leaves behind: the tables (rows ordered by point id) and files.
+
+    ``runs`` has one row per point and seed, ``points`` one per grid point (seeds aggregated);
+    ``units`` maps every column name to its unit ("" for labels and ids).
+    """
+
+    out_dir: Path
+    axes: tuple[Axis, ...]
+    quantities: tuple[str, ...]
+    runs: list[dict]
+    points: list[dict]
+    units: dict[str, str]
+    interrupted: bool
+    failed: dict[str, str]
+    files: dict[str, Path]
+
+    @property
+    def complete(self) -> bool:
+        """True when every point finished without error."""
+        return not self.interrupted and all(r["status"] == "ok" for r in self.runs)
+
+
+def _write_json(path: Path, data: Any) -> None:
+    tmp = path.with_name(path.name + ".tmp")
+    tmp.write_text(json.dumps(data, indent=1, sort_keys=True), encoding="utf-8")
+    os.replace(tmp, path)  # atomic: a killed sweep never leaves half a record
+
+
+def _read_json(path: Path) -> dict | None:
+    try:
+        return json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None
+
+
+def _prepare(sweep: Sweep, out_dir: Path) -> list[Point]:
+    """Create the output folder; refuse one that belongs to a different sweep."""
+    points = sweep.points()
+    (out_dir / "runs").mkdir(parents=True, exist_ok=True)
+    (out_dir / "points").mkdir(exist_ok=True)
+    manifest = out_dir / "manifest.json"
+    old = _read_json(manifest) if manifest.exists() else None
+    new = {"format_version": SUMMARY_FORMAT_VERSION, "sweep_file": sweep.source,
+           "base": str(sweep.base), "points": {p.point_id: list(p.overrides) for p in points}}
+    if old is not None:
+        for pid, overrides in old.get("points", {}).items():
+            if pid in new["points"] and new["points"][pid] != overrides:
+                raise SweepError(
+                    f"output folder '{out_dir}' belongs to a different sweep: point {pid} was "
+                    f"{overrides}, now {new['points'][pid]}; choose a new output folder (finished "
+                    f"runs are never overwritten)")
+        new["points"] = {**old.get("points", {}), **new["points"]}
+    _write_json(manifest, new)
+    (out_dir / "sweep.toml").write_text(sweep.text, encoding="utf-8")
+    return points
+
+
+def _default_is_complete(path: Path) -> bool:
+    from gpe.pipeline import is_complete
+
+    return is_complete(path)
+
+
+def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
+              scheduler: str | None = None, workers: int | None = None,
+              threads: int | None = None, point_fn: Callable[[PointTask], Mapping] = run_point,
+              is_complete: Callable[[Path], bool] | None = None,
+              progress: Callable[[Progress], None] | None = None) -> SweepResult:
+    """Run (or resume) every point of ``sweep`` and write the summary tables into ``out_dir``.
+
+    Parameters
+    ----------
+    executor : anything with ``submit`` (a ``concurrent.futures.Executor`` or a dask
+        ``Client``); None starts a local pool of ``workers`` spawned processes with
+        ``threads`` FFT threads each (workers x threads <= cores).
+    scheduler : address of a dask scheduler, used when ``executor`` is None.
+    point_fn : top-level (picklable) function ``PointTask -> mapping`` with the measured
+        quantities; :func:`run_point` runs the full pipeline.
+    is_complete : verifies a finished run file; default ``gpe.pipeline.is_complete``.
+    progress : called with a :class:`Progress` after each point and about once a second.
+
+    Returns
+    -------
+    SweepResult ; ``interrupted`` is True after Ctrl-C (pending points were cancelled, their
+    state kept; rerun to continue).
+    """
+    out_dir = Path(out_dir)
+    points = _prepare(sweep, out_dir)
+    is_complete = is_complete or _default_is_complete
+    measure = asdict(sweep.measure)
+    records: dict[str, dict] = {}
+    todo: list[Point] = []
+    for p in points:
+        rec = _read_json(out_dir / "points" / f"{p.point_id}.json") or {}
+        run_path = out_dir / "runs" / f"{p.point_id}.h5"
+        if (rec.get("status") == "ok" and rec.get("measure") == json.loads(json.dumps(measure))
+                and _verified(is_complete, run_path)):
+            records[p.point_id] = rec
+        else:
+            todo.append(p)
+    n_skipped = len(points) - len(todo)
+
+    own, client, capacity = None, None, None
+    if executor is None and scheduler is not None:
+        executor = client = connect_scheduler(scheduler)
+    if executor is None:
+        capacity, threads = plan_local(usable_cores(), workers, threads, max(1, len(todo)))
+        executor = own = local_executor(capacity, threads)
+    else:
+        executor = _as_executor(executor)
+        threads = threads or 1  # a cluster worker's share of cores is set where it is started
+
+    start = time.monotonic()
+    futures: dict[cf.Future, Point] = {}
+    interrupted = False
+    last_report = 0.0
+    n_done_here = 0
+
+    def report(force: bool = False) -> None:
+        nonlocal last_report
+        now = time.monotonic()
+        if progress is None or (not force and now - last_report < 1.0):
+            return
+        last_report = now
+        ok = sum(r["status"] == "ok" for r in records.values())
+        failed = sum(r["status"] == "failed" for r in records.values())
+        running = sum(f.running() for f in futures if not f.done())
+        if capacity is not None:
+            running = min(running, capacity)
+        left = len(points) - ok - failed
+        elapsed = now - start
+        eta = elapsed / n_done_here * left if n_done_here else None
+        progress(Progress(len(points), ok, n_skipped, running, failed, left - running,
+                          elapsed, eta))
+
+    def finish(fut: cf.Future, point: Point) -> None:
+        nonlocal n_done_here
+        exc = fut.exception()
+        if isinstance(exc, KeyboardInterrupt):
+            raise KeyboardInterrupt
+        if exc is not None:  # the worker itself died (killed, out of memory, lost node)
+            outcome = {"status": "failed", "values": {}, "elapsed_s": float("nan"),
+                       "error": f"worker lost: {type(exc).__name__}: {exc}; rerun to retry"}
+        else:
+            outcome = fut.result()
+        records[point.point_id] = _save_record(out_dir, point, sweep, outcome)
+        n_done_here += 1
+
+    try:
+        for p in todo:
+            task = PointTask(p.point_id, str(sweep.base), p.overrides,
+                             str(out_dir / "runs" / f"{p.point_id}.h5"), sweep.measure, threads)
+            futures[executor.submit(_execute, point_fn, task)] = p
+        report(force=True)
+        waiting = set(futures)
+        while waiting:
+            finished, waiting = cf.wait(waiting, timeout=1.0, return_when=cf.FIRST_COMPLETED)
+            for fut in sorted(finished, key=lambda f: futures[f].point_id):
+                finish(fut, futures[fut])
+            report(force=bool(finished))
+    except KeyboardInterrupt:
+        interrupted = True
+        for fut in futures:
+            fut.cancel()
+    finally:
+        if own is not None:
+            own.shutdown(wait=True, cancel_futures=True)
+        if client is not None:
+            client.close()
+    if interrupted:  # keep every point that finished before the pool stopped
+        for fut, p in futures.items():
+            if (fut.done() and not fut.cancelled() and fut.exception() is None
+                    and p.point_id not in records):
+                records[p.point_id] = _save_record(out_dir, p, sweep, fut.result())
+    result = _summarise(sweep, out_dir, points, records, interrupted)
+    report(force=True)
+    return result
+
+
+def _verified(is_complete: Callable[[Path], bool], path: Path) -> bool:
+    if not path.exists():
+        return False
+    try:
+        return bool(is_complete(path))
+    except (VorthermError, OSError):  # an unreadable file is simply not complete
+        return False
+
+
+def _save_record(out_dir: Path, point: Point, sweep: Sweep, outcome: Mapping) -> dict:
+    rec = {"point_id": point.point_id, "grid_id": point.grid_id, "seed": point.seed,
+           "overrides": list(point.overrides), "run_file": f"runs/{point.point_id}.h5",
+           "measure": asdict(sweep.measure), **outcome}
+    rec = json.loads(json.dumps(rec))  # tuples -> lists, so that reruns compare equal
+    _write_json(out_dir / "points" / f"{point.point_id}.json", rec)
+    return rec
+
+
+# -- summary tables -----------------------------------------------------------------------------
+def column_header(name: str, unit: str) -> str:
+    """CSV header of a column: ``beta [1/E0]``, or the bare name for labels."""
+    return f"{name} [{unit}]" if unit else name
+
+
+def _summarise(sweep: Sweep, out_dir: Path, points: list[Point], records: Mapping[str, dict],
+               interrupted: bool) -> SweepResult:
+    import numpy as np
+    from scipy import stats
+
+    qs = sweep.measure.quantities
+    units = {"point_id": "", "grid_id": "", "seed": "", "status": "", "error": "",
+             "n_seeds": "count", "n_ok": "count", "frac_beta_negative": "1"}
+    units.update({a.key: a.unit for a in sweep.axes})
+    runs = []
+    for p in sorted(points, key=lambda p: p.point_id):
+        rec = records.get(p.point_id, {"status": "pending", "values": {}, "error": ""})
+        row = {"point_id": p.point_id, "grid_id": p.grid_id, "seed": p.seed}
+        row.update({a.key: v for a, v in zip(sweep.axes, p.coords)})
+        row.update(status=rec["status"], error=rec.get("error", ""))
+        row.update({q: float(rec["values"].get(q, math.nan)) for q in qs})
+        runs.append(row)
+    units.update({q: QUANTITIES[q][0] for q in qs})
+
+    agg = []
+    for grid_id, group in itertools.groupby(runs, key=lambda r: r["grid_id"]):
+        group = list(group)
+        ok = [r for r in group if r["status"] == "ok"]
+        row = {"grid_id": grid_id, **{a.key: group[0][a.key] for a in sweep.axes},
+               "n_seeds": len(group), "n_ok": len(ok)}
+        for q in qs:
+            x = np.array([r[q] for r in ok], dtype=float)
+            mean = float(x.mean()) if x.size else math.nan
+            std = float(x.std(ddof=1)) if x.size > 1 else math.nan
+            # Student-t 95% interval of the mean over seeds [pub: Student, Biometrika 6, 1 (1908)]
+            half = float(stats.t.ppf(0.975, x.size - 1) * std / math.sqrt(x.size)) \
+                if x.size > 1 else math.nan
+            row.update({f"{q}_mean": mean, f"{q}_std": std, f"{q}_lo95": mean - half,
+                        f"{q}_hi95": mean + half})
+            for suffix in ("_mean", "_std", "_lo95", "_hi95"):
+                units[q + suffix] = QUANTITIES[q][0]
+        beta = np.array([r["beta"] for r in ok], dtype=float)
+        row["frac_beta_negative"] = float(np.mean(beta < 0)) if beta.size else math.nan
+        agg.append(row)
+
+    files = {"runs_csv": out_dir / "summary_runs.csv", "points_csv": out_dir / "summary_points.csv",
+             "hdf5": out_dir / "summary.h5", "state": out_dir / "state.json"}
+    _write_csv(files["runs_csv"], runs, units)
+    _write_csv(files["points_csv"], agg, units)
+    _write_hdf5(files["hdf5"], sweep, runs, agg, units)
+    failed = {r["point_id"]: r["error"] for r in runs if r["status"] == "failed"}
+    counts = {s: sum(r["status"] == s for r in runs) for s in ("ok", "failed", "pending")}
+    _write_json(files["state"], {"interrupted": interrupted, "counts": counts, "failed": failed,
+                                 "time_unix": time.time()})
+    return SweepResult(out_dir, sweep.axes, qs, runs, agg, units, interrupted, failed, files)
+
+
+def _cell(value: Any) -> str:
+    if isinstance(value, float):
+        return repr(value)  # round-trips exactly, so equal runs give byte-equal files
+    return str(value)
+
+
+def _write_csv(path: Path, rows: list[dict], units: Mapping[str, str]) -> None:
+    import csv
+
+    names = list(rows[0]) if rows else []
+    tmp = path.with_name(path.name + ".tmp")
+    with tmp.open("w", newline="", encoding="utf-8") as fh:
+        writer = csv.writer(fh, lineterminator="\n")
+        writer.writerow([column_header(n, units.get(n, "")) for n in names])
+        writer.writerows([_cell(r[n]) for n in names] for r in rows)
+    os.replace(tmp, path)
+
+
+def _write_hdf5(path: Path, sweep: Sweep, runs: list[dict], agg: list[dict],
+                units: Mapping[str, str]) -> None:
+    import h5py
+    import numpy as np
+
+    tmp = path.with_name(path.name + ".tmp")
+    with h5py.File(tmp, "w") as h5:
+        h5.attrs["format_version"] = SUMMARY_FORMAT_VERSION
+        h5.attrs["sweep_text"] = sweep.text
+        h5.attrs["base_protocol"] = str(sweep.base)
+        h5.attrs["axes"] = json.dumps([asdict(a) for a in sweep.axes])
+        h5.attrs["measure"] = json.dumps(asdict(sweep.measure))
+        for group_name, rows in (("runs", runs), ("points", agg)):
+            group = h5.create_group(group_name)
+            names = list(rows[0]) if rows else []
+            group.attrs["columns"] = json.dumps(names)
+            for n in names:
+                col = [r[n] for r in rows]
+                if all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in col):
+                    data = np.asarray(col)
+                else:
+                    data = np.asarray([str(v) for v in col], dtype=h5py.string_dtype())
+                # dataset names may not contain '/', protocol keys only use dots
+                ds = group.create_dataset(n, data=data)
+                ds.attrs["units"] = units.get(n, "")
+    os.replace(tmp, path)
+
+
+def read_table(path: str | os.PathLike) -> tuple[list[dict], dict[str, str]]:
+    """Read a summary CSV back: rows keyed by bare column name, and the units of each column."""
+    import csv
+
+    with Path(path).open(encoding="utf-8", newline="") as fh:
+        reader = csv.reader(fh)
+        header = next(reader)
+        names, units = [], {}
+        for h in header:
+            name, _, unit = h.partition(" [")
+            names.append(name)
+            units[name] = unit[:-1] if unit else ""
+        rows = []
+        for line in reader:
+            row = {}
+            for n, v in zip(names, line):
+                try:
+                    row[n] = int(v) if v.lstrip("-").isdigit() else float(v)
+                except ValueError:
+                    row[n] = v
+            rows.append(row)
+    return rows, units

@@ -1,0 +1,255 @@
+"""Tests of the sweep machinery (gpe/sweep.py).
+
+Most tests use a cheap stand-in point function (module level, so spawned workers can import it)
+that writes a tiny text "run file", counts its simulations and returns values computed from the
+overrides. The machinery under test — expansion, executors, resuming, failure handling, tables —
+is the same as with the real pipeline.
+"""
+
+from __future__ import annotations
+
+import concurrent.futures as cf
+import json
+import math
+from pathlib import Path
+
+import h5py
+import numpy as np
+import pytest
+from scipy import stats
+
+from gpe.errors import ProtocolError
+from gpe.sweep import (QUANTITIES, PointTask, SweepError, load_sweep, parse_sweep, plan_local,
+                       read_table, run_sweep)
+
+SWEEP_TEXT = """
+base = "base.toml"
+seeds = 2
+
+[[axes]]
+key = "beams.0.path.speed_c"
+values = [0.3, 0.6]
+label = "beam speed"
+
+[[axes]]
+key = "beams.0.waist_um"
+values = [2.0, 4.0]
+
+[measure]
+window = [80.0, 100.0]
+quantities = ["beta", "n_plus", "dipole_fraction"]
+"""
+
+
+def _overrides(task: PointTask) -> dict:
+    return dict(o.split("=", 1) for o in task.overrides)
+
+
+def stand_in_point(task: PointTask) -> dict:
+    """Simulate by writing a run file; raise on request (control files beside the runs)."""
+    run = Path(task.run_path)
+    ctl = run.parent.parent
+    o = _overrides(task)
+    speed, waist, seed = float(o["beams.0.path.speed_c"]), float(o["beams.0.waist_um"]), int(
+        o["evolution.seed"])
+    if (ctl / f"invalid_{task.point_id}").exists():
+        raise ProtocolError(f"beams.0.path.speed_c = {speed}: too fast for this test")
+    if not stand_in_is_complete(run):
+        with (run.parent / f"{task.point_id}.calls").open("a") as fh:
+            fh.write(f"resume={run.exists()}\n")
+        run.write_text("started\n")
+        if (ctl / f"interrupt_{task.point_id}").exists():
+            raise KeyboardInterrupt
+        run.write_text("complete\n")
+    # beta changes sign across speed 0.45: a made-up but deterministic map.
+    return {"beta": (0.45 - speed) * waist + 0.01 * seed, "n_plus": 3 + seed,
+            "dipole_fraction": waist / 10.0, "verdict": "ignored extra key"}
+
+
+def stand_in_is_complete(path: Path) -> bool:
+    return path.exists() and path.read_text() == "complete\n"
+
+
+def calls(out: Path, pid: str) -> list[str]:
+    f = out / "runs" / f"{pid}.calls"
+    return f.read_text().split() if f.exists() else []
+
+
+@pytest.fixture
+def sweep_file(tmp_path):
+    (tmp_path / "base.toml").write_text("# stand-in protocol, never parsed here\n")
+    path = tmp_path / "sweep.toml"
+    path.write_text(SWEEP_TEXT)
+    return path
+
+
+def run_stand_in(sweep_file, out, **kw):
+    sweep = load_sweep(sweep_file, check_protocol=False)
+    return run_sweep(sweep, out, point_fn=stand_in_point, is_complete=stand_in_is_complete, **kw)
+
+
+def test_grid_expands_into_readable_points(sweep_file):
+    sweep = load_sweep(sweep_file, check_protocol=False)
+    points = sweep.points()
+    assert [p.point_id for p in points] == [f"p00{i}_s{s}" for i in range(4) for s in (0, 1)]
+    assert points[3].overrides == ("beams.0.path.speed_c=0.3", "beams.0.waist_um=4.0",
+                                   "evolution.seed=1")
+    assert sweep.axes[0].title == "beam speed [c]" and sweep.axes[1].unit == "um"
+    assert sweep.measure.window == (80.0, 100.0)
+
+
+def test_ranges_linear_and_log(tmp_path):
+    (tmp_path / "b.toml").write_text("")
+    text = ('base = "b.toml"\n[[axes]]\nkey = "a.x_mu"\nrange = {start = 1, stop = 2, num = 3}\n'
+            '[[axes]]\nkey = "a.gamma"\nrange = {start = 1e-4, stop = 1e-2, num = 3, '
+            'scale = "log"}\n')
+    sweep = parse_sweep(text, tmp_path / "s.toml", check_protocol=False)
+    assert sweep.axes[0].values == (1.0, 1.5, 2.0)
+    np.testing.assert_allclose(sweep.axes[1].values, [1e-4, 1e-3, 1e-2], rtol=1e-12)
+    assert sweep.axes[1].scale == "log" and sweep.seeds == (0,)
+
+
+@pytest.mark.parametrize("bad, message", [
+    ("axis = []", "did you mean 'axes'"),
+    ('[[axes]]\nkey = "k"\nvalus = [1]', "did you mean 'values'"),
+    ('[[axes]]\nkey = "k"\nvalues = [1]\nrange = {start = 0, stop = 1, num = 2}', "exactly one"),
+    ('[[axes]]\nkey = "k"\nrange = {start = 0, stop = 1}', "missing 'num'"),
+    ('[[axes]]\nkey = "k"\nrange = {start = 0, stop = 1, num = 3, scale = "log"}', "log range"),
+    ('[[axes]]\nkey = "evolution.seed"\nvalues = [1]', "seeds"),
+    ('[[axes]]\nkey = "k"\nvalues = [1, 1]', "duplicate"),
+    ('seeds = 0\n[[axes]]\nkey = "k"\nvalues = [1]', "seeds"),
+    ('[[axes]]\nkey = "k"\nvalues = [1]\n[measure]\nquantities = ["betta"]', "did you mean 'beta'"),
+    ('[[axes]]\nkey = "k"\nvalues = [1]\n[measure]\nwindow = [5, 1]', "t0 < t1"),
+    ('[[axes]]\nkey = "k"\nvalues = [1]\n[measure]\nat_time = 1\nwindow = [0, 1]', "not both"),
+])
+def test_sweep_file_errors_name_file_and_key(tmp_path, bad, message):
+    (tmp_path / "b.toml").write_text("")
+    src = tmp_path / "my_sweep.toml"
+    src.write_text('base = "b.toml"\n' + bad + "\n")
+    with pytest.raises(SweepError) as err:
+        load_sweep(src, check_protocol=False)
+    assert message in str(err.value) and "my_sweep.toml" in str(err.value)
+
+
+def test_missing_base_protocol_is_reported(tmp_path):
+    with pytest.raises(SweepError, match="nowhere.toml.*relative to the sweep file"):
+        parse_sweep('base = "nowhere.toml"\n[[axes]]\nkey = "k"\nvalues = [1]\n',
+                    tmp_path / "s.toml", check_protocol=False)
+
+
+@pytest.mark.parametrize("cores, workers, threads, n_tasks, expected", [
+    (2, None, None, 10, (2, 1)), (8, 2, None, 10, (2, 4)), (8, None, 3, 10, (2, 3)),
+    (8, None, None, 3, (3, 2)), (1, None, None, 5, (1, 1)),
+])
+def test_local_plan_never_oversubscribes(cores, workers, threads, n_tasks, expected):
+    got = plan_local(cores, workers, threads, n_tasks)
+    assert got == expected and got[0] * got[1] <= cores
+
+
+def test_local_plan_rejects_oversubscription():
+    with pytest.raises(SweepError, match="oversubscribe"):
+        plan_local(2, 2, 2)
+
+
+def test_local_and_dask_give_identical_tables(sweep_file, tmp_path):
+    distributed = pytest.importorskip("distributed")
+    local = run_stand_in(sweep_file, tmp_path / "local", workers=2)
+    with distributed.LocalCluster(n_workers=1, threads_per_worker=2, processes=False,
+                                  dashboard_address=None) as cluster, \
+            distributed.Client(cluster) as client:
+        remote = run_stand_in(sweep_file, tmp_path / "dask", executor=client)
+    assert local.complete and remote.complete
+    for name in ("summary_runs.csv", "summary_points.csv"):
+        assert (tmp_path / "local" / name).read_bytes() == (tmp_path / "dask" / name).read_bytes()
+    with h5py.File(local.files["hdf5"]) as a, h5py.File(remote.files["hdf5"]) as b:
+        for group in ("runs", "points"):
+            assert list(a[group]) == list(b[group])
+            for name in a[group]:
+                np.testing.assert_array_equal(a[group][name][()], b[group][name][()])
+                assert a[group][name].attrs["units"] == b[group][name].attrs["units"]
+
+
+def test_summary_columns_units_and_aggregation(sweep_file, tmp_path):
+    result = run_stand_in(sweep_file, tmp_path / "out", workers=1)
+    runs, units = read_table(result.files["runs_csv"])
+    header = (tmp_path / "out" / "summary_runs.csv").read_text().splitlines()[0].split(",")
+    assert header == ["point_id", "grid_id", "seed", "beams.0.path.speed_c [c]",
+                      "beams.0.waist_um [um]", "status", "error", "beta [1/E0]",
+                      "n_plus [count]", "dipole_fraction [1]"]
+    assert [r["point_id"] for r in runs] == sorted(r["point_id"] for r in runs)
+    points, punits = read_table(result.files["points_csv"])
+    assert punits["beta_mean"] == "1/E0" and punits["frac_beta_negative"] == "1"
+    # p001: speed 0.3, waist 4 -> beta = 0.6 + 0.01 seed for seeds 0, 1
+    p = next(r for r in points if r["grid_id"] == "p001")
+    x = np.array([0.6, 0.61])
+    # reference interval from scipy's own t-interval routine
+    lo, hi = stats.t.interval(0.95, df=1, loc=x.mean(), scale=stats.sem(x))
+    assert p["beta_mean"] == pytest.approx(x.mean()) and p["n_ok"] == 2
+    assert (p["beta_lo95"], p["beta_hi95"]) == pytest.approx((lo, hi))
+    assert [r["frac_beta_negative"] for r in points] == [0.0, 0.0, 1.0, 1.0]
+    with h5py.File(result.files["hdf5"]) as h5:
+        assert h5["runs/beta"].attrs["units"] == "1/E0"
+        assert h5["points/beams.0.waist_um"].attrs["units"] == "um"
+        assert "base.toml" in h5.attrs["sweep_text"]
+
+
+def test_interrupted_sweep_resumes_without_recomputing(sweep_file, tmp_path):
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "interrupt_p001_s1").touch()  # the 4th point stops the sweep, as Ctrl-C would
+    first = run_stand_in(sweep_file, out, workers=1)
+    assert first.interrupted and not first.complete
+    done_first = [r["point_id"] for r in first.runs if r["status"] == "ok"]
+    assert {"p000_s0", "p000_s1", "p001_s0"} <= set(done_first)
+    assert "p001_s1" not in done_first
+    assert json.loads((out / "state.json").read_text())["interrupted"] is True
+    stamps = {pid: (out / "runs" / f"{pid}.h5").stat().st_mtime_ns for pid in done_first}
+
+    (out / "interrupt_p001_s1").unlink()
+    seen = []
+    second = run_stand_in(sweep_file, out, workers=2, progress=seen.append)
+    assert second.complete and seen[-1].done == 8 and seen[-1].skipped == len(done_first)
+    for pid in done_first:  # finished points: simulated once, run file untouched
+        assert calls(out, pid) == ["resume=False"]
+        assert (out / "runs" / f"{pid}.h5").stat().st_mtime_ns == stamps[pid]
+    # the interrupted point resumed from its partial run file
+    assert calls(out, "p001_s1") == ["resume=False", "resume=True"]
+
+    third = run_stand_in(sweep_file, out, workers=1)
+    assert third.complete and all(len(calls(out, r["point_id"])) <= 2 for r in third.runs)
+    assert third.runs == second.runs
+
+
+def test_failing_point_is_recorded_and_others_finish(sweep_file, tmp_path):
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "invalid_p002_s0").touch()
+    result = run_stand_in(sweep_file, out, workers=2)
+    assert not result.interrupted and not result.complete
+    assert list(result.failed) == ["p002_s0"]
+    assert "ProtocolError" in result.failed["p002_s0"] and "too fast" in result.failed["p002_s0"]
+    ok = [r for r in result.runs if r["status"] == "ok"]
+    assert len(ok) == 7
+    bad = next(r for r in result.runs if r["point_id"] == "p002_s0")
+    assert math.isnan(bad["beta"])
+    p2 = next(r for r in result.points if r["grid_id"] == "p002")
+    assert p2["n_ok"] == 1 and math.isnan(p2["beta_std"])
+
+
+def test_missing_quantity_is_a_point_failure(tmp_path, sweep_file):
+    sweep = load_sweep(sweep_file, check_protocol=False)
+    result = run_sweep(sweep, tmp_path / "o", executor=cf.ThreadPoolExecutor(1),
+                       point_fn=lambda task: {"beta": 1.0}, is_complete=stand_in_is_complete)
+    assert len(result.failed) == 8 and "no 'n_plus'" in result.failed["p000_s0"]
+
+
+def test_output_folder_of_another_sweep_is_refused(sweep_file, tmp_path):
+    run_stand_in(sweep_file, tmp_path / "out", executor=cf.ThreadPoolExecutor(2))
+    sweep_file.write_text(SWEEP_TEXT.replace("[0.3, 0.6]", "[0.2, 0.6]"))
+    with pytest.raises(SweepError, match="different sweep"):
+        run_stand_in(sweep_file, tmp_path / "out", executor=cf.ThreadPoolExecutor(2))
+
+
+def test_quantity_table_is_complete():
+    assert set(QUANTITIES) == {"beta", "n_plus", "n_minus", "dipole_fraction",
+                               "cluster_fraction", "free_fraction", "energy_per_vortex"}

@@ -1,0 +1,140 @@
+"""Tests of thermo.compare: simulated vs measured statistics and their tests of difference."""
+
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+import pytest
+
+from thermo.compare import (
+    QUANTITIES, CompareError, compare_ensembles, plot_comparison, shot_statistics, write_csv,
+    write_json,
+)
+from thermo.degrade import ImagingModel, degrade_many
+from thermo.domains import Disk
+
+
+def _uniform_shots(rng, n_shots, n_range=(10, 20)):
+    """Neutral-ish gas at beta = 0: uniform positions, N drawn per shot."""
+    disk = Disk()
+    out = []
+    for _ in range(n_shots):
+        n = int(rng.integers(*n_range))
+        out.append((disk.sample_uniform(rng, n), np.repeat([1, -1], [n // 2, n - n // 2])))
+    return out
+
+
+def test_shot_statistics_beta0_exact_means(rng):
+    """At beta = 0 (uniform positions) the ensemble means have exact values:
+    <D^2> = 1/(2N) and, neutral, <C1> = -1/(N-1), <E> = -5N/4 [exact, reference-values.md].
+    Accept 4 standard errors.
+    """
+    n = 12
+    shots = [(Disk().sample_uniform(rng, n), np.repeat([1, -1], 6)) for _ in range(3000)]
+    st = shot_statistics(shots, Disk())
+    np.testing.assert_array_equal(st["n_plus"], 6)
+    for values, exact in ((st["dipole_moment"] ** 2, 1 / (2 * n)), (st["c1"], -1 / (n - 1)),
+                          (st["energy_per_vortex"] * n, -5 * n / 4)):
+        se = values.std(ddof=1) / math.sqrt(len(values))
+        assert abs(values.mean() - exact) < 4 * se
+    # the fractions of the three classes add up to one in every shot [exact]
+    np.testing.assert_allclose(st["dipole_fraction"] + st["cluster_fraction"]
+                               + st["free_fraction"], 1.0, atol=1e-12)
+
+
+def test_shot_order_and_vortex_order_do_not_matter(rng):
+    shots = _uniform_shots(rng, 12)
+    permuted = [(p[o], s[o]) for p, s in shots for o in [rng.permutation(len(s))]]
+    a = shot_statistics(shots, Disk())
+    b = shot_statistics(permuted, Disk())
+    for k in QUANTITIES:
+        np.testing.assert_allclose(a[k], b[k], rtol=1e-12, atol=1e-12)
+
+
+def test_undefined_shots_are_nan_not_errors(rng):
+    shots = [(np.zeros((0, 2)), np.zeros(0, dtype=int)), (np.array([[0.1, 0.2]]), np.array([1]))]
+    st = shot_statistics(shots, Disk())
+    assert math.isnan(st["energy_per_vortex"][0]) and np.isfinite(st["energy_per_vortex"][1])
+    assert math.isnan(st["c1"][1])
+
+
+def test_ensemble_against_itself_shows_no_difference(rng):
+    shots = _uniform_shots(rng, 40)
+    res = compare_ensembles(shots, shots, Disk(), 0.02, include_beta=False, seed=3)
+    for row in res.rows:
+        assert row.difference == 0.0
+        assert row.ci95_low <= 0.0 <= row.ci95_high
+        assert row.p_ks > 0.05 and row.p_permutation > 0.05
+        assert not row.significant
+
+
+def test_same_beta_independent_draws_mostly_agree(rng):
+    """Two independent beta = 0 ensembles: at the 5% level each test rejects with
+    probability 0.05, so with 9 quantities x 2 tests a Bonferroni-corrected level
+    (0.05 / 18) must not reject [common practice: family-wise error control]."""
+    a = _uniform_shots(rng, 60)
+    b = _uniform_shots(rng, 40)
+    res = compare_ensembles(a, b, Disk(), 0.02, include_beta=False, seed=4)
+    for row in res.rows:
+        assert row.p_ks > 0.05 / 18 and row.p_permutation > 0.05 / 18, row
+
+
+def test_clearly_different_structure_is_detected(rng):
+    """Dipole gas (each + with a - at distance 0.03) vs uniform gas: C1 = -1 vs ~-1/(N-1),
+    and the energy per vortex differs strongly; both tests must reject at 5%."""
+    disk = Disk()
+    dipoles = []
+    for _ in range(30):
+        c = 0.9 * disk.sample_uniform(rng, 7)
+        ang = rng.uniform(0, 2 * np.pi, 7)
+        partner = c + 0.03 * np.column_stack([np.cos(ang), np.sin(ang)])
+        dipoles.append((np.concatenate([c, partner]), np.repeat([1, -1], 7)))
+    uniform = [(disk.sample_uniform(rng, 14), np.repeat([1, -1], 7)) for _ in range(30)]
+    res = compare_ensembles(dipoles, uniform, disk, 0.01, include_beta=False, seed=5)
+    for q in ("c1", "energy_per_vortex", "dipole_fraction", "mean_nn_distance"):
+        row = res.row(q)
+        assert row.p_ks < 0.05 and row.p_permutation < 0.05 and row.significant
+        assert not (row.ci95_low <= 0 <= row.ci95_high)
+    # -1 unless two dipoles happen to lie closer than 0.03 to each other
+    assert res.row("c1").simulation < -0.95
+
+
+def test_writers_round_trip(tmp_path, rng):
+    shots = _uniform_shots(rng, 20)
+    res = compare_ensembles(shots, _uniform_shots(rng, 15), Disk(), 0.02, include_beta=False,
+                            n_boot=200, n_permutations=200)
+    data = json.loads(write_json(res, tmp_path / "c.json").read_text())
+    assert [r["quantity"] for r in data["rows"]] == [r.quantity for r in res.rows]
+    assert data["rows"][2]["simulation"] == pytest.approx(res.rows[2].simulation)
+    lines = [ln for ln in write_csv(res, tmp_path / "c.csv").read_text().splitlines()
+             if not ln.startswith("#")]
+    assert lines[0].startswith("quantity,unit,simulation,measured,difference,ci95_low")
+    assert len(lines) == 1 + len(res.rows)
+
+
+def test_figure_draws(tmp_path, rng):
+    res = compare_ensembles(_uniform_shots(rng, 10), _uniform_shots(rng, 8), Disk(), 0.02,
+                            include_beta=False, n_boot=200, n_permutations=200)
+    fig = plot_comparison(res, tmp_path / "c.png", length_scale_um=40.0)
+    assert (tmp_path / "c.png").stat().st_size > 10_000
+    assert len(fig.axes) == 15
+
+
+def test_bad_input_raises(rng):
+    shots = _uniform_shots(rng, 5)
+    with pytest.raises(CompareError, match="core_radius"):
+        compare_ensembles(shots, shots, Disk(), 0.0)
+    with pytest.raises(CompareError, match=r"measured shot 1: signs"):
+        compare_ensembles(shots, [shots[0], (shots[1][0], shots[1][1] * 2)], Disk(), 0.02)
+    with pytest.raises(CompareError, match="no shots"):
+        compare_ensembles(shots, [], Disk(), 0.02)
+
+
+def test_degraded_copy_with_identity_model_compares_equal(rng):
+    shots = _uniform_shots(rng, 25)
+    same = degrade_many(shots, Disk(), ImagingModel(), rng)
+    res = compare_ensembles(shots, same, Disk(), 0.02, include_beta=False, n_boot=200,
+                            n_permutations=200)
+    assert all(r.difference == 0.0 for r in res.rows)

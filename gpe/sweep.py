@@ -823,3 +823,39 @@ def read_table(path: str | os.PathLike) -> tuple[list[dict], dict[str, str]]:
                     row[n] = v
             rows.append(row)
     return rows, units
+
+
+def read_summary(out_dir: str | os.PathLike) -> SweepResult:
+    """Reopen the tables a finished (or interrupted) sweep wrote into ``out_dir``."""
+    import h5py
+
+    out_dir = Path(out_dir)
+    path = out_dir / "summary.h5"
+    try:
+        h5 = h5py.File(path, "r")
+    except OSError:
+        raise SweepError(f"no sweep summary in '{out_dir}' (summary.h5 missing or unreadable); "
+                         f"run the sweep first") from None
+    with h5:
+        axes = tuple(Axis(**{**a, "values": tuple(a["values"])})
+                     for a in json.loads(h5.attrs["axes"]))
+        quantities = tuple(json.loads(h5.attrs["measure"])["quantities"])
+        units, tables = {}, {}
+        for group in ("runs", "points"):
+            names = json.loads(h5[group].attrs["columns"])
+            cols = {n: h5[group][n][()] for n in names}
+            units.update({n: str(h5[group][n].attrs["units"]) for n in names})
+            n_rows = len(next(iter(cols.values()))) if cols else 0
+            tables[group] = [{n: _plain(cols[n][i]) for n in names} for i in range(n_rows)]
+    state = _read_json(out_dir / "state.json") or {}
+    failed = {r["point_id"]: r["error"] for r in tables["runs"] if r["status"] == "failed"}
+    files = {"runs_csv": out_dir / "summary_runs.csv", "points_csv": out_dir / "summary_points.csv",
+             "hdf5": path, "state": out_dir / "state.json"}
+    return SweepResult(out_dir, axes, quantities, tables["runs"], tables["points"], units,
+                       bool(state.get("interrupted", False)), failed, files)
+
+
+def _plain(value: Any) -> Any:
+    if isinstance(value, bytes):
+        return value.decode("utf-8")
+    return value.item() if hasattr(value, "item") else value

@@ -253,3 +253,28 @@ def test_output_folder_of_another_sweep_is_refused(sweep_file, tmp_path):
 def test_quantity_table_is_complete():
     assert set(QUANTITIES) == {"beta", "n_plus", "n_minus", "dipole_fraction",
                                "cluster_fraction", "free_fraction", "energy_per_vortex"}
+
+
+def test_phase_map_outlines_negative_beta(sweep_file, tmp_path):
+    from matplotlib.colors import CenteredNorm
+
+    from gpe.sweep import read_summary
+    from gpe.sweep_plots import plot_sweep
+
+    result = run_stand_in(sweep_file, tmp_path / "out", executor=cf.ThreadPoolExecutor(2))
+    again = read_summary(tmp_path / "out")
+    assert again.points == result.points and again.axes == result.axes
+    fig = plot_sweep(tmp_path / "out", path=tmp_path / "map.png")
+    ax = fig.axes[0]
+    mesh = ax.collections[0]
+    assert isinstance(mesh.norm, CenteredNorm) and mesh.norm.vcenter == 0.0
+    assert ax.get_xlabel() == "beams.0.waist_um [um]" and ax.get_ylabel() == "beam speed [c]"
+    # the beta = 0 contour lies between the two speeds (0.3: beta > 0, 0.6: beta < 0)
+    contour = [c for c in ax.collections[1:] if hasattr(c, "get_paths") and c.get_paths()]
+    verts = np.concatenate([p.vertices for c in contour for p in c.get_paths()])
+    assert np.all((verts[:, 1] > 0.3) & (verts[:, 1] < 0.6))
+    assert (tmp_path / "map.png").stat().st_size > 0
+    line = plot_sweep(result, select={"beams.0.waist_um": 4.0})
+    assert line.axes[0].get_xlabel() == "beam speed [c]"
+    with pytest.raises(SweepError, match="not a swept key"):
+        plot_sweep(result, select={"beams.0.wiast_um": 4.0})

@@ -32,11 +32,7 @@ import numpy as np
 from scipy.sparse import csr_matrix
 from scipy.sparse.csgraph import connected_components
 
-try:  # adapter until thermo/errors.py (another owner) lands
-    from thermo.errors import ConfigurationError
-except ImportError:  # pragma: no cover
-    class ConfigurationError(ValueError):
-        """Invalid vortex configuration (temporary local definition)."""
+from thermo.errors import ConfigurationError
 
 FREE = 0
 DIPOLE = 1

@@ -1,0 +1,97 @@
+"""Tests of thermo.dos: MBAR pooling, canonical reweighting, ln g(E), beta(E), disk cache."""
+
+from types import SimpleNamespace
+
+import numpy as np
+import pytest
+
+from thermo import dos as dosmod
+from thermo.dos import DensityOfStates, DosSettings, solve_mbar
+
+
+def _one_vortex_result(rng, betas, n_samples):
+    """Exact canonical samples of one vortex in the unit disk (no core).
+
+    [exact] E = ln(1 - |u|^2) = ln x with x = 1 - |u|^2 uniform at beta = 0 (area
+    measure), so p_beta(x) = (1 - beta) x^(-beta): x = U^(1/(1 - beta)). Hence
+    <E> = -1/(1 - beta), Var E = 1/(1 - beta)^2, g(E) = e^E and beta_micro(E) = 1.
+    """
+    x = rng.random((len(betas), n_samples)) ** (1.0 / (1.0 - betas[:, None]))
+    return SimpleNamespace(betas=np.asarray(betas), energies=np.log(x), n_plus=1, n_minus=0,
+                           core_radius=0.0, domain=None)
+
+
+@pytest.fixture(scope="module")
+def one_vortex_dos():
+    rng = np.random.default_rng(11)
+    res = _one_vortex_result(rng, np.linspace(-3.0, 0.7, 10), 1200)
+    return DensityOfStates.from_tempering(res, n_boot=30, rng=rng)
+
+
+def test_one_vortex_mean_energy_between_ladder_points(one_vortex_dos):
+    """[exact] <E> = -1/(1 - beta~) (reference-values.md, one vortex), at betas between
+    the ladder's rungs, both signs; |error| < 4 bootstrap SE (+ a 1% floor for the SE's
+    own uncertainty from 30 replicates)."""
+    beta = np.array([-2.77, -1.1, -0.05, 0.31, 0.66])
+    mean, err = one_vortex_dos.mean_energy(beta)
+    exact = -1.0 / (1.0 - beta)
+    assert np.all(np.abs(mean - exact) < 4 * err + 0.01 * np.abs(exact)), (mean, exact, err)
+    var, verr = one_vortex_dos.energy_variance(beta)
+    assert np.all(np.abs(var - exact ** 2) < 4 * verr + 0.02 * exact ** 2)
+
+
+def test_one_vortex_log_dos_and_micro_beta(one_vortex_dos):
+    """[exact] g(E) = e^E for one vortex, so ln g(E) = E and dS/dE = 1 everywhere."""
+    edges, ln_g, err = one_vortex_dos.log_dos(25)
+    centres = 0.5 * (edges[1:] + edges[:-1])
+    # the bin average of e^E over [a, b] is (e^b - e^a)/(b - a)
+    exact = np.log(np.diff(np.exp(edges)) / np.diff(edges))
+    good = np.isfinite(ln_g) & (err < 0.3)
+    assert good.sum() >= 10
+    assert np.all(np.abs(ln_g[good] - exact[good]) < 4 * err[good] + 0.02), centres
+    lo, hi = one_vortex_dos.energy_range()
+    e = np.linspace(lo, hi, 7)[1:-1]
+    beta, berr = one_vortex_dos.beta_micro(e)
+    assert np.all(np.abs(beta - 1.0) < 4 * berr + 0.02), (beta, berr)
+    assert np.all(np.isnan(one_vortex_dos.beta_micro([lo - 5.0, hi + 1.0])[0]))
+
+
+def test_mbar_free_energies_agree_with_pymbar(rng):
+    """Independent implementation: pymbar 4 (Shirts & Chodera 2008) on the same u_kn."""
+    pymbar = pytest.importorskip("pymbar")
+    res = _one_vortex_result(rng, np.linspace(-2.0, 0.5, 6), 300)
+    flat = res.energies.reshape(-1)
+    f, _ = solve_mbar(flat, res.betas, np.full(6, 300))
+    ref = pymbar.MBAR(np.outer(res.betas, flat), np.full(6, 300)).f_k
+    np.testing.assert_allclose(f - f[0], ref - ref[0], atol=1e-7)
+
+
+def test_log_z_is_exact_for_one_vortex(one_vortex_dos):
+    """[exact] Z(beta)/Z(0) = 1/(1 - beta) for one vortex."""
+    beta = np.array([-2.5, -0.7, 0.4])
+    lz = one_vortex_dos.log_z(beta)
+    spread = one_vortex_dos.log_z_replicates(beta).std(axis=0, ddof=1)
+    assert np.all(np.abs(lz + np.log1p(-beta)) < 4 * spread + 0.01)
+
+
+def test_outside_ladder_and_unknown_observable_raise(one_vortex_dos):
+    from thermo.errors import SamplerError
+    with pytest.raises(SamplerError, match="outside the sampled ladder"):
+        one_vortex_dos.mean_energy(2.0)
+    with pytest.raises(SamplerError, match="unknown observable"):
+        one_vortex_dos.canonical(0.0, "no_such_thing")
+
+
+def test_save_load_roundtrip(tmp_path, one_vortex_dos):
+    path = tmp_path / "x.npz"
+    dosmod.save(one_vortex_dos, path, ("k",))
+    back, meta = dosmod.load(path)
+    for name in ("betas", "energies", "f", "log_denom", "boot_f", "boot_counts"):
+        np.testing.assert_array_equal(getattr(back, name), getattr(one_vortex_dos, name))
+    np.testing.assert_array_equal(back.mean_energy(0.1)[0], one_vortex_dos.mean_energy(0.1)[0])
+
+
+def test_settings_are_validated():
+    from thermo.errors import SamplerError
+    with pytest.raises(SamplerError, match="n_sweeps"):
+        DosSettings(n_sweeps=1)

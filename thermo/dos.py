@@ -1,0 +1,586 @@
+"""Density of states S(E) = ln g(E) of the point-vortex gas from parallel-tempering samples.
+
+All replicas of a tempering run are pooled with the multistate Bennett acceptance ratio
+(MBAR; Shirts & Chodera, J. Chem. Phys. 129, 124105 (2008)). Every state has the reduced
+potential u_k(x) = beta_k E(x), so the self-consistent MBAR equations
+
+.. math::
+    f_i = -\\ln \\sum_n \\frac{e^{-\\beta_i E_n}}{\\sum_k N_k e^{f_k - \\beta_k E_n}}
+
+involve only the pooled energies. They are solved here by Newton's method on the convex
+MBAR objective (K ~ 20 states, so the K x K Hessian is cheap); this takes a handful of
+iterations from a thermodynamic-integration start, which makes a block bootstrap of the
+whole estimate (re-solving for every replicate) affordable. pymbar 4 solves the same
+equations and is used in the tests as an independent check.
+
+From the solution: ln Z(beta) at any beta, canonical averages of the energy and of any
+per-sample observable (the structure observables of thermo.classify), ln g(E) on bins and
+the microcanonical beta(E) = dS/dE. Uncertainties are the spread over a block bootstrap
+(contiguous blocks of each temperature's series, so autocorrelation is respected).
+
+Units: energies in E0 = rho kappa^2 / (4 pi); beta in 1/E0 (beta~).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+import tempfile
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+
+def logsumexp(a: np.ndarray, axis: int | None = None, keepdims: bool = False) -> np.ndarray:
+    """ln sum exp(a) along an axis; plain numpy (scipy's version is ~3x slower here)."""
+    a = np.asarray(a, float)
+    m = np.max(a, axis=axis, keepdims=True)
+    m = np.where(np.isfinite(m), m, 0.0)
+    with np.errstate(divide="ignore"):
+        out = np.log(np.sum(np.exp(a - m), axis=axis, keepdims=True)) + m
+    return out if keepdims else np.squeeze(out, axis=axis) if axis is not None else out.item()
+
+from thermo.errors import SamplerError
+
+
+def _tau_int(x: np.ndarray) -> float:
+    """Integrated autocorrelation time (in samples) with Sokal's window c = 5."""
+    x = np.asarray(x, float) - np.mean(x)
+    n = x.size
+    if n < 8 or np.var(x) == 0:
+        return 1.0
+    f = np.fft.rfft(x, 2 * n)
+    acf = np.fft.irfft(f * np.conj(f))[:n] / (np.var(x) * n)
+    tau = 1.0
+    for m in range(1, n):
+        tau += 2 * acf[m]
+        if m >= 5 * tau:
+            break
+    return max(1.0, float(tau))
+
+
+def solve_mbar(energies: np.ndarray, betas: np.ndarray, n_k: np.ndarray,
+               counts: np.ndarray | None = None, f_init: np.ndarray | None = None,
+               tol: float = 1e-10, max_iter: int = 200) -> tuple[np.ndarray, np.ndarray]:
+    """Solve the MBAR equations for states u_k = beta_k E by Newton's method.
+
+    Parameters
+    ----------
+    energies : (Ntot,) pooled energies; betas : (K,); n_k : (K,) samples per state.
+    counts : (Ntot,) multiplicity of each sample (bootstrap), default all ones.
+    f_init : (K,) starting free energies; default from thermodynamic integration.
+
+    Returns
+    -------
+    f : (K,) dimensionless free energies -ln Z_k (gauge f[0] = 0).
+    log_denom : (Ntot,) ln sum_k N_k exp(f_k - beta_k E_n).
+
+    Units: energies in E0, betas in 1/E0, f dimensionless.
+    """
+    e = np.asarray(energies, float)
+    b = np.asarray(betas, float)
+    c = np.ones_like(e) if counts is None else np.asarray(counts, float)
+    ln_n = np.log(np.asarray(n_k, float))
+    k = b.size
+    if f_init is None:
+        # d f / d beta = <E>: trapezoid over the (sorted) ladder with per-state means
+        offsets = np.concatenate([[0], np.cumsum(n_k)])
+        means = np.array([np.average(e[offsets[i]:offsets[i + 1]],
+                                     weights=c[offsets[i]:offsets[i + 1]] + 1e-300)
+                          for i in range(k)])
+        order = np.argsort(b)
+        f = np.zeros(k)
+        fs = np.concatenate([[0], np.cumsum(0.5 * np.diff(b[order])
+                                            * (means[order][1:] + means[order][:-1]))])
+        f[order] = fs
+    else:
+        f = np.array(f_init, float)
+    f -= f[0]
+    minus_u = -np.outer(b, e) + ln_n[:, None]               # (K, Ntot)
+
+    def objective(fv):
+        a = minus_u + fv[:, None]
+        ld = logsumexp(a, axis=0)
+        return float(c @ ld - np.exp(ln_n) @ fv), a, ld
+
+    obj, a, ld = objective(f)
+    for _ in range(max_iter):
+        pi = np.exp(a - ld[None, :])
+        pc = pi * c[None, :]
+        grad = pc.sum(axis=1) - np.exp(ln_n)
+        if np.max(np.abs(grad) / np.exp(ln_n)) < tol:
+            break
+        hess = np.diag(pc.sum(axis=1)) - pc @ pi.T
+        step = np.zeros(k)
+        step[1:] = np.linalg.solve(hess[1:, 1:], -grad[1:])
+        t = 1.0
+        while True:  # backtracking keeps Newton monotone far from the solution
+            new_obj, new_a, new_ld = objective(f + t * step)
+            if new_obj <= obj + 1e-12 * abs(obj) or t < 1e-8:
+                break
+            t *= 0.5
+        f, obj, a, ld = f + t * step, new_obj, new_a, new_ld
+    return f, ld
+
+
+@dataclass(frozen=True)
+class DensityOfStates:
+    """MBAR solution for one (N+, N-, domain, core radius), with bootstrap replicates.
+
+    Attributes
+    ----------
+    n_plus, n_minus : vortex numbers; domain_key : str(domain.key()); core_radius : a.
+    betas : (K,) ladder; n_k : (K,) samples per state; energies : (Ntot,) pooled.
+    f : (K,) free energies; log_denom : (Ntot,) MBAR denominators.
+    boot_f : (B, K) bootstrap free energies; boot_counts : (B, Ntot) uint16 multiplicities.
+    observables : dict name -> (Ntot,) per-sample observables (thermo.classify).
+    diagnostics : dict of the sampler's acceptance, swap acceptance, tau, ess arrays.
+    settings : dict of the effort settings used to build it.
+
+    Units: energies in E0, betas in 1/E0.
+    """
+
+    n_plus: int
+    n_minus: int
+    domain_key: str
+    core_radius: float
+    betas: np.ndarray
+    n_k: np.ndarray
+    energies: np.ndarray
+    f: np.ndarray
+    log_denom: np.ndarray
+    boot_f: np.ndarray
+    boot_counts: np.ndarray
+    observables: dict = field(default_factory=dict)
+    diagnostics: dict = field(default_factory=dict)
+    settings: dict = field(default_factory=dict)
+
+    # ------------------------------------------------------------------ core
+    @property
+    def n_vortices(self) -> int:
+        return self.n_plus + self.n_minus
+
+    @property
+    def beta_range(self) -> tuple[float, float]:
+        """(lowest, highest) beta of the ladder; reweighting is trusted inside it."""
+        return float(self.betas.min()), float(self.betas.max())
+
+    def _replicate_log_denoms(self) -> list[np.ndarray]:
+        cache = self.__dict__.get("_ld_cache")
+        if cache is None:
+            base = -np.outer(self.betas, self.energies)
+            k = self.betas.size
+            cache = []
+            for fb, cb in zip(self.boot_f, self.boot_counts):
+                ln_n = np.log(cb.reshape(k, -1).sum(axis=1).astype(float))
+                cache.append(logsumexp(base + (fb + ln_n)[:, None], axis=0))
+            object.__setattr__(self, "_ld_cache", cache)
+        return cache
+
+    def _log_weights(self, beta: np.ndarray, ld: np.ndarray,
+                     counts: np.ndarray | None) -> np.ndarray:
+        lw = -np.outer(beta, self.energies) - ld[None, :]
+        if counts is not None:
+            with np.errstate(divide="ignore"):
+                lw = lw + np.log(counts.astype(float))[None, :]
+        return lw
+
+    def _check_beta(self, beta: Any) -> np.ndarray:
+        b = np.atleast_1d(np.asarray(beta, float))
+        lo, hi = self.beta_range
+        span = hi - lo
+        if np.any(~np.isfinite(b)) or np.any(b < lo - 0.02 * span) or np.any(b > hi + 0.02 * span):
+            raise SamplerError(
+                f"beta = {b} lies outside the sampled ladder [{lo:.4g}, {hi:.4g}] (1/E0); "
+                "reweighting cannot extrapolate: rebuild with a wider ladder")
+        return b
+
+    def _moments(self, beta: np.ndarray, values: np.ndarray, ld, counts):
+        lw = self._log_weights(beta, ld, counts)
+        w = np.exp(lw - logsumexp(lw, axis=1, keepdims=True))
+        shift = np.average(values)
+        m1 = w @ (values - shift)
+        m2 = w @ (values - shift) ** 2
+        return m1 + shift, m2 - m1 ** 2
+
+    def _with_errors(self, fn):
+        value = fn(self.log_denom, None)
+        reps = np.array([fn(ld, c) for ld, c in
+                         zip(self._replicate_log_denoms(), self.boot_counts)])
+        err = reps.std(axis=0, ddof=1) if len(reps) > 1 else np.full_like(value, np.nan)
+        return value, err
+
+    # ------------------------------------------------------------ canonical
+    def log_z(self, beta: Any) -> np.ndarray:
+        """ln Z(beta) - ln Z(0), i.e. ln <exp(-beta E)> over uniform positions.
+
+        Units: dimensionless; beta in 1/E0.
+        """
+        b = self._check_beta(beta)
+        return self._log_z(b, self.log_denom, None)
+
+    def _log_z(self, b, ld, counts):
+        lw = self._log_weights(b, ld, counts)
+        l0 = self._log_weights(np.zeros(1), ld, counts)
+        return logsumexp(lw, axis=1) - logsumexp(l0, axis=1)
+
+    def log_z_replicates(self, beta: Any) -> np.ndarray:
+        """(B, M) bootstrap replicates of ln Z(beta) - ln Z(0)."""
+        b = self._check_beta(beta)
+        return np.array([self._log_z(b, ld, c) for ld, c in
+                         zip(self._replicate_log_denoms(), self.boot_counts)])
+
+    def canonical(self, beta: Any, observable: str = "energy"
+                  ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """Canonical mean and variance of an observable at the given beta(s).
+
+        Parameters
+        ----------
+        beta : float or (M,) array inside the ladder range (1/E0).
+        observable : "energy" or a key of ``observables`` (e.g. "dipole_moment", "c1",
+            "cluster_fraction").
+
+        Returns
+        -------
+        mean, mean_err, var, var_err : (M,) arrays (bootstrap standard errors).
+
+        Units: those of the observable (energy in E0).
+        """
+        b = self._check_beta(beta)
+        if observable == "energy":
+            values = self.energies
+        elif observable in self.observables:
+            values = self.observables[observable]
+        else:
+            raise SamplerError(f"unknown observable {observable!r}; available: "
+                               f"{['energy', *sorted(self.observables)]}")
+        both, both_err = self._with_errors(
+            lambda ld, c: np.concatenate(self._moments(b, values, ld, c)))
+        m = b.size
+        return both[:m], both_err[:m], both[m:], both_err[m:]
+
+    def mean_energy(self, beta: Any) -> tuple[np.ndarray, np.ndarray]:
+        """<E>(beta) and its bootstrap standard error. Units: E0."""
+        m, me, _, _ = self.canonical(beta)
+        return m, me
+
+    def energy_variance(self, beta: Any) -> tuple[np.ndarray, np.ndarray]:
+        """Var E(beta) and its bootstrap standard error. Units: E0^2."""
+        _, _, v, ve = self.canonical(beta)
+        return v, ve
+
+    # ------------------------------------------------------- microcanonical
+    def log_dos(self, bins: int | np.ndarray = 60
+                ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """ln g(E) on energy bins, normalised so that the integral of g is 1.
+
+        g(E) is the probability density of E for uniform independent positions (beta = 0),
+        so S(E) = ln g(E) up to the constant N ln(area).
+
+        Returns
+        -------
+        edges : (B+1,), ln_g : (B,), ln_g_err : (B,) (NaN where a bin is empty).
+
+        Units: E in E0; g in 1/E0.
+        """
+        edges = np.histogram_bin_edges(self.energies, bins)
+
+        def fn(ld, counts):
+            lw = -ld if counts is None else -ld + np.log(np.maximum(counts, 1e-300))
+            lw = lw - logsumexp(lw)
+            idx = np.clip(np.digitize(self.energies, edges) - 1, 0, len(edges) - 2)
+            nb = len(edges) - 1
+            top = np.full(nb, -np.inf)
+            np.maximum.at(top, idx, lw)         # per-bin shift: no underflow in sparse bins
+            safe = np.where(np.isfinite(top), top, 0.0)
+            with np.errstate(divide="ignore"):
+                out = np.log(np.bincount(idx, np.exp(lw - safe[idx]), minlength=nb)) + safe
+            return out - np.log(np.diff(edges))
+
+        val, _ = fn(self.log_denom, None), None
+        reps = np.array([fn(ld, c) for ld, c in zip(self._replicate_log_denoms(),
+                                                     self.boot_counts)])
+        with np.errstate(invalid="ignore"):
+            err = np.where(np.isfinite(reps).all(axis=0), reps.std(axis=0, ddof=1), np.nan)
+        val = np.where(np.isfinite(val), val, np.nan)
+        return edges, val, err
+
+    def energy_range(self) -> tuple[float, float]:
+        """Energies covered by the ladder: (<E>(beta_max), <E>(beta_min)). Units: E0."""
+        lo, hi = self.beta_range
+        m = self._moments(np.array([hi, lo]), self.energies, self.log_denom, None)[0]
+        return float(m[0]), float(m[1])
+
+    def _beta_micro(self, e: np.ndarray, ld, counts, grid: np.ndarray) -> np.ndarray:
+        mean, var = self._moments(grid, self.energies, ld, counts)
+        order = np.argsort(mean)
+        b_tilt = np.interp(e, mean[order], grid[order], left=np.nan, right=np.nan)
+        sd = np.sqrt(np.interp(e, mean[order], var[order]))
+        out = np.full(e.shape, np.nan)
+        ok = np.isfinite(b_tilt)
+        if not ok.any():
+            return out
+        # g(E) = exp(beta' E) p_beta'(E) for any beta'; with beta' such that <E>_beta' = E
+        # the tilted density is peaked at E, so a Gaussian-kernel estimate of its log
+        # derivative there is nearly unbiased (exact for a Gaussian p, any bandwidth).
+        lw = self._log_weights(b_tilt[ok], ld, counts)
+        w = np.exp(lw - logsumexp(lw, axis=1, keepdims=True))
+        h = 0.3 * sd[ok]
+        z = (e[ok][:, None] - self.energies[None, :]) / h[:, None]
+        kern = w * np.exp(-0.5 * z ** 2)
+        dlogp = -(kern * z).sum(axis=1) / (h * kern.sum(axis=1))
+        out[ok] = b_tilt[ok] + dlogp
+        return out
+
+    def beta_micro(self, energy: Any, n_grid: int = 120) -> tuple[np.ndarray, np.ndarray]:
+        """Microcanonical beta(E) = dS/dE with a bootstrap standard error.
+
+        NaN outside :meth:`energy_range` (no samples there to differentiate).
+
+        Units: E in E0, beta in 1/E0.
+        """
+        e = np.atleast_1d(np.asarray(energy, float))
+        lo, hi = self.beta_range
+        grid = np.linspace(lo, hi, n_grid)
+        return self._with_errors(lambda ld, c: self._beta_micro(e, ld, c, grid))
+
+    # ---------------------------------------------------------------- build
+    @classmethod
+    def from_tempering(cls, result: Any, n_boot: int = 40, n_blocks: int | None = None,
+                       rng: np.random.Generator | None = None,
+                       domain_key: str | None = None, settings: dict | None = None,
+                       observables: dict | None = None) -> "DensityOfStates":
+        """Pool every replica of a tempering run (``TemperingResult``) with MBAR.
+
+        Parameters
+        ----------
+        result : object with ``betas (K,)``, ``energies (K, S)``, ``n_plus``, ``n_minus``,
+            ``core_radius``, ``domain`` and optionally ``positions (K, S, N, 2)``, ``signs``.
+        n_boot : bootstrap replicates for the uncertainties.
+        n_blocks : blocks per temperature series; default from the integrated
+            autocorrelation time of the energy (blocks >= 4 tau long, at least 10).
+        observables : precomputed dict name -> (K*S,) arrays; by default the structure
+            observables of thermo.classify are computed from ``positions``.
+
+        Units: energies in E0, betas in 1/E0.
+        """
+        rng = np.random.default_rng() if rng is None else rng
+        betas = np.asarray(result.betas, float)
+        en = np.asarray(result.energies, float)
+        if en.ndim != 2 or en.shape[0] != betas.size or en.shape[1] < 2:
+            raise SamplerError(f"energies must have shape (K={betas.size}, S>=2); got {en.shape}")
+        k, s = en.shape
+        n_k = np.full(k, s)
+        flat = en.reshape(-1)
+        f, ld = solve_mbar(flat, betas, n_k)
+
+        if n_blocks is None:
+            tau = max(_tau_int(row) for row in en)
+            n_blocks = int(max(10, min(s, s // max(1, int(np.ceil(4 * tau))))))
+        n_blocks = int(min(n_blocks, s))
+        block_len = s // n_blocks
+        boot_f = np.empty((n_boot, k))
+        boot_counts = np.zeros((n_boot, k * s), dtype=np.uint16)
+        for r in range(n_boot):
+            counts = np.zeros((k, s))
+            for i in range(k):
+                starts = rng.integers(0, s - block_len + 1, size=n_blocks)
+                idx = (starts[:, None] + np.arange(block_len)[None, :]).ravel()
+                np.add.at(counts[i], idx, 1.0)
+            c = counts.reshape(-1)
+            boot_f[r], _ = solve_mbar(flat, betas, counts.sum(axis=1), counts=c, f_init=f)
+            boot_counts[r] = c.astype(np.uint16)
+
+        if observables is None:
+            observables = {}
+            pos = getattr(result, "positions", None)
+            signs = getattr(result, "signs", None)
+            if pos is not None and signs is not None and np.shape(pos)[2] >= 2:
+                from thermo.classify import structure_observables
+                p = np.asarray(pos, float)
+                observables = structure_observables(p.reshape(k * s, *p.shape[2:]), signs)
+        diag = {name: np.asarray(getattr(result, name)) for name in
+                ("acceptance", "swap_acceptance", "tau_int", "ess") if hasattr(result, name)}
+        dom = getattr(result, "domain", None)
+        key = domain_key if domain_key is not None else (
+            str(dom.key()) if dom is not None and hasattr(dom, "key") else "")
+        return cls(n_plus=int(result.n_plus), n_minus=int(result.n_minus), domain_key=key,
+                   core_radius=float(result.core_radius), betas=betas, n_k=n_k,
+                   energies=flat, f=f, log_denom=ld, boot_f=boot_f, boot_counts=boot_counts,
+                   observables={kk: np.asarray(v, float) for kk, v in observables.items()},
+                   diagnostics=diag, settings=dict(settings or {}))
+
+
+# ====================================================================== disk cache
+FORMAT_VERSION = 1
+#: number of tempering runs started by :func:`load_or_build` in this process (a cache hit
+#: leaves it unchanged; tests use it to prove that nothing was resampled)
+BUILD_COUNT = 0
+
+
+@dataclass(frozen=True)
+class DosSettings:
+    """Effort settings for building a density of states.
+
+    Attributes
+    ----------
+    n_temps : ladder size passed to ``thermo.sampler.default_ladder`` (None: its default).
+    n_sweeps : Monte Carlo sweeps per replica after burn-in.
+    burn_in, thin : passed to ``run_tempering`` when not None.
+    n_boot : bootstrap replicates for the uncertainties.
+    betas : explicit ladder (overrides n_temps) or None.
+
+    Units: betas in 1/E0.
+    """
+
+    n_temps: int | None = None
+    n_sweeps: int = 4000
+    burn_in: int | None = None
+    thin: int | None = None
+    n_boot: int = 40
+    betas: tuple[float, ...] | None = None
+
+    def __post_init__(self) -> None:
+        if int(self.n_sweeps) < 10:
+            raise SamplerError(f"DosSettings.n_sweeps = {self.n_sweeps}; need >= 10")
+        if int(self.n_boot) < 2:
+            raise SamplerError(f"DosSettings.n_boot = {self.n_boot}; need >= 2 for errors")
+
+
+def default_cache_dir() -> "os.PathLike[str]":
+    """$XDG_CACHE_HOME/vortherm/dos (or ~/.cache/vortherm/dos)."""
+    base = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
+    return Path(base) / "vortherm" / "dos"
+
+
+def cache_key(n_plus: int, n_minus: int, domain: Any, core_radius: float) -> tuple:
+    """(N+, N-, domain key, core radius, format version): what a stored DOS depends on."""
+    return (int(n_plus), int(n_minus), tuple(domain.key()), float(core_radius), FORMAT_VERSION)
+
+
+def cache_path(n_plus: int, n_minus: int, domain: Any, core_radius: float,
+               cache_dir: Any = None) -> Path:
+    """File name of the cached density of states for this key."""
+    key = cache_key(n_plus, n_minus, domain, core_radius)
+    digest = hashlib.sha1(repr(key).encode()).hexdigest()[:16]
+    d = Path(cache_dir) if cache_dir is not None else Path(default_cache_dir())
+    return d / f"dos_{int(n_plus)}p{int(n_minus)}m_{digest}.npz"
+
+
+def save(dos: DensityOfStates, path: Any, key: tuple) -> None:
+    """Write a DensityOfStates to ``path`` (npz), atomically (temp file, then rename)."""
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    meta = dict(n_plus=dos.n_plus, n_minus=dos.n_minus, domain_key=dos.domain_key,
+                core_radius=dos.core_radius, settings=dos.settings, key=repr(key),
+                format_version=FORMAT_VERSION)
+    arrays = dict(betas=dos.betas, n_k=dos.n_k, energies=dos.energies, f=dos.f,
+                  log_denom=dos.log_denom, boot_f=dos.boot_f, boot_counts=dos.boot_counts,
+                  meta=np.array(json.dumps(meta)))
+    arrays.update({f"obs__{k}": v for k, v in dos.observables.items()})
+    arrays.update({f"diag__{k}": v for k, v in dos.diagnostics.items()})
+    fd, tmp = tempfile.mkstemp(dir=path.parent, suffix=".npz.part")
+    os.close(fd)
+    try:
+        with open(tmp, "wb") as fh:
+            np.savez_compressed(fh, **arrays)
+        os.replace(tmp, path)
+    finally:
+        if os.path.exists(tmp):
+            os.remove(tmp)
+
+
+def load(path: Any) -> tuple[DensityOfStates, dict]:
+    """Read a DensityOfStates written by :func:`save`; returns (dos, metadata)."""
+    with np.load(Path(path), allow_pickle=False) as z:
+        meta = json.loads(str(z["meta"]))
+        if meta.get("format_version") != FORMAT_VERSION:
+            raise SamplerError(f"{path}: DOS cache format {meta.get('format_version')} != "
+                               f"{FORMAT_VERSION}; delete the file to rebuild it")
+        obs = {k[5:]: z[k] for k in z.files if k.startswith("obs__")}
+        diag = {k[6:]: z[k] for k in z.files if k.startswith("diag__")}
+        dos = DensityOfStates(
+            n_plus=int(meta["n_plus"]), n_minus=int(meta["n_minus"]),
+            domain_key=meta["domain_key"], core_radius=float(meta["core_radius"]),
+            betas=z["betas"], n_k=z["n_k"], energies=z["energies"], f=z["f"],
+            log_denom=z["log_denom"], boot_f=z["boot_f"], boot_counts=z["boot_counts"],
+            observables=obs, diagnostics=diag, settings=meta["settings"])
+    return dos, meta
+
+
+def _settings_cover(stored: dict, wanted: DosSettings) -> bool:
+    """A stored build is reused when it used at least the requested effort."""
+    if wanted.betas is not None and tuple(stored.get("betas") or ()) != tuple(wanted.betas):
+        return False
+    if wanted.n_temps is not None and stored.get("n_temps") not in (None, wanted.n_temps) \
+            and wanted.betas is None:
+        return False
+    return (stored.get("n_sweeps", 0) >= wanted.n_sweeps
+            and stored.get("n_boot", 0) >= wanted.n_boot)
+
+
+def build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
+          settings: DosSettings = DosSettings(), rng: np.random.Generator | None = None
+          ) -> DensityOfStates:
+    """Run parallel tempering (thermo.sampler) and pool it with MBAR; no caching.
+
+    Units: core radius in the domain's length unit; betas in 1/E0.
+    """
+    global BUILD_COUNT
+    from thermo import sampler  # imported here: the sampler is only needed to build
+
+    rng = np.random.default_rng() if rng is None else rng
+    if settings.betas is not None:
+        betas = np.asarray(settings.betas, float)
+    else:
+        kw = {} if settings.n_temps is None else {"n_temps": settings.n_temps}
+        betas = np.asarray(sampler.default_ladder(n_plus, n_minus, core_radius, domain, **kw))
+    kw = {k: getattr(settings, k) for k in ("burn_in", "thin") if getattr(settings, k) is not None}
+    BUILD_COUNT += 1
+    result = sampler.run_tempering(domain, n_plus, n_minus, betas, settings.n_sweeps,
+                                   core_radius, rng, **kw)
+    stored = dict(n_temps=int(betas.size), n_sweeps=int(settings.n_sweeps),
+                  burn_in=settings.burn_in, thin=settings.thin, n_boot=int(settings.n_boot),
+                  betas=[float(b) for b in betas] if settings.betas is not None else None)
+    return DensityOfStates.from_tempering(result, n_boot=settings.n_boot, rng=rng,
+                                          domain_key=repr(tuple(domain.key())),
+                                          settings=stored)
+
+
+def load_or_build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
+                  cache_dir: Any = None, seed: int | np.random.Generator | None = 0,
+                  settings: DosSettings = DosSettings()) -> DensityOfStates:
+    """The density of states for (N+, N-, domain, core radius), from disk if possible.
+
+    The file is keyed by :func:`cache_key`; a stored build is reused when it was made with
+    at least the requested effort (sweeps, bootstrap replicates, same ladder), otherwise it
+    is rebuilt and overwritten.
+
+    Parameters
+    ----------
+    n_plus, n_minus : vortex numbers; domain : thermo.domains.Disk or Box;
+    core_radius : hard-core radius a (domain length unit).
+    cache_dir : directory; default ``$XDG_CACHE_HOME/vortherm/dos``.
+    seed : int or Generator for a build (a cache hit ignores it).
+    settings : DosSettings (effort).
+
+    Units: energies in E0, betas in 1/E0, a in the domain's length unit.
+    """
+    if int(n_plus) < 0 or int(n_minus) < 0 or int(n_plus) + int(n_minus) < 1:
+        raise SamplerError(f"need n_plus, n_minus >= 0 and at least one vortex; got "
+                           f"({n_plus}, {n_minus})")
+    path = cache_path(n_plus, n_minus, domain, core_radius, cache_dir)
+    if path.exists():
+        try:
+            dos, meta = load(path)
+        except (OSError, ValueError, KeyError) as exc:  # unreadable file: rebuild it
+            dos, meta = None, {"error": str(exc)}
+        if dos is not None and _settings_cover(dos.settings, settings):
+            return dos
+    rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
+    dos = build(n_plus, n_minus, domain, core_radius, settings, rng)
+    save(dos, path, cache_key(n_plus, n_minus, domain, core_radius))
+    return dos

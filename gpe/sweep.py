@@ -53,7 +53,8 @@ SUMMARY_FORMAT_VERSION = 1
 _TOP_KEYS = ("base", "axes", "seeds", "measure", "name", "description")
 _AXIS_KEYS = ("key", "values", "range", "label", "unit")
 _RANGE_KEYS = ("start", "stop", "num", "scale")
-_MEASURE_KEYS = ("at_time", "window", "quantities")
+_MEASURE_KEYS = ("at_time", "at_time_ms", "at_time_tau", "window", "window_ms", "window_tau",
+                 "quantities")
 
 
 class SweepError(VorthermError):
@@ -85,13 +86,15 @@ class Axis:
 class Measure:
     """What to read from each finished run.
 
-    Units: ``at_time`` and ``window`` in the protocol's time unit (ms for an SI protocol, hbar/mu
-    for ``units = "healing"``); neither given means the final frame.
+    Units: ``at_time`` and ``window`` in ``time_unit``: "ms", "tau" (hbar/mu) or "protocol"
+    (the protocol's own time unit: ms for ``units = "SI"``, tau for ``units = "healing"``).
+    Neither given means the final frame.
     """
 
     at_time: float | None = None
     window: tuple[float, float] | None = None
     quantities: tuple[str, ...] = tuple(QUANTITIES)
+    time_unit: str = "protocol"
 
 
 @dataclass(frozen=True)
@@ -257,18 +260,23 @@ def _parse_measure(src: str, table: Any) -> Measure:
     if not isinstance(table, dict):
         raise SweepError(f"{where}: expected a table")
     _check_keys(where, table, _MEASURE_KEYS)
-    if "at_time" in table and "window" in table:
-        raise SweepError(f"{where}: give 'at_time' or 'window', not both")
+    given = [k for k in table if k != "quantities"]
+    if len(given) > 1:
+        raise SweepError(f"{where}: give one of at_time or window, not both ({given})")
     at_time = window = None
-    if "at_time" in table:
-        at_time = _number(f"{where}.at_time", table["at_time"])
-    if "window" in table:
-        w = table["window"]
-        if not isinstance(w, list) or len(w) != 2:
-            raise SweepError(f"{where}.window: expected [t0, t1], got {w!r}")
-        window = (_number(f"{where}.window", w[0]), _number(f"{where}.window", w[1]))
-        if not window[0] < window[1]:
-            raise SweepError(f"{where}.window: needs t0 < t1, got {w!r}")
+    unit = "protocol"
+    if given:
+        key = given[0]
+        unit = key.rsplit("_", 1)[1] if key.endswith(("_ms", "_tau")) else "protocol"
+        if key.startswith("at_time"):
+            at_time = _number(f"{where}.{key}", table[key])
+        else:
+            w = table[key]
+            if not isinstance(w, list) or len(w) != 2:
+                raise SweepError(f"{where}.{key}: expected [t0, t1], got {w!r}")
+            window = (_number(f"{where}.{key}", w[0]), _number(f"{where}.{key}", w[1]))
+            if not window[0] < window[1]:
+                raise SweepError(f"{where}.{key}: needs t0 < t1, got {w!r}")
     quantities = table.get("quantities", list(QUANTITIES))
     if not isinstance(quantities, list) or not quantities:
         raise SweepError(f"{where}.quantities: expected a non-empty list of names")
@@ -277,7 +285,7 @@ def _parse_measure(src: str, table: Any) -> Measure:
             raise _unknown(f"{where}.quantities", str(q), tuple(QUANTITIES))
     if "beta" not in quantities:
         quantities = ["beta", *quantities]  # the phase map and the negative-beta fraction need it
-    return Measure(at_time, window, tuple(dict.fromkeys(quantities)))
+    return Measure(at_time, window, tuple(dict.fromkeys(quantities)), unit)
 
 
 def parse_sweep(text: str, source: str | os.PathLike, *, check_protocol: bool = True) -> Sweep:
@@ -372,19 +380,18 @@ def run_point(task: PointTask) -> dict:
     run_path = Path(task.run_path)
     if not pipeline.is_complete(run_path):
         pipeline.simulate(protocol, run_path, resume=run_path.exists(), threads=task.threads)
-    scale = _time_to_simulation(protocol)
+    scale = _time_to_simulation(protocol, task.measure.time_unit)
     m = task.measure
     at_time = None if m.at_time is None else m.at_time * scale
     window = None if m.window is None else (m.window[0] * scale, m.window[1] * scale)
     return pipeline.analyse(run_path, time=at_time, window=window)
 
 
-def _time_to_simulation(protocol: Any) -> float:
-    """Factor from the protocol's time unit (ms, or hbar/mu for healing units) to hbar/mu."""
-    system = str(getattr(protocol, "unit_system", getattr(protocol, "units_system", "si")))
-    if system.lower() == "healing":
-        return 1.0
-    return 1e-3 / protocol.units.time_s
+def _time_to_simulation(protocol: Any, time_unit: str) -> float:
+    """Factor from a measurement time unit to hbar/mu (tau)."""
+    if time_unit == "protocol":
+        time_unit = "tau" if str(protocol.unit_system).lower() == "healing" else "ms"
+    return 1.0 if time_unit == "tau" else 1e-3 / protocol.units.time_s
 
 
 def _execute(point_fn: Callable[[PointTask], Mapping], task: PointTask) -> dict:

@@ -95,7 +95,7 @@ def test_grid_expands_into_readable_points(sweep_file):
     assert points[3].overrides == ("beams.0.path.speed_c=0.3", "beams.0.waist_um=4.0",
                                    "evolution.seed=1")
     assert sweep.axes[0].title == "beam speed [c]" and sweep.axes[1].unit == "um"
-    assert sweep.measure.window == (80.0, 100.0)
+    assert sweep.measure.window == (80.0, 100.0) and sweep.measure.time_unit == "protocol"
 
 
 def test_ranges_linear_and_log(tmp_path):
@@ -121,6 +121,7 @@ def test_ranges_linear_and_log(tmp_path):
     ('[[axes]]\nkey = "k"\nvalues = [1]\n[measure]\nquantities = ["betta"]', "did you mean 'beta'"),
     ('[[axes]]\nkey = "k"\nvalues = [1]\n[measure]\nwindow = [5, 1]', "t0 < t1"),
     ('[[axes]]\nkey = "k"\nvalues = [1]\n[measure]\nat_time = 1\nwindow = [0, 1]', "not both"),
+    ('[[axes]]\nkey = "k"\nvalues = [1]\n[measure]\nat_time_s = 1', "did you mean 'at_time_ms'"),
 ])
 def test_sweep_file_errors_name_file_and_key(tmp_path, bad, message):
     (tmp_path / "b.toml").write_text("")

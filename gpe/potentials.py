@@ -60,8 +60,8 @@ class TrapConfig:
     """
 
     shape: str
-    wall_height: float | None = None
-    edge_width: float = 1.0
+    wall_height: float | None = field(default=None, metadata={"dim": "energy"})
+    edge_width: float = field(default=1.0, metadata={"dim": "length"})
     radius: float = field(default=0.0, metadata={"dim": "length"})
     inner_radius: float = field(default=0.0, metadata={"dim": "length"})
     outer_radius: float = field(default=0.0, metadata={"dim": "length"})

@@ -16,8 +16,9 @@ import numpy as np
 
 from gpe.sweep import Axis, SweepError, SweepResult, read_summary
 
-#: Diverging map for beta; the norm is centred on beta = 0 so white means infinite temperature.
-BETA_CMAP = "RdBu_r"
+#: Diverging map for beta, centred on beta = 0 (white: infinite temperature). Large positive beta
+#: (cold) is blue; negative beta, hotter than any positive temperature, is red.
+BETA_CMAP = "RdBu"
 
 _PRETTY = {"beta": r"$\beta$", "energy_per_vortex": "energy per vortex",
            "n_plus": r"$N_+$", "n_minus": r"$N_-$"}

@@ -332,6 +332,8 @@ def load_sweep(path: str | os.PathLike, *, check_protocol: bool = True) -> Sweep
 
 
 def _check_axis_keys(sweep: Sweep) -> None:
+    import warnings
+
     from gpe.errors import ProtocolError
     from gpe.protocol import load_protocol
 
@@ -341,8 +343,10 @@ def _check_axis_keys(sweep: Sweep) -> None:
         errors = []
         for value in axis.values:
             try:
-                load_protocol(sweep.base, [f"{axis.key}={format_value(value)}",
-                                           f"{SEED_KEY}={sweep.seeds[0]}"])
+                with warnings.catch_warnings():  # each run reports its own warnings
+                    warnings.simplefilter("ignore")
+                    load_protocol(sweep.base, [f"{axis.key}={format_value(value)}",
+                                               f"{SEED_KEY}={sweep.seeds[0]}"])
                 break
             except ProtocolError as exc:
                 errors.append(str(exc))
@@ -373,10 +377,11 @@ def run_point(task: PointTask) -> dict:
     A complete run file (verified by ``gpe.pipeline.is_complete``) is analysed without
     simulating again; an incomplete one is resumed from its checkpoint.
     """
-    from gpe import pipeline
     from gpe.protocol import load_protocol
 
-    protocol = load_protocol(task.base, task.overrides)
+    protocol = load_protocol(task.base, task.overrides)  # an invalid point fails here, cheaply
+    from gpe import pipeline
+
     run_path = Path(task.run_path)
     if not pipeline.is_complete(run_path):
         pipeline.simulate(protocol, run_path, resume=run_path.exists(), threads=task.threads)

@@ -279,3 +279,63 @@ def test_phase_map_outlines_negative_beta(sweep_file, tmp_path):
     assert line.axes[0].get_xlabel() == "beam speed [c]"
     with pytest.raises(SweepError, match="not a swept key"):
         plot_sweep(result, select={"beams.0.wiast_um": 4.0})
+
+
+# -- with the real protocol parser -------------------------------------------------------------
+DEMO = Path(__file__).resolve().parents[1] / "runs" / "demo.toml"
+
+
+def protocol_checked_point(task: PointTask) -> dict:
+    """Parse the point's protocol for real (the overrides must be accepted), then stand in."""
+    from gpe.protocol import load_protocol
+
+    protocol = load_protocol(task.base, task.overrides)
+    assert protocol.evolution.seed == int(_overrides(task)["evolution.seed"])
+    return {"beta": protocol.beams[0].waist, "n_plus": 1.0, "dipole_fraction": 0.0}
+
+
+def test_demo_sweep_file_is_valid():
+    sweep = load_sweep(DEMO.parent / "demo_sweep.toml")
+    assert sweep.base == DEMO and len(sweep.points()) == len(sweep.seeds) * math.prod(
+        len(a.values) for a in sweep.axes)
+    assert sweep.measure.time_unit == "ms"
+
+
+def test_misspelt_protocol_key_is_caught_before_running(tmp_path):
+    src = tmp_path / "s.toml"
+    src.write_text(f'base = "{DEMO}"\n[[axes]]\nkey = "beams.0.wiast_um"\nvalues = [2.0]\n')
+    with pytest.raises(SweepError, match=r"s\.toml.*beams\.0\.wiast_um.*did you mean 'waist_um'"):
+        load_sweep(src)
+
+
+def test_invalid_point_of_a_real_protocol_fails_alone(tmp_path):
+    src = tmp_path / "s.toml"
+    src.write_text(f'base = "{DEMO}"\nseeds = [3]\n[[axes]]\nkey = "beams.0.waist_um"\n'
+                   f'values = [2.5, -1.0]\n[measure]\nquantities = ["beta", "n_plus"]\n')
+    result = run_sweep(load_sweep(src), tmp_path / "out", executor=cf.ThreadPoolExecutor(2),
+                       point_fn=protocol_checked_point, is_complete=stand_in_is_complete)
+    assert list(result.failed) == ["p001_s3"]
+    assert "ProtocolError" in result.failed["p001_s3"] and "waist_um" in result.failed["p001_s3"]
+    ok = result.runs[0]
+    assert ok["status"] == "ok" and ok["seed"] == 3
+    # 2.5 um in healing lengths, against xi = hbar / sqrt(m mu) from scipy.constants
+    from scipy import constants
+
+    from gpe.protocol import load_protocol
+
+    p = load_protocol(DEMO)
+    xi = constants.hbar / math.sqrt(p.atoms.mass_kg * p.atoms.chemical_potential_J)
+    assert ok["beta"] == pytest.approx(2.5e-6 / xi, rel=1e-9)
+
+
+def test_measurement_time_is_converted_to_hbar_over_mu():
+    from scipy import constants
+
+    from gpe.protocol import load_protocol
+    from gpe.sweep import _time_to_simulation
+
+    p = load_protocol(DEMO)
+    tau_s = constants.hbar / p.atoms.chemical_potential_J  # time unit hbar/mu
+    assert _time_to_simulation(p, "ms") == pytest.approx(1e-3 / tau_s, rel=1e-9)
+    assert _time_to_simulation(p, "protocol") == _time_to_simulation(p, "ms")  # units = "SI"
+    assert _time_to_simulation(p, "tau") == 1.0

@@ -197,3 +197,17 @@ def test_hdf5_bad_row_reported_by_index(tmp_path):
         ens = read_measured(path, radius_um=1.0)
     assert [(p.row, p.where) for p in ens.problems] == [(1, "index"), (2, "index")]
     assert "unknown sign '2'" in ens.problems[1].reason
+
+
+def test_demo_table_reports_exactly_its_three_planted_rows():
+    """runs/demo_measured.csv (synthetic, see its header) has three planted bad rows."""
+    from pathlib import Path
+    demo = Path(__file__).resolve().parents[1] / "runs" / "demo_measured.csv"
+    with pytest.warns(MeasuredTableWarning):
+        ens = read_measured(demo)
+    lines = demo.read_text().splitlines()
+    reasons = [p.reason.split(" (")[0] for p in ens.problems]
+    assert [p.row for p in ens.problems] == [len(lines) - 2, len(lines) - 1, len(lines)]
+    assert reasons[0].startswith("unknown sign") and "nan" in reasons[1]
+    assert "outside" in reasons[2]
+    assert len(ens.shots) == 30 and ens.core_radius == pytest.approx(0.5 / 40)

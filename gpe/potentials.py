@@ -522,7 +522,23 @@ def find_beam_excursion(beams: BeamSet, grid: Grid, duration: float) -> BeamExcu
             bad = on & ((np.abs(x + ox) > limit_x) | (np.abs(y + oy) > limit_y))
             if bad.any():
                 k = int(np.argmax(bad))
-                if first is None or t[k] < first.time:
-                    first = BeamExcursion(index, float(t[k]), float(x[k] + ox), float(y[k] + oy),
+                tk = _refine_exit(beam, ox, oy, limit_x, limit_y, t[k - 1], t[k]) if k > 0 else t[k]
+                if first is None or tk < first.time:
+                    px, py = beam.path.position(tk)
+                    first = BeamExcursion(index, float(tk), float(px + ox), float(py + oy),
                                           limit_x, limit_y)
     return first
+
+
+def _refine_exit(beam: Beam, ox: float, oy: float, limit_x: float, limit_y: float,
+                 t_in: float, t_out: float) -> float:
+    """Bisect the first crossing between a sample inside and one outside (paths are continuous)."""
+    for _ in range(50):
+        mid = 0.5 * (t_in + t_out)
+        px, py = beam.path.position(mid)
+        outside = abs(px + ox) > limit_x or abs(py + oy) > limit_y
+        if outside and beam.ramp.factor(mid) > 0:
+            t_out = mid
+        else:
+            t_in = mid
+    return t_out

@@ -86,7 +86,7 @@ SCHEMA: dict[str, dict[str, Spec]] = {
              "size": Spec(F, "length", check="positive"), "size_x": Spec(F, "length", check="positive"),
              "size_y": Spec(F, "length", check="positive"), "frequency": Spec(F, "rate", check="positive"),
              "frequency_x": Spec(F, "rate", check="positive"), "frequency_y": Spec(F, "rate", check="positive"),
-             "file": Spec(S, True), "pixel_size": Spec(F, "length", True, check="positive"),
+             "file": Spec(S, required=True), "pixel_size": Spec(F, "length", True, check="positive"),
              "invert": Spec("bool", default=False)},
     "grid": {"nx": Spec(I, required=True, check="positive"), "ny": Spec(I, check="positive"),
              "size": Spec(F, "length", check="positive"), "size_x": Spec(F, "length", check="positive"),

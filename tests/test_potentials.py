@@ -223,8 +223,8 @@ def test_beam_excursion_reports_time_and_place():
                             path=LinePath(start=(0.0, 0.0), end=(30.0, 0.0), speed=0.5))])
     hit = find_beam_excursion(leaving, grid, 100.0)
     assert hit is not None and hit.beam_index == 0
-    assert hit.time == pytest.approx(36.0, abs=0.5)        # x = 18 reached at t = 36
-    assert hit.x == pytest.approx(18.0, abs=0.3) and hit.limit_x == 18.0
+    assert hit.time == pytest.approx(36.0, rel=1e-9)        # x = 18 reached at t = 36
+    assert hit.x == pytest.approx(18.0, rel=1e-9) and hit.limit_x == 18.0
     # a beam that is switched off before it gets there is fine
     off = BeamSet([Beam(waist=2.0, height=1.0, path=leaving.beams[0].path,
                         ramp=Ramp(off_time=20.0, off_duration=5.0))])

@@ -1,0 +1,398 @@
+"""Canonical Monte Carlo of the point-vortex gas with parallel tempering, both signs of beta.
+
+N+ positive and N- negative vortices (neutral, non-neutral or single species) move in a
+:class:`~thermo.domains.Disk` or :class:`~thermo.domains.Box` with a hard core: every centre
+stays farther than the core radius ``a`` from the wall and at least ``2a`` from every other
+centre (non-overlapping discs of radius a that cannot cross the wall -- equivalently, every
+vortex stays at least 2a from every image). The core makes the canonical ensemble exist at
+every beta, beyond the pair collapse (beta > 1) and the like-sign collapse (beta < -2/N_max).
+
+One sweep = N single-vortex Metropolis moves per replica (uniform displacement in a square of
+half-width ``step``; acceptance min{1, exp(-beta dE)}), then one round of neighbour swaps on
+alternating even/odd pairs of the beta ladder, accepted with
+min{1, exp[(beta_i - beta_j)(E_i - E_j)]} [Hukushima & Nemoto, JPSJ 65, 1604 (1996)].
+Step sizes are tuned towards a target acceptance during burn-in only, then frozen, so the
+production chain satisfies detailed balance.
+
+Units: energies in E0 = rho kappa^2/(4 pi), beta in 1/E0 (beta~), lengths in the domain's
+length unit (disk radius; box side along y).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from numba import njit
+
+from .domains import Domain, wall_distance_kernel
+from .energy import move_energy_change_kernel, total_energy_kernel, validate_configuration
+from .errors import SamplerError
+
+__all__ = ["TemperingResult", "run_tempering", "default_ladder", "swap_probability",
+           "integrated_autocorr_time"]
+
+# Step-size bounds and adaptation block (common practice: aim at ~40 % acceptance).
+_MIN_STEP = 1e-5
+_ENERGY_REFRESH = 64       # sweeps between exact recomputations of E (stops round-off drift)
+
+
+@njit(cache=True)
+def swap_probability(beta_i: float, beta_j: float, e_i: float, e_j: float) -> float:
+    """Acceptance probability of exchanging the configurations at beta_i and beta_j.
+
+    .. math:: p = \\min\\{1, \\exp[(\\beta_i - \\beta_j)(E_i - E_j)]\\}
+
+    Units: beta in 1/E0, energies in E0.
+    """
+    x = (beta_i - beta_j) * (e_i - e_j)
+    if x >= 0.0:
+        return 1.0
+    return math.exp(x)
+
+
+@njit(cache=True)
+def _tempering_kernel(pos, energies, signs, betas, steps, max_step, kind, params, core,
+                      n_total, burn_in, thin, adapt_every, target, out_e, out_pos,
+                      move_acc, move_att, swap_acc, swap_att, seed):
+    np.random.seed(seed)
+    n_rep = pos.shape[0]
+    n = pos.shape[1]
+    min_d2 = 4.0 * core * core
+    block_acc = np.zeros(n_rep)
+    block_att = np.zeros(n_rep)
+    rec = 0
+    for sweep in range(n_total):
+        production = sweep >= burn_in
+        for k in range(n_rep):
+            beta = betas[k]
+            h = steps[k]
+            conf = pos[k]
+            acc = 0
+            for _ in range(n):
+                i = np.random.randint(0, n)
+                xn = conf[i, 0] + h * (2.0 * np.random.random() - 1.0)
+                yn = conf[i, 1] + h * (2.0 * np.random.random() - 1.0)
+                if wall_distance_kernel(kind, params, xn, yn) <= core:
+                    continue
+                de = move_energy_change_kernel(conf, signs, i, xn, yn, kind, params, min_d2)
+                if de == np.inf:
+                    continue
+                bde = beta * de
+                if bde <= 0.0 or np.random.random() < math.exp(-bde):
+                    conf[i, 0] = xn
+                    conf[i, 1] = yn
+                    energies[k] += de
+                    acc += 1
+            if production:
+                move_acc[k] += acc
+                move_att[k] += n
+            else:
+                block_acc[k] += acc
+                block_att[k] += n
+            if (sweep + 1) % _ENERGY_REFRESH == 0:
+                energies[k] = total_energy_kernel(conf, signs, kind, params)
+        # neighbour swaps on alternating pairs (0-1, 2-3, ... then 1-2, 3-4, ...)
+        for k in range(sweep % 2, n_rep - 1, 2):
+            p = swap_probability(betas[k], betas[k + 1], energies[k], energies[k + 1])
+            if production:
+                swap_att[k] += 1
+            if p >= 1.0 or np.random.random() < p:
+                if production:
+                    swap_acc[k] += 1
+                for i in range(n):
+                    for c in range(2):
+                        t = pos[k, i, c]
+                        pos[k, i, c] = pos[k + 1, i, c]
+                        pos[k + 1, i, c] = t
+                t = energies[k]
+                energies[k] = energies[k + 1]
+                energies[k + 1] = t
+        if not production and (sweep + 1) % adapt_every == 0:
+            for k in range(n_rep):
+                rate = block_acc[k] / max(block_att[k], 1.0)
+                s = steps[k] * math.exp(2.0 * (rate - target))
+                steps[k] = min(max(s, _MIN_STEP), max_step)
+                block_acc[k] = 0.0
+                block_att[k] = 0.0
+        if production and (sweep - burn_in + 1) % thin == 0:
+            for k in range(n_rep):
+                out_e[k, rec] = energies[k]
+                for i in range(n):
+                    out_pos[k, rec, i, 0] = pos[k, i, 0]
+                    out_pos[k, rec, i, 1] = pos[k, i, 1]
+            rec += 1
+
+
+def integrated_autocorr_time(x: np.ndarray, c: float = 5.0) -> float:
+    """Integrated autocorrelation time with Sokal's automatic window.
+
+    .. math:: \\tau_{int}(M) = 1 + 2\\sum_{t=1}^{M} \\rho(t),
+
+    taking the smallest window M with M >= c tau_int(M) [Sokal, Monte Carlo Methods in
+    Statistical Mechanics (1996 lectures, Cargese); c = 5 is common practice]. With this
+    definition the variance of the mean is tau_int Var(x) / n and the effective sample size
+    n / tau_int.
+
+    Parameters
+    ----------
+    x : array_like, shape (n,)
+        A stationary time series.
+    c : float
+        Window factor.
+
+    Returns
+    -------
+    float
+        tau_int in units of the sampling interval (>= 0); NaN for a constant series.
+    """
+    y = np.asarray(x, dtype=np.float64)
+    n = y.size
+    if n < 2:
+        return float("nan")
+    y = y - y.mean()
+    f = np.fft.rfft(y, 2 * n)
+    acf = np.fft.irfft(f * np.conj(f))[:n]
+    if acf[0] <= 0.0:
+        return float("nan")
+    rho = acf / acf[0]
+    taus = 2.0 * np.cumsum(rho) - 1.0
+    m = np.arange(n)
+    ok = m >= c * taus
+    window = int(np.argmax(ok)) if ok.any() else n - 1
+    return float(taus[window])
+
+
+@dataclass(frozen=True)
+class TemperingResult:
+    """Samples and diagnostics of a parallel-tempering run.
+
+    Attributes
+    ----------
+    betas : ndarray (K,)
+        Inverse temperatures of the ladder, in the order given. Units: 1/E0.
+    energies : ndarray (K, S)
+        Energy of each recorded sample at each beta. Units: E0.
+    positions : ndarray (K, S, N, 2)
+        Recorded configurations at each beta (scaled positions).
+    signs : ndarray int64 (N,)
+        Signs: the first n_plus are +1, the rest -1.
+    acceptance : ndarray (K,)
+        Fraction of accepted single-vortex moves in production, per beta.
+    swap_acceptance : ndarray (K-1,)
+        Fraction of accepted swaps between beta_k and beta_{k+1} in production.
+    tau_int : ndarray (K,)
+        Integrated autocorrelation time of E per beta, in recorded samples (Sokal window).
+    ess : ndarray (K,)
+        Effective sample size S / tau_int per beta.
+    n_plus, n_minus : int
+    core_radius : float
+        Hard-core radius a (length unit).
+    domain : Disk or Box
+    step_sizes : ndarray (K,)
+        Frozen move half-widths after burn-in (length unit).
+    burn_in, thin : int
+        Sweeps discarded before recording; sweeps between recorded samples.
+    seed : int
+        Seed handed to the compiled loop (drawn from the caller's Generator).
+    """
+
+    betas: np.ndarray
+    energies: np.ndarray
+    positions: np.ndarray
+    signs: np.ndarray
+    acceptance: np.ndarray
+    swap_acceptance: np.ndarray
+    tau_int: np.ndarray
+    ess: np.ndarray
+    n_plus: int
+    n_minus: int
+    core_radius: float
+    domain: Domain
+    step_sizes: np.ndarray
+    burn_in: int
+    thin: int
+    seed: int
+
+    @property
+    def n_samples(self) -> int:
+        """Recorded samples per beta, S."""
+        return int(self.energies.shape[1])
+
+    def mean_energy(self) -> np.ndarray:
+        """<E> per beta, shape (K,). Units: E0."""
+        return self.energies.mean(axis=1)
+
+    def energy_standard_error(self) -> np.ndarray:
+        """Standard error of <E> per beta, sqrt(tau_int Var(E) / S), shape (K,). Units: E0."""
+        var = self.energies.var(axis=1, ddof=1)
+        return np.sqrt(np.where(np.isfinite(self.tau_int), self.tau_int, 1.0) * var / self.n_samples)
+
+
+def _check_counts(n_plus, n_minus) -> tuple[int, int]:
+    for name, v in (("n_plus", n_plus), ("n_minus", n_minus)):
+        if not isinstance(v, (int, np.integer)) or v < 0:
+            raise SamplerError(f"{name} = {v!r}: must be a non-negative integer")
+    if n_plus + n_minus < 1:
+        raise SamplerError("n_plus + n_minus must be at least 1 vortex")
+    return int(n_plus), int(n_minus)
+
+
+def _initial_configuration(domain, n, core, rng) -> np.ndarray:
+    """Random sequential addition of n non-overlapping cores (raises if the gas is too dense)."""
+    pos = np.empty((n, 2))
+    for i in range(n):
+        for _ in range(10000):
+            p = domain.sample_uniform(rng, 1, margin=core)[0]
+            if i == 0 or np.min(((pos[:i] - p) ** 2).sum(1)) >= 4 * core * core:
+                pos[i] = p
+                break
+        else:
+            raise SamplerError(
+                f"cannot place {n} vortices with core radius {core} in {domain.key()}: the "
+                "cores fill too much of the domain; use a smaller core_radius")
+    return pos
+
+
+def run_tempering(domain: Domain, n_plus: int, n_minus: int, betas, n_sweeps: int,
+                  core_radius: float, rng: np.random.Generator, burn_in: int | None = None,
+                  thin: int = 1, initial=None, target_acceptance: float = 0.4) -> TemperingResult:
+    """Sample the canonical ensemble at every beta of a ladder with parallel tempering.
+
+    Parameters
+    ----------
+    domain : Disk or Box
+    n_plus, n_minus : int
+        Numbers of positive and negative vortices (fixed).
+    betas : array_like (K,)
+        Strictly monotonic ladder of inverse temperatures, any signs. Units: 1/E0.
+    n_sweeps : int
+        Production sweeps after burn-in (one sweep = N moves per replica + one swap round).
+    core_radius : float
+        Hard-core radius a > 0 (length unit): centres at least 2a apart and farther than a
+        from the wall.
+    rng : numpy.random.Generator
+        Source of the initial configurations and of the compiled loop's seed.
+    burn_in : int, optional
+        Sweeps discarded first, during which step sizes adapt; default max(200, n_sweeps//5).
+    thin : int
+        Record every ``thin``-th production sweep; S = n_sweeps // thin samples.
+    initial : array_like (N, 2) or (K, N, 2), optional
+        Starting positions (first n_plus rows positive); default: random non-overlapping.
+    target_acceptance : float
+        Move acceptance aimed at during burn-in (common practice: 0.3-0.5).
+
+    Returns
+    -------
+    TemperingResult
+    """
+    n_plus, n_minus = _check_counts(n_plus, n_minus)
+    n = n_plus + n_minus
+    b = np.ascontiguousarray(np.asarray(betas, dtype=np.float64).ravel())
+    if b.size < 1 or not np.all(np.isfinite(b)):
+        raise SamplerError(f"betas must be a non-empty list of finite numbers; got {betas!r}")
+    if b.size > 1:
+        d = np.diff(b)
+        if not (np.all(d > 0) or np.all(d < 0)):
+            raise SamplerError("betas must be strictly increasing or strictly decreasing, so that "
+                               "swaps are between neighbouring temperatures")
+    if not (isinstance(n_sweeps, (int, np.integer)) and n_sweeps >= 1):
+        raise SamplerError(f"n_sweeps = {n_sweeps!r}: must be a positive integer")
+    if not (isinstance(thin, (int, np.integer)) and 1 <= thin <= n_sweeps):
+        raise SamplerError(f"thin = {thin!r}: must be an integer between 1 and n_sweeps")
+    burn = max(200, n_sweeps // 5) if burn_in is None else burn_in
+    if not (isinstance(burn, (int, np.integer)) and burn >= 0):
+        raise SamplerError(f"burn_in = {burn_in!r}: must be a non-negative integer")
+    if not (isinstance(core_radius, (int, float)) and math.isfinite(core_radius) and 0 < core_radius < 0.25):
+        raise SamplerError(f"core_radius = {core_radius!r}: must be > 0 (it regularizes the "
+                           "collapse) and < 0.25 domain units")
+    if not (0.05 <= target_acceptance <= 0.95):
+        raise SamplerError(f"target_acceptance = {target_acceptance!r}: must be in [0.05, 0.95]")
+    signs = np.array([1] * n_plus + [-1] * n_minus, dtype=np.int64)
+    k_rep = b.size
+    if initial is None:
+        pos = np.stack([_initial_configuration(domain, n, core_radius, rng) for _ in range(k_rep)])
+    else:
+        init = np.asarray(initial, dtype=np.float64)
+        if init.shape == (n, 2):
+            init = np.broadcast_to(init, (k_rep, n, 2))
+        if init.shape != (k_rep, n, 2):
+            raise SamplerError(f"initial must have shape ({n}, 2) or ({k_rep}, {n}, 2); got {init.shape}")
+        validate_configuration(init, signs, domain, core_radius=core_radius, batched=True)
+        pos = init.copy()
+    pos = np.ascontiguousarray(pos)
+    code, params = domain.kernel_params()
+    energies = np.array([total_energy_kernel(pos[k], signs, code, params) for k in range(k_rep)])
+    size = 2.0 if domain.kind == "disk" else max(domain.area, 1.0 / domain.area)
+    steps = np.full(k_rep, min(0.3, size / 4))
+    s_rec = n_sweeps // thin
+    out_e = np.empty((k_rep, s_rec))
+    out_pos = np.empty((k_rep, s_rec, n, 2))
+    move_acc = np.zeros(k_rep)
+    move_att = np.zeros(k_rep)
+    swap_acc = np.zeros(max(k_rep - 1, 0))
+    swap_att = np.zeros(max(k_rep - 1, 0))
+    seed = int(rng.integers(0, 2**31 - 1))
+    adapt_every = max(5, int(math.ceil(200 / n)))
+    _tempering_kernel(pos, energies, signs, b, steps, size, code, params, float(core_radius),
+                      int(burn + s_rec * thin), int(burn), int(thin), adapt_every,
+                      float(target_acceptance), out_e, out_pos, move_acc, move_att,
+                      swap_acc, swap_att, seed)
+    tau = np.array([integrated_autocorr_time(e) for e in out_e])
+    with np.errstate(invalid="ignore", divide="ignore"):
+        ess = s_rec / tau
+        swap_rate = swap_acc / np.maximum(swap_att, 1)
+    return TemperingResult(
+        betas=b, energies=out_e, positions=out_pos, signs=signs,
+        acceptance=move_acc / np.maximum(move_att, 1), swap_acceptance=swap_rate,
+        tau_int=tau, ess=ess, n_plus=n_plus, n_minus=n_minus, core_radius=float(core_radius),
+        domain=domain, step_sizes=steps.copy(), burn_in=int(burn), thin=int(thin), seed=seed)
+
+
+def default_ladder(n_plus: int, n_minus: int, core_radius: float, domain: Domain,
+                   n_temps: int = 24, beta_max: float = 2.0, overshoot: float = 1.15) -> np.ndarray:
+    """A beta ladder from +beta_max through 0 down to just beyond the like-sign collapse.
+
+    The negative end is ``overshoot`` x (-2 / max(N+, N-)): a cluster of k like-sign vortices
+    collapses once beta < -2/k (power counting; -4/N for a neutral gas, -2/N for one species,
+    reference-values.md), regularized here by the core. The top beta_max = 2 lies beyond the
+    pair-collapse bound beta = 1, which the core also regularizes. Spacing follows where
+    <E> changes fastest (the spacing should scale as 1/std(E)): for beta < 0 the points go as
+    beta_min sin(pi t / 2), t uniform, crowding towards the clustering/collapse end; for
+    beta > 0 as beta_max t^2, crowding towards beta = 0, where the free +- pairs bind and E
+    falls steeply, while beyond beta ~ 1 the pairs sit at the core and E changes slowly.
+    ~55 % of the points lie at negative beta.
+    This is a heuristic starting point: check ``TemperingResult.swap_acceptance``.
+
+    Parameters
+    ----------
+    n_plus, n_minus : int
+    core_radius : float
+        Core radius (validated; the ladder shape does not depend on it). Length unit.
+    domain : Disk or Box
+        The domain (the thresholds are domain-independent power counting).
+    n_temps : int
+        Number of betas K >= 3 (0 is always included).
+    beta_max, overshoot : float
+
+    Returns
+    -------
+    ndarray (K,)
+        Decreasing betas, from beta_max to the negative end. Units: 1/E0.
+    """
+    n_plus, n_minus = _check_counts(n_plus, n_minus)
+    if not isinstance(domain, Domain):
+        raise SamplerError(f"domain must be a Disk or Box; got {domain!r}")
+    if not (math.isfinite(core_radius) and core_radius > 0):
+        raise SamplerError(f"core_radius = {core_radius!r}: must be > 0")
+    if not (isinstance(n_temps, (int, np.integer)) and n_temps >= 3):
+        raise SamplerError(f"n_temps = {n_temps!r}: must be an integer >= 3")
+    if not (beta_max > 0 and overshoot > 0):
+        raise SamplerError("beta_max and overshoot must be positive")
+    beta_min = -overshoot * 2.0 / max(n_plus, n_minus)
+    n_neg = int(round(0.55 * (n_temps - 1)))
+    n_pos = n_temps - 1 - n_neg
+    neg = beta_min * np.sin(0.5 * np.pi * np.arange(1, n_neg + 1) / n_neg)
+    pos = beta_max * (np.arange(1, n_pos + 1) / n_pos) ** 2
+    return np.concatenate((pos[::-1], [0.0], neg))

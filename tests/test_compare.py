@@ -157,15 +157,36 @@ def _sampled_shots(seed, beta_n_values, n=12, n_shots=40, core=0.02):
     return out
 
 
-def test_two_clearly_different_betas_are_told_apart():
+def _beta_options(cache_dir):
+    from thermo.dos import DosSettings
+    # small effort: enough to separate beta~ N = +8 from -3 (common practice: check the
+    # swap acceptance of a real build); cache in the test's own directory
+    return dict(cache_dir=cache_dir, settings=DosSettings(n_sweeps=600, n_temps=12, n_boot=10))
+
+
+def test_two_clearly_different_betas_are_told_apart(tmp_path):
     """beta~ N = +8 (bound dipoles) vs -3 (like signs gather) for 12 vortices: the energy
-    per vortex and C1 must differ at the 5% level. Direction [exact from the Boltzmann
-    weight exp(-beta E)]: <E> decreases with beta, so the positive-beta side has the lower
-    energy; opposite-sign neighbours dominate at positive beta, so its C1 is lower."""
+    per vortex, C1 and beta must differ at the 5% level. Direction [exact from the
+    Boltzmann weight exp(-beta E)]: <E> decreases with beta, so the positive-beta side has
+    the lower energy; opposite-sign neighbours dominate at positive beta, so its C1 is
+    lower."""
     hot, cold = _sampled_shots(11, [8.0, -3.0])
-    res = compare_ensembles(hot, cold, Disk(), 0.02, include_beta=False, seed=6,
+    res = compare_ensembles(hot, cold, Disk(), 0.02, seed=6,
+                            beta_options=_beta_options(tmp_path),
                             labels=("beta N = +8", "beta N = -3"))
     for q in ("energy_per_vortex", "c1"):
         row = res.row(q)
         assert row.p_ks < 0.05 and row.p_permutation < 0.05
         assert row.ci95_high < 0.0, row
+    beta = res.row("beta")
+    assert beta.p_permutation < 0.05 and beta.ci95_low > 0.0, beta
+    assert beta.simulation > 0 > beta.measured
+
+
+def test_sampled_ensemble_against_itself_including_beta(tmp_path):
+    (shots,) = _sampled_shots(12, [-3.0], n_shots=30)
+    res = compare_ensembles(shots, shots, Disk(), 0.02, seed=7,
+                            beta_options=_beta_options(tmp_path))
+    assert res.row("beta").difference == 0.0
+    for row in res.rows:
+        assert row.ci95_low <= 0.0 <= row.ci95_high and not row.significant, row

@@ -229,25 +229,43 @@ def _quantity_row(name: str, a: np.ndarray, b: np.ndarray, n_boot: int,
 
 
 def _beta_row(sim: Sequence[Configuration], meas: Sequence[Configuration], domain: Any,
-              core_radius: float, rng: np.random.Generator, beta_options: dict[str, Any]
-              ) -> tuple[CompareRow | None, str | None]:
-    """beta of each side from thermo.estimate; None and a note if it cannot be had."""
+              core_radius: float, beta_options: dict[str, Any]
+              ) -> tuple[CompareRow | None, list[str]]:
+    """beta of each side from thermo.estimate.estimate_ensemble_beta.
+
+    Shots with fewer than two vortices carry no temperature and are left out of this row
+    only (counted in a note). Returns (row or None, notes).
+    """
     try:
-        from thermo import estimate
-    except ImportError:
-        return None, "beta left out: thermo.estimate is not available"
-    fn = getattr(estimate, "estimate_ensemble_beta", None)
-    if fn is None:
-        return None, "beta left out: thermo.estimate has no estimate_ensemble_beta"
-    res_a = fn(list(sim), domain, core_radius, rng=rng, **beta_options)
-    res_b = fn(list(meas), domain, core_radius, rng=rng, **beta_options)
+        from thermo.estimate import estimate_ensemble_beta
+    except ImportError as exc:
+        return None, [f"beta left out: thermo.estimate is not available ({exc})"]
+    notes = []
+    results = []
+    for side, configs in (("simulation", sim), ("measured", meas)):
+        usable = [c for c in configs if len(c[1]) >= 2]
+        if len(usable) < len(configs):
+            notes.append(f"beta ({side}): {len(configs) - len(usable)} shot(s) with fewer "
+                         f"than two vortices left out")
+        if not usable:
+            return None, notes + [f"beta left out: no {side} shot has two vortices"]
+        results.append((len(usable), estimate_ensemble_beta(usable, domain, core_radius,
+                                                            **beta_options)))
+    (n_a, res_a), (n_b, res_b) = results
     ba, bb = float(res_a.beta), float(res_b.beta)
     se = math.hypot(float(res_a.stderr), float(res_b.stderr))
     diff = ba - bb
-    p = float(2 * stats.norm.sf(abs(diff) / se)) if se > 0 else math.nan
     z = float(stats.norm.ppf(0.975))
+    if not (np.isfinite(diff) and np.isfinite(se) and se > 0):
+        nan = math.nan
+        return CompareRow("beta", BETA_UNIT, ba, bb, diff, nan, nan, nan, nan, n_a, n_b), \
+            notes + ["beta difference has no interval: an estimate is undefined"]
+    p = float(2 * stats.norm.sf(abs(diff) / se))
+    for side, res in (("simulation", res_a), ("measured", res_b)):
+        if getattr(res, "verdict", ""):
+            notes.append(f"beta ({side}): {res.verdict}")
     return CompareRow("beta", BETA_UNIT, ba, bb, diff, diff - z * se, diff + z * se,
-                      math.nan, p, len(sim), len(meas)), None
+                      math.nan, p, n_a, n_b), notes
 
 
 def compare_ensembles(simulation: Sequence[Configuration], measured: Sequence[Configuration],
@@ -266,8 +284,9 @@ def compare_ensembles(simulation: Sequence[Configuration], measured: Sequence[Co
     n_boot : bootstrap resamples for the 95% intervals.
     n_permutations : resamples of the permutation test.
     seed : seed or generator; the whole table is reproducible from it.
-    include_beta : add the beta row (needs thermo.estimate).
-    beta_options : extra keywords for the beta estimate.
+    include_beta : add the beta row (thermo.estimate.estimate_ensemble_beta; builds or
+        loads a density of states for every (N+, N-) present, which can take minutes).
+    beta_options : keywords for that estimate (e.g. ``cache_dir``, ``settings``, ``seed``).
     labels : names of the two sides.
 
     Returns
@@ -291,11 +310,10 @@ def compare_ensembles(simulation: Sequence[Configuration], measured: Sequence[Co
             for name in QUANTITIES]
     notes = []
     if include_beta:
-        beta_row, note = _beta_row(sim, meas, domain, core_radius, rng, beta_options or {})
+        beta_row, beta_notes = _beta_row(sim, meas, domain, core_radius, beta_options or {})
         if beta_row is not None:
             rows.insert(3, beta_row)
-        if note:
-            notes.append(note)
+        notes.extend(beta_notes)
     return Comparison(rows=tuple(rows), per_shot={k: (a[k], b[k]) for k in QUANTITIES},
                       simulation=tuple(sim), measured=tuple(meas), domain=domain,
                       core_radius=float(core_radius), labels=tuple(labels), notes=tuple(notes))

@@ -572,7 +572,8 @@ def _resolve_grid(sec: _Section, trap: TrapConfig) -> Grid:
     grid = Grid(nx, ny, lx, ly)
     if trap.shape != "mask" and (ext_x > lx or ext_y > ly):
         where = "size_x" if ext_x > lx else "size_y"
-        sec.fail(where if sec.has(where) else "size" if sec.has("size") else "nx",
+        given = [k for k in (where, "size", "spacing") if sec.has(k)]
+        sec.fail(given[0] if given else "nx",
                  f"the trap ({ext_x:.4g} x {ext_y:.4g} xi) does not fit into the periodic grid "
                  f"({lx:.4g} x {ly:.4g} xi)", "a grid larger than the trap by a few edge widths "
                  "(or leave the size out: it is then the trap size plus padding_* on each side)")

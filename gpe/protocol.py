@@ -790,6 +790,8 @@ def parse_protocol(text: str, source: str = "<protocol>", overrides: Sequence[st
                             "radius_um = 30.0 under a [trap] header; see docs/protocol.md.") from None
     ctx = _Context(source, _apply_overrides(data, overrides, source))
     base_dir = Path(base_dir) if base_dir is not None else Path.cwd()
+    if isinstance(data.get("units"), str) and data["units"].lower() in ("si", "healing"):
+        data["units"] = "SI" if data["units"].lower() == "si" else "healing"   # spelling is not physics
     top = _Section(ctx, "", "", data)
     ctx.mode = top.get("units")
     atoms = _Section(ctx, "atoms", "atoms", top.get("atoms"))

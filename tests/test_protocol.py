@@ -295,6 +295,7 @@ def test_overrides_set_values_by_section_and_index():
     assert p.beams[0].path.speed == pytest.approx(0.4)            # speed_c replaced speed_um_per_ms
     assert len(p.beams[0].offsets) == 2
     assert p.overrides[0] == "evolution.damping=0.02"
+    assert parse(overrides=["units=si"]).unit_system == "SI"
 
 
 def test_override_errors_have_the_same_quality():

@@ -369,6 +369,7 @@ class PointTask:
     run_path: str
     measure: Measure
     threads: int | None = None
+    stop_path: str = ""
 
 
 def run_point(task: PointTask) -> dict:
@@ -399,11 +400,18 @@ def _time_to_simulation(protocol: Any, time_unit: str) -> float:
     return 1.0 if time_unit == "tau" else 1e-3 / protocol.units.time_s
 
 
+_WORKER_INTERRUPTED = False
+
+
 def _execute(point_fn: Callable[[PointTask], Mapping], task: PointTask) -> dict:
     """Run one point in a worker; turn an ordinary failure into a record, so the sweep goes on.
 
     ``KeyboardInterrupt`` is not caught: it stops the sweep.
     """
+    global _WORKER_INTERRUPTED
+    if _WORKER_INTERRUPTED or (task.stop_path and os.path.exists(task.stop_path)):
+        # the sweep was interrupted after this task was queued: do not start it
+        return {"status": "cancelled", "values": {}, "error": "", "elapsed_s": 0.0}
     start = time.perf_counter()
     try:
         raw = point_fn(task)
@@ -413,6 +421,11 @@ def _execute(point_fn: Callable[[PointTask], Mapping], task: PointTask) -> dict:
                 raise SweepError(f"the analysis returned no '{q}' (it gave {sorted(raw)})")
             values[q] = float(raw[q])
         record = {"status": "ok", "values": values, "error": ""}
+    except KeyboardInterrupt:
+        # Ctrl-C reaches the workers before the main process can leave the stop file; a worker
+        # that saw it must not start the tasks still queued for it.
+        _WORKER_INTERRUPTED = True
+        raise
     except Exception as exc:  # noqa: BLE001 -- any failure of one point is recorded, not fatal
         record = {"status": "failed", "values": {}, "error": f"{type(exc).__name__}: {exc}",
                   "traceback": traceback.format_exc()}
@@ -600,6 +613,10 @@ def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
     """
     out_dir = Path(out_dir)
     points = _prepare(sweep, out_dir)
+    stop_path = out_dir / "STOP"
+    stop_path.unlink(missing_ok=True)
+    global _WORKER_INTERRUPTED
+    _WORKER_INTERRUPTED = False  # in-process executors share this flag with us
     is_complete = is_complete or _default_is_complete
     measure = asdict(sweep.measure)
     records: dict[str, dict] = {}
@@ -657,13 +674,16 @@ def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
                        "error": f"worker lost: {type(exc).__name__}: {exc}; rerun to retry"}
         else:
             outcome = fut.result()
+            if outcome["status"] == "cancelled":  # a stop file left by another session
+                raise KeyboardInterrupt
         records[point.point_id] = _save_record(out_dir, point, sweep, outcome)
         n_done_here += 1
 
     try:
         for p in todo:
             task = PointTask(p.point_id, str(sweep.base), p.overrides,
-                             str(out_dir / "runs" / f"{p.point_id}.h5"), sweep.measure, threads)
+                             str(out_dir / "runs" / f"{p.point_id}.h5"), sweep.measure, threads,
+                             str(stop_path))
             futures[executor.submit(_execute, point_fn, task)] = p
         report(force=True)
         waiting = set(futures)
@@ -674,6 +694,9 @@ def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
             report(force=bool(finished))
     except KeyboardInterrupt:
         interrupted = True
+        # Tasks already handed to a worker cannot be cancelled; the stop file tells them not to
+        # start, so the pool shuts down as soon as the running points are interrupted.
+        stop_path.touch()
         for fut in futures:
             fut.cancel()
     finally:
@@ -684,7 +707,7 @@ def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
     if interrupted:  # keep every point that finished before the pool stopped
         for fut, p in futures.items():
             if (fut.done() and not fut.cancelled() and fut.exception() is None
-                    and p.point_id not in records):
+                    and p.point_id not in records and fut.result()["status"] != "cancelled"):
                 records[p.point_id] = _save_record(out_dir, p, sweep, fut.result())
     result = _summarise(sweep, out_dir, points, records, interrupted)
     report(force=True)

@@ -13,10 +13,8 @@ import json
 import math
 from pathlib import Path
 
-import h5py
 import numpy as np
 import pytest
-from scipy import stats
 
 from gpe.errors import ProtocolError
 from gpe.sweep import (QUANTITIES, PointTask, SweepError, load_sweep, parse_sweep, plan_local,
@@ -153,6 +151,8 @@ def test_local_plan_rejects_oversubscription():
 
 
 def test_local_and_dask_give_identical_tables(sweep_file, tmp_path):
+    import h5py
+
     distributed = pytest.importorskip("distributed")
     local = run_stand_in(sweep_file, tmp_path / "local", workers=2)
     with distributed.LocalCluster(n_workers=1, threads_per_worker=2, processes=False,
@@ -171,7 +171,10 @@ def test_local_and_dask_give_identical_tables(sweep_file, tmp_path):
 
 
 def test_summary_columns_units_and_aggregation(sweep_file, tmp_path):
-    result = run_stand_in(sweep_file, tmp_path / "out", workers=1)
+    import h5py
+    from scipy import stats
+
+    result = run_stand_in(sweep_file, tmp_path / "out", executor=cf.ThreadPoolExecutor(2))
     runs, units = read_table(result.files["runs_csv"])
     header = (tmp_path / "out" / "summary_runs.csv").read_text().splitlines()[0].split(",")
     assert header == ["point_id", "grid_id", "seed", "beams.0.path.speed_c [c]",
@@ -225,7 +228,7 @@ def test_failing_point_is_recorded_and_others_finish(sweep_file, tmp_path):
     out = tmp_path / "out"
     out.mkdir()
     (out / "invalid_p002_s0").touch()
-    result = run_stand_in(sweep_file, out, workers=2)
+    result = run_stand_in(sweep_file, out, executor=cf.ThreadPoolExecutor(2))
     assert not result.interrupted and not result.complete
     assert list(result.failed) == ["p002_s0"]
     assert "ProtocolError" in result.failed["p002_s0"] and "too fast" in result.failed["p002_s0"]

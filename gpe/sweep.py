@@ -455,8 +455,9 @@ def plan_local(cores: int, workers: int | None = None, threads: int | None = Non
     if workers is not None and threads is not None and workers * threads > cores:
         raise SweepError(f"{workers} workers x {threads} threads would oversubscribe the "
                          f"{cores} cores; choose workers x threads <= {cores}")
-    if workers is not None and workers > cores:
-        raise SweepError(f"{workers} workers exceed the {cores} usable cores")
+    for name, v in (("workers", workers), ("threads", threads)):
+        if v is not None and v > cores:
+            raise SweepError(f"{v} {name} exceed the {cores} usable cores")
     if workers is None:
         workers = max(1, cores // threads) if threads else cores
     if n_tasks is not None:

@@ -148,6 +148,8 @@ def test_local_plan_never_oversubscribes(cores, workers, threads, n_tasks, expec
 def test_local_plan_rejects_oversubscription():
     with pytest.raises(SweepError, match="oversubscribe"):
         plan_local(2, 2, 2)
+    with pytest.raises(SweepError, match="exceed the 2 usable cores"):
+        plan_local(2, None, 4)
 
 
 def test_local_and_dask_give_identical_tables(sweep_file, tmp_path):

@@ -81,7 +81,7 @@ def main(argv: list[str] | None = None) -> None:
         "shot,x,y,sign",
     ]
     for k, (pos, signs, _beta) in enumerate(shots):
-        p, s = degrade(pos, signs, Disk(), model, rng)
+        p, s = degrade(pos, signs, Disk(), model, rng, core_radius=CORE_UM / RADIUS_UM)
         order = rng.permutation(len(s))   # a detector lists vortices in no sign order
         for (x, y), sg in zip(p[order] * RADIUS_UM, s[order]):
             lines.append(f"{k},{x:.3f},{y:.3f},{int(sg):+d}")

@@ -106,3 +106,16 @@ def test_bad_model_and_input_raise():
         degrade([[0, 0]], [0], Disk(), ImagingModel(blur=0.1), np.random.default_rng(0))
     m = ImagingModel.from_um(40.0, blur_um=0.5, resolution_um=2.0)
     assert m.blur == pytest.approx(0.0125) and m.resolution == pytest.approx(0.05)
+
+
+def test_blur_with_core_keeps_a_valid_hard_core_configuration(rng):
+    """thermo.energy.validate_configuration accepts every blurred configuration."""
+    from thermo.energy import validate_configuration
+    from thermo.sampler import run_tempering
+    core = 0.02
+    res = run_tempering(Disk(), 8, 8, [0.5, 0.0, -0.2], n_sweeps=200, core_radius=core,
+                        rng=rng, burn_in=100, thin=20)
+    configs = [(p, res.signs) for p in res.positions[-1]]
+    out = degrade_many(configs, Disk(), ImagingModel(blur=0.02), rng, core_radius=core)
+    for p, s in out:
+        validate_configuration(p, s, Disk(), core)

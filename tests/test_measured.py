@@ -211,3 +211,19 @@ def test_demo_table_reports_exactly_its_three_planted_rows():
     assert reasons[0].startswith("unknown sign") and "nan" in reasons[1]
     assert "outside" in reasons[2]
     assert len(ens.shots) == 30 and ens.core_radius == pytest.approx(0.5 / 40)
+
+
+def test_hard_core_rows_are_reported_when_the_core_is_known(tmp_path):
+    """With core_um = 1: a vortex 0.5 um from the wall and a second one 1.5 um from an
+    earlier vortex (< 2 core radii) cannot be held by the hard-core model."""
+    text = "shot,x,y,sign\n0, 0.0, 0.0, 1\n0, 39.5, 0.0, -1\n0, 1.5, 0.0, -1\n0, 5.0, 0.0, -1\n"
+    p = _write(tmp_path, text)
+    with pytest.warns(MeasuredTableWarning):
+        ens = read_measured(p, radius_um=40.0, core_um=1.0)
+    assert [pr.row for pr in ens.problems] == [3, 4]
+    assert "within the core radius" in ens.problems[0].reason
+    assert "closer than two core radii" in ens.problems[1].reason and "line 2" in \
+        ens.problems[1].reason
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")   # without a core the same rows are all usable
+        assert read_measured(p, radius_um=40.0).n_vortices[0] == 4

@@ -233,8 +233,9 @@ def _beta_row(sim: Sequence[Configuration], meas: Sequence[Configuration], domai
               ) -> tuple[CompareRow | None, list[str]]:
     """beta of each side from thermo.estimate.estimate_ensemble_beta.
 
-    Shots with fewer than two vortices carry no temperature and are left out of this row
-    only (counted in a note). Returns (row or None, notes).
+    Shots with fewer than two vortices carry no temperature, and shots that break the
+    hard-core model (a vortex within a of the wall, two within 2a) have no weight in it;
+    both are left out of this row only, counted in a note. Returns (row or None, notes).
     """
     try:
         from thermo.estimate import estimate_ensemble_beta
@@ -242,11 +243,28 @@ def _beta_row(sim: Sequence[Configuration], meas: Sequence[Configuration], domai
         return None, [f"beta left out: thermo.estimate is not available ({exc})"]
     notes = []
     results = []
+    from thermo.energy import validate_configuration
+    from thermo.errors import ConfigurationError
+
+    def fits_hard_core(c: Configuration) -> bool:
+        try:
+            validate_configuration(c[0], c[1], domain, core_radius)
+        except ConfigurationError:
+            return False
+        return True
+
     for side, configs in (("simulation", sim), ("measured", meas)):
         usable = [c for c in configs if len(c[1]) >= 2]
         if len(usable) < len(configs):
             notes.append(f"beta ({side}): {len(configs) - len(usable)} shot(s) with fewer "
                          f"than two vortices left out")
+        n_before = len(usable)
+        usable = [c for c in usable if fits_hard_core(c)]
+        if len(usable) < n_before:
+            notes.append(f"beta ({side}): {n_before - len(usable)} shot(s) left out: a vortex "
+                         f"within the core radius {core_radius:g} of the wall or two within "
+                         f"2 core radii (hard-core model); thermo.degrade with core_radius "
+                         f"and thermo.measured with core_um avoid this")
         if not usable:
             return None, notes + [f"beta left out: no {side} shot has two vortices"]
         results.append((len(usable), estimate_ensemble_beta(usable, domain, core_radius,

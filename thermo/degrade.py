@@ -19,7 +19,9 @@ the same effects to simulated configurations, in this order:
      sign: one deeper core is seen and the table can only hold sign +-1.
 3. **Position blur**: independent Gaussian errors of standard deviation ``blur`` on x
    and y. A blurred position that falls outside the domain is redrawn (a measured
-   table never lists a vortex outside the cloud; the reader rejects such rows).
+   table never lists a vortex outside the cloud; the reader rejects such rows); with a
+   ``core_radius`` a > 0, so is one closer than a to the wall or closer than 2a to
+   another vortex, so the result stays a valid hard-core configuration for thermo.
 4. **Sign errors**: each sign flips with probability ``sign_flip``.
 
 With all four parameters zero the result equals the input exactly (copies of the
@@ -128,8 +130,20 @@ def _resolve_close_pairs(pos: np.ndarray, signs: np.ndarray, resolution: float
     return pos, signs, lost, merged
 
 
+def _hard_core_violations(pos: np.ndarray, domain: Any, core_radius: float) -> np.ndarray:
+    """True for vortices outside, within a of the wall, or within 2a of another vortex."""
+    bad = ~np.asarray(domain.contains(pos, margin=core_radius), dtype=bool)
+    if core_radius > 0 and len(pos) >= 2:
+        diff = pos[:, None, :] - pos[None, :, :]
+        d2 = np.einsum("ijk,ijk->ij", diff, diff)
+        np.fill_diagonal(d2, np.inf)
+        bad |= (d2 < (2.0 * core_radius) ** 2).any(axis=1)
+    return bad
+
+
 def degrade(positions: Any, signs: Any, domain: Any, model: ImagingModel,
-            rng: np.random.Generator) -> tuple[np.ndarray, np.ndarray]:
+            rng: np.random.Generator, core_radius: float = 0.0
+            ) -> tuple[np.ndarray, np.ndarray]:
     """One configuration as an imaging system would record it.
 
     Parameters
@@ -138,6 +152,7 @@ def degrade(positions: Any, signs: Any, domain: Any, model: ImagingModel,
     domain : thermo domain (needs ``contains(pos, margin=...)``).
     model : the :class:`ImagingModel`.
     rng : seeded generator (no numbers are drawn when the model is the identity).
+    core_radius : hard-core radius a; blurred positions violating it are redrawn.
 
     Returns
     -------
@@ -161,14 +176,15 @@ def degrade(positions: Any, signs: Any, domain: Any, model: ImagingModel,
     if model.blur > 0 and len(s):
         blurred = pos + rng.normal(0.0, model.blur, size=pos.shape)
         for _ in range(_MAX_REDRAWS):
-            out = ~np.asarray(domain.contains(blurred), dtype=bool)
+            out = _hard_core_violations(blurred, domain, core_radius)
             if not out.any():
                 break
             blurred[out] = pos[out] + rng.normal(0.0, model.blur, size=(int(out.sum()), 2))
         else:
             raise DegradeError(
                 f"blur {model.blur:g} (domain units) keeps pushing vortices outside the "
-                f"domain; a blur this large compared with the domain is not an imaging model")
+                f"domain or into each other's core (a = {core_radius:g}); the blur or the "
+                f"core is too large for an imaging model of this configuration")
         pos = blurred
     if model.sign_flip > 0 and len(s):
         flip = rng.random(len(s)) < model.sign_flip
@@ -177,10 +193,10 @@ def degrade(positions: Any, signs: Any, domain: Any, model: ImagingModel,
 
 
 def degrade_many(configurations: Sequence[tuple[Any, Any]], domain: Any,
-                 model: ImagingModel, rng: np.random.Generator
+                 model: ImagingModel, rng: np.random.Generator, core_radius: float = 0.0
                  ) -> list[tuple[np.ndarray, np.ndarray]]:
     """:func:`degrade` applied to each ``(positions, signs)`` of a list, one generator.
 
     Units: positions in units of the domain size.
     """
-    return [degrade(p, s, domain, model, rng) for p, s in configurations]
+    return [degrade(p, s, domain, model, rng, core_radius) for p, s in configurations]

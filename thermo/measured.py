@@ -18,7 +18,11 @@ from keyword arguments or from a small TOML file beside the table (same stem,
     pixel_um = 0.8          # only if the table is in pixels
     center_px = [256.0, 240.0]
 
-Rows that cannot be used are never dropped silently: every one is listed with its
+A row is unusable if a field is missing or not a finite number, the sign is not +-1,
+the position lies outside the domain, it repeats a position of its shot, or (when the
+core radius is known) it lies within one core radius of the wall or within two core
+radii of an earlier vortex of its shot: the hard-core point-vortex model used for beta
+cannot hold such a vortex. Rows that cannot be used are never dropped silently: every one is listed with its
 file line (CSV) or table index (HDF5) and the reason, in a :class:`MeasuredTableWarning`
 and in ``MeasuredEnsemble.problems``; with ``strict=True`` the first one raises
 :class:`MeasuredTableError` instead.
@@ -463,6 +467,7 @@ def read_measured(path: str | Path, *, shape: str | None = None,
                                    f"ignored; known: {list(REQUIRED_COLUMNS + OPTIONAL_COLUMNS)}"))
     col = {c: header.index(c) for c in header}
     domain = geometry.domain()
+    core = None if geometry.core_um is None else geometry.core_um / geometry.length_scale_um
 
     def report(row: int, reason: str, shot: str | None = None) -> None:
         prob = RowProblem(path.name, row, where, reason, shot)
@@ -523,6 +528,19 @@ def read_measured(path: str | Path, *, shape: str | None = None,
         if key in seen:
             report(row, f"duplicate position of {where} {seen[key]} in shot {shot!r}", shot)
             continue
+        if core is not None:
+            # the hard-core point-vortex model (thermo.sampler/estimate) cannot hold a
+            # vortex within one core radius of the wall or two within two core radii
+            if not bool(domain.contains(scaled[None, :], margin=core)[0]):
+                report(row, f"position ({xy_um[0]:.4g}, {xy_um[1]:.4g}) um is within the "
+                       f"core radius {geometry.core_um:g} um of the wall", shot)
+                continue
+            near = [r for r, x0, y0, *_ in shots[shot]
+                    if math.hypot(x0 - xy_um[0], y0 - xy_um[1]) < 2.0 * geometry.core_um]
+            if near:
+                report(row, f"closer than two core radii (2 x {geometry.core_um:g} um) to "
+                       f"{where} {near[0]} in shot {shot!r}", shot)
+                continue
         seen[key] = row
         shots[shot].append((row, float(xy_um[0]), float(xy_um[1]), sign,
                             vals.get("t", math.nan), vals.get("weight", math.nan)))

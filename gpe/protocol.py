@@ -24,10 +24,11 @@ from typing import Any, Sequence
 import numpy as np
 import scipy.constants as const
 
+from gpe.beams import (Beam, BeamSet, CirclePath, LinePath, PolylinePath, Ramp, StaticPath, array_offsets,
+                       find_beam_excursion)
 from gpe.errors import ProtocolError, VorthermError
 from gpe.grid import Grid
-from gpe.potentials import (Beam, BeamSet, CirclePath, LinePath, PolylinePath, Ramp, StaticPath,
-                            TrapConfig, array_offsets, build_trap, find_beam_excursion, load_mask)
+from gpe.potentials import TrapConfig, build_trap, load_mask
 # the schema machinery lives in gpe.protocol_schema; its public tables stay importable from here
 from gpe.protocol_schema import (SCHEMA, SELECTED, SI_OUT, SIM_OUT, SUFFIXES, Spec, _apply_overrides,
                                  _Context, _describe, _describe_value, _Section)

@@ -331,6 +331,12 @@ def load_sweep(path: str | os.PathLike, *, check_protocol: bool = True) -> Sweep
     return parse_sweep(text, path, check_protocol=check_protocol)
 
 
+def default_out_dir(sweep_path: str | os.PathLike) -> Path:
+    """Where a sweep writes by default: ``out/<sweep file stem>/`` beside the sweep file."""
+    path = Path(sweep_path)
+    return path.parent / "out" / path.stem
+
+
 def _check_axis_keys(sweep: Sweep) -> None:
     import warnings
 

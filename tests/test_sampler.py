@@ -76,7 +76,8 @@ def test_beta_zero_dipole_moment_and_angular_impulse(rng):
     # beta = 0, uniform positions: <D^2> = 1/(2N) with D = |sum s_i u_i|/N; the signed angular
     # impulse M = sum s_i |u_i|^2 has mean 0 and variance N/12 for a neutral gas [exact,
     # reference-values.md: |u|^2 is uniform on [0, 1]]. The core (a = 1e-3) excludes a fraction
-    # ~N^2 a^2 ~ 4e-5 of configuration space, far below the statistical tolerance.
+    # ~N^2 a^2 ~ 4e-5 of configuration space; the wall core shrinks the disk to rho = 1 - a,
+    # so the exact values become rho^2/(2N) and rho^4 N/12 (|u|^2 uniform on [0, rho^2]).
     n_half = 3
     n = 2 * n_half
     res = run_tempering(Disk(), n_half, n_half, [0.0], 30000, 1e-3, rng, burn_in=500)
@@ -84,12 +85,13 @@ def test_beta_zero_dipole_moment_and_angular_impulse(rng):
     s = res.signs
     d2 = ((u * s[None, :, None]).sum(1) ** 2).sum(-1) / n**2
     m = (s[None, :] * (u**2).sum(-1)).sum(1)
+    rho = 1 - 1e-3
     mean, se = _mean_and_se(d2)
-    assert abs(mean - 1 / (2 * n)) < 4 * se
+    assert abs(mean - rho**2 / (2 * n)) < 4 * se
     mean, se = _mean_and_se(m)
     assert abs(mean) < 4 * se
     mean, se = _mean_and_se(m**2)
-    assert abs(mean - n / 12) < 4 * se
+    assert abs(mean - rho**4 * n / 12) < 4 * se
     # and the recorded energies are those of the recorded positions
     np.testing.assert_allclose(res.energies[0, ::997], energy_batch(u[::997], s, Disk()), rtol=1e-9)
 
@@ -221,18 +223,29 @@ def test_default_ladder():
 @pytest.mark.parametrize("domain,n_plus,n_minus", [(Disk(), 5, 5), (Disk(), 4, 1), (Box(2.0), 3, 3)],
                          ids=["disk-neutral", "disk-charged", "box-neutral"])
 def test_beta_zero_energy_matches_uniform_average(domain, n_plus, n_minus, rng):
-    # At beta = 0 the sampler must reproduce the uniform ensemble. Disk: <E> = -N + (Q^2 - N)/4
-    # [exact, reference-values.md]; box: the average over independent uniform samples (core
-    # a = 1e-3 negligible). Within a tempering run, so swaps with beta != 0 are exercised.
+    # At beta = 0 the sampler must reproduce the uniform ensemble of the cores' free space.
+    # Disk: uniform in |u| < rho = 1 - a, so x = 1 - |u|^2 is uniform on [eps, 1], eps = 1 - rho^2,
+    # <ln x> = (-1 - eps ln eps + eps)/(1 - eps); <ln|u1 - u2|> = ln rho - 1/4 and
+    # <ln|1 - u1 conj u2|> = 0 (harmonic in u1, mean = value at the centre), hence
+    # <E> = N <ln x> + (Q^2 - N)/2 (1/2 - 2 ln rho) [exact; reduces to -N + (Q^2 - N)/4 of
+    # reference-values.md as a -> 0]. The excluded pair overlaps (fraction ~ N^2 a^2 ~ 1e-4)
+    # are neglected. Box: average over independent uniform samples with the same cores.
+    # Within a tempering run, so swaps with beta != 0 are exercised.
     n = n_plus + n_minus
-    res = run_tempering(domain, n_plus, n_minus, [0.3, 0.0, -0.1], 40000, 1e-3, rng, thin=2)
+    core = 1e-3
+    res = run_tempering(domain, n_plus, n_minus, [0.3, 0.0, -0.1], 40000, core, rng, thin=2)
     mean, se = _mean_and_se(res.energies[1])
     if isinstance(domain, Disk):
         q = n_plus - n_minus
-        ref, ref_se = -n + (q * q - n) / 4, 0.0
+        rho = 1 - core
+        eps = 1 - rho**2
+        ref = n * (-1 - eps * np.log(eps) + eps) / (1 - eps) + (q * q - n) / 2 * (0.5 - 2 * np.log(rho))
+        ref_se = 0.0
     else:
-        uni = energy_batch(domain.sample_uniform(rng, 100000 * n).reshape(100000, n, 2),
-                           res.signs, domain)
+        conf = domain.sample_uniform(rng, 100000 * n, margin=core).reshape(100000, n, 2)
+        d2 = ((conf[:, :, None, :] - conf[:, None, :, :]) ** 2).sum(-1) + np.eye(n) * 9
+        conf = conf[d2.min(axis=(1, 2)) >= (2 * core) ** 2]
+        uni = energy_batch(conf, res.signs, domain)
         ref, ref_se = uni.mean(), uni.std() / np.sqrt(len(uni))
     assert abs(mean - ref) < 4 * np.hypot(se, ref_se)
 

@@ -1,0 +1,73 @@
+"""Bridge from detected vortices (healing units) to the point-vortex domain."""
+
+import math
+
+import numpy as np
+import pytest
+
+from gpe.errors import VorthermError
+from gpe.potentials import TrapConfig
+from gpe.thermometry import (CORE_RADIUS_XI, WALL_LAYER_XI, domain_for_trap, gas_configuration,
+                             onset_verdict)
+
+
+def test_disk_trap_maps_to_unit_disk_shrunk_by_the_wall_layer():
+    vd = domain_for_trap(TrapConfig(shape="disk", radius=50.0, wall_height=5.0))
+    assert vd.domain.kind == "disk"
+    assert vd.scale == pytest.approx(50.0 - WALL_LAYER_XI)
+    assert vd.core_radius == pytest.approx(CORE_RADIUS_XI / (50.0 - WALL_LAYER_XI))
+    assert vd.approximate == ""
+    pos = vd.to_domain(np.array([0.0, 24.5]), np.array([0.0, 0.0]))
+    np.testing.assert_allclose(pos, [[0, 0], [0.5, 0]])
+
+
+def test_box_trap_keeps_its_aspect_ratio():
+    vd = domain_for_trap(TrapConfig(shape="box", length_x=82.0, length_y=42.0, wall_height=5.0))
+    assert vd.domain.kind == "box"
+    assert vd.domain.aspect == pytest.approx(80.0 / 40.0)
+    assert vd.scale == pytest.approx(40.0)
+
+
+def test_harmonic_trap_is_flagged_as_approximation():
+    # Thomas-Fermi radius at mu = 1: V(R) = omega^2 R^2 / 2 = 1 -> R = sqrt(2)/omega [exact]
+    vd = domain_for_trap(TrapConfig(shape="harmonic", omega_x=0.05, omega_y=0.05))
+    assert vd.scale == pytest.approx(math.sqrt(2) / 0.05)
+    assert "approximation" in vd.approximate
+
+
+def test_annulus_has_no_point_vortex_domain():
+    with pytest.raises(VorthermError, match="annulus"):
+        domain_for_trap(TrapConfig(shape="annulus", inner_radius=5, outer_radius=20, wall_height=5))
+
+
+def test_wall_layer_vortices_and_close_pairs_are_left_out_and_counted():
+    vd = domain_for_trap(TrapConfig(shape="disk", radius=41.0, wall_height=5.0))  # scale 40 xi
+    x = np.array([0.0, 10.0, 10.6, 39.9, -20.0])
+    y = np.array([0.0, 0.0, 0.0, 0.0, 5.0])
+    s = np.array([1, 1, -1, -1, -1])
+    gas = gas_configuration(x, y, s, vd)
+    # 39.9 xi is within one core (0.5 xi) of R_eff = 40 xi; the pair 0.6 xi apart is closer
+    # than two cores (1 xi) and leaves together
+    assert gas.left_out_wall == 1
+    assert gas.left_out_pairs == 1
+    np.testing.assert_allclose(gas.positions, [[0, 0], [-0.5, 0.125]])
+    assert gas.n_plus == 1 and gas.n_minus == 1
+
+
+def _rec(lo, hi, p):
+    return {"beta_ci95": [lo, hi], "prob_negative": p}
+
+
+def test_onset_verdict_finds_first_sustained_negative_frame():
+    recs = [_rec(0.1, 2, 0.0), _rec(-1, 1, 0.5), _rec(-3, -0.5, 0.99), _rec(-3, -0.4, 0.99),
+            _rec(-2, -0.1, 0.98)]
+    text = onset_verdict(np.arange(5.0) * 10, recs, "ms")
+    assert "from t = 20 ms" in text
+    assert "3 of 3 frames" in text
+
+
+def test_onset_verdict_positive_and_undefined():
+    recs = [_rec(0.1, 2, 0.0)] * 4
+    assert onset_verdict(np.arange(4.0), recs, "ms").startswith("Positive temperature")
+    nan = float("nan")
+    assert "No frame" in onset_verdict(np.arange(2.0), [_rec(nan, nan, nan)] * 2, "ms")

@@ -507,7 +507,7 @@ def plot_comparison(comparison: Comparison, path: str | Path | None = None, *,
         ax.scatter(scale * pos[minus, 0], scale * pos[minus, 1], s=44, marker="^",
                    facecolor="#92c5de", edgecolor="#2166ac", label="-")
         ax.set_aspect("equal")
-        ax.set_title(f"{lab}: one shot (N+={int(plus.sum())}, N-={int(minus.sum())})",
+        ax.set_title(f"{lab}: one shot\nN+={int(plus.sum())}, N-={int(minus.sum())}",
                      fontsize=9)
         ax.set_xlabel(f"x ({unit})", fontsize=8)
         ax.legend(fontsize=7, loc="upper right")
@@ -518,8 +518,10 @@ def plot_comparison(comparison: Comparison, path: str | Path | None = None, *,
         ax.set_ylim(lo, hi)
     text = [f"{r.quantity}: {r.simulation:.3g} vs {r.measured:.3g}"
             f"{'  *' if r.significant else ''}" for r in comparison.rows]
-    flat[13].text(0.0, 1.0, "\n".join(text + list(comparison.notes)), va="top",
-                  fontsize=8, family="monospace", transform=flat[13].transAxes, wrap=True)
+    # the notes (long verdict sentences) are in the CSV/JSON; here only the table, so the
+    # text panel does not stretch the layout
+    flat[13].text(0.0, 1.0, "\n".join(["sim vs measured (* differs at 5%)"] + text),
+                  va="top", fontsize=8, family="monospace", transform=flat[13].transAxes)
     flat[13].set_axis_off()
     flat[14].set_axis_off()
     flat[9].legend(fontsize=8)

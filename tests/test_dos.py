@@ -95,3 +95,76 @@ def test_settings_are_validated():
     from thermo.errors import SamplerError
     with pytest.raises(SamplerError, match="n_sweeps"):
         DosSettings(n_sweeps=1)
+
+
+# ------------------------------------------------------------------ with the real sampler
+@pytest.fixture(scope="module")
+def small_gas(tmp_path_factory):
+    """2+2 neutral gas in the unit disk, core 0.01, modest effort (cached in a tmp dir)."""
+    from thermo.domains import Disk
+    cache = tmp_path_factory.mktemp("dos_cache")
+    settings = DosSettings(n_temps=12, n_sweeps=2000, n_boot=20)
+    before = dosmod.BUILD_COUNT
+    d = dosmod.load_or_build(2, 2, Disk(), 0.01, cache_dir=cache, seed=3, settings=settings)
+    assert dosmod.BUILD_COUNT == before + 1
+    return d, cache, settings
+
+
+def test_reweighted_mean_energy_matches_direct_sampling_off_ladder(small_gas):
+    """MBAR-reweighted <E>(beta) vs a direct single-temperature Metropolis run at betas
+    between the rungs (both signs); |difference| < 4 combined standard errors, the direct
+    error from the integrated autocorrelation time (Sokal's windowing, common practice)."""
+    from thermo.domains import Disk
+    from thermo.sampler import run_tempering
+    d, _, _ = small_gas
+    ladder = np.sort(d.betas)
+    for beta in (-0.5, 0.4):
+        assert np.min(np.abs(ladder - beta)) > 0.01
+        run = run_tempering(Disk(), 2, 2, [beta], 6000, 0.01, np.random.default_rng(7))
+        e = run.energies[0]
+        se_direct = e.std(ddof=1) * np.sqrt(2 * run.tau_int[0] / e.size)
+        mean, err = d.mean_energy(beta)
+        assert abs(mean[0] - e.mean()) < 4 * np.hypot(err[0], se_direct), \
+            (beta, mean, err, e.mean(), se_direct)
+
+
+def test_beta_zero_mean_energy_is_exact_for_neutral_gas(small_gas):
+    """[exact] beta = 0 with the hard core: positions uniform in |u| < 1 - a.
+
+    Self term: <ln(1 - r^2)> = (-1 - (x0 ln x0 - x0)) / (1 - a)^2 with x0 = 2a - a^2
+    (substitute x = 1 - r^2). Pair term: <ln|1 - u1 conj(u2)|> = 0 (mean-value property),
+    <ln|u1 - u2|> = -1/4 + ln(1 - a) (scaling of the a = 0 value, reference-values.md).
+    The 2a pair exclusion changes this by O(a^2 ln a) ~ 1e-3, inside the tolerance.
+    For a = 0 this is <E> = -N + (Q^2 - N)/4 of reference-values.md.
+    """
+    d, _, _ = small_gas
+    a, n, q = 0.01, 4, 0
+    x0 = 2 * a - a * a
+    self_term = (-1 - (x0 * np.log(x0) - x0)) / (1 - a) ** 2
+    pair_term = -2 * (-0.25 + np.log(1 - a))
+    exact = n * self_term + (q * q - n) / 2 * pair_term
+    mean, err = d.mean_energy(0.0)
+    assert abs(mean[0] - exact) < 4 * err[0] + 0.005, (mean, err, exact)
+
+
+def test_structure_observables_reweight(small_gas):
+    """[exact] <C1>(beta = 0) = -1/(N-1) = -1/3 (reference-values.md); the hard core keeps
+    the i.i.d. symmetry that the derivation uses, so it holds with the core too."""
+    d, _, _ = small_gas
+    res = d.canonical_many([0.0], ["c1", "dipole_moment"])
+    c1, c1_err = res["c1"]
+    assert abs(c1[0] + 1 / 3) < 4 * c1_err[0] + 0.01
+
+
+def test_cache_hit_returns_identical_arrays_without_resampling(small_gas):
+    from thermo.domains import Disk
+    d, cache, settings = small_gas
+    path = dosmod.cache_path(2, 2, Disk(), 0.01, cache)
+    mtime = path.stat().st_mtime_ns
+    before = dosmod.BUILD_COUNT
+    again = dosmod.load_or_build(2, 2, Disk(), 0.01, cache_dir=cache, seed=99, settings=settings)
+    assert dosmod.BUILD_COUNT == before and path.stat().st_mtime_ns == mtime
+    for name in ("betas", "energies", "f", "log_denom", "boot_f", "boot_counts"):
+        np.testing.assert_array_equal(getattr(again, name), getattr(d, name))
+    for k, v in d.observables.items():
+        np.testing.assert_array_equal(again.observables[k], v)

@@ -29,7 +29,7 @@ import os
 import tempfile
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import Any, Sequence
 
 import numpy as np
 
@@ -198,20 +198,50 @@ class DensityOfStates:
                 "reweighting cannot extrapolate: rebuild with a wider ladder")
         return b
 
-    def _moments(self, beta: np.ndarray, values: np.ndarray, ld, counts):
+    def _weights(self, beta: np.ndarray, ld, counts) -> np.ndarray:
         lw = self._log_weights(beta, ld, counts)
-        w = np.exp(lw - logsumexp(lw, axis=1, keepdims=True))
+        lw -= lw.max(axis=1, keepdims=True)
+        np.exp(lw, out=lw)
+        lw /= lw.sum(axis=1, keepdims=True)
+        return lw
+
+    def _moments(self, beta: np.ndarray, values: np.ndarray, ld, counts, w=None):
+        w = self._weights(beta, ld, counts) if w is None else w
         shift = np.average(values)
         m1 = w @ (values - shift)
         m2 = w @ (values - shift) ** 2
         return m1 + shift, m2 - m1 ** 2
 
-    def _with_errors(self, fn):
+    def _with_errors(self, fn, max_replicates: int | None = None):
         value = fn(self.log_denom, None)
-        reps = np.array([fn(ld, c) for ld, c in
-                         zip(self._replicate_log_denoms(), self.boot_counts)])
+        pairs = list(zip(self._replicate_log_denoms(), self.boot_counts))[:max_replicates]
+        reps = np.array([fn(ld, c) for ld, c in pairs])
         err = reps.std(axis=0, ddof=1) if len(reps) > 1 else np.full_like(value, np.nan)
         return value, err
+
+    def canonical_many(self, beta: Any, names: Sequence[str],
+                       max_replicates: int | None = None) -> dict[str, tuple]:
+        """Canonical (mean, mean_err) of several observables, weights computed once.
+
+        Units: those of each observable.
+        """
+        b = self._check_beta(beta)
+        vals = []
+        for name in names:
+            if name == "energy":
+                vals.append(self.energies)
+            elif name in self.observables:
+                vals.append(self.observables[name])
+            else:
+                raise SamplerError(f"unknown observable {name!r}; available: "
+                                   f"{['energy', *sorted(self.observables)]}")
+        stack = np.stack(vals)                                  # (V, Ntot)
+
+        def fn(ld, c):
+            return self._weights(b, ld, c) @ stack.T            # (M, V)
+
+        mean, err = self._with_errors(fn, max_replicates)
+        return {name: (mean[:, i], err[:, i]) for i, name in enumerate(names)}
 
     # ------------------------------------------------------------ canonical
     def log_z(self, beta: Any) -> np.ndarray:
@@ -227,11 +257,11 @@ class DensityOfStates:
         l0 = self._log_weights(np.zeros(1), ld, counts)
         return logsumexp(lw, axis=1) - logsumexp(l0, axis=1)
 
-    def log_z_replicates(self, beta: Any) -> np.ndarray:
+    def log_z_replicates(self, beta: Any, max_replicates: int | None = None) -> np.ndarray:
         """(B, M) bootstrap replicates of ln Z(beta) - ln Z(0)."""
         b = self._check_beta(beta)
-        return np.array([self._log_z(b, ld, c) for ld, c in
-                         zip(self._replicate_log_denoms(), self.boot_counts)])
+        pairs = list(zip(self._replicate_log_denoms(), self.boot_counts))[:max_replicates]
+        return np.array([self._log_z(b, ld, c) for ld, c in pairs])
 
     def canonical(self, beta: Any, observable: str = "energy"
                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:

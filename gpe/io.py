@@ -330,6 +330,7 @@ class RunFile:
         if not 0 <= n_frames <= f["snapshots/psi"].shape[0]:
             raise RunFileError(f"{self.path}: cannot truncate to {n_frames} frames; the file "
                                f"has {f['snapshots/psi'].shape[0]}")
+        dropped_complete = n_frames < self.n_frames
         f["snapshots"].attrs["n_frames"] = min(n_frames, self.n_frames)
         for ds in (f["snapshots/psi"], f["snapshots/t"], *f["observables"].values()):
             if ds.shape[0] > n_frames:
@@ -338,7 +339,7 @@ class RunFile:
         if table.shape[0] and table[-1]["frame"] >= n_frames:
             rows = table[...]
             self.replace_vortices(rows[rows["frame"] < n_frames])
-        if n_frames < f["snapshots/t"].shape[0] or self.is_complete():
+        if dropped_complete:
             f.attrs["complete"] = False
         f.flush()
 

@@ -1,0 +1,161 @@
+"""Run file: resume equivalence, truncation of unfinished records, format checks."""
+
+import h5py
+import numpy as np
+import pytest
+
+from gpe.errors import RunFileError
+from gpe.grid import Grid
+from gpe.io import FORMAT_VERSION, VORTEX_ROW, RunFile
+from gpe.solver import Solver, SolverSettings
+
+GRID = Grid(32, 32, 16.0, 16.0)
+TRAP = 0.05 * (GRID.X**2 + GRID.Y**2)
+
+
+class CircularBeam:
+    """Test double of gpe.potentials.BeamSet: one beam moving on a circle."""
+
+    n_beams = 1
+    waists = np.array([1.5])
+
+    def evaluate(self, t, amp, cx, cy):
+        amp[0], cx[0], cy[0] = 2.0, 2.0 * np.cos(0.5 * t), 2.0 * np.sin(0.5 * t)
+
+    def max_height(self):
+        return 2.0
+
+
+def _psi0():
+    return np.exp(-(GRID.X**2 + GRID.Y**2) / 10.0) * np.exp(0.2j * GRID.Y)
+
+
+def _create(path, **kw):
+    return RunFile.create(path, GRID, protocol_text="[grid]\nnx = 32\n", protocol_json="{}",
+                          units={"length_m": 1e-6, "time_s": 1e-3}, static_potential=TRAP, **kw)
+
+
+def _rows(frame, t, n):
+    rows = np.zeros(n, VORTEX_ROW)
+    rows["frame"], rows["t"], rows["x"], rows["sign"], rows["track"] = frame, t, np.arange(n), 1, -1
+    return rows
+
+
+def _run(path, t_end, checkpoint_at=None, resume=False):
+    """Evolve with gamma > 0 and a moving beam, one frame per output, checkpoint per frame."""
+    settings = SolverSettings(dt=0.05, gamma=0.01, fft="pyfftw")
+    if resume:
+        run = RunFile.open(path, "r+", resume=True)
+        ck = run.read_checkpoint()
+        solver = Solver(GRID, TRAP, CircularBeam(), settings, ck.psi, t0=ck.t, step0=ck.step)
+        rng = ck.rng()
+    else:
+        run = _create(path)
+        solver = Solver(GRID, TRAP, CircularBeam(), settings, _psi0())
+        rng = np.random.default_rng(7)
+        run.append_frame(solver.t, solver.psi, solver.observables())
+        run.write_checkpoint(solver.psi, solver.t, solver.step_count, rng=rng)
+    with run:
+        for s in solver.evolve(t_end, 0.25):
+            frame = run.n_frames
+            # A random draw per frame stands in for seeded noise: the RNG state must resume too.
+            obs = dict(s.observables(), draw=float(rng.random()))
+            run.append_frame(s.t, s.psi, obs, vortices=_rows(frame, s.t, frame % 3))
+            run.write_checkpoint(s.psi, s.t, s.step_count, rng=rng)
+            if checkpoint_at is not None and s.t >= checkpoint_at - 1e-12:
+                break
+    return solver.psi.copy()
+
+
+def test_resume_equals_uninterrupted_run(tmp_path):
+    # N + M steps in one go == N steps, checkpoint, close, reopen, M steps (DESIGN.md).
+    whole = _run(tmp_path / "whole.h5", 2.0)
+    _run(tmp_path / "split.h5", 2.0, checkpoint_at=1.0)
+    with RunFile.open(tmp_path / "split.h5") as run:
+        assert run.n_frames == 5
+    resumed = _run(tmp_path / "split.h5", 2.0, resume=True)
+    np.testing.assert_array_equal(resumed, whole)
+    with h5py.File(tmp_path / "whole.h5") as a, h5py.File(tmp_path / "split.h5") as b:
+        for name in ("snapshots/psi", "snapshots/t", "vortices", "checkpoint/psi",
+                     *[f"observables/{k}" for k in a["observables"]]):
+            np.testing.assert_array_equal(a[name][...], b[name][...], err_msg=name)
+        assert a["snapshots"].attrs["n_frames"] == b["snapshots"].attrs["n_frames"] == 9
+        assert a["checkpoint"].attrs["rng_state"] == b["checkpoint"].attrs["rng_state"]
+
+
+def test_unfinished_records_and_frames_after_the_checkpoint_are_cut(tmp_path):
+    path = tmp_path / "run.h5"
+    with _create(path) as run:
+        for i in range(3):
+            run.append_frame(0.1 * i, _psi0(), {"norm": 1.0 + i}, vortices=_rows(i, 0.1 * i, 2))
+        run.write_checkpoint(_psi0(), 0.2, 4, frame=2)
+        run.append_frame(0.3, _psi0(), {"norm": 4.0, "lz": 0.5}, vortices=_rows(3, 0.3, 2))
+        # Simulate a crash between data and counter: the last record's counter never came.
+        run._f["snapshots"].attrs["n_frames"] = 3
+    with RunFile.open(path) as run:  # reading ignores the unfinished record
+        assert run.n_frames == 3 and len(run.read_vortices()) == 6
+    with RunFile.open(path, "r+") as run:  # writing cuts it
+        assert run._f["snapshots/psi"].shape[0] == 3
+        np.testing.assert_array_equal(run.read_observables()["lz"], [np.nan] * 3)
+    with RunFile.open(path, "r+", resume=True) as run:  # resuming also cuts past the checkpoint
+        assert run.n_frames == 2
+        np.testing.assert_array_equal(run.frame_times(), [0.0, 0.1])
+        assert set(run.read_vortices()["frame"]) == {0, 1}
+        np.testing.assert_array_equal(run.read_observables()["norm"], [1.0, 2.0])
+        assert run.read_checkpoint().step == 4
+
+
+def test_interrupted_checkpoint_replacement_keeps_a_whole_checkpoint(tmp_path):
+    path = tmp_path / "run.h5"
+    with _create(path) as run:
+        run.append_frame(0.0, _psi0())
+        run.write_checkpoint(_psi0(), 0.0, 0)
+        run._f.create_group("checkpoint.new").attrs["t"] = 9.0  # half-written, no 'written'
+    with RunFile.open(path, "r+") as run:
+        assert run.read_checkpoint().t == 0.0 and "checkpoint.new" not in run._f
+
+
+def test_metadata_snapshots_and_vortex_replacement(tmp_path):
+    path = tmp_path / "run.h5"
+    rng = np.random.default_rng(3)
+    rng.random(5)
+    with _create(path, extra_attrs={"mu_run": 0.98}) as run:
+        run.append_frame(0.0, _psi0(), {"norm": 2.0})
+        run.write_checkpoint(_psi0().astype(np.complex128), 0.0, 0, rng=rng)
+        run.replace_vortices(_rows(0, 0.0, 4))
+        run.mark_complete()
+    with RunFile.open(path) as run:
+        assert run.attrs["format_version"] == FORMAT_VERSION
+        assert run.protocol_text() == "[grid]\nnx = 32\n" and run.attrs_float("mu_run") == 0.98
+        assert run.units() == {"length_m": 1e-6, "time_s": 1e-3}
+        assert run.grid == GRID and run.is_complete()
+        np.testing.assert_allclose(run.psi(-1), _psi0(), rtol=1e-6)  # complex64 snapshots
+        assert run.observable_unit("norm") == "n0 xi^2"
+        assert len(run.read_vortices()) == 4
+        restored = run.read_checkpoint().rng()
+        assert restored.random() == rng.random()  # generator continues where it stopped
+        np.testing.assert_array_equal(run.static_potential(), TRAP)
+        assert [i for i, _, _ in run.frames()] == [0]
+
+
+def test_errors_name_the_file_and_the_expectation(tmp_path):
+    with pytest.raises(RunFileError, match="no such run file"):
+        RunFile.open(tmp_path / "missing.h5")
+    (tmp_path / "text.h5").write_text("hello")
+    with pytest.raises(RunFileError, match="text.h5.*HDF5"):
+        RunFile.open(tmp_path / "text.h5")
+    with h5py.File(tmp_path / "other.h5", "w") as f:
+        f["data"] = 1
+    with pytest.raises(RunFileError, match="not a vortherm run file"):
+        RunFile.open(tmp_path / "other.h5")
+    with _create(tmp_path / "future.h5") as run:
+        run._f.attrs["format_version"] = FORMAT_VERSION + 1
+    with pytest.raises(RunFileError, match="format_version 2 is not supported"):
+        RunFile.open(tmp_path / "future.h5")
+    with _create(tmp_path / "empty.h5") as run:
+        with pytest.raises(RunFileError, match="no snapshots"):
+            run.psi(0)
+        with pytest.raises(RunFileError, match="never checkpointed|no 'checkpoint'"):
+            run.read_checkpoint()
+    with pytest.raises(RunFileError, match="exists already"):
+        _create(tmp_path / "empty.h5")

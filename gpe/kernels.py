@@ -54,6 +54,47 @@ def _local_potential(v_static, amp, gx, gy, j, i, shift):
     return v_static[j, i] - shift + _beam_potential(amp, gx, gy, j, i)
 
 
+@njit(cache=True, fastmath=_FASTMATH, inline="always")
+def exp_ratio(z):
+    """Return ``((1 - exp(-z))/z, exp(-z))``; a Taylor series for |z| < 0.01.
+
+    The series (truncation < 1e-19 relative) is exact where ``1 - exp(-z)`` would cancel, and
+    cheaper than a library call.  Units: none.
+    """
+    if abs(z) < 0.01:
+        ratio = 1.0 + z * (-1 / 2 + z * (1 / 6 + z * (-1 / 24 + z * (1 / 120 + z * (
+            -1 / 720 + z * (1 / 5040 + z * (-1 / 40320)))))))
+        return ratio, 1.0 - z * ratio
+    decay = math.exp(-z)
+    return (1.0 - decay) / z, decay
+
+
+@njit(cache=True, fastmath=_FASTMATH, inline="always")
+def log1p_ratio(q):
+    """Return ``log(1 + q)/q``; a Taylor series for |q| < 0.01 (truncation < 1e-19). Units: none."""
+    if abs(q) < 0.01:
+        return 1.0 + q * (-1 / 2 + q * (1 / 3 + q * (-1 / 4 + q * (1 / 5 + q * (
+            -1 / 6 + q * (1 / 7 + q * (-1 / 8 + q * (1 / 9))))))))
+    return math.log1p(q) / q
+
+
+@njit(cache=True, fastmath=_FASTMATH, inline="always")
+def cis(x):
+    """Return ``(cos x, sin x)``; Taylor polynomials for |x| < 0.5 (truncation < 1e-17).
+
+    Phases per step are small where the condensate is, so the cheap branch is the usual one.
+    Units: x in rad.
+    """
+    if abs(x) < 0.5:
+        x2 = x * x
+        c = 1.0 + x2 * (-1 / 2 + x2 * (1 / 24 + x2 * (-1 / 720 + x2 * (1 / 40320 + x2 * (
+            -1 / 3628800 + x2 * (1 / 479001600 + x2 * (-1 / 87178291200)))))))
+        s = x * (1.0 + x2 * (-1 / 6 + x2 * (1 / 120 + x2 * (-1 / 5040 + x2 * (1 / 362880 + x2 * (
+            -1 / 39916800 + x2 * (1 / 6227020800 + x2 * (-1 / 1307674368000))))))))
+        return c, s
+    return math.cos(x), math.sin(x)
+
+
 @njit(cache=True, parallel=True, fastmath=_FASTMATH)
 def nonlinear_conservative(psi, v_static, amp, gx, gy, g, mu, tau):
     r"""Exact potential+nonlinear sub-step without damping, in place.
@@ -69,8 +110,8 @@ def nonlinear_conservative(psi, v_static, amp, gx, gy, g, mu, tau):
         for i in range(nx):
             p = psi[j, i]
             n0 = p.real * p.real + p.imag * p.imag
-            phase = -(_local_potential(v_static, amp, gx, gy, j, i, mu) + g * n0) * tau
-            psi[j, i] = p * complex(math.cos(phase), math.sin(phase))
+            c, s = cis(-(_local_potential(v_static, amp, gx, gy, j, i, mu) + g * n0) * tau)
+            psi[j, i] = p * complex(c, s)
             total += n0
     return total
 
@@ -82,15 +123,17 @@ def nonlinear_damped(psi, v_static, amp, gx, gy, g, mu, gamma, tau):
     Solves :math:`i\psi_t = (1 - i\gamma)(W + g|\psi|^2)\psi`, :math:`W = V - \mu` frozen over
     the sub-step, point by point in closed form.  The density obeys the logistic equation
     :math:`n' = -2\gamma (W + g n) n`, so with :math:`z = 2\gamma W\tau` and
-    :math:`s = (1 - e^{-z})/(2\gamma W)` (:math:`s = \tau` when :math:`W = 0`)
+    :math:`s = \tau (1 - e^{-z})/z` (:math:`s = \tau` when :math:`W = 0`)
 
     .. math:: n(\tau) = \frac{n_0 e^{-z}}{1 + q}, \qquad q = 2\gamma g n_0 s,
 
-    and the phase is :math:`\theta' = -(W + g n) = (\ln n)'/(2\gamma)`, i.e.
-    :math:`\Delta\theta = -W\tau - \ln(1 + q)/(2\gamma)`.  ``expm1``/``log1p`` keep this accurate
-    for small gamma.  Being exact, the sub-step adds no error of its own, so the Strang product
-    stays second order for gamma > 0 (the only splitting error is the commutator term).
-    Returns ``sum |psi|^2`` of the input.  Units: V, mu in mu; tau in hbar/mu; gamma none.
+    and the phase obeys :math:`\theta' = -(W + g n) = (\ln n)'/(2\gamma)`, i.e.
+    :math:`\Delta\theta = -W\tau - \ln(1 + q)/(2\gamma) = -W\tau - g n_0 s\,\ln(1+q)/q`.
+    The last form has no division by gamma, so it is accurate for any small gamma and reduces
+    to the conservative step at gamma = 0.  Being exact, the sub-step adds no error of its own
+    and the Strang product stays second order for gamma > 0 (the only splitting error is the
+    commutator term).  Returns ``sum |psi|^2`` of the input.
+    Units: V, mu in mu; tau in hbar/mu; gamma none.
     """
     ny, nx = psi.shape
     total = 0.0
@@ -101,13 +144,12 @@ def nonlinear_damped(psi, v_static, amp, gx, gy, g, mu, gamma, tau):
             n0 = p.real * p.real + p.imag * p.imag
             w = _local_potential(v_static, amp, gx, gy, j, i, mu)
             z = two_gamma * w * tau
-            em = math.expm1(-z)
-            s = tau if z == 0.0 else -em / (two_gamma * w)
-            q = two_gamma * g * n0 * s
-            lq = math.log1p(q)
-            modulus = math.sqrt((1.0 + em) / (1.0 + q))
-            phase = -w * tau - lq / two_gamma
-            psi[j, i] = p * complex(modulus * math.cos(phase), modulus * math.sin(phase))
+            ratio, decay = exp_ratio(z)
+            gns = g * n0 * tau * ratio
+            q = two_gamma * gns
+            modulus = math.sqrt(decay / (1.0 + q))
+            c, s = cis(-w * tau - gns * log1p_ratio(q))
+            psi[j, i] = p * complex(modulus * c, modulus * s)
             total += n0
     return total
 

@@ -120,3 +120,18 @@ def test_kernel_threads_restores_the_setting():
     with kernels.kernel_threads(1):
         assert numba.get_num_threads() == 1
     assert numba.get_num_threads() == before
+
+
+@pytest.mark.parametrize("x", [0.0, 1e-9, -3e-4, 0.0099, -0.0101, 0.3, -0.499, 0.501, 2.0, -7.5])
+def test_series_helpers_match_the_library_functions(x):
+    # Reference: math.expm1, math.log1p, math.cos, math.sin (correctly rounded to ~1 ulp).
+    import math
+    if x != 0.0:
+        ratio, decay = kernels.exp_ratio(x)
+        assert ratio == pytest.approx(-math.expm1(-x) / x, rel=2e-16)
+        assert decay == pytest.approx(math.exp(-x), rel=2e-16)
+        if x > -1:
+            assert kernels.log1p_ratio(x) == pytest.approx(math.log1p(x) / x, rel=2e-16)
+    c, s = kernels.cis(x)
+    assert c == pytest.approx(math.cos(x), rel=2e-16, abs=1e-300)
+    assert s == pytest.approx(math.sin(x), rel=2e-16, abs=1e-300)

@@ -344,3 +344,60 @@ def test_measurement_time_is_converted_to_hbar_over_mu():
     assert _time_to_simulation(p, "ms") == pytest.approx(1e-3 / tau_s, rel=1e-9)
     assert _time_to_simulation(p, "protocol") == _time_to_simulation(p, "ms")  # units = "SI"
     assert _time_to_simulation(p, "tau") == 1.0
+
+
+TINY_PROTOCOL = """
+units = "healing"
+name = "tiny"
+[atoms]
+species = "87Rb"
+chemical_potential_nK = 10.0
+axial_frequency_hz = 700.0
+[trap]
+shape = "disk"
+radius_xi = 12.0
+[grid]
+nx = 32
+padding_xi = 4.0
+[evolution]
+duration_tau = 20.0
+dt_tau = 0.05
+output_interval_tau = 5.0
+damping = 0.01
+[[beams]]
+waist_xi = 2.0
+height_mu = 2.0
+[beams.path]
+kind = "circle"
+radius_xi = 6.0
+speed_c = 0.6
+"""
+
+
+@pytest.mark.slow
+def test_end_to_end_with_the_real_pipeline(tmp_path):
+    """Two points of a tiny protocol through simulate + analyse, then a rerun that skips both."""
+    from gpe import pipeline
+
+    (tmp_path / "tiny.toml").write_text(TINY_PROTOCOL)
+    src = tmp_path / "s.toml"
+    src.write_text('base = "tiny.toml"\nseeds = 1\n[[axes]]\nkey = "beams.0.path.speed_c"\n'
+                   'values = [0.3, 0.7]\n[measure]\nwindow_tau = [10.0, 20.0]\n'
+                   'quantities = ["beta", "n_plus", "n_minus"]\n')
+    sweep = load_sweep(src)
+    first = run_sweep(sweep, tmp_path / "out", workers=2)
+    assert first.complete, first.failed
+    runs = sorted((tmp_path / "out" / "runs").glob("*.h5"))
+    assert [p.stem for p in runs] == ["p000_s0", "p001_s0"]
+    assert all(pipeline.is_complete(p) for p in runs)
+    for row in first.runs:  # the table holds what analyse() says about the same run
+        direct = pipeline.analyse(tmp_path / "out" / "runs" / f"{row['point_id']}.h5",
+                                  window=(10.0, 20.0))
+        # equal up to round-off: the worker ran with one thread, this process with several
+        np.testing.assert_allclose([row["n_plus"], row["beta"]],
+                                   [direct["n_plus"], direct["beta"]], rtol=1e-9)
+    stamps = {p: p.stat().st_mtime_ns for p in runs}
+    seen = []
+    second = run_sweep(sweep, tmp_path / "out", workers=2, progress=seen.append)
+    assert seen[-1].skipped == 2 and json.dumps(second.runs) == json.dumps(first.runs)
+    assert {p: p.stat().st_mtime_ns for p in runs} == stamps  # finished runs not touched

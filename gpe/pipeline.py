@@ -1,0 +1,444 @@
+"""The whole job for one protocol: ground state -> stirring -> run file -> vortices.
+
+``simulate`` is the only place where the protocol, the solver, the detector and the run file
+meet; each of them stays ignorant of the others. ``analyse`` turns a finished run file into a
+temperature verdict through the thermometry back end.
+
+Units: simulation units throughout (xi, hbar/mu, mu); SI only in the summary text.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import time
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Callable
+
+import numpy as np
+
+from gpe.errors import RunFileError, VorthermError
+
+#: Density threshold of the detector relative to the peak background (common practice: 0.1-0.3).
+DETECT_THRESHOLD = 0.2
+
+
+@dataclass(frozen=True)
+class RunProgress:
+    """What a progress callback is told after every output."""
+
+    t: float
+    t_end: float
+    steps: int
+    steps_per_s: float
+    n_plus: int
+    n_minus: int
+    time_unit: str
+
+
+def terminal_progress_factory() -> Callable[[RunProgress], None]:
+    """A callback that draws a progress bar on standard error."""
+    from gpe.progress import ProgressBar
+
+    state: dict = {}
+
+    def draw(p: RunProgress) -> None:
+        if "bar" not in state:
+            state["bar"] = ProgressBar(p.t_end, label="run", unit=p.time_unit)
+        bar = state["bar"]
+        bar.update(p.t, extra=f"{p.steps_per_s:,.0f} steps/s  N+={p.n_plus} N-={p.n_minus}")
+        if p.t >= p.t_end * (1 - 1e-12):
+            bar.close()
+
+    return draw
+
+
+def terminal_progress(p: RunProgress) -> None:
+    """Module-level progress callback for the CLI (one bar per process)."""
+    global _TERMINAL
+    if _TERMINAL is None or p.steps == 0:
+        _TERMINAL = terminal_progress_factory()
+    _TERMINAL(p)
+
+
+_TERMINAL: Callable[[RunProgress], None] | None = None
+
+
+def _detection_region(protocol, v_static: np.ndarray) -> np.ndarray:
+    """Where vortices may be reported: inside the trap walls (or below mu for a harmonic trap)."""
+    trap = protocol.trap
+    if trap.shape == "harmonic":
+        return v_static < 0.9
+    return v_static < 0.5 * trap.wall_height
+
+
+def _detect(psi: np.ndarray, grid, region: np.ndarray, frame: int, t: float) -> np.ndarray:
+    from gpe.vortices import VORTEX_DTYPE, find_vortices
+
+    det = find_vortices(psi, grid.x, grid.y, threshold=DETECT_THRESHOLD, region=region)
+    rows = np.empty(len(det), dtype=VORTEX_DTYPE)
+    rows["frame"] = frame
+    rows["t"] = t
+    rows["x"] = det.x
+    rows["y"] = det.y
+    rows["sign"] = det.sign
+    rows["track"] = -1
+    return rows
+
+
+def _initial_state(protocol, v_static, beams, threads):
+    """Ground state with the beams at their t = 0 heights and positions, plus seeded noise."""
+    from gpe.solver import find_ground_state
+
+    gs_cfg = protocol.ground_state
+    kwargs = {}
+    if gs_cfg.fixed == "number":
+        kwargs["norm"] = protocol.atoms.norm
+    else:
+        kwargs["mu"] = 1.0
+    vortices = None
+    if gs_cfg.imprint_positions:
+        vortices = (np.asarray(gs_cfg.imprint_positions, dtype=float),
+                    np.asarray(gs_cfg.imprint_signs, dtype=int))
+    gs = find_ground_state(
+        protocol.grid, v_static, g=1.0, beams=beams, dt=gs_cfg.dt,
+        tol=min(gs_cfg.mu_tolerance, gs_cfg.energy_tolerance), max_steps=gs_cfg.max_steps,
+        vortices=vortices, threads=threads, **kwargs)
+    psi = gs.psi.copy()
+    if gs_cfg.noise_amplitude > 0:
+        # Relative complex noise, only where there is fluid, drawn from the protocol's seed:
+        # different seeds give statistically independent runs of the same protocol.
+        rng = np.random.default_rng(protocol.evolution.seed)
+        noise = rng.standard_normal(psi.shape) + 1j * rng.standard_normal(psi.shape)
+        psi *= 1.0 + gs_cfg.noise_amplitude * noise
+    return gs, psi
+
+
+def simulate(protocol, out_path, *, resume: bool = False,
+             progress: Callable[[RunProgress], None] | None = None,
+             threads: int | None = None) -> Path:
+    """Run ``protocol`` and write (or, with ``resume``, complete) its run file.
+
+    Parameters
+    ----------
+    protocol : gpe.protocol.Protocol
+    out_path : path of the run file
+    resume : continue from the run file's checkpoint when it exists and is incomplete;
+        a complete run file is left untouched.
+    progress : callback receiving a :class:`RunProgress` after every output.
+    threads : FFT threads (default: all cores).
+
+    Returns
+    -------
+    pathlib.Path of the run file.
+    """
+    from gpe.io import RunFile
+    from gpe.solver import Solver, SolverSettings
+
+    out_path = Path(out_path)
+    grid = protocol.grid
+    ev = protocol.evolution
+    v_static = protocol.build_trap()
+    beams = protocol.build_beams()
+    region = _detection_region(protocol, v_static)
+    t_end = ev.n_outputs * ev.output_interval
+    time_unit = "ms" if protocol.unit_system == "SI" else "hbar/mu"
+    to_user = protocol.units.time_s * 1e3 if time_unit == "ms" else 1.0
+
+    if resume and out_path.exists():
+        run = RunFile.open(out_path, "r+")
+        if run.is_complete():
+            run.close()
+            return out_path
+        ck = run.read_checkpoint()
+        psi0, t0, step0, frame0 = ck.psi, ck.t, ck.step, ck.frame
+        mu_run = run.attrs_float("mu_run")
+        run.truncate_to_frame(frame0)
+    else:
+        gs, psi0 = _initial_state(protocol, v_static, beams, threads)
+        if not gs.converged:
+            import warnings
+            warnings.warn(f"{protocol.source_name}: ground state not converged to the tolerance "
+                          f"after {gs.steps} steps (mu = {gs.mu:.6g}); raise "
+                          "ground_state.max_steps or dt", stacklevel=2)
+        mu_run = gs.mu
+        tmp = out_path.with_name(out_path.name + ".part")
+        run = RunFile.create(tmp, protocol=protocol, static_potential=v_static,
+                             ground_state_psi=gs.psi, extra_attrs={"mu_run": mu_run,
+                                                                   "ground_state_steps": gs.steps})
+        t0, step0, frame0 = 0.0, 0, 0
+        _write_frame(run, protocol, psi0, 0.0, v_static, beams, grid, region, frame=0)
+        run.write_checkpoint(psi0, 0.0, 0, 1)
+        run.close()
+        tmp.replace(out_path)
+        run = RunFile.open(out_path, "r+")
+        frame0 = 1
+
+    settings = SolverSettings(dt=ev.dt, gamma=ev.gamma, mu=mu_run, g=1.0,
+                              precision=ev.precision, threads=threads)
+    solver = Solver(grid, v_static, beams, settings, psi0, t0=t0, step0=step0)
+    frame = frame0
+    last_ck_wall = time.monotonic()
+    since_ck = 0
+    start_wall, start_steps = time.perf_counter(), solver.step_count
+    try:
+        for _ in solver.evolve(t_end, ev.output_interval):
+            rows = _write_frame(run, protocol, solver.psi, solver.t, v_static, beams, grid,
+                                region, frame)
+            frame += 1
+            since_ck += 1
+            done = solver.step_count >= ev.n_steps
+            if (done or since_ck >= ev.checkpoint_every_outputs
+                    or time.monotonic() - last_ck_wall >= ev.checkpoint_every_s):
+                run.write_checkpoint(solver.psi, solver.t, solver.step_count, frame)
+                since_ck, last_ck_wall = 0, time.monotonic()
+            if progress is not None:
+                elapsed = time.perf_counter() - start_wall
+                rate = (solver.step_count - start_steps) / elapsed if elapsed > 0 else 0.0
+                progress(RunProgress(solver.t * to_user, t_end * to_user, solver.step_count,
+                                     rate, int(np.count_nonzero(rows["sign"] > 0)),
+                                     int(np.count_nonzero(rows["sign"] < 0)), time_unit))
+        _finish_tracks(run)
+        run.mark_complete()
+    finally:
+        run.close()
+    return out_path
+
+
+def _write_frame(run, protocol, psi, t, v_static, beams, grid, region, frame) -> np.ndarray:
+    from gpe.solver import observables
+
+    v_beam = beams.potential(t, grid) if beams.n_beams else None
+    obs = observables(psi, grid, v_static, v_beam, 1.0)
+    obs["atom_number"] = protocol.units.atom_number(obs["norm"])
+    rows = _detect(np.asarray(psi), grid, region, frame, t)
+    obs["n_plus"] = float(np.count_nonzero(rows["sign"] > 0))
+    obs["n_minus"] = float(np.count_nonzero(rows["sign"] < 0))
+    run.append_frame(t, psi, obs, vortices=rows)
+    return rows
+
+
+def _finish_tracks(run) -> None:
+    """Link the vortices of all frames into tracks once the run is complete."""
+    from gpe.vortices import track_vortices
+
+    table = run.read_vortices()
+    if table.size:
+        run.replace_vortices(track_vortices(table, run.frame_times()))
+
+
+# ------------------------------------------------------------------------------------------
+# reading a run back: completeness, summary, thermometry
+# ------------------------------------------------------------------------------------------
+def protocol_of(run) -> object:
+    """Rebuild the :class:`~gpe.protocol.Protocol` stored verbatim in an open run file."""
+    from gpe.protocol import parse_protocol
+
+    return parse_protocol(run.protocol_text(), source=run.protocol_source(),
+                          overrides=run.protocol_overrides(),
+                          base_dir=Path(run.protocol_source()).parent)
+
+
+def is_complete(run_path) -> bool:
+    """True when ``run_path`` is a readable run file whose run reached its final time."""
+    from gpe.io import RunFile
+
+    path = Path(run_path)
+    if not path.exists():
+        return False
+    try:
+        with RunFile.open(path, "r") as run:
+            return bool(run.is_complete())
+    except (RunFileError, OSError):
+        return False
+
+
+def simulate_resume(run_path, *, progress=None, threads=None) -> Path:
+    """Continue the interrupted run in ``run_path`` from its last checkpoint."""
+    from gpe.io import RunFile
+
+    path = Path(run_path)
+    if not path.exists():
+        raise RunFileError(f"{path}: no such run file to resume; start it with `vortherm run "
+                           "PROTOCOL.toml`")
+    with RunFile.open(path, "r") as run:
+        if run.is_complete():
+            return path
+        protocol = protocol_of(run)
+    return simulate(protocol, path, resume=True, progress=progress, threads=threads)
+
+
+def summary_text(run_path) -> str:
+    """Closing summary of a run: atoms, mu, healing length, sound speed, final vortex count."""
+    from gpe.io import RunFile
+
+    with RunFile.open(run_path, "r") as run:
+        protocol = protocol_of(run)
+        times = run.frame_times()
+        table = run.read_vortices()
+        obs = run.read_observables()
+    u = protocol.units
+    last = table[table["frame"] == len(times) - 1] if len(times) else table[:0]
+    n_plus = int(np.count_nonzero(last["sign"] > 0))
+    n_minus = int(np.count_nonzero(last["sign"] < 0))
+    mu_solved = float(obs["mu"][0]) if "mu" in obs and len(obs["mu"]) else math.nan
+    lines = [
+        f"run file: {run_path}",
+        f"  atoms N = {protocol.atoms.number:.4g}; species {protocol.atoms.species}",
+        f"  chemical potential mu = {u.energy_J / 1.380649e-23 * 1e9:.4g} nK "
+        f"(= 1 mu; solved ground state {mu_solved:.5g} mu)",
+        f"  healing length xi = {u.length_m * 1e6:.4g} um (= 1 xi); time unit hbar/mu = "
+        f"{u.time_s * 1e3:.4g} ms",
+        f"  sound speed c = {u.speed_m_s * 1e3:.4g} mm/s (= 1 c)",
+        f"  simulated {times[-1] * u.time_s * 1e3 if len(times) else 0:.4g} ms = "
+        f"{times[-1] if len(times) else 0:.4g} hbar/mu in {len(times)} frames",
+        f"  vortices at the end: N+ = {n_plus}, N- = {n_minus}",
+    ]
+    return "\n".join(lines)
+
+
+def run_configurations(run_path, frames=None):
+    """Vortex configurations of a run on its point-vortex domain, one per frame.
+
+    Returns (vortex_domain, times, configurations, left_out) where configurations are
+    (positions, signs) pairs in domain units and left_out counts (wall, pairs) per frame.
+    """
+    from gpe.io import RunFile
+    from gpe.thermometry import domain_for_trap, gas_configuration
+
+    with RunFile.open(run_path, "r") as run:
+        protocol = protocol_of(run)
+        times = np.asarray(run.frame_times())
+        table = run.read_vortices()
+    vd = domain_for_trap(protocol.trap)
+    n_frames = len(times)
+    if frames is None:
+        frames = range(n_frames)
+    configs, left_out, sel_times = [], [], []
+    for f in frames:
+        if not -n_frames <= f < n_frames:
+            raise VorthermError(f"{run_path}: frame {f} out of range; the run has frames "
+                                f"0..{n_frames - 1} (negative numbers count from the end)")
+        f = f % n_frames
+        rows = table[table["frame"] == f]
+        gas = gas_configuration(rows["x"], rows["y"], rows["sign"], vd)
+        configs.append((gas.positions, gas.signs))
+        left_out.append((gas.left_out_wall, gas.left_out_pairs))
+        sel_times.append(times[f])
+    return vd, np.asarray(sel_times), configs, left_out, protocol
+
+
+def analyse(run_path, *, time: float | None = None, window=None, effort: str = "quick",
+            cache_dir=None) -> dict:
+    """Thermometry of a run at one time (nearest frame) or over a window of frames.
+
+    Parameters
+    ----------
+    time : simulation time (hbar/mu) of the frame to use; default the last frame.
+    window : (t0, t1) in hbar/mu: all frames in it form one ensemble (consecutive frames are
+        correlated, so the interval is optimistic; say so when quoting it).
+
+    Returns a dict with beta, beta_ci68, beta_ci95, n_plus, n_minus, energy_per_vortex,
+    dipole_fraction, cluster_fraction, free_fraction, prob_negative, verdict, ...
+    """
+    from gpe.io import RunFile
+    from gpe.thermometry import ensemble_record
+
+    with RunFile.open(run_path, "r") as run:
+        times = np.asarray(run.frame_times())
+    if window is not None:
+        frames = [i for i, t in enumerate(times) if window[0] - 1e-9 <= t <= window[1] + 1e-9]
+        if not frames:
+            raise VorthermError(f"{run_path}: no frame in the window {window[0]:.4g}.."
+                                f"{window[1]:.4g} hbar/mu (frames span {times[0]:.4g}.."
+                                f"{times[-1]:.4g})")
+    elif time is not None:
+        frames = [int(np.argmin(np.abs(times - time)))]
+    else:
+        frames = [len(times) - 1]
+    vd, _, configs, left_out, _ = run_configurations(run_path, frames)
+    rec = ensemble_record(configs, vd.domain, vd.core_radius, effort=effort,
+                          cache_dir=cache_dir)
+    rec.update({
+        "n_plus": float(np.mean([np.sum(s > 0) for _, s in configs])),
+        "n_minus": float(np.mean([np.sum(s < 0) for _, s in configs])),
+        "frames": len(frames),
+        "left_out_wall": int(sum(w for w, _ in left_out)),
+        "left_out_pairs": int(sum(p for _, p in left_out)),
+        "approximation": vd.approximate,
+    })
+    for key in ("dipole_fraction", "cluster_fraction", "free_fraction", "energy_per_vortex"):
+        rec.setdefault(key, math.nan)
+    return rec
+
+
+def redetect(run_path, *, threshold: float = DETECT_THRESHOLD, region: str = "trap",
+             frames=None, csv_path=None, store: bool = False):
+    """Detect vortices again in stored frames; export CSV in micrometres; optionally store.
+
+    Returns (table, events, csv_path). The run file is changed only with ``store=True``, and
+    then the old vortex table is replaced in one step (only when every frame was re-detected,
+    so the stored table never mixes two detections).
+    """
+    from gpe.io import RunFile
+    from gpe.vortices import VORTEX_DTYPE, find_events, find_vortices, track_vortices
+
+    if not 0.0 < threshold < 1.0:
+        raise VorthermError(f"--threshold {threshold}: the density threshold is a fraction of "
+                            "the peak background density; accepted: 0 < threshold < 1")
+    if region not in ("trap", "all"):
+        raise VorthermError(f"region {region!r}; accepted: 'trap', 'all'")
+    with RunFile.open(run_path, "r") as run:
+        protocol = protocol_of(run)
+        times = np.asarray(run.frame_times())
+        n_frames = len(times)
+        if n_frames == 0:
+            raise RunFileError(f"{run_path}: the run file holds no snapshots; nothing to detect")
+        if frames is None:
+            chosen = list(range(n_frames))
+        elif isinstance(frames, slice):
+            chosen = list(range(n_frames))[frames]
+        else:
+            chosen = list(frames)
+        for f in chosen:
+            if not -n_frames <= f < n_frames:
+                raise VorthermError(f"{run_path}: frame {f} out of range; the run has frames "
+                                    f"0..{n_frames - 1} (negative numbers count from the end)")
+        chosen = sorted({f % n_frames for f in chosen})
+        grid = protocol.grid
+        v_static = protocol.build_trap()
+        mask = _detection_region(protocol, v_static) if region == "trap" else None
+        tables = []
+        for f in chosen:
+            det = find_vortices(np.asarray(run.psi(f)), grid.x, grid.y, threshold=threshold,
+                                region=mask)
+            rows = np.empty(len(det), dtype=VORTEX_DTYPE)
+            rows["frame"], rows["t"] = f, times[f]
+            rows["x"], rows["y"], rows["sign"], rows["track"] = det.x, det.y, det.sign, -1
+            tables.append(rows)
+    table = np.concatenate(tables) if tables else np.empty(0, dtype=VORTEX_DTYPE)
+    table = track_vortices(table, times) if table.size else table
+    events = find_events(table, times) if table.size else []
+    if store:
+        if len(chosen) != n_frames:
+            raise VorthermError("--store replaces the whole vortex table, so it needs every "
+                                "frame: leave out --frames")
+        with RunFile.open(run_path, "r+") as run:
+            run.replace_vortices(table)
+    csv_path = Path(csv_path) if csv_path else Path(run_path).with_name(
+        Path(run_path).stem + "_vortices.csv")
+    _write_vortex_csv(csv_path, table, protocol)
+    return table, events, csv_path
+
+
+def _write_vortex_csv(path: Path, table: np.ndarray, protocol) -> None:
+    """Vortex table in SI: frame, t [ms], x [um], y [um] about the grid centre, sign, track."""
+    um = protocol.units.length_m * 1e6
+    ms = protocol.units.time_s * 1e3
+    with Path(path).open("w") as fh:
+        fh.write("# vortices detected by vortherm; x, y in micrometres about the grid centre\n")
+        fh.write("frame,t_ms,x_um,y_um,sign,track\n")
+        for r in table:
+            fh.write(f"{int(r['frame'])},{r['t'] * ms:.6g},{r['x'] * um:.6g},{r['y'] * um:.6g},"
+                     f"{int(r['sign'])},{int(r['track'])}\n")

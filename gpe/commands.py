@@ -303,18 +303,22 @@ def _cmd_compare(args) -> int:
         vd, _, configs, _, _ = pipeline.run_configurations(run_path, frames)
         sim_configs.extend(configs)
     scale_um = vd.scale * protocol.units.length_m * 1e6
-    if vd.domain.kind == "disk":
-        geometry = {"shape": "disk", "radius_um": scale_um}
-    else:
-        geometry = {"shape": "box", "width_um": vd.domain.aspect * scale_um, "height_um": scale_um}
-    measured = read_measured(args.measured, core_um=vd.core_radius * scale_um,
-                             pixel_um=args.pixel_um, center_px=args.center, **geometry)
+    # The measured table keeps its own geometry (TOML beside it, or its options): both sides
+    # are compared in scaled units of their own domain, which must be of the same shape.
+    measured = read_measured(args.measured, pixel_um=args.pixel_um, center_px=args.center)
+    if measured.domain.kind != vd.domain.kind:
+        raise VorthermError(f"{args.measured}: the measured domain is a {measured.domain.kind}, "
+                            f"the simulation's a {vd.domain.kind}; compare needs the same shape")
+    if vd.domain.kind == "box" and abs(measured.domain.aspect - vd.domain.aspect) > 0.02 * vd.domain.aspect:
+        raise VorthermError(f"{args.measured}: box aspect {measured.domain.aspect:.3g} differs "
+                            f"from the simulation's {vd.domain.aspect:.3g}")
+    core = min(vd.core_radius, measured.core_radius or vd.core_radius)
     model = ImagingModel(blur=args.blur_um / scale_um, resolution=args.resolution_um / scale_um,
                          edge_loss=args.edge_loss_um / scale_um, sign_flip=args.sign_error)
     sim_configs = degrade_many(sim_configs, vd.domain, model, np.random.default_rng(args.seed),
-                               core_radius=vd.core_radius)
+                               core_radius=core)
     comparison = cmp.compare_ensembles(sim_configs, measured.configurations, vd.domain,
-                                       vd.core_radius, seed=args.seed,
+                                       core, seed=args.seed,
                                        beta_options={"settings": dos_settings(args.effort)})
     stem = args.output or args.measured.with_name(args.measured.stem + "_vs_simulation")
     csv_path = cmp.write_csv(comparison, stem.with_suffix(".csv"))

@@ -8,10 +8,16 @@ at most the tolerance (or the time budget is spent); the total time is what a us
 
 from __future__ import annotations
 
+import sys
 import tempfile
 import time
+from pathlib import Path
 
 import numpy as np
+
+# benchmarks/thermo.py would shadow the thermo package when this file is run as a script
+# (the script's directory comes first on sys.path), so put the repository root first.
+sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
 
 
 def time_dos_build(n_plus: int = 20, n_minus: int = 20, core_radius: float = 0.01,

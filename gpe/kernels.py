@@ -10,6 +10,8 @@ fastmath is chosen deliberately: ``contract`` (fused multiply-add), ``arcp`` (re
 ``nsz`` and ``afn`` (approximate library functions) are allowed, but **not** ``nnan``/``ninf``,
 because the solver relies on NaN propagating into the returned sums to detect a blown-up field,
 and not ``reassoc``, so that reductions and results do not depend on the vectoriser.
+``error_model="numpy"`` lets a division by zero give inf/NaN (caught by the solver's checks)
+instead of a Python exception; the exception check would stop the loops from vectorising.
 Element-wise updates are independent of the thread partition, so results are bitwise
 reproducible for a given build.
 
@@ -28,7 +30,7 @@ from numba import njit, prange
 _FASTMATH = {"contract", "arcp", "nsz", "afn"}
 
 
-@njit(cache=True, fastmath=_FASTMATH)
+@njit(cache=True, error_model="numpy", fastmath=_FASTMATH)
 def beam_profiles(coord, centres, waists, out):
     """Fill ``out[b, i] = exp(-2 (coord[i] - centres[b])^2 / waists[b]^2)``.
 
@@ -41,7 +43,7 @@ def beam_profiles(coord, centres, waists, out):
             out[b, i] = math.exp(-inv_w2 * d * d)
 
 
-@njit(cache=True, fastmath=_FASTMATH, inline="always")
+@njit(cache=True, error_model="numpy", fastmath=_FASTMATH, inline="always")
 def _beam_potential(amp, gx, gy, j, i):
     v = 0.0
     for b in range(amp.shape[0]):
@@ -49,12 +51,12 @@ def _beam_potential(amp, gx, gy, j, i):
     return v
 
 
-@njit(cache=True, fastmath=_FASTMATH, inline="always")
+@njit(cache=True, error_model="numpy", fastmath=_FASTMATH, inline="always")
 def _local_potential(v_static, amp, gx, gy, j, i, shift):
     return v_static[j, i] - shift + _beam_potential(amp, gx, gy, j, i)
 
 
-@njit(cache=True, fastmath=_FASTMATH, inline="always")
+@njit(cache=True, error_model="numpy", fastmath=_FASTMATH, inline="always")
 def exp_ratio(z):
     """Return ``((1 - exp(-z))/z, exp(-z))``; a Taylor series for |z| < 0.01.
 
@@ -69,7 +71,7 @@ def exp_ratio(z):
     return (1.0 - decay) / z, decay
 
 
-@njit(cache=True, fastmath=_FASTMATH, inline="always")
+@njit(cache=True, error_model="numpy", fastmath=_FASTMATH, inline="always")
 def log1p_ratio(q):
     """Return ``log(1 + q)/q``; a Taylor series for |q| < 0.01 (truncation < 1e-19). Units: none."""
     if abs(q) < 0.01:
@@ -78,7 +80,7 @@ def log1p_ratio(q):
     return math.log1p(q) / q
 
 
-@njit(cache=True, fastmath=_FASTMATH, inline="always")
+@njit(cache=True, error_model="numpy", fastmath=_FASTMATH, inline="always")
 def cis(x):
     """Return ``(cos x, sin x)``; Taylor polynomials for |x| < 0.5 (truncation < 1e-17).
 
@@ -95,7 +97,7 @@ def cis(x):
     return math.cos(x), math.sin(x)
 
 
-@njit(cache=True, parallel=True, fastmath=_FASTMATH)
+@njit(cache=True, error_model="numpy", parallel=True, fastmath=_FASTMATH)
 def nonlinear_conservative(psi, v_static, amp, gx, gy, g, mu, tau):
     r"""Exact potential+nonlinear sub-step without damping, in place.
 
@@ -116,7 +118,7 @@ def nonlinear_conservative(psi, v_static, amp, gx, gy, g, mu, tau):
     return total
 
 
-@njit(cache=True, parallel=True, fastmath=_FASTMATH)
+@njit(cache=True, error_model="numpy", parallel=True, fastmath=_FASTMATH)
 def nonlinear_damped(psi, v_static, amp, gx, gy, g, mu, gamma, tau):
     r"""Exact potential+nonlinear sub-step of the damped GPE, in place.
 
@@ -154,7 +156,7 @@ def nonlinear_damped(psi, v_static, amp, gx, gy, g, mu, gamma, tau):
     return total
 
 
-@njit(cache=True, parallel=True, fastmath=_FASTMATH)
+@njit(cache=True, error_model="numpy", parallel=True, fastmath=_FASTMATH)
 def nonlinear_imaginary(psi, scale, v_static, amp, gx, gy, g, mu, tau):
     r"""Imaginary-time potential+nonlinear sub-step, in place, after rescaling by ``scale``.
 
@@ -176,7 +178,7 @@ def nonlinear_imaginary(psi, scale, v_static, amp, gx, gy, g, mu, tau):
     return total
 
 
-@njit(cache=True, parallel=True, fastmath=_FASTMATH)
+@njit(cache=True, error_model="numpy", parallel=True, fastmath=_FASTMATH)
 def multiply(psi, factor):
     """``psi *= factor`` element-wise (kinetic sub-step in Fourier space). Units: none."""
     ny, nx = psi.shape
@@ -185,7 +187,7 @@ def multiply(psi, factor):
             psi[j, i] = psi[j, i] * factor[j, i]
 
 
-@njit(cache=True, parallel=True, fastmath=_FASTMATH)
+@njit(cache=True, error_model="numpy", parallel=True, fastmath=_FASTMATH)
 def multiply_and_norm(psi_k, factor, half_factor):
     """``psi_k *= factor`` and return ``sum |half_factor * psi_k|^2`` of the input.
 
@@ -203,7 +205,7 @@ def multiply_and_norm(psi_k, factor, half_factor):
     return total
 
 
-@njit(cache=True, parallel=True, fastmath=_FASTMATH)
+@njit(cache=True, error_model="numpy", parallel=True, fastmath=_FASTMATH)
 def scale_inplace(psi, scale):
     """``psi *= scale``. Units: none."""
     ny, nx = psi.shape
@@ -212,7 +214,7 @@ def scale_inplace(psi, scale):
             psi[j, i] = psi[j, i] * scale
 
 
-@njit(cache=True, parallel=True, fastmath=_FASTMATH)
+@njit(cache=True, error_model="numpy", parallel=True, fastmath=_FASTMATH)
 def pin_phase(psi, phase_factor):
     """Replace the phase of ``psi`` by that of the unit-modulus ``phase_factor``. Units: none."""
     ny, nx = psi.shape
@@ -221,7 +223,7 @@ def pin_phase(psi, phase_factor):
             psi[j, i] = abs(psi[j, i]) * phase_factor[j, i]
 
 
-@njit(cache=True, parallel=True, fastmath=_FASTMATH)
+@njit(cache=True, error_model="numpy", parallel=True, fastmath=_FASTMATH)
 def density_sums(psi, v_static, amp, gx, gy):
     """Return ``(sum n, sum V_static n, sum V_beam n, sum n^2)`` with ``n = |psi|^2``.
 
@@ -245,7 +247,7 @@ def density_sums(psi, v_static, amp, gx, gy):
     return s_n, s_trap, s_beam, s_n2
 
 
-@njit(cache=True, parallel=True, fastmath=_FASTMATH)
+@njit(cache=True, error_model="numpy", parallel=True, fastmath=_FASTMATH)
 def kinetic_sum(psi_k, k2):
     """Return ``sum k^2 |psi_k|^2`` (kinetic energy by Parseval). Units: 1/xi^2 times |psi_k|^2."""
     ny, nx = psi_k.shape

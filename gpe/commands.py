@@ -81,7 +81,7 @@ def _cmd_run(args) -> int:
     from gpe.protocol import load_protocol
 
     if args.resume is not None:
-        path = pipeline.simulate_resume(args.resume, progress=pipeline.terminal_progress,
+        path = pipeline.simulate_resume(args.resume, progress=pipeline.terminal_progress_factory(),
                                         threads=args.threads)
         print(pipeline.summary_text(path))
         return 0
@@ -100,7 +100,7 @@ def _cmd_run(args) -> int:
         if out.exists() and not args.force:
             raise VorthermError(f"{out} exists already; continue it with `vortherm run --resume {out}`, "
                                 "or pass --force to start again, or -o for another name.")
-        path = pipeline.simulate(protocol, out, progress=pipeline.terminal_progress, threads=args.threads)
+        path = pipeline.simulate(protocol, out, progress=pipeline.terminal_progress_factory(), threads=args.threads)
         print(pipeline.summary_text(path))
     return 0
 
@@ -493,7 +493,7 @@ def _cmd_demo(args) -> int:
     if not pipeline.is_complete(run_path):
         if run_path.exists() and not resume:
             run_path.unlink()
-        pipeline.simulate(protocol, run_path, resume=resume, progress=pipeline.terminal_progress,
+        pipeline.simulate(protocol, run_path, resume=resume, progress=pipeline.terminal_progress_factory(),
                           threads=args.threads)
     print(pipeline.summary_text(run_path))
     print("2/4 figures")

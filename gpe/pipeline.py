@@ -54,17 +54,6 @@ def terminal_progress_factory() -> Callable[[RunProgress], None]:
     return draw
 
 
-def terminal_progress(p: RunProgress) -> None:
-    """Module-level progress callback for the CLI (one bar per process)."""
-    global _TERMINAL
-    if _TERMINAL is None or p.steps == 0:
-        _TERMINAL = terminal_progress_factory()
-    _TERMINAL(p)
-
-
-_TERMINAL: Callable[[RunProgress], None] | None = None
-
-
 def _detection_region(protocol, v_static: np.ndarray) -> np.ndarray:
     """Where vortices may be reported: inside the trap walls (or below mu for a harmonic trap)."""
     trap = protocol.trap

@@ -41,14 +41,20 @@ class ProgressBar:
         self.total = float(total)
         self.label = label
         self.unit = unit
-        self.stream = stream if stream is not None else sys.stderr
+        self._stream = stream
         self.width = width
         self.min_interval = min_interval
         self.interactive = force or getattr(self.stream, "isatty", lambda: False)()
+
         self._start = time.perf_counter()
         self._last_draw = 0.0
         self._done = 0.0
         self._extra = ""
+
+    @property
+    def stream(self) -> TextIO:
+        """The stream drawn on: the one given, or the standard error of the moment."""
+        return self._stream if self._stream is not None else sys.stderr
 
     def update(self, done: float, extra: str = "") -> None:
         """Record progress ``done`` (same unit as ``total``) and redraw if due."""

@@ -1,0 +1,172 @@
+"""The command line: every subcommand end to end on a tiny protocol, and its bad-input paths.
+
+Each bad input must give a one-paragraph error naming the file/key and what is accepted, a
+non-zero exit code, and no partial output file.
+"""
+
+import json
+
+import h5py
+import numpy as np
+import pytest
+
+from gpe.cli import main
+
+TINY = """
+units = "healing"
+name = "tiny"
+[atoms]
+species = "87Rb"
+chemical_potential_nK = 20.0
+axial_frequency_hz = 1000.0
+[trap]
+shape = "disk"
+radius_xi = 20.0
+[grid]
+nx = 64
+size_xi = 48.0
+[ground_state]
+noise_amplitude = 0.01
+[evolution]
+duration_tau = 10.0
+dt_tau = 0.05
+output_interval_tau = 2.0
+damping = 0.01
+[[beams]]
+waist_xi = 3.0
+height_mu = 2.0
+[beams.path]
+kind = "line"
+start_xi = [-12.0, 1.0]
+end_xi = [12.0, 1.0]
+speed_c = 0.6
+[beams.array]
+columns = 1
+rows = 3
+spacing_xi = 3.0
+"""
+
+
+@pytest.fixture
+def tiny(tmp_path):
+    path = tmp_path / "tiny.toml"
+    path.write_text(TINY)
+    return path
+
+
+@pytest.fixture
+def tiny_run(tiny, tmp_path):
+    out = tmp_path / "tiny.h5"
+    assert main(["run", str(tiny), "-o", str(out)]) == 0
+    return out
+
+
+def test_init_writes_a_protocol_that_parses(tmp_path, capsys):
+    from gpe.protocol import load_protocol
+
+    path = tmp_path / "my.toml"
+    assert main(["init", str(path)]) == 0
+    assert load_protocol(path).name == "example"
+    assert main(["init", str(path)]) == 2          # refuses to overwrite
+    assert "--force" in capsys.readouterr().err
+
+
+def test_run_prints_summary_and_set_overrides_reach_the_file(tiny, tmp_path, capsys):
+    out = tmp_path / "hot.h5"
+    assert main(["run", str(tiny), "-o", str(out), "--set", "evolution.damping=0.02"]) == 0
+    text = capsys.readouterr().out
+    for word in ("healing length", "sound speed", "chemical potential", "N+ ="):
+        assert word in text
+    with h5py.File(out, "r") as f:
+        resolved = json.loads(f.attrs["protocol_json"])
+        assert f.attrs["complete"]
+    assert "evolution.damping=0.02" in json.dumps(resolved) or resolved["evolution"]["gamma"] == 0.02
+
+
+@pytest.mark.parametrize("override, words", [
+    ("trap.radus_xi=20", ["radus_xi", "radius_xi"]),                   # unknown key, nearest
+    ("trap.radius_mm=20", ["radius_mm", "radius_xi"]),                 # wrong unit suffix
+    ("trap.radius_xi=-5", ["radius_xi", "> 0"]),                       # negative size
+    ("beams.0.path.start_xi=[23.0, 1.0]", ["beams", "grid"]),          # beam leaves the grid
+])
+def test_bad_protocol_exits_nonzero_without_output(tiny, tmp_path, capsys, override, words):
+    out = tmp_path / "bad.h5"
+    assert main(["run", str(tiny), "-o", str(out), "--set", override]) == 2
+    err = capsys.readouterr().err
+    assert "tiny.toml" in err
+    for w in words:
+        assert w in err
+    assert not out.exists()
+    assert not list(tmp_path.glob("bad.h5*"))
+
+
+def test_missing_required_section_is_named(tmp_path, capsys):
+    path = tmp_path / "nosec.toml"
+    path.write_text(TINY.split("[evolution]")[0])
+    assert main(["run", str(path)]) == 2
+    err = capsys.readouterr().err
+    assert "evolution" in err and "nosec.toml" in err
+
+
+def test_unreadable_mask_image_is_named(tmp_path, capsys):
+    (tmp_path / "broken.png").write_bytes(b"not an image at all")
+    text = TINY.replace('shape = "disk"\nradius_xi = 20.0',
+                        'shape = "mask"\nfile = "broken.png"\npixel_size_xi = 0.5')
+    path = tmp_path / "mask.toml"
+    path.write_text(text)
+    assert main(["run", str(path), "-o", str(tmp_path / "mask.h5")]) == 2
+    assert "broken.png" in capsys.readouterr().err
+    assert not (tmp_path / "mask.h5").exists()
+
+
+def test_seeds_write_one_file_per_seed(tiny, tmp_path):
+    out = tmp_path / "ens.h5"
+    assert main(["run", str(tiny), "-o", str(out), "--seeds", "1-2"]) == 0
+    assert (tmp_path / "ens_seed1.h5").exists() and (tmp_path / "ens_seed2.h5").exists()
+    with h5py.File(tmp_path / "ens_seed1.h5") as a, h5py.File(tmp_path / "ens_seed2.h5") as b:
+        assert not np.array_equal(a["snapshots/psi"][0], b["snapshots/psi"][0])
+
+
+def test_vortices_exports_csv_and_checks_its_options(tiny_run, tmp_path, capsys):
+    csv = tmp_path / "v.csv"
+    with h5py.File(tiny_run) as f:
+        before = f["vortices"][...]
+    assert main(["vortices", str(tiny_run), "--csv", str(csv), "--threshold", "0.3"]) == 0
+    assert csv.read_text().splitlines()[1] == "frame,t_ms,x_um,y_um,sign,track"
+    with h5py.File(tiny_run) as f:                 # unchanged without --store
+        np.testing.assert_array_equal(f["vortices"][...], before)
+    assert main(["vortices", str(tiny_run), "--threshold", "1.5"]) == 2
+    assert "0 < threshold < 1" in capsys.readouterr().err
+    assert main(["vortices", str(tiny_run), "--frames", "99"]) == 2
+    assert "out of range" in capsys.readouterr().err
+
+
+def test_run_file_without_snapshots_is_refused(tmp_path, capsys):
+    path = tmp_path / "empty.h5"
+    with h5py.File(path, "w") as f:
+        f.attrs["note"] = "not a run"
+    assert main(["vortices", str(path)]) == 2
+    assert "empty.h5" in capsys.readouterr().err
+
+
+def test_plot_writes_figures(tiny_run, tmp_path):
+    out = tmp_path / "fig"
+    assert main(["plot", str(tiny_run), "--frames", "0,-1", "-o", str(out)]) == 0
+    names = sorted(p.name for p in out.glob("*.png"))
+    assert "tiny_density_phase.png" in names and "tiny_vortex_counts.png" in names
+    assert "tiny_energies.png" in names
+
+
+def test_temperature_json_has_the_promised_fields(tiny_run, tmp_path, capsys, monkeypatch):
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
+    assert main(["temperature", str(tiny_run), "--json", "--csv", str(tmp_path / "t.csv")]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert len(doc["frames"]) == 6
+    for rec in doc["frames"] + [doc["ensemble"]]:
+        for key in ("beta", "beta_ci68", "beta_ci95", "verdict"):
+            assert key in rec
+    for rec in doc["frames"]:
+        for key in ("n_plus", "n_minus", "energy_per_vortex"):
+            assert key in rec
+    assert isinstance(doc["verdict"], str) and doc["verdict"]
+    assert (tmp_path / "t.csv").read_text().startswith("t,frame,")

@@ -104,8 +104,10 @@ def main(argv=None) -> None:
     parser.add_argument("--quick", action="store_true", help="small smoke run (64^2, 128^2)")
     parser.add_argument("--threads", type=int, default=None,
                         help="FFT/kernel threads (default: automatic by grid size)")
+    parser.add_argument("--sizes", type=int, nargs="+", default=None,
+                        help="grid sizes n (n x n) to measure; default 256 512 1024")
     args = parser.parse_args(argv)
-    sizes = (64, 128) if args.quick else (256, 512, 1024)
+    sizes = args.sizes or ((64, 128) if args.quick else (256, 512, 1024))
     print(f"{'grid':>6} {'precision':>10} {'thr':>3} {'backend':>7} {'step ms':>8} "
           f"{'FFT pair ms':>11} {'step/FFT':>8} {'numpy ms':>9} {'speed-up':>8}")
     for n in sizes:

@@ -69,7 +69,9 @@ def density_phase_panels(psi_frames, x, y, times, vortex_table=None, frames=None
         psi = np.asarray(psi_frames[f])
         dens = np.abs(psi) ** 2
         im0 = axes[0, col].imshow(dens, origin="lower", extent=extent, cmap="magma")
-        im1 = axes[1, col].imshow(np.angle(psi), origin="lower", extent=extent, cmap="twilight",
+        # the phase is meaningless where there is no fluid: leave it blank there
+        phase = np.ma.masked_where(dens < 0.05 * dens.max(), np.angle(psi))
+        im1 = axes[1, col].imshow(phase, origin="lower", extent=extent, cmap="twilight",
                                   vmin=-np.pi, vmax=np.pi, interpolation="nearest")
         fig.colorbar(im0, ax=axes[0, col], label="density |ψ|² (n₀)", shrink=0.8)
         fig.colorbar(im1, ax=axes[1, col], label="phase (rad)", shrink=0.8)

@@ -334,16 +334,20 @@ def _cmd_compare(args) -> int:
 
 
 def _format_comparison(comparison) -> str:
-    def num(v) -> str:
-        return f"{v:10.4g}" if v == v else f"{'-':>10}"
+    def num(v, width: int = 10) -> str:
+        return f"{v:{width}.4g}" if v == v else f"{'-':>{width}}"
 
-    head = (f"{'quantity':<20} {'unit':<8} {comparison.labels[0]:>10} {comparison.labels[1]:>10} "
-            f"{'difference':>10} {'95% interval':>23} {'KS p':>8} {'perm. p':>8}")
+    def unit(text: str) -> str:
+        return "E0" if text.startswith("E0") else text[:11]
+
+    head = (f"{'quantity':<18} {'unit':<11} {comparison.labels[0]:>10} {comparison.labels[1]:>10} "
+            f"{'difference':>10} {'95% interval':>23} {'KS p':>9} {'perm. p':>9}")
     lines = [head, "-" * len(head)]
     for r in comparison.rows:
-        lines.append(f"{r.quantity:<20} {r.unit:<8} {num(r.simulation)} {num(r.measured)} "
+        lines.append(f"{r.quantity:<18} {unit(r.unit):<11} {num(r.simulation)} {num(r.measured)} "
                      f"{num(r.difference)} [{num(r.ci95_low)}, {num(r.ci95_high)}] "
-                     f"{num(r.p_ks)[2:]} {num(r.p_permutation)[2:]}")
+                     f"{num(r.p_ks, 9)} {num(r.p_permutation, 9)}")
+    lines.append("E0 = rho kappa^2/(4 pi); lengths in units of the domain size (disk radius)")
     lines.extend(f"note: {n}" for n in comparison.notes)
     return "\n".join(lines)
 

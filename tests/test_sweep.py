@@ -1,9 +1,7 @@
 """Tests of the sweep machinery (gpe/sweep.py).
 
-Most tests use a cheap stand-in point function (module level, so spawned workers can import it)
-that writes a tiny text "run file", counts its simulations and returns values computed from the
-overrides. The machinery under test — expansion, executors, resuming, failure handling, tables —
-is the same as with the real pipeline.
+Most tests use the cheap stand-in point function of tests/sweep_stand_in.py. The summary tables
+are tested in test_sweep_table.py, the phase maps in test_sweep_plots.py.
 """
 
 from __future__ import annotations
@@ -16,74 +14,15 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from gpe.errors import ProtocolError
 from gpe.sweep import (QUANTITIES, PointTask, SweepError, load_sweep, parse_sweep, plan_local,
-                       read_table, run_sweep)
-
-SWEEP_TEXT = """
-base = "base.toml"
-seeds = 2
-
-[[axes]]
-key = "beams.0.path.speed_c"
-values = [0.3, 0.6]
-label = "beam speed"
-
-[[axes]]
-key = "beams.0.waist_um"
-values = [2.0, 4.0]
-
-[measure]
-window = [80.0, 100.0]
-quantities = ["beta", "n_plus", "dipole_fraction"]
-"""
-
-
-def _overrides(task: PointTask) -> dict:
-    return dict(o.split("=", 1) for o in task.overrides)
-
-
-def stand_in_point(task: PointTask) -> dict:
-    """Simulate by writing a run file; raise on request (control files beside the runs)."""
-    run = Path(task.run_path)
-    ctl = run.parent.parent
-    o = _overrides(task)
-    speed, waist, seed = float(o["beams.0.path.speed_c"]), float(o["beams.0.waist_um"]), int(
-        o["evolution.seed"])
-    if (ctl / f"invalid_{task.point_id}").exists():
-        raise ProtocolError(f"beams.0.path.speed_c = {speed}: too fast for this test")
-    if not stand_in_is_complete(run):
-        with (run.parent / f"{task.point_id}.calls").open("a") as fh:
-            fh.write(f"resume={run.exists()}\n")
-        run.write_text("started\n")
-        if (ctl / f"interrupt_{task.point_id}").exists():
-            raise KeyboardInterrupt
-        run.write_text("complete\n")
-    # beta changes sign across speed 0.45: a made-up but deterministic map.
-    return {"beta": (0.45 - speed) * waist + 0.01 * seed, "n_plus": 3 + seed,
-            "dipole_fraction": waist / 10.0, "verdict": "ignored extra key"}
-
-
-def stand_in_is_complete(path: Path) -> bool:
-    return path.exists() and path.read_text() == "complete\n"
-
-
-def calls(out: Path, pid: str) -> list[str]:
-    f = out / "runs" / f"{pid}.calls"
-    return f.read_text().split() if f.exists() else []
+                       run_sweep)
+from sweep_stand_in import (SWEEP_TEXT, calls, overrides_of, run_stand_in, stand_in_is_complete,
+                            write_sweep_file)
 
 
 @pytest.fixture
 def sweep_file(tmp_path):
-    (tmp_path / "base.toml").write_text("# stand-in protocol, never parsed here\n")
-    path = tmp_path / "sweep.toml"
-    path.write_text(SWEEP_TEXT)
-    return path
-
-
-def run_stand_in(sweep_file, out, **kw):
-    sweep = load_sweep(sweep_file, check_protocol=False)
-    return run_sweep(sweep, out, point_fn=stand_in_point, is_complete=stand_in_is_complete, **kw)
+    return write_sweep_file(tmp_path)
 
 
 def test_grid_expands_into_readable_points(sweep_file):
@@ -172,33 +111,6 @@ def test_local_and_dask_give_identical_tables(sweep_file, tmp_path):
                 assert a[group][name].attrs["units"] == b[group][name].attrs["units"]
 
 
-def test_summary_columns_units_and_aggregation(sweep_file, tmp_path):
-    import h5py
-    from scipy import stats
-
-    result = run_stand_in(sweep_file, tmp_path / "out", executor=cf.ThreadPoolExecutor(2))
-    runs, units = read_table(result.files["runs_csv"])
-    header = (tmp_path / "out" / "summary_runs.csv").read_text().splitlines()[0].split(",")
-    assert header == ["point_id", "grid_id", "seed", "beams.0.path.speed_c [c]",
-                      "beams.0.waist_um [um]", "status", "error", "beta [1/E0]",
-                      "n_plus [count]", "dipole_fraction [1]"]
-    assert [r["point_id"] for r in runs] == sorted(r["point_id"] for r in runs)
-    points, punits = read_table(result.files["points_csv"])
-    assert punits["beta_mean"] == "1/E0" and punits["frac_beta_negative"] == "1"
-    # p001: speed 0.3, waist 4 -> beta = 0.6 + 0.01 seed for seeds 0, 1
-    p = next(r for r in points if r["grid_id"] == "p001")
-    x = np.array([0.6, 0.61])
-    # reference interval from scipy's own t-interval routine
-    lo, hi = stats.t.interval(0.95, df=1, loc=x.mean(), scale=stats.sem(x))
-    assert p["beta_mean"] == pytest.approx(x.mean()) and p["n_ok"] == 2
-    assert (p["beta_lo95"], p["beta_hi95"]) == pytest.approx((lo, hi))
-    assert [r["frac_beta_negative"] for r in points] == [0.0, 0.0, 1.0, 1.0]
-    with h5py.File(result.files["hdf5"]) as h5:
-        assert h5["runs/beta"].attrs["units"] == "1/E0"
-        assert h5["points/beams.0.waist_um"].attrs["units"] == "um"
-        assert "base.toml" in h5.attrs["sweep_text"]
-
-
 def test_interrupted_sweep_resumes_without_recomputing(sweep_file, tmp_path):
     out = tmp_path / "out"
     out.mkdir()
@@ -261,31 +173,6 @@ def test_quantity_table_is_complete():
                                "cluster_fraction", "free_fraction", "energy_per_vortex"}
 
 
-def test_phase_map_outlines_negative_beta(sweep_file, tmp_path):
-    from matplotlib.colors import CenteredNorm
-
-    from gpe.sweep import read_summary
-    from gpe.sweep_plots import plot_sweep
-
-    result = run_stand_in(sweep_file, tmp_path / "out", executor=cf.ThreadPoolExecutor(2))
-    again = read_summary(tmp_path / "out")
-    assert again.points == result.points and again.axes == result.axes
-    fig = plot_sweep(tmp_path / "out", path=tmp_path / "map.png")
-    ax = fig.axes[0]
-    mesh = ax.collections[0]
-    assert isinstance(mesh.norm, CenteredNorm) and mesh.norm.vcenter == 0.0
-    assert ax.get_xlabel() == "beams.0.waist_um [um]" and ax.get_ylabel() == "beam speed [c]"
-    # the beta = 0 contour lies between the two speeds (0.3: beta > 0, 0.6: beta < 0)
-    contour = [c for c in ax.collections[1:] if hasattr(c, "get_paths") and c.get_paths()]
-    verts = np.concatenate([p.vertices for c in contour for p in c.get_paths()])
-    assert np.all((verts[:, 1] > 0.3) & (verts[:, 1] < 0.6))
-    assert (tmp_path / "map.png").stat().st_size > 0
-    line = plot_sweep(result, select={"beams.0.waist_um": 4.0})
-    assert line.axes[0].get_xlabel() == "beam speed [c]"
-    with pytest.raises(SweepError, match="not a swept key"):
-        plot_sweep(result, select={"beams.0.wiast_um": 4.0})
-
-
 # -- with the real protocol parser -------------------------------------------------------------
 DEMO = Path(__file__).resolve().parents[1] / "runs" / "demo.toml"
 
@@ -295,7 +182,7 @@ def protocol_checked_point(task: PointTask) -> dict:
     from gpe.protocol import load_protocol
 
     protocol = load_protocol(task.base, task.overrides)
-    assert protocol.evolution.seed == int(_overrides(task)["evolution.seed"])
+    assert protocol.evolution.seed == int(overrides_of(task)["evolution.seed"])
     return {"beta": protocol.beams[0].waist, "n_plus": 1.0, "dipole_fraction": 0.0}
 
 

@@ -1,4 +1,6 @@
-"""Tests of thermo.measured: reading measured vortex tables, units, and row reporting."""
+"""Tests of thermo.measured: reading measured vortex tables, units, and row reporting.
+
+The geometry, the pixel calibration and the geometry TOML are tested in test_geometry.py."""
 
 from __future__ import annotations
 
@@ -10,8 +12,7 @@ import pytest
 
 from thermo.domains import Box, Disk
 from thermo.measured import (
-    MeasuredTableError, MeasuredTableWarning, PixelCalibration, pixels_to_um, read_measured,
-    resolve_geometry, um_to_pixels,
+    MeasuredTableError, MeasuredTableWarning, PixelCalibration, read_measured, um_to_pixels,
 )
 
 GOOD = """# a comment line
@@ -64,16 +65,6 @@ def test_box_geometry_uses_height_as_unit(tmp_path):
         ens = read_measured(p, width_um=80.0, height_um=20.0)
     assert isinstance(ens.domain, Box) and ens.domain.aspect == pytest.approx(4.0)
     np.testing.assert_allclose(ens.shots[0].positions, [[1.75, -0.45], [-0.5, 0.45]])
-
-
-def test_pixel_conversion_round_trips(rng):
-    calib = PixelCalibration(pixel_um=0.73, center_px=(255.5, 240.25))
-    xy_px = rng.uniform(0, 512, size=(50, 2))
-    np.testing.assert_allclose(um_to_pixels(pixels_to_um(xy_px, calib), calib), xy_px,
-                               rtol=0, atol=1e-10)
-    # the centre maps to the origin, one pixel to pixel_um
-    np.testing.assert_allclose(pixels_to_um([[255.5, 240.25], [256.5, 240.25]], calib),
-                               [[0, 0], [0.73, 0]], atol=1e-12)
 
 
 def test_pixel_table_matches_um_table(tmp_path):
@@ -148,18 +139,10 @@ def test_missing_columns_error_names_found_and_required(tmp_path):
         read_measured(p, radius_um=10.0)
 
 
-def test_geometry_errors(tmp_path):
+def test_read_measured_needs_a_geometry(tmp_path):
     p = _write(tmp_path, GOOD)
     with pytest.raises(MeasuredTableError, match="no geometry"):
         read_measured(p)
-    _write(tmp_path, GOOD, toml="radius_um = 40\ncolour = 'red'\n")
-    with pytest.raises(MeasuredTableError, match="unknown key"):
-        resolve_geometry(p)
-    p.with_suffix(".toml").unlink()
-    with pytest.raises(MeasuredTableError, match="positive"):
-        read_measured(p, radius_um=-3.0)
-    with pytest.raises(MeasuredTableError, match="both pixel_um and center_px"):
-        read_measured(p, radius_um=40.0, pixel_um=0.5)
 
 
 @pytest.mark.parametrize("layout", ["compound", "group"])

@@ -24,3 +24,8 @@ class DomainError(ThermoError, ValueError):
 
 class SamplerError(ThermoError, ValueError):
     """Invalid Monte Carlo settings (ladder, sweep counts, core radius, vortex numbers)."""
+
+
+class MeasuredTableError(ThermoError, ValueError):
+    """A measured vortex table or its geometry cannot be read (``thermo.measured``,
+    ``thermo.geometry``). The message names the file, line or key and what is accepted."""

@@ -32,6 +32,12 @@ import numpy as np
 
 from gpe.errors import VorthermError
 
+# pyFFTW's threads come from the GNU OpenMP runtime it bundles, which reads OMP_WAIT_POLICY once
+# when pyFFTW is first imported (lazily, below).  Passive waiting stops idle FFT workers from
+# spinning on the cores the solver's numba kernels need next; see gpe/kernels.py for the numbers.
+# setdefault keeps a user's own setting.
+os.environ.setdefault("OMP_WAIT_POLICY", "PASSIVE")
+
 _SUPPORTED = (np.dtype(np.complex128), np.dtype(np.complex64))
 
 

@@ -135,3 +135,18 @@ def test_series_helpers_match_the_library_functions(x):
     c, s = kernels.cis(x)
     assert c == pytest.approx(math.cos(x), rel=2e-16, abs=1e-300)
     assert s == pytest.approx(math.sin(x), rel=2e-16, abs=1e-300)
+
+
+@pytest.mark.parametrize("preset", [None, "ACTIVE"])
+def test_openmp_wait_policy_defaults_to_passive_but_keeps_a_user_setting(preset):
+    # Checked in a fresh interpreter: the runtime reads the variable once, when it loads.
+    import os
+    import subprocess
+    import sys
+    env = {k: v for k, v in os.environ.items() if k != "OMP_WAIT_POLICY"}
+    if preset:
+        env["OMP_WAIT_POLICY"] = preset
+    code = "import os, gpe.kernels; print(os.environ['OMP_WAIT_POLICY'])"
+    out = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True,
+                         check=True, cwd=os.path.dirname(os.path.dirname(__file__)))
+    assert out.stdout.strip() == (preset or "PASSIVE")

@@ -107,6 +107,9 @@ class BeamRows:
             n_beams, grid.nx, grid.ny)
         self.waists = (np.ascontiguousarray(beams.waists, dtype=np.float64) if n_beams
                        else np.zeros(0))
+        # Per row, the columns some beam reaches (kernels.beam_box); empty without beams.
+        self.row_lo = np.zeros(grid.ny, dtype=np.int64)
+        self.row_hi = np.zeros(grid.ny, dtype=np.int64)
         self._x = np.ascontiguousarray(grid.x, dtype=np.float64).copy()
         self._y = np.ascontiguousarray(grid.y, dtype=np.float64).copy()
 
@@ -117,6 +120,7 @@ class BeamRows:
         self.beams.evaluate(t, self.amp, self.cx, self.cy)
         kernels.beam_profiles(self._x, self.cx, self.waists, self.gx)
         kernels.beam_profiles(self._y, self.cy, self.waists, self.gy)
+        kernels.beam_box(self.amp, self.gx, self.gy, self.row_lo, self.row_hi)
 
     def potential(self) -> np.ndarray:
         """The beam potential of the last update as a (ny, nx) array (allocates; diagnostics)."""
@@ -175,6 +179,13 @@ class Solver:
         inv_n = 1.0 / (grid.nx * grid.ny)
         self._k_half = (np.exp(exponent) * inv_n).astype(settings.dtype)
         self._k_full = (np.exp(2.0 * exponent) * inv_n).astype(settings.dtype)
+        # The damped sub-step's factors of the static potential, computed once: per step only
+        # the beam box (a few per cent of the grid for one beam) needs exponentials.
+        self._damped_factors = None
+        if settings.gamma > 0:
+            self._damped_factors = np.empty((3,) + grid.shape)
+            kernels.damped_static_factors(v_static, settings.g, settings.mu, settings.gamma,
+                                          settings.dt, self._damped_factors)
         self._check_time_step()
 
     # -- bookkeeping -----------------------------------------------------------------------------
@@ -277,6 +288,10 @@ class Solver:
         if s.gamma == 0.0:
             return kernels.nonlinear_conservative(psi, self._v_static, rows.amp, rows.gx, rows.gy,
                                                   s.g, s.mu, tau)
+        if tau == s.dt:
+            return kernels.nonlinear_damped_boxed(psi, self._damped_factors, self._v_static,
+                                                  rows.amp, rows.gx, rows.gy, rows.row_lo,
+                                                  rows.row_hi, s.g, s.mu, s.gamma, tau)
         return kernels.nonlinear_damped(psi, self._v_static, rows.amp, rows.gx, rows.gy,
                                         s.g, s.mu, s.gamma, tau)
 

@@ -150,3 +150,35 @@ def test_openmp_wait_policy_defaults_to_passive_but_keeps_a_user_setting(preset)
     out = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True,
                          check=True, cwd=os.path.dirname(os.path.dirname(__file__)))
     assert out.stdout.strip() == (preset or "PASSIVE")
+
+
+def test_boxed_damped_step_matches_the_full_closed_form(rng):
+    # Reference: nonlinear_damped (checked against scipy's DOP853 above) evaluated everywhere.
+    ny, nx = 24, 40
+    x, y = np.linspace(-10, 10, nx), np.linspace(-6, 6, ny)
+    amp = np.array([2.0, 0.0, 1.5])  # a beam switched off reaches nothing
+    cx, cy, waists = np.array([-5.0, 0.0, 6.0]), np.array([-3.0, 0.0, 2.0]), np.full(3, 0.7)
+    gx, gy = np.zeros((3, nx)), np.zeros((3, ny))
+    kernels.beam_profiles(x, cx, waists, gx)
+    kernels.beam_profiles(y, cy, waists, gy)
+    row_lo, row_hi = np.zeros(ny, np.int64), np.zeros(ny, np.int64)
+    kernels.beam_box(amp, gx, gy, row_lo, row_hi)
+    v_beam = np.einsum("b,bj,bi->ji", amp, gy, gx)
+    inside = np.zeros((ny, nx), bool)
+    for j in range(ny):
+        inside[j, row_lo[j]:row_hi[j]] = True
+    assert 0 < inside.sum() < inside.size / 2  # the box is a small part of this grid
+    assert np.all(v_beam[~inside] <= kernels.BEAM_CUTOFF * amp.max())
+    assert np.all(v_beam[inside] > 0)
+    v_static = rng.uniform(0.0, 2.0, (ny, nx))
+    v_static[5] = 60.0  # phase beyond the series range on one row: the general branch
+    psi = rng.uniform(0.3, 1.4, (ny, nx)) * np.exp(1j * rng.uniform(0, 6, (ny, nx)))
+    g, mu, gamma, tau = 1.2, 1.0, 0.02, 0.05
+    factors = np.empty((3, ny, nx))
+    kernels.damped_static_factors(v_static, g, mu, gamma, tau, factors)
+    a, b = psi.copy(), psi.copy()
+    s_a = kernels.nonlinear_damped_boxed(a, factors, v_static, amp, gx, gy, row_lo, row_hi,
+                                         g, mu, gamma, tau)
+    s_b = kernels.nonlinear_damped(b, v_static, amp, gx, gy, g, mu, gamma, tau)
+    np.testing.assert_allclose(a, b, rtol=1e-14, atol=0)
+    assert s_a == pytest.approx(s_b, rel=1e-14)

@@ -147,14 +147,6 @@ def parse_frames(text: str | None):
                             "5,9,-1 of frame indices") from None
 
 
-def _select_frames(selector, n_frames: int) -> list[int]:
-    if selector is None:
-        return list(range(n_frames))
-    if isinstance(selector, slice):
-        return list(range(n_frames))[selector]
-    return selector
-
-
 def _is_run_file(path: Path) -> bool:
     if path.suffix.lower() not in (".h5", ".hdf5"):
         return False
@@ -199,7 +191,7 @@ def _temperature_of_run(args) -> dict:
 
     with RunFile.open(args.source, "r") as run:
         n_frames = len(run.frame_times())
-    frames = _select_frames(parse_frames(args.frames), n_frames)
+    frames = pipeline.select_frames(args.source, parse_frames(args.frames), n_frames)
     vd, times, configs, left_out, protocol = pipeline.run_configurations(args.source, frames)
     si = protocol.unit_system == "SI"
     t_user = times * protocol.units.time_s * 1e3 if si else times

@@ -287,11 +287,33 @@ def summary_text(run_path) -> str:
     return "\n".join(lines)
 
 
+def select_frames(run_path, frames, n_frames: int, default: str = "all") -> list[int]:
+    """Frame indices chosen by ``frames`` (None, a slice or a list; negative count from the end).
+
+    ``default`` says what None means: "all" frames or the "last" one. Raises a clear error for
+    an empty run file or an index out of range.
+    """
+    if n_frames == 0:
+        raise RunFileError(f"{run_path}: the run file holds no snapshots (no frames to use)")
+    if frames is None:
+        chosen = list(range(n_frames)) if default == "all" else [n_frames - 1]
+    elif isinstance(frames, slice):
+        chosen = list(range(n_frames))[frames]
+    else:
+        chosen = list(frames)
+    for f in chosen:
+        if not -n_frames <= f < n_frames:
+            raise VorthermError(f"{run_path}: frame {f} out of range; the run has frames "
+                                f"0..{n_frames - 1} (negative numbers count from the end)")
+    return sorted({f % n_frames for f in chosen})
+
+
 def run_configurations(run_path, frames=None):
     """Vortex configurations of a run on its point-vortex domain, one per frame.
 
-    Returns (vortex_domain, times, configurations, left_out) where configurations are
-    (positions, signs) pairs in domain units and left_out counts (wall, pairs) per frame.
+    ``frames`` as for :func:`select_frames` (default: all, in order). Returns (vortex_domain,
+    times, configurations, left_out, protocol) where configurations are (positions, signs)
+    pairs in domain units and left_out counts (wall, pairs) per frame.
     """
     from gpe.io import RunFile
     from gpe.thermometry import domain_for_trap, gas_configuration
@@ -301,15 +323,8 @@ def run_configurations(run_path, frames=None):
         times = np.asarray(run.frame_times())
         table = run.read_vortices()
     vd = domain_for_trap(protocol.trap)
-    n_frames = len(times)
-    if frames is None:
-        frames = range(n_frames)
     configs, left_out, sel_times = [], [], []
-    for f in frames:
-        if not -n_frames <= f < n_frames:
-            raise VorthermError(f"{run_path}: frame {f} out of range; the run has frames "
-                                f"0..{n_frames - 1} (negative numbers count from the end)")
-        f = f % n_frames
+    for f in select_frames(run_path, frames, len(times)):
         rows = table[table["frame"] == f]
         gas = gas_configuration(rows["x"], rows["y"], rows["sign"], vd)
         configs.append((gas.positions, gas.signs))
@@ -382,19 +397,7 @@ def redetect(run_path, *, threshold: float = DETECT_THRESHOLD, region: str = "tr
         protocol = protocol_of(run)
         times = np.asarray(run.frame_times())
         n_frames = len(times)
-        if n_frames == 0:
-            raise RunFileError(f"{run_path}: the run file holds no snapshots; nothing to detect")
-        if frames is None:
-            chosen = list(range(n_frames))
-        elif isinstance(frames, slice):
-            chosen = list(range(n_frames))[frames]
-        else:
-            chosen = list(frames)
-        for f in chosen:
-            if not -n_frames <= f < n_frames:
-                raise VorthermError(f"{run_path}: frame {f} out of range; the run has frames "
-                                    f"0..{n_frames - 1} (negative numbers count from the end)")
-        chosen = sorted({f % n_frames for f in chosen})
+        chosen = select_frames(run_path, frames, n_frames)
         grid = protocol.grid
         v_static = protocol.build_trap()
         mask = _detection_region(protocol, v_static) if region == "trap" else None
@@ -478,19 +481,7 @@ def make_figures(run_path, out_dir, *, frames=None, movie: bool = False) -> list
         protocol = protocol_of(run)
         times = np.asarray(run.frame_times())
         n_frames = len(times)
-        if n_frames == 0:
-            raise RunFileError(f"{run_path}: the run file holds no snapshots; nothing to plot")
-        if frames is None:
-            chosen = [n_frames - 1]
-        elif isinstance(frames, slice):
-            chosen = list(range(n_frames))[frames]
-        else:
-            chosen = list(frames)
-        for f in chosen:
-            if not -n_frames <= f < n_frames:
-                raise VorthermError(f"{run_path}: frame {f} out of range; the run has frames "
-                                    f"0..{n_frames - 1} (negative numbers count from the end)")
-        chosen = sorted({f % n_frames for f in chosen})
+        chosen = select_frames(run_path, frames, n_frames, default="last")
         table = run.read_vortices()
         obs = run.read_observables()
         lazy = _LazyFrames(run)

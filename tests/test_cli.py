@@ -11,40 +11,9 @@ import numpy as np
 import pytest
 
 from gpe.cli import main
+from tiny_protocol import tiny_protocol_text
 
-TINY = """
-units = "healing"
-name = "tiny"
-[atoms]
-species = "87Rb"
-chemical_potential_nK = 20.0
-axial_frequency_hz = 1000.0
-[trap]
-shape = "disk"
-radius_xi = 20.0
-[grid]
-nx = 64
-size_xi = 48.0
-[ground_state]
-noise_amplitude = 0.01
-[evolution]
-duration_tau = 10.0
-dt_tau = 0.05
-output_interval_tau = 2.0
-damping = 0.01
-[[beams]]
-waist_xi = 3.0
-height_mu = 2.0
-[beams.path]
-kind = "line"
-start_xi = [-12.0, 1.0]
-end_xi = [12.0, 1.0]
-speed_c = 0.6
-[beams.array]
-columns = 1
-rows = 3
-spacing_xi = 3.0
-"""
+TINY = tiny_protocol_text(duration=10.0, output_interval=2.0, rows=3, speed=0.6)
 
 
 @pytest.fixture

@@ -10,39 +10,9 @@ import pytest
 from gpe import pipeline
 from gpe.io import RunFile
 from gpe.protocol import parse_protocol
+from tiny_protocol import tiny_protocol_text
 
-TINY = """
-units = "healing"
-name = "tiny"
-[atoms]
-species = "87Rb"
-chemical_potential_nK = 20.0
-axial_frequency_hz = 1000.0
-[trap]
-shape = "disk"
-radius_xi = 20.0
-[grid]
-nx = 64
-size_xi = 48.0
-[ground_state]
-dt_tau = 0.05
-noise_amplitude = 0.01
-[evolution]
-duration_tau = 12.0
-dt_tau = 0.05
-output_interval_tau = 1.0
-damping = 0.01
-seed = 3
-checkpoint_every_outputs = 2
-[[beams]]
-waist_xi = 3.0
-height_mu = 2.0
-[beams.path]
-kind = "line"
-start_xi = [-12.0, 1.0]
-end_xi = [12.0, 1.0]
-speed_c = 0.5
-"""
+TINY = tiny_protocol_text()
 
 
 def _protocol(tmp_path, overrides=()):

@@ -253,6 +253,8 @@ def _register_compare(sub) -> None:
                    help="use every frame in this window, ms")
     p.add_argument("--pixel-um", type=float, help="measured table in pixels: pixel size in um")
     p.add_argument("--center", type=float, nargs=2, metavar=("X", "Y"), help="trap centre in pixels")
+    p.add_argument("--strict", action="store_true",
+                   help="stop at the first unusable row of the measured table instead of listing them")
     p.add_argument("--blur-um", type=float, default=0.0, help="imaging model: position blur (um, rms)")
     p.add_argument("--resolution-um", type=float, default=0.0,
                    help="imaging model: vortices closer than this are not resolved (um)")
@@ -297,7 +299,8 @@ def _cmd_compare(args) -> int:
     scale_um = vd.scale * protocol.units.length_m * 1e6
     # The measured table keeps its own geometry (TOML beside it, or its options): both sides
     # are compared in scaled units of their own domain, which must be of the same shape.
-    measured = read_measured(args.measured, pixel_um=args.pixel_um, center_px=args.center)
+    measured = read_measured(args.measured, pixel_um=args.pixel_um, center_px=args.center,
+                             strict=args.strict)
     if measured.domain.kind != vd.domain.kind:
         raise VorthermError(f"{args.measured}: the measured domain is a {measured.domain.kind}, "
                             f"the simulation's a {vd.domain.kind}; compare needs the same shape")

@@ -195,3 +195,11 @@ def test_compare_writes_table_json_and_figure(tiny, tmp_path, capsys, monkeypatc
         assert q in names
     for suffix in (".csv", ".json", ".png"):
         assert stem.with_suffix(suffix).exists()
+
+
+def test_strict_stops_at_the_first_bad_row(tmp_path, capsys, rng):
+    table = tmp_path / "shots.csv"
+    _write_table(table, rng, shots=2)
+    assert main(["temperature", str(table), "--disk-radius-um", "30", "--strict"]) == 2
+    err = capsys.readouterr().err
+    assert "shots.csv" in err and "line" in err and "sign" in err

@@ -168,3 +168,37 @@ def test_cache_hit_returns_identical_arrays_without_resampling(small_gas):
         np.testing.assert_array_equal(getattr(again, name), getattr(d, name))
     for k, v in d.observables.items():
         np.testing.assert_array_equal(again.observables[k], v)
+
+
+def test_tables_match_direct_reweighting(small_gas):
+    """The tabulated curves (thermo.dos_tables) are interpolations of the direct MBAR
+    reweighting: at energies and betas between table points they agree to a small
+    fraction of the bootstrap error, and the tabulated error is the bootstrap error."""
+    d, _, _ = small_gas
+    lo, hi = d.energy_range()
+    e = np.linspace(lo, hi, 41)[1:-1] + 0.37 * (hi - lo) / 40     # off the table's grid
+    b_tab, err_tab = d.beta_micro(e)
+    b_dir, err_dir = d.beta_micro(e, direct=True)
+    ok = np.isfinite(b_dir) & np.isfinite(err_dir)    # NaN error: a replicate's range ends
+    assert ok.sum() >= 30
+    assert np.all(np.abs(b_tab[ok] - b_dir[ok]) < 0.2 * err_dir[ok])
+    np.testing.assert_allclose(err_tab[ok], err_dir[ok], rtol=0.1)
+    grid, mean, mean_err = d.canonical_curve("energy")
+    beta = 0.5 * (grid[1:] + grid[:-1])[::7]
+    direct, direct_err = d.mean_energy(beta)
+    assert np.all(np.abs(np.interp(beta, grid, mean) - direct) < 0.2 * direct_err)
+    np.testing.assert_allclose(d.log_z_spline()(beta), d.log_z(beta), atol=1e-4)
+
+
+def test_tables_are_stored_and_loaded_objects_reused(small_gas):
+    """A second process reads the tables from the cache file instead of recomputing
+    them; within a process the loaded object itself is reused."""
+    from thermo.domains import Disk
+    d, cache, settings = small_gas
+    path = dosmod.cache_path(2, 2, Disk(), 0.01, cache)
+    back, _ = dosmod.load(path)
+    assert back.has_tables()
+    for name, value in d.tables.items():
+        np.testing.assert_array_equal(back.tables[name], value)
+    first = dosmod.load_or_build(2, 2, Disk(), 0.01, cache_dir=cache, settings=settings)
+    assert dosmod.load_or_build(2, 2, Disk(), 0.01, cache_dir=cache, settings=settings) is first

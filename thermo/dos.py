@@ -44,6 +44,7 @@ def logsumexp(a: np.ndarray, axis: int | None = None, keepdims: bool = False) ->
     return out if keepdims else np.squeeze(out, axis=axis) if axis is not None else out.item()
 
 from thermo.errors import SamplerError
+from thermo import dos_tables
 
 
 def _tau_int(x: np.ndarray) -> float:
@@ -205,12 +206,21 @@ class DensityOfStates:
         lw /= lw.sum(axis=1, keepdims=True)
         return lw
 
-    def _moments(self, beta: np.ndarray, values: np.ndarray, ld, counts, w=None):
-        w = self._weights(beta, ld, counts) if w is None else w
-        shift = np.average(values)
-        m1 = w @ (values - shift)
-        m2 = w @ (values - shift) ** 2
-        return m1 + shift, m2 - m1 ** 2
+    def _moments(self, beta: np.ndarray, values: np.ndarray, ld, counts):
+        """Weighted mean and variance of ``values`` at each beta (chunked, no (M, n) matrix)."""
+        is_energy = values is self.energies
+        lw0, e, v = -ld, self.energies, values
+        if counts is not None:
+            keep = counts > 0
+            lw0 = lw0[keep] + np.log(counts[keep].astype(float))
+            e, v = e[keep], v[keep]
+        if is_energy:
+            _, mean, var, _ = dos_tables.tilted_moments(e, lw0, beta)
+            return mean, var
+        shift = float(np.mean(v))
+        vs = v - shift
+        _, _, _, vm = dos_tables.tilted_moments(e, lw0, beta, np.stack([vs, vs * vs]))
+        return vm[:, 0] + shift, vm[:, 1] - vm[:, 0] ** 2
 
     def _with_errors(self, fn, max_replicates: int | None = None):
         value = fn(self.log_denom, None)
@@ -345,37 +355,88 @@ class DensityOfStates:
         return float(m[0]), float(m[1])
 
     def _beta_micro(self, e: np.ndarray, ld, counts, grid: np.ndarray) -> np.ndarray:
-        mean, var = self._moments(grid, self.energies, ld, counts)
-        order = np.argsort(mean)
-        b_tilt = np.interp(e, mean[order], grid[order], left=np.nan, right=np.nan)
-        sd = np.sqrt(np.interp(e, mean[order], var[order]))
-        out = np.full(e.shape, np.nan)
-        ok = np.isfinite(b_tilt)
-        if not ok.any():
-            return out
-        # g(E) = exp(beta' E) p_beta'(E) for any beta'; with beta' such that <E>_beta' = E
-        # the tilted density is peaked at E, so a Gaussian-kernel estimate of its log
-        # derivative there is nearly unbiased (exact for a Gaussian p, any bandwidth).
-        lw = self._log_weights(b_tilt[ok], ld, counts)
-        w = np.exp(lw - logsumexp(lw, axis=1, keepdims=True))
-        h = 0.3 * sd[ok]
-        z = (e[ok][:, None] - self.energies[None, :]) / h[:, None]
-        kern = w * np.exp(-0.5 * z ** 2)
-        dlogp = -(kern * z).sum(axis=1) / (h * kern.sum(axis=1))
-        out[ok] = b_tilt[ok] + dlogp
-        return out
+        lw0 = -ld
+        en = self.energies
+        if counts is not None:
+            keep = counts > 0
+            lw0 = lw0[keep] + np.log(counts[keep].astype(float))
+            en = en[keep]
+        return dos_tables.beta_micro_kernel(en, lw0, e, grid)
 
-    def beta_micro(self, energy: Any, n_grid: int = 120) -> tuple[np.ndarray, np.ndarray]:
+    def beta_micro(self, energy: Any, n_grid: int = dos_tables.N_TILT, direct: bool = False
+                   ) -> tuple[np.ndarray, np.ndarray]:
         """Microcanonical beta(E) = dS/dE with a bootstrap standard error.
 
-        NaN outside :meth:`energy_range` (no samples there to differentiate).
+        NaN outside :meth:`energy_range` (no samples there to differentiate). By default
+        the value is interpolated from :attr:`tables` (computed once per density of
+        states on a fine energy grid); ``direct=True`` (or a non-default ``n_grid``)
+        reweights all samples for these energies instead.
 
         Units: E in E0, beta in 1/E0.
         """
         e = np.atleast_1d(np.asarray(energy, float))
+        if not direct and n_grid == dos_tables.N_TILT:
+            t = self.tables
+            grid, val, err = t["energy"], t["beta_micro"], t["beta_micro_err"]
+            inside = (e >= grid[0]) & (e <= grid[-1])
+            b = np.where(inside, np.interp(e, grid, val), np.nan)
+            be = np.where(inside, np.interp(e, grid, err), np.nan)
+            return b, be
         lo, hi = self.beta_range
         grid = np.linspace(lo, hi, n_grid)
         return self._with_errors(lambda ld, c: self._beta_micro(e, ld, c, grid))
+
+    # ---------------------------------------------------------------- tables
+    @property
+    def tables(self) -> dict:
+        """Curves on fine grids (see :mod:`thermo.dos_tables`), computed once and memoised.
+
+        Units: E in E0, beta in 1/E0.
+        """
+        t = self.__dict__.get("_tables")
+        if t is None:
+            t = dos_tables.compute_tables(self)
+            object.__setattr__(self, "_tables", t)
+        return t
+
+    def has_tables(self) -> bool:
+        """True when the tables are already computed (or were read from the cache file)."""
+        return self.__dict__.get("_tables") is not None
+
+    def _memo(self, name: str, factory):
+        cache = self.__dict__.setdefault("_memo_cache", {})
+        if name not in cache:
+            cache[name] = factory()
+        return cache[name]
+
+    def log_z_spline(self) -> Any:
+        """Cubic spline of ln Z(beta) - ln Z(0) over the ladder (from :attr:`tables`)."""
+        from scipy.interpolate import CubicSpline
+        t = self.tables
+        return self._memo("lz", lambda: CubicSpline(t["beta"], t["log_z"]))
+
+    def log_z_replicate_splines(self, max_replicates: int | None = None) -> list:
+        """Cubic splines of the bootstrap replicates of ln Z(beta) - ln Z(0)."""
+        from scipy.interpolate import CubicSpline
+        t = self.tables
+        reps = self._memo("lz_reps", lambda: [CubicSpline(t["beta"], r)
+                                              for r in t["log_z_reps"]])
+        return reps[:max_replicates]
+
+    def canonical_curve(self, name: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """(beta grid, mean, bootstrap error) of "energy", "energy_variance" or an observable.
+
+        Units: beta in 1/E0; those of the observable.
+        """
+        t = self.tables
+        if name == "energy":
+            return t["beta"], t["mean_energy"], t["mean_energy_err"]
+        if name == "energy_variance":
+            return t["beta"], t["var_energy"], t["var_energy_err"]
+        if f"obs__{name}" not in t:
+            raise SamplerError(f"unknown observable {name!r}; available: "
+                               f"{['energy', *sorted(self.observables)]}")
+        return t["beta"], t[f"obs__{name}"], t[f"obs_err__{name}"]
 
     # ---------------------------------------------------------------- build
     @classmethod
@@ -449,6 +510,9 @@ FORMAT_VERSION = 1
 #: number of tempering runs started by :func:`load_or_build` in this process (a cache hit
 #: leaves it unchanged; tests use it to prove that nothing was resampled)
 BUILD_COUNT = 0
+#: densities of states already read in this process: path -> (mtime_ns, size, dos), so
+#: repeated estimates do not re-read the npz (a changed file is read again)
+_LOADED: dict[Path, tuple[int, int, "DensityOfStates"]] = {}
 
 
 @dataclass(frozen=True)
@@ -512,6 +576,8 @@ def save(dos: DensityOfStates, path: Any, key: tuple) -> None:
                   meta=np.array(json.dumps(meta)))
     arrays.update({f"obs__{k}": v for k, v in dos.observables.items()})
     arrays.update({f"diag__{k}": v for k, v in dos.diagnostics.items()})
+    if dos.has_tables():   # the tables cost more than a load: a second process reuses them
+        arrays.update({f"tab__{k}": v for k, v in dos.tables.items()})
     fd, tmp = tempfile.mkstemp(dir=path.parent, suffix=".npz.part")
     os.close(fd)
     try:
@@ -538,6 +604,9 @@ def load(path: Any) -> tuple[DensityOfStates, dict]:
             betas=z["betas"], n_k=z["n_k"], energies=z["energies"], f=z["f"],
             log_denom=z["log_denom"], boot_f=z["boot_f"], boot_counts=z["boot_counts"],
             observables=obs, diagnostics=diag, settings=meta["settings"])
+        tables = {k[5:]: z[k] for k in z.files if k.startswith("tab__")}
+    if dos_tables.tables_valid(tables, dos):
+        object.__setattr__(dos, "_tables", tables)
     return dos, meta
 
 
@@ -604,13 +673,29 @@ def load_or_build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
                            f"({n_plus}, {n_minus})")
     path = cache_path(n_plus, n_minus, domain, core_radius, cache_dir)
     if path.exists():
+        st = path.stat()
+        hit = _LOADED.get(path)
+        if hit is not None and hit[:2] == (st.st_mtime_ns, st.st_size) \
+                and _settings_cover(hit[2].settings, settings):
+            return hit[2]
         try:
             dos, meta = load(path)
         except (OSError, ValueError, KeyError) as exc:  # unreadable file: rebuild it
             dos, meta = None, {"error": str(exc)}
         if dos is not None and _settings_cover(dos.settings, settings):
+            if not dos.has_tables():     # written before tables existed: add them once
+                _ = dos.tables
+                save(dos, path, cache_key(n_plus, n_minus, domain, core_radius))
+            _remember(path, dos)
             return dos
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
     dos = build(n_plus, n_minus, domain, core_radius, settings, rng)
+    _ = dos.tables                       # computed once here, stored with the samples
     save(dos, path, cache_key(n_plus, n_minus, domain, core_radius))
+    _remember(path, dos)
     return dos
+
+
+def _remember(path: Path, dos: DensityOfStates) -> None:
+    st = path.stat()
+    _LOADED[path] = (st.st_mtime_ns, st.st_size, dos)

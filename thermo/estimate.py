@@ -30,7 +30,6 @@ from dataclasses import dataclass, field
 from typing import Any, Callable, Sequence
 
 import numpy as np
-from scipy.interpolate import CubicSpline
 from scipy.optimize import brentq
 from scipy.special import jn_zeros
 from scipy.stats import chi2
@@ -166,16 +165,18 @@ def _signs(n_plus: int, n_minus: int) -> np.ndarray:
 
 
 class _Group:
-    """One (N+, N-) group: its shots, energies and ln Z(beta) on a spline."""
+    """One (N+, N-) group: its shots, energies and ln Z(beta) (splines of the DOS tables)."""
 
-    def __init__(self, key, pos, domain, dos: DensityOfStates, grid):
+    def __init__(self, key, pos, domain, dos: DensityOfStates):
         self.n_plus, self.n_minus = key
         self.pos = pos
         self.dos = dos
         self.energies = energy_batch(pos, _signs(*key), domain)
-        self.lz = CubicSpline(grid, dos.log_z(grid))
-        self.lz_reps = [CubicSpline(grid, r) for r in
-                        dos.log_z_replicates(grid, max_replicates=_MAX_REPS)]
+        self.lz = dos.log_z_spline()
+
+    @property
+    def lz_reps(self) -> list:
+        return self.dos.log_z_replicate_splines(max_replicates=_MAX_REPS)
 
     def mean_energy(self, beta: float) -> float:
         d = self.dos
@@ -216,9 +217,13 @@ def _structure(group: _Group, beta_grid, b_hat, se_hat, z_max):
     n = len(group.pos)
     if n < 2 or not group.dos.observables:
         return means, found, flag
-    coarse = np.linspace(beta_grid[0], beta_grid[-1], 60)
     names = [k for k in STRUCTURE_OBSERVABLES if k in group.dos.observables]
-    curves = group.dos.canonical_many(coarse, names, max_replicates=_MAX_REPS)
+    curves = {}
+    for name in names:
+        grid, mean, err = group.dos.canonical_curve(name)
+        inside = (grid >= beta_grid[0]) & (grid <= beta_grid[-1])
+        curves[name] = (mean[inside], err[inside])
+    coarse = grid[inside]
     for name in names:
         curve, curve_err = curves[name]
         target = means[name]
@@ -323,8 +328,7 @@ def estimate_ensemble(configs: Sequence, domain: Any, core_radius: float, *,
     doses = {k: provider(*k) for k in grouped}
     lo = max(d.beta_range[0] for d in doses.values())
     hi = min(d.beta_range[1] for d in doses.values())
-    grid = np.linspace(lo, hi, 81)
-    gs = [_Group(k, grouped[k], domain, doses[k], grid) for k in grouped]
+    gs = [_Group(k, grouped[k], domain, doses[k]) for k in grouped]
 
     def score(b):
         return sum(len(g.energies) * g.mean_energy(b) - g.energies.sum() for g in gs)
@@ -400,12 +404,12 @@ def estimate_single(positions: Any, signs: Any, domain: Any, core_radius: float,
                           "temperature to measure (need at least two vortices)")
     dos = provider(*key_main)
     lo, hi = dos.beta_range
-    grid = np.linspace(lo, hi, 81)
-    g = _Group(key_main, grouped[key_main], domain, dos, grid)
+    g = _Group(key_main, grouped[key_main], domain, dos)
     e = float(g.energies[0])
     b_mic, b_err = (float(x[0]) for x in dos.beta_micro([e]))
     fine = np.linspace(lo, hi, 2001)
-    ll = -fine * e - g.lz(fine)
+    lz_fine = dos._memo("lz_fine", lambda: g.lz(fine))
+    ll = -fine * e - lz_fine
     b_can = float(fine[np.argmax(ll)])
     if not np.isfinite(b_mic):
         b_mic, b_err = b_can, 0.0    # energy outside the range where dS/dE is resolved
@@ -414,7 +418,8 @@ def estimate_single(positions: Any, signs: Any, domain: Any, core_radius: float,
     ci68 = (min(ci68[0], b_mic), max(ci68[1], b_mic))
     ci95 = (min(ci95[0], b_mic), max(ci95[1], b_mic))
     ci68, ci95 = _widen(ci68, b_mic, b_err, 1.0), _widen(ci95, b_mic, b_err, 1.96)
-    fisher = 1.0 / np.sqrt(g.var_energy(b_mic))
+    grid, var_e, _ = dos.canonical_curve("energy_variance")
+    fisher = 1.0 / np.sqrt(float(np.interp(b_mic, grid, var_e)))
     w = np.exp(ll - ll.max())
     prob_neg = float(w[fine < 0].sum() / w.sum())
     clustering = {k: float(v[0]) for k, v in

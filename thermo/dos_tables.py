@@ -1,0 +1,180 @@
+"""Tabulated curves of a density of states: what the estimators read at every call.
+
+A :class:`thermo.dos.DensityOfStates` answers canonical and microcanonical questions by
+reweighting all pooled samples, once per bootstrap replicate. That costs
+O(points x samples x replicates) and is the same for every configuration asked about, so
+the curves are computed once per density of states on fine grids and then interpolated:
+
+* on a beta grid over the ladder: ln Z(beta) - ln Z(0) (central and every replicate),
+  <E>, Var E and the structure observables with bootstrap errors;
+* on an energy grid over :meth:`~thermo.dos.DensityOfStates.energy_range`: the
+  microcanonical beta(E) = dS/dE and its bootstrap error.
+
+The grids are fine enough that interpolation errors are far below the bootstrap errors
+(checked in tests/test_dos.py against the direct evaluation). Work is done in chunks of
+rows so memory stays bounded for large pooled sample sets.
+
+Units: energies in E0 = rho kappa^2 / (4 pi); beta in 1/E0.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+
+#: bump when the content or grids of the tables change (stored tables are then recomputed)
+TABLE_VERSION = 2
+N_BETA = 161         # beta grid points for ln Z, <E>, Var E, observables
+N_ENERGY = 201       # energy grid points for beta_micro
+N_TILT = 120         # beta grid used to invert <E>(beta) inside beta_micro (its default)
+_CHUNK_ELEMENTS = 2_000_000   # rows x samples per chunk (~16 MB of float64)
+
+
+def _lse_rows(a: np.ndarray) -> np.ndarray:
+    m = a.max(axis=1, keepdims=True)
+    m = np.where(np.isfinite(m), m, 0.0)
+    return np.log(np.exp(a - m).sum(axis=1)) + m[:, 0]
+
+
+def tilted_moments(energies: np.ndarray, lw0: np.ndarray, betas: np.ndarray,
+                   values: np.ndarray | None = None
+                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray | None]:
+    """Moments under the weights exp(lw0 - beta E), chunked over beta.
+
+    Parameters
+    ----------
+    energies : (n,) sample energies; lw0 : (n,) log weights at beta = 0 (finite).
+    betas : (M,); values : optional (V, n) further per-sample observables.
+
+    Returns
+    -------
+    log_sum : (M,) ln sum_n exp(lw0 - beta E_n); mean, var : (M,) of E;
+    value_means : (M, V) or None.
+
+    Units: E in E0, beta in 1/E0.
+    """
+    e = np.asarray(energies, float)
+    shift = float(np.mean(e)) if e.size else 0.0
+    es = e - shift
+    b = np.atleast_1d(np.asarray(betas, float))
+    m = b.size
+    log_sum, mean, var = np.empty(m), np.empty(m), np.empty(m)
+    vmeans = None if values is None else np.empty((m, values.shape[0]))
+    rows = max(1, _CHUNK_ELEMENTS // max(e.size, 1))
+    for start in range(0, m, rows):
+        sl = slice(start, min(m, start + rows))
+        lw = lw0[None, :] - np.outer(b[sl], e)
+        top = lw.max(axis=1, keepdims=True)
+        np.subtract(lw, top, out=lw)
+        np.exp(lw, out=lw)
+        tot = lw.sum(axis=1)
+        log_sum[sl] = np.log(tot) + top[:, 0]
+        lw /= tot[:, None]
+        m1 = lw @ es
+        m2 = lw @ (es * es)
+        mean[sl] = m1 + shift
+        var[sl] = m2 - m1 * m1
+        if values is not None:
+            vmeans[sl] = lw @ values.T
+    return log_sum, mean, var, vmeans
+
+
+def beta_micro_kernel(energies: np.ndarray, lw0: np.ndarray, e: np.ndarray,
+                      tilt_grid: np.ndarray) -> np.ndarray:
+    """beta(E) = dS/dE at energies ``e`` for one set of sample weights (see below).
+
+    g(E) = exp(beta' E) p_beta'(E) for any beta'; with beta' such that <E>_beta' = E the
+    tilted density is peaked at E, so a Gaussian-kernel estimate of its log derivative
+    there is nearly unbiased (exact for a Gaussian p, any bandwidth). NaN where E lies
+    outside the range of <E> over ``tilt_grid``.
+
+    Units: E in E0, beta in 1/E0.
+    """
+    e = np.atleast_1d(np.asarray(e, float))
+    _, mean, var, _ = tilted_moments(energies, lw0, tilt_grid)
+    order = np.argsort(mean)
+    b_tilt = np.interp(e, mean[order], tilt_grid[order], left=np.nan, right=np.nan)
+    sd = np.sqrt(np.interp(e, mean[order], var[order]))
+    out = np.full(e.shape, np.nan)
+    ok = np.flatnonzero(np.isfinite(b_tilt))
+    rows = max(1, _CHUNK_ELEMENTS // max(energies.size, 1))
+    for start in range(0, ok.size, rows):
+        idx = ok[start:start + rows]
+        lw = lw0[None, :] - np.outer(b_tilt[idx], energies)
+        lw -= _lse_rows(lw)[:, None]
+        h = 0.3 * sd[idx]
+        z = (e[idx][:, None] - energies[None, :]) / h[:, None]
+        kern = np.exp(lw - 0.5 * z * z)
+        dlogp = -(kern * z).sum(axis=1) / (h * kern.sum(axis=1))
+        out[idx] = b_tilt[idx] + dlogp
+    return out
+
+
+def _replicate_lw0(dos: Any) -> list[tuple[np.ndarray, np.ndarray]]:
+    """(energies, lw0) restricted to the samples each weighting uses: central first."""
+    out = [(dos.energies, -dos.log_denom, None)]
+    for ld, c in zip(dos._replicate_log_denoms(), dos.boot_counts):
+        keep = c > 0
+        out.append((dos.energies[keep], -ld[keep] + np.log(c[keep].astype(float)), keep))
+    return out
+
+
+def compute_tables(dos: Any) -> dict[str, np.ndarray]:
+    """All tables of a DensityOfStates (central value and every bootstrap replicate).
+
+    Returns a dict of arrays: ``beta`` (N_BETA,), ``log_z`` (N_BETA,), ``log_z_reps``
+    (B, N_BETA), ``mean_energy``/``var_energy`` (N_BETA,) and their ``_err``,
+    ``obs__<name>``/``obs_err__<name>`` (N_BETA,), ``energy`` (increasing),
+    ``beta_micro``/``beta_micro_err`` (about N_ENERGY + N_BETA,), ``version`` ().
+
+    Units: E in E0, beta in 1/E0.
+    """
+    lo, hi = dos.beta_range
+    grid = np.linspace(lo, hi, N_BETA)
+    tilt = np.linspace(lo, hi, N_TILT)
+    names = sorted(dos.observables)
+    vals_all = np.stack([dos.observables[k] for k in names]) if names else None
+    sets = _replicate_lw0(dos)
+    log_z, mean, var, obs = [], [], [], []
+    for e, lw0, keep in sets:
+        vals = None if vals_all is None else (vals_all if keep is None else vals_all[:, keep])
+        ls, mu, v, vm = tilted_moments(e, lw0, grid, vals)
+        ls0 = _lse_rows(lw0[None, :])[0]
+        log_z.append(ls - ls0)
+        mean.append(mu)
+        var.append(v)
+        obs.append(vm)
+    # energy grid: uniform in E, plus the images <E>(beta) of the beta grid, which crowd
+    # where beta(E) bends fastest (the high-beta end); ends = <E> at the ladder's ends
+    e_lo, e_hi = dos.energy_range()
+    e_grid = np.unique(np.concatenate([np.linspace(e_lo, e_hi, N_ENERGY),
+                                       np.clip(mean[0], e_lo, e_hi)]))
+    micro = np.array([beta_micro_kernel(e, lw0, e_grid, tilt) for e, lw0, _ in sets])
+
+    def err(stack):
+        reps = np.asarray(stack[1:])
+        if reps.shape[0] < 2:
+            return np.full(reps.shape[1:], np.nan)
+        with np.errstate(invalid="ignore"):
+            return np.where(np.isfinite(reps).all(axis=0), reps.std(axis=0, ddof=1), np.nan)
+
+    out = dict(version=np.array(TABLE_VERSION), beta=grid, log_z=log_z[0],
+               log_z_reps=np.array(log_z[1:]).reshape(len(sets) - 1, N_BETA),
+               mean_energy=mean[0], mean_energy_err=err(mean),
+               var_energy=var[0], var_energy_err=err(var),
+               energy=e_grid, beta_micro=micro[0], beta_micro_err=err(micro))
+    for i, name in enumerate(names):
+        stack = [o[:, i] for o in obs]
+        out[f"obs__{name}"] = stack[0]
+        out[f"obs_err__{name}"] = err(stack)
+    return out
+
+
+def tables_valid(tables: dict | None, dos: Any) -> bool:
+    """True when stored tables match this table version and the DOS's observables."""
+    if not tables or int(tables.get("version", -1)) != TABLE_VERSION:
+        return False
+    need = {"beta", "log_z", "log_z_reps", "mean_energy", "var_energy", "energy",
+            "beta_micro", "beta_micro_err"} | {f"obs__{k}" for k in dos.observables}
+    return need <= set(tables) and tables["log_z_reps"].shape[0] == dos.boot_f.shape[0]

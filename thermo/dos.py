@@ -507,6 +507,8 @@ class DensityOfStates:
 
 # ====================================================================== disk cache
 FORMAT_VERSION = 1
+#: recorded samples per replica when DosSettings.thin is None (thinning chosen to match)
+_SAMPLES_PER_REPLICA = 1000
 #: number of tempering runs started by :func:`load_or_build` in this process (a cache hit
 #: leaves it unchanged; tests use it to prove that nothing was resampled)
 BUILD_COUNT = 0
@@ -523,7 +525,8 @@ class DosSettings:
     ----------
     n_temps : ladder size passed to ``thermo.sampler.default_ladder`` (None: its default).
     n_sweeps : Monte Carlo sweeps per replica after burn-in.
-    burn_in, thin : passed to ``run_tempering`` when not None.
+    burn_in, thin : passed to ``run_tempering`` when not None; thin None keeps about
+        1000 samples per replica (thin = n_sweeps // 1000).
     n_boot : bootstrap replicates for the uncertainties.
     betas : explicit ladder (overrides n_temps) or None.
 
@@ -638,6 +641,10 @@ def build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
         kw = {} if settings.n_temps is None else {"n_temps": settings.n_temps}
         betas = np.asarray(sampler.default_ladder(n_plus, n_minus, core_radius, domain, **kw))
     kw = {k: getattr(settings, k) for k in ("burn_in", "thin") if getattr(settings, k) is not None}
+    # MBAR, its bootstrap and the tables cost O(stored samples) and dominate the build
+    # when every sweep is kept; successive sweeps are strongly correlated (tau_int of E is
+    # ~1-60 sweeps along the ladder), so keeping ~_SAMPLES_PER_REPLICA loses little
+    kw.setdefault("thin", max(1, int(settings.n_sweeps) // _SAMPLES_PER_REPLICA))
     BUILD_COUNT += 1
     result = sampler.run_tempering(domain, n_plus, n_minus, betas, settings.n_sweeps,
                                    core_radius, rng, **kw)

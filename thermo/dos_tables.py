@@ -24,10 +24,10 @@ from typing import Any
 import numpy as np
 
 #: bump when the content or grids of the tables change (stored tables are then recomputed)
-TABLE_VERSION = 2
+TABLE_VERSION = 3
 N_BETA = 161         # beta grid points for ln Z, <E>, Var E, observables
 N_ENERGY = 201       # energy grid points for beta_micro
-N_TILT = 120         # beta grid used to invert <E>(beta) inside beta_micro (its default)
+N_TILT = N_BETA      # beta grid inverting <E>(beta) inside beta_micro: the same grid, reused
 _CHUNK_ELEMENTS = 2_000_000   # rows x samples per chunk (~16 MB of float64)
 
 
@@ -81,18 +81,22 @@ def tilted_moments(energies: np.ndarray, lw0: np.ndarray, betas: np.ndarray,
 
 
 def beta_micro_kernel(energies: np.ndarray, lw0: np.ndarray, e: np.ndarray,
-                      tilt_grid: np.ndarray) -> np.ndarray:
+                      tilt_grid: np.ndarray, tilt_moments: tuple | None = None) -> np.ndarray:
     """beta(E) = dS/dE at energies ``e`` for one set of sample weights (see below).
 
     g(E) = exp(beta' E) p_beta'(E) for any beta'; with beta' such that <E>_beta' = E the
     tilted density is peaked at E, so a Gaussian-kernel estimate of its log derivative
     there is nearly unbiased (exact for a Gaussian p, any bandwidth). NaN where E lies
-    outside the range of <E> over ``tilt_grid``.
+    outside the range of <E> over ``tilt_grid``; ``tilt_moments`` = (<E>, Var E) on that
+    grid when already known.
 
     Units: E in E0, beta in 1/E0.
     """
     e = np.atleast_1d(np.asarray(e, float))
-    _, mean, var, _ = tilted_moments(energies, lw0, tilt_grid)
+    if tilt_moments is None:
+        _, mean, var, _ = tilted_moments(energies, lw0, tilt_grid)
+    else:
+        mean, var = tilt_moments
     order = np.argsort(mean)
     b_tilt = np.interp(e, mean[order], tilt_grid[order], left=np.nan, right=np.nan)
     sd = np.sqrt(np.interp(e, mean[order], var[order]))
@@ -132,7 +136,6 @@ def compute_tables(dos: Any) -> dict[str, np.ndarray]:
     """
     lo, hi = dos.beta_range
     grid = np.linspace(lo, hi, N_BETA)
-    tilt = np.linspace(lo, hi, N_TILT)
     names = sorted(dos.observables)
     vals_all = np.stack([dos.observables[k] for k in names]) if names else None
     sets = _replicate_lw0(dos)
@@ -150,7 +153,8 @@ def compute_tables(dos: Any) -> dict[str, np.ndarray]:
     e_lo, e_hi = dos.energy_range()
     e_grid = np.unique(np.concatenate([np.linspace(e_lo, e_hi, N_ENERGY),
                                        np.clip(mean[0], e_lo, e_hi)]))
-    micro = np.array([beta_micro_kernel(e, lw0, e_grid, tilt) for e, lw0, _ in sets])
+    micro = np.array([beta_micro_kernel(e, lw0, e_grid, grid, (mu, v))
+                      for (e, lw0, _), mu, v in zip(sets, mean, var)])
 
     def err(stack):
         reps = np.asarray(stack[1:])

@@ -4,7 +4,11 @@ All kernels work in place on preallocated ``(ny, nx)`` arrays and allocate nothi
 potential is never stored as a 2D array: it is rebuilt inside the nonlinear kernel from separable
 1D factors, ``V_beam[j, i] = sum_b amp[b] * gx[b, i] * gy[b, j]`` with
 ``gx[b, i] = exp(-2 (x_i - cx_b)^2 / w_b^2)`` (the rows ``gx``, ``gy`` are filled per step by
-:func:`beam_profiles`, which costs ``n_beams * (nx + ny)`` exponentials).
+:func:`beam_profiles`, which costs ``n_beams * (nx + ny)`` exponentials).  In the real-time
+damped step (:func:`nonlinear_damped_boxed`) the beams are evaluated only inside the per-row
+column range they reach (:func:`beam_box`); elsewhere the sub-step's static factors are
+precomputed once (:func:`damped_static_factors`), so most of the grid costs a few dozen
+vectorised multiply-adds per point and no exponentials.
 
 fastmath is chosen deliberately: ``contract`` (fused multiply-add), ``arcp`` (reciprocals),
 ``nsz`` and ``afn`` (approximate library functions) are allowed, but **not** ``nnan``/``ninf``,

@@ -6,7 +6,9 @@ r"""Split-step Fourier solver of the damped 2D Gross-Pitaevskii equation.
 "kinetic half -> potential+nonlinear -> kinetic half" (:meth:`Solver.kinetic_half`,
 :meth:`Solver.potential_nonlinear`); the kinetic factor
 :math:`\exp[-(i+\gamma)k^2\,dt/4]` is precomputed, the potential+nonlinear sub-step is solved
-exactly (see :func:`gpe.kernels.nonlinear_damped`) with the beam potential frozen at the midpoint
+exactly (see :func:`gpe.kernels.nonlinear_damped`; with damping, its factors of the static
+potential are computed once per solver and the beams only where they reach,
+:func:`gpe.kernels.nonlinear_damped_boxed`) with the beam potential frozen at the midpoint
 time of the step, which keeps the time-dependent splitting second order.  Inside
 :meth:`Solver.advance` consecutive kinetic halves are fused into one full kinetic step, so a step
 costs one FFT pair; every call of ``advance`` closes the fused sequence, so calling it at the same

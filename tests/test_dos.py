@@ -1,31 +1,19 @@
-"""Tests of thermo.dos: MBAR pooling, canonical reweighting, ln g(E), beta(E), disk cache."""
+"""Tests of thermo.dos: MBAR pooling, canonical reweighting, ln g(E), beta(E).
 
-from types import SimpleNamespace
+The disk cache is tested in test_dos_cache.py, the tabulated curves in test_dos_tables.py.
+"""
 
 import numpy as np
 import pytest
 
-from thermo import dos as dosmod
-from thermo.dos import DensityOfStates, DosSettings, solve_mbar
-
-
-def _one_vortex_result(rng, betas, n_samples):
-    """Exact canonical samples of one vortex in the unit disk (no core).
-
-    [exact] E = ln(1 - |u|^2) = ln x with x = 1 - |u|^2 uniform at beta = 0 (area
-    measure), so p_beta(x) = (1 - beta) x^(-beta): x = U^(1/(1 - beta)). Hence
-    <E> = -1/(1 - beta), Var E = 1/(1 - beta)^2, g(E) = e^E and beta_micro(E) = 1.
-    """
-    x = rng.random((len(betas), n_samples)) ** (1.0 / (1.0 - betas[:, None]))
-    return SimpleNamespace(betas=np.asarray(betas), energies=np.log(x), n_plus=1, n_minus=0,
-                           core_radius=0.0, domain=None)
+from dos_samples import one_vortex_dos as _one_vortex_dos
+from dos_samples import one_vortex_result, small_gas_dos
+from thermo.dos import DosSettings, solve_mbar
 
 
 @pytest.fixture(scope="module")
 def one_vortex_dos():
-    rng = np.random.default_rng(11)
-    res = _one_vortex_result(rng, np.linspace(-3.0, 0.7, 10), 1200)
-    return DensityOfStates.from_tempering(res, n_boot=30, rng=rng)
+    return _one_vortex_dos(seed=11, n_boot=30)
 
 
 def test_one_vortex_mean_energy_between_ladder_points(one_vortex_dos):
@@ -59,7 +47,7 @@ def test_one_vortex_log_dos_and_micro_beta(one_vortex_dos):
 def test_mbar_free_energies_agree_with_pymbar(rng):
     """Independent implementation: pymbar 4 (Shirts & Chodera 2008) on the same u_kn."""
     pymbar = pytest.importorskip("pymbar")
-    res = _one_vortex_result(rng, np.linspace(-2.0, 0.5, 6), 300)
+    res = one_vortex_result(rng, np.linspace(-2.0, 0.5, 6), 300)
     flat = res.energies.reshape(-1)
     f, _ = solve_mbar(flat, res.betas, np.full(6, 300))
     ref = pymbar.MBAR(np.outer(res.betas, flat), np.full(6, 300)).f_k
@@ -82,15 +70,6 @@ def test_outside_ladder_and_unknown_observable_raise(one_vortex_dos):
         one_vortex_dos.canonical(0.0, "no_such_thing")
 
 
-def test_save_load_roundtrip(tmp_path, one_vortex_dos):
-    path = tmp_path / "x.npz"
-    dosmod.save(one_vortex_dos, path, ("k",))
-    back, meta = dosmod.load(path)
-    for name in ("betas", "energies", "f", "log_denom", "boot_f", "boot_counts"):
-        np.testing.assert_array_equal(getattr(back, name), getattr(one_vortex_dos, name))
-    np.testing.assert_array_equal(back.mean_energy(0.1)[0], one_vortex_dos.mean_energy(0.1)[0])
-
-
 def test_settings_are_validated():
     from thermo.errors import SamplerError
     with pytest.raises(SamplerError, match="n_sweeps"):
@@ -99,15 +78,9 @@ def test_settings_are_validated():
 
 # ------------------------------------------------------------------ with the real sampler
 @pytest.fixture(scope="module")
-def small_gas(tmp_path_factory):
-    """2+2 neutral gas in the unit disk, core 0.01, modest effort (cached in a tmp dir)."""
-    from thermo.domains import Disk
-    cache = tmp_path_factory.mktemp("dos_cache")
-    settings = DosSettings(n_temps=12, n_sweeps=2000, n_boot=20)
-    before = dosmod.BUILD_COUNT
-    d = dosmod.load_or_build(2, 2, Disk(), 0.01, cache_dir=cache, seed=3, settings=settings)
-    assert dosmod.BUILD_COUNT == before + 1
-    return d, cache, settings
+def small_gas():
+    """2+2 neutral gas in the unit disk, core 0.01, modest effort (tests/dos_samples.py)."""
+    return small_gas_dos()
 
 
 def test_reweighted_mean_energy_matches_direct_sampling_off_ladder(small_gas):
@@ -116,7 +89,7 @@ def test_reweighted_mean_energy_matches_direct_sampling_off_ladder(small_gas):
     error from the integrated autocorrelation time (Sokal's windowing, common practice)."""
     from thermo.domains import Disk
     from thermo.sampler import run_tempering
-    d, _, _ = small_gas
+    d = small_gas
     ladder = np.sort(d.betas)
     for beta in (-0.5, 0.4):
         assert np.min(np.abs(ladder - beta)) > 0.01
@@ -137,7 +110,7 @@ def test_beta_zero_mean_energy_is_exact_for_neutral_gas(small_gas):
     The 2a pair exclusion changes this by O(a^2 ln a) ~ 1e-3, inside the tolerance.
     For a = 0 this is <E> = -N + (Q^2 - N)/4 of reference-values.md.
     """
-    d, _, _ = small_gas
+    d = small_gas
     a, n, q = 0.01, 4, 0
     x0 = 2 * a - a * a
     self_term = (-1 - (x0 * np.log(x0) - x0)) / (1 - a) ** 2
@@ -150,55 +123,7 @@ def test_beta_zero_mean_energy_is_exact_for_neutral_gas(small_gas):
 def test_structure_observables_reweight(small_gas):
     """[exact] <C1>(beta = 0) = -1/(N-1) = -1/3 (reference-values.md); the hard core keeps
     the i.i.d. symmetry that the derivation uses, so it holds with the core too."""
-    d, _, _ = small_gas
+    d = small_gas
     res = d.canonical_many([0.0], ["c1", "dipole_moment"])
     c1, c1_err = res["c1"]
     assert abs(c1[0] + 1 / 3) < 4 * c1_err[0] + 0.01
-
-
-def test_cache_hit_returns_identical_arrays_without_resampling(small_gas):
-    from thermo.domains import Disk
-    d, cache, settings = small_gas
-    path = dosmod.cache_path(2, 2, Disk(), 0.01, cache)
-    mtime = path.stat().st_mtime_ns
-    before = dosmod.BUILD_COUNT
-    again = dosmod.load_or_build(2, 2, Disk(), 0.01, cache_dir=cache, seed=99, settings=settings)
-    assert dosmod.BUILD_COUNT == before and path.stat().st_mtime_ns == mtime
-    for name in ("betas", "energies", "f", "log_denom", "boot_f", "boot_counts"):
-        np.testing.assert_array_equal(getattr(again, name), getattr(d, name))
-    for k, v in d.observables.items():
-        np.testing.assert_array_equal(again.observables[k], v)
-
-
-def test_tables_match_direct_reweighting(small_gas):
-    """The tabulated curves (thermo.dos_tables) are interpolations of the direct MBAR
-    reweighting: at energies and betas between table points they agree to a small
-    fraction of the bootstrap error, and the tabulated error is the bootstrap error."""
-    d, _, _ = small_gas
-    lo, hi = d.energy_range()
-    e = np.linspace(lo, hi, 41)[1:-1] + 0.37 * (hi - lo) / 40     # off the table's grid
-    b_tab, err_tab = d.beta_micro(e)
-    b_dir, err_dir = d.beta_micro(e, direct=True)
-    ok = np.isfinite(b_dir) & np.isfinite(err_dir)    # NaN error: a replicate's range ends
-    assert ok.sum() >= 30
-    assert np.all(np.abs(b_tab[ok] - b_dir[ok]) < 0.2 * err_dir[ok])
-    np.testing.assert_allclose(err_tab[ok], err_dir[ok], rtol=0.1)
-    grid, mean, mean_err = d.canonical_curve("energy")
-    beta = 0.5 * (grid[1:] + grid[:-1])[::7]
-    direct, direct_err = d.mean_energy(beta)
-    assert np.all(np.abs(np.interp(beta, grid, mean) - direct) < 0.2 * direct_err)
-    np.testing.assert_allclose(d.log_z_spline()(beta), d.log_z(beta), atol=1e-4)
-
-
-def test_tables_are_stored_and_loaded_objects_reused(small_gas):
-    """A second process reads the tables from the cache file instead of recomputing
-    them; within a process the loaded object itself is reused."""
-    from thermo.domains import Disk
-    d, cache, settings = small_gas
-    path = dosmod.cache_path(2, 2, Disk(), 0.01, cache)
-    back, _ = dosmod.load(path)
-    assert back.has_tables()
-    for name, value in d.tables.items():
-        np.testing.assert_array_equal(back.tables[name], value)
-    first = dosmod.load_or_build(2, 2, Disk(), 0.01, cache_dir=cache, settings=settings)
-    assert dosmod.load_or_build(2, 2, Disk(), 0.01, cache_dir=cache, settings=settings) is first

@@ -11,7 +11,7 @@ the curves are computed once per density of states on fine grids and then interp
   microcanonical beta(E) = dS/dE and its bootstrap error.
 
 The grids are fine enough that interpolation errors are far below the bootstrap errors
-(checked in tests/test_dos.py against the direct evaluation). Work is done in chunks of
+(checked in tests/test_dos_tables.py against the direct evaluation). Work is done in chunks of
 rows so memory stays bounded for large pooled sample sets.
 
 Units: energies in E0 = rho kappa^2 / (4 pi); beta in 1/E0.

@@ -1,0 +1,92 @@
+"""Tests of thermo.dos_cache: the npz files, cache hits, effort coverage, in-process reuse."""
+
+import numpy as np
+import pytest
+
+from dos_samples import one_vortex_dos
+from thermo import dos as dosmod
+from thermo import dos_cache
+from thermo.domains import Disk
+from thermo.dos import DosSettings
+from thermo.errors import SamplerError
+
+# caching is what is tested here, not physics: a cheap 2+2 build is enough
+N_PLUS, N_MINUS, CORE = 2, 2, 0.01
+SETTINGS = DosSettings(n_temps=6, n_sweeps=300, n_boot=4)
+
+
+@pytest.fixture(scope="module")
+def small_gas(tmp_path_factory):
+    cache = tmp_path_factory.mktemp("dos_cache")
+    before = dosmod.BUILD_COUNT
+    d = dos_cache.load_or_build(N_PLUS, N_MINUS, Disk(), CORE, cache_dir=cache, seed=3,
+                                settings=SETTINGS)
+    assert dosmod.BUILD_COUNT == before + 1
+    return d, cache
+
+
+def test_save_load_roundtrip(tmp_path):
+    d = one_vortex_dos(n_boot=5)
+    path = tmp_path / "x.npz"
+    dos_cache.save(d, path, ("k",))
+    back, meta = dos_cache.load(path)
+    assert meta["key"] == repr(("k",)) and meta["format_version"] == dos_cache.FORMAT_VERSION
+    for name in ("betas", "energies", "f", "log_denom", "boot_f", "boot_counts"):
+        np.testing.assert_array_equal(getattr(back, name), getattr(d, name))
+    np.testing.assert_array_equal(back.mean_energy(0.1)[0], d.mean_energy(0.1)[0])
+
+
+def test_other_format_version_is_refused(tmp_path, monkeypatch):
+    path = tmp_path / "x.npz"
+    dos_cache.save(one_vortex_dos(n_boot=2), path, ("k",))
+    monkeypatch.setattr(dos_cache, "FORMAT_VERSION", dos_cache.FORMAT_VERSION + 1)
+    with pytest.raises(SamplerError, match="x.npz: DOS cache format"):
+        dos_cache.load(path)
+
+
+def test_cache_hit_returns_identical_arrays_without_resampling(small_gas):
+    d, cache = small_gas
+    path = dos_cache.cache_path(N_PLUS, N_MINUS, Disk(), CORE, cache)
+    mtime = path.stat().st_mtime_ns
+    before = dosmod.BUILD_COUNT
+    again = dos_cache.load_or_build(N_PLUS, N_MINUS, Disk(), CORE, cache_dir=cache, seed=99,
+                                    settings=SETTINGS)
+    assert dosmod.BUILD_COUNT == before and path.stat().st_mtime_ns == mtime
+    for name in ("betas", "energies", "f", "log_denom", "boot_f", "boot_counts"):
+        np.testing.assert_array_equal(getattr(again, name), getattr(d, name))
+    for k, v in d.observables.items():
+        np.testing.assert_array_equal(again.observables[k], v)
+
+
+def test_tables_are_stored_and_loaded_objects_reused(small_gas):
+    """A second process reads the tables from the cache file instead of recomputing
+    them; within a process the loaded object itself is reused."""
+    d, cache = small_gas
+    path = dos_cache.cache_path(N_PLUS, N_MINUS, Disk(), CORE, cache)
+    back, _ = dos_cache.load(path)
+    assert back.has_tables()
+    for name, value in d.tables.items():
+        np.testing.assert_array_equal(back.tables[name], value)
+    first = dos_cache.load_or_build(N_PLUS, N_MINUS, Disk(), CORE, cache_dir=cache,
+                                    settings=SETTINGS)
+    assert dos_cache.load_or_build(N_PLUS, N_MINUS, Disk(), CORE, cache_dir=cache,
+                                   settings=SETTINGS) is first
+
+
+def test_more_effort_rebuilds_and_then_covers_less(tmp_path):
+    """A stored build is reused only when it used at least the requested sweeps."""
+    before = dosmod.BUILD_COUNT
+    dos_cache.load_or_build(1, 1, Disk(), CORE, cache_dir=tmp_path, settings=SETTINGS)
+    more = DosSettings(n_temps=6, n_sweeps=2 * SETTINGS.n_sweeps, n_boot=4)
+    big = dos_cache.load_or_build(1, 1, Disk(), CORE, cache_dir=tmp_path, settings=more)
+    assert dosmod.BUILD_COUNT == before + 2 and big.settings["n_sweeps"] == more.n_sweeps
+    again = dos_cache.load_or_build(1, 1, Disk(), CORE, cache_dir=tmp_path, settings=SETTINGS)
+    assert dosmod.BUILD_COUNT == before + 2 and again is big
+
+
+def test_old_import_paths_still_work():
+    """The cache names moved out of thermo.dos are forwarded from it."""
+    from thermo.dos import FORMAT_VERSION, load_or_build
+
+    assert load_or_build is dos_cache.load_or_build
+    assert FORMAT_VERSION == dos_cache.FORMAT_VERSION and dosmod.cache_path is dos_cache.cache_path

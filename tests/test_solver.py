@@ -1,16 +1,13 @@
-"""Split-step solver against exact results, published properties and an independent eigensolver."""
+"""Real-time split-step solver and observables against exact results and published properties."""
 
 import tracemalloc
 
 import numpy as np
 import pytest
-import scipy.sparse as sp
-from scipy.sparse.linalg import eigsh
 
 from gpe.errors import SimulationError, VorthermError
 from gpe.grid import Grid
-from gpe.solver import (Solver, SolverSettings, find_ground_state, imprint_vortices,
-                        observables)
+from gpe.solver import Solver, SolverSettings, observables
 
 
 class CircularBeam:
@@ -68,93 +65,6 @@ def test_potential_stage_on_a_uniform_field():
     solver = Solver(GRID, np.zeros(GRID.shape), None, settings, np.full(GRID.shape, 0.5 + 0j))
     solver.potential_nonlinear(0.05)
     np.testing.assert_allclose(solver.psi, 0.5 * np.exp(-1j * (2.0 * 0.25 - 1.0) * 0.1))
-
-
-# -- ground states --------------------------------------------------------------------------------
-def _fd_harmonic_spectrum(n=121, half_width=7.0, k=4):
-    """Lowest eigenvalues of -lap/2 + r^2/2, second-order finite differences, scipy eigsh."""
-    x = np.linspace(-half_width, half_width, n)
-    h = x[1] - x[0]
-    lap1 = sp.diags([np.ones(n - 1), -2 * np.ones(n), np.ones(n - 1)], [-1, 0, 1]) / h**2
-    eye = sp.identity(n)
-    hamiltonian = -0.5 * (sp.kron(eye, lap1) + sp.kron(lap1, eye)) + sp.diags(
-        0.5 * (x[None, :] ** 2 + x[:, None] ** 2).ravel())
-    return np.sort(eigsh(hamiltonian.tocsc(), k=k, sigma=0.0, which="LM")[0])
-
-
-def test_harmonic_oscillator_ground_and_vortex_state():
-    # [exact, any QM textbook] 2D isotropic oscillator, g = 0: E = n_x + n_y + 1, so the ground
-    # state has E = mu = 1 per particle; the first excited level (E = 2) contains the l = 1
-    # state (x + i y) exp(-r^2/2), reached here by relaxing with a pinned phase winding.
-    ground = find_ground_state(GRID, HARMONIC, g=0.0, norm=1.0, dt=0.01, tol=1e-12,
-                               check_every=100)
-    assert ground.converged
-    assert ground.energy == pytest.approx(1.0, abs=1e-6)  # Strang bias O(dt^2) ~ 1e-5 dt^2
-    assert ground.mu == pytest.approx(1.0, abs=1e-6)
-    vortex = find_ground_state(GRID, HARMONIC, g=0.0, norm=1.0, dt=0.01, tol=1e-12,
-                               check_every=100, vortices=(np.zeros((1, 2)), np.array([1])))
-    assert vortex.energy == pytest.approx(2.0, abs=1e-6)
-    obs = observables(vortex.psi, GRID, HARMONIC, None, 0.0)
-    assert obs["lz"] == pytest.approx(1.0, abs=1e-6)  # [exact] l = 1 per particle
-    # Independent check: scipy eigsh on a finite-difference Hamiltonian (O(h^2) discretisation
-    # error, h = 0.117 -> ~1e-3), lowest level and the doubly degenerate first excited level.
-    levels = _fd_harmonic_spectrum()
-    assert levels[0] == pytest.approx(ground.energy, abs=3e-3)
-    np.testing.assert_allclose(levels[1:3], vortex.energy, atol=3e-3)
-
-
-def test_thomas_fermi_limit_of_a_strongly_interacting_harmonic_condensate():
-    # [pub: Pethick & Smith, ch. 6] oscillator units, g N = 2000: mu_TF = sqrt(g N / pi),
-    # E/N = (2/3) mu_TF; the GP ground state approaches this within ~1% at g N >= 1000.
-    grid = Grid(128, 128, 20.0, 20.0)
-    potential = 0.5 * (grid.X**2 + grid.Y**2)
-    state = find_ground_state(grid, potential, g=2000.0, norm=1.0, dt=0.004, tol=1e-9,
-                              check_every=100)
-    mu_tf = np.sqrt(2000.0 / np.pi)
-    assert state.converged
-    assert state.mu == pytest.approx(mu_tf, rel=0.01)
-    assert state.energy == pytest.approx(2.0 / 3.0 * mu_tf, rel=0.01)
-
-
-def _virial_residual(dt):
-    state = find_ground_state(GRID, HARMONIC, g=100.0, norm=1.0, dt=dt, tol=1e-12,
-                              check_every=100)
-    obs = observables(state.psi, GRID, HARMONIC, None, 100.0)
-    return (obs["e_kin"] - obs["e_trap"] + obs["e_int"]) / obs["energy"]
-
-
-def test_virial_identity_after_extrapolation_to_zero_dt():
-    # [exact, scaling argument] 2D harmonic trap: E_kin - E_trap + E_int = 0. A Strang
-    # imaginary-time fixed point carries an O(dt) bias [practice], so extrapolate linearly.
-    r1, r2 = _virial_residual(0.02), _virial_residual(0.01)
-    assert abs(r2) < 1e-3
-    assert r1 / r2 == pytest.approx(2.0, rel=0.1)  # the bias is first order in dt
-    assert abs(2 * r2 - r1) < 0.02 * abs(r2)
-
-
-def test_energy_decreases_monotonically_in_imaginary_time(rng):
-    # [pub: Bao & Du, SIAM J. Sci. Comput. 25, 1674 (2004)] normalised gradient flow diminishes
-    # the energy; checked after every step from a noisy start.
-    state = find_ground_state(GRID, HARMONIC, g=50.0, norm=1.0, dt=0.01, tol=1e-14,
-                              check_every=1, max_steps=300, noise=0.3, rng=rng)
-    energies = state.history[:, 2]
-    assert energies[0] - energies[-1] > 0.1
-    assert np.all(np.diff(energies) <= 1e-12 * abs(energies[-1]))
-
-
-def test_fixed_mu_relaxation_reaches_that_chemical_potential():
-    # [exact] a stationary state of the imaginary-time flow at fixed mu has chemical potential mu.
-    state = find_ground_state(GRID, HARMONIC, g=50.0, mu=5.0, dt=0.005, tol=1e-11,
-                              check_every=100)
-    assert state.converged
-    assert state.mu == pytest.approx(5.0, rel=1e-3)  # Strang O(dt) bias in mu [practice]
-
-
-def test_ground_state_input_errors():
-    with pytest.raises(VorthermError, match="exactly one"):
-        find_ground_state(GRID, HARMONIC, norm=1.0, mu=1.0)
-    with pytest.raises(VorthermError, match="rng"):
-        find_ground_state(GRID, HARMONIC, norm=1.0, noise=0.1)
 
 
 # -- real-time evolution ---------------------------------------------------------------------------
@@ -273,7 +183,7 @@ def test_too_large_time_step_is_refused():
         SolverSettings(dt=-0.1, gamma=0.1)
 
 
-# -- observables and vortex imprint ----------------------------------------------------------------
+# -- observables ------------------------------------------------------------------------------------
 def test_observables_of_analytic_oscillator_states():
     # [exact] normalised 2D oscillator ground state: E_kin = E_trap = 1/2;
     # (x + i y) exp(-r^2/2): E_kin = E_trap = 1, L_z = 1 per particle.
@@ -288,18 +198,3 @@ def test_observables_of_analytic_oscillator_states():
     assert obs["e_kin"] == pytest.approx(1.0, rel=1e-10)
     assert obs["e_beam"] == pytest.approx(0.5, rel=1e-10)
     assert obs["e_int"] == pytest.approx(1.5 * np.sum(np.abs(vortex) ** 4) * GRID.cell_area)
-
-
-def test_imprinted_vortices_wind_by_their_sign():
-    # [exact] the phase winds by 2 pi s around a vortex of sign s.
-    psi = imprint_vortices(np.ones(GRID.shape), GRID, [[-3.0, 0.1], [3.0, 0.1]], [1, -1])
-    phase = np.angle(psi)
-
-    def winding(i0, i1, j0, j1):
-        loop = np.concatenate([phase[j0, i0:i1], phase[j0:j1, i1], phase[j1, i1:i0:-1],
-                               phase[j1:j0:-1, i0]])
-        return np.sum(np.angle(np.exp(1j * np.diff(np.append(loop, loop[0]))))) / (2 * np.pi)
-
-    assert winding(14, 30, 22, 42) == pytest.approx(1.0)  # around (-3, 0.1)
-    assert winding(34, 50, 22, 42) == pytest.approx(-1.0)  # around (3, 0.1)
-    assert abs(psi[32, 20]) < 0.2  # the core is depleted

@@ -1,0 +1,113 @@
+"""Tests of the sweep-file parser (gpe/sweep_file.py): axes, ranges, seeds, measure, errors.
+
+The file of tests/sweep_stand_in.py and the repository's demo sweep are parsed; running sweeps
+is tested in test_sweep.py.
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from gpe.sweep_file import QUANTITIES, SweepError, load_sweep, parse_sweep
+from sweep_stand_in import write_sweep_file
+
+DEMO = Path(__file__).resolve().parents[1] / "runs" / "demo.toml"
+
+
+@pytest.fixture
+def sweep_file(tmp_path):
+    return write_sweep_file(tmp_path)
+
+
+def test_grid_expands_into_readable_points(sweep_file):
+    sweep = load_sweep(sweep_file, check_protocol=False)
+    points = sweep.points()
+    assert [p.point_id for p in points] == [f"p00{i}_s{s}" for i in range(4) for s in (0, 1)]
+    assert points[3].overrides == ("beams.0.path.speed_c=0.3", "beams.0.waist_um=4.0",
+                                   "evolution.seed=1")
+    assert sweep.axes[0].title == "beam speed [c]" and sweep.axes[1].unit == "um"
+    assert sweep.measure.window == (80.0, 100.0) and sweep.measure.time_unit == "protocol"
+
+
+def test_ranges_linear_and_log(tmp_path):
+    (tmp_path / "b.toml").write_text("")
+    text = ('base = "b.toml"\n[[axes]]\nkey = "a.x_mu"\nrange = {start = 1, stop = 2, num = 3}\n'
+            '[[axes]]\nkey = "a.gamma"\nrange = {start = 1e-4, stop = 1e-2, num = 3, '
+            'scale = "log"}\n')
+    sweep = parse_sweep(text, tmp_path / "s.toml", check_protocol=False)
+    assert sweep.axes[0].values == (1.0, 1.5, 2.0)
+    np.testing.assert_allclose(sweep.axes[1].values, [1e-4, 1e-3, 1e-2], rtol=1e-12)
+    assert sweep.axes[1].scale == "log" and sweep.seeds == (0,)
+
+
+@pytest.mark.parametrize("bad, message", [
+    ("axis = []", "did you mean 'axes'"),
+    ('[[axes]]\nkey = "k"\nvalus = [1]', "did you mean 'values'"),
+    ('[[axes]]\nkey = "k"\nvalues = [1]\nrange = {start = 0, stop = 1, num = 2}', "exactly one"),
+    ('[[axes]]\nkey = "k"\nrange = {start = 0, stop = 1}', "missing 'num'"),
+    ('[[axes]]\nkey = "k"\nrange = {start = 0, stop = 1, num = 3, scale = "log"}', "log range"),
+    ('[[axes]]\nkey = "evolution.seed"\nvalues = [1]', "seeds"),
+    ('[[axes]]\nkey = "k"\nvalues = [1, 1]', "duplicate"),
+    ('seeds = 0\n[[axes]]\nkey = "k"\nvalues = [1]', "seeds"),
+    ('[[axes]]\nkey = "k"\nvalues = [1]\n[measure]\nquantities = ["betta"]', "did you mean 'beta'"),
+    ('[[axes]]\nkey = "k"\nvalues = [1]\n[measure]\nwindow = [5, 1]', "t0 < t1"),
+    ('[[axes]]\nkey = "k"\nvalues = [1]\n[measure]\nat_time = 1\nwindow = [0, 1]', "not both"),
+    ('[[axes]]\nkey = "k"\nvalues = [1]\n[measure]\nat_time_s = 1', "did you mean 'at_time_ms'"),
+])
+def test_sweep_file_errors_name_file_and_key(tmp_path, bad, message):
+    (tmp_path / "b.toml").write_text("")
+    src = tmp_path / "my_sweep.toml"
+    src.write_text('base = "b.toml"\n' + bad + "\n")
+    with pytest.raises(SweepError) as err:
+        load_sweep(src, check_protocol=False)
+    assert message in str(err.value) and "my_sweep.toml" in str(err.value)
+
+
+def test_missing_base_protocol_is_reported(tmp_path):
+    with pytest.raises(SweepError, match="nowhere.toml.*relative to the sweep file"):
+        parse_sweep('base = "nowhere.toml"\n[[axes]]\nkey = "k"\nvalues = [1]\n',
+                    tmp_path / "s.toml", check_protocol=False)
+
+
+def test_quantity_table_is_complete():
+    assert set(QUANTITIES) == {"beta", "n_plus", "n_minus", "dipole_fraction",
+                               "cluster_fraction", "free_fraction", "energy_per_vortex"}
+
+
+def test_demo_sweep_file_is_valid():
+    sweep = load_sweep(DEMO.parent / "demo_sweep.toml")
+    assert sweep.base == DEMO and len(sweep.points()) == len(sweep.seeds) * math.prod(
+        len(a.values) for a in sweep.axes)
+    assert sweep.measure.time_unit == "ms"
+
+
+def test_misspelt_protocol_key_is_caught_before_running(tmp_path):
+    src = tmp_path / "s.toml"
+    src.write_text(f'base = "{DEMO}"\n[[axes]]\nkey = "beams.0.wiast_um"\nvalues = [2.0]\n')
+    with pytest.raises(SweepError, match=r"s\.toml.*beams\.0\.wiast_um.*did you mean 'waist_um'"):
+        load_sweep(src)
+
+
+def test_old_import_paths_still_work():
+    """The parser's names moved out of gpe.sweep are re-exported by it."""
+    import gpe.sweep
+    import gpe.sweep_file
+
+    for name in ("QUANTITIES", "SEED_KEY", "SUFFIX_UNITS", "Axis", "Measure", "Point", "Sweep",
+                 "SweepError", "format_value", "load_sweep", "parse_sweep"):
+        assert getattr(gpe.sweep, name) is getattr(gpe.sweep_file, name)
+
+
+@pytest.mark.parametrize("value", [0.1, 1e-12, 3, -2.5, True, False, 'a "quoted" name', "x\\y"])
+def test_format_value_is_read_back_by_toml(value):
+    """An override's right-hand side is TOML: tomllib must give back the same value and type."""
+    import tomllib
+
+    from gpe.sweep_file import format_value
+
+    back = tomllib.loads(f"v = {format_value(value)}")["v"]
+    assert back == value and type(back) is type(value)

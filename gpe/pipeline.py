@@ -222,11 +222,15 @@ def _finish_tracks(run) -> None:
 # ------------------------------------------------------------------------------------------
 def protocol_of(run) -> object:
     """Rebuild the :class:`~gpe.protocol.Protocol` stored verbatim in an open run file."""
-    from gpe.protocol import parse_protocol
+    import warnings
 
-    return parse_protocol(run.protocol_text(), source=run.protocol_source(),
-                          overrides=run.protocol_overrides(),
-                          base_dir=Path(run.protocol_source()).parent)
+    from gpe.protocol import ProtocolWarning, parse_protocol
+
+    with warnings.catch_warnings():  # its warnings were shown when the run was started
+        warnings.simplefilter("ignore", ProtocolWarning)
+        return parse_protocol(run.protocol_text(), source=run.protocol_source(),
+                              overrides=run.protocol_overrides(),
+                              base_dir=Path(run.protocol_source()).parent)
 
 
 def is_complete(run_path) -> bool:

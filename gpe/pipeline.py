@@ -153,6 +153,7 @@ def simulate(protocol, out_path, *, resume: bool = False,
                           "ground_state.max_steps or dt", stacklevel=2)
         mu_run = gs.mu
         tmp = out_path.with_name(out_path.name + ".part")
+        tmp.unlink(missing_ok=True)  # left by a run killed before its first checkpoint
         run = RunFile.create(tmp, protocol=protocol, static_potential=v_static,
                              ground_state_psi=gs.psi, extra_attrs={"mu_run": mu_run,
                                                                    "ground_state_steps": gs.steps})

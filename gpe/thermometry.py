@@ -169,6 +169,7 @@ def _estimate_record(est) -> dict:
         "n_minus": est.n_minus, "energy_per_vortex": est.energy_per_vortex,
         "temperature_sign": est.temperature_sign, "prob_negative": est.prob_negative,
         "regime": est.regime, "not_in_equilibrium": est.not_in_equilibrium,
+        "range_limited": est.range_limited,
         "verdict": est.verdict,
     }
     for key in ("dipole_moment", "c1", "dipole_fraction", "cluster_fraction", "free_fraction",
@@ -266,7 +267,7 @@ def onset_verdict(times: np.ndarray, records: list[dict], time_unit: str) -> str
 CSV_COLUMNS = ("n_plus", "n_minus", "energy_per_vortex", "beta", "beta_ci68_lo", "beta_ci68_hi",
                "beta_ci95_lo", "beta_ci95_hi", "temperature_sign", "prob_negative",
                "dipole_moment", "c1", "dipole_fraction", "cluster_fraction", "free_fraction",
-               "left_out_wall", "left_out_pairs", "verdict")
+               "left_out_wall", "left_out_pairs", "range_limited", "verdict")
 CSV_UNITS = {"energy_per_vortex": "E0", "beta": "1/E0", "beta_ci68_lo": "1/E0",
              "beta_ci68_hi": "1/E0", "beta_ci95_lo": "1/E0", "beta_ci95_hi": "1/E0",
              "dipole_moment": "domain size"}

@@ -120,3 +120,23 @@ def test_95_interval_coverage_is_nominal(cache):
     lowest = stats.binom.ppf(0.001, n_rep, 0.95)
     assert hits >= lowest, (hits, lowest)
     assert hits <= n_rep   # over-coverage is not an error, but report it in the message
+
+
+def test_energy_beyond_the_ladder_is_flagged_not_silently_clipped(tmp_path):
+    """Two tight like-sign rings far apart have an energy beyond what the ladder samples: the
+    estimate must say that beta may be lower still (a clipped value is not a measurement)."""
+    import numpy as np
+
+    from thermo.domains import Disk
+    from thermo.dos import DosSettings
+    from thermo.estimate import estimate_single
+
+    ang = np.linspace(0, 2 * np.pi, 3, endpoint=False)
+    ring = 0.03 * np.column_stack([np.cos(ang), np.sin(ang)])
+    pos = np.vstack([[0.5, 0.0] + ring, [-0.5, 0.0] + ring])
+    signs = np.array([1, 1, 1, -1, -1, -1])
+    est = estimate_single(pos, signs, Disk(), 0.01, cache_dir=tmp_path,
+                          settings=DosSettings(n_sweeps=400, n_boot=6))
+    assert est.range_limited == "low"
+    assert "may be lower" in est.verdict
+    assert est.temperature_sign == "negative"

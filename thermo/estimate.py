@@ -69,6 +69,9 @@ class BetaEstimate:
     thresholds : name -> beta value (collapse bounds, clustering onset) for the largest group.
     regime : where beta sits relative to the thresholds, in words.
     verdict : one plain-language sentence.
+    range_limited : "low" or "high" when the estimate or its 95% interval reaches the end of
+        the beta ladder the density of states was built on (the true value may lie beyond it;
+        the interval is then one-sided in truth), else "".
 
     Units: beta in 1/E0; energy_per_vortex in E0; D and distances in the domain size.
     """
@@ -91,6 +94,7 @@ class BetaEstimate:
     thresholds: dict = field(default_factory=dict)
     regime: str = ""
     verdict: str = ""
+    range_limited: str = ""
 
 
 def thresholds(n_plus: int, n_minus: int, domain: Any = None) -> dict[str, float]:
@@ -257,9 +261,21 @@ def _sign_words(prob_neg: float, ci95) -> tuple[str, str]:
     return "undetermined", "temperature sign not resolved"
 
 
+def _range_limit(b_hat, ci95, beta_range) -> str:
+    """"low"/"high" when the estimate or its 95% interval runs into the end of the ladder."""
+    lo, hi = beta_range
+    tol = 1e-6 * max(1.0, hi - lo)
+    if min(b_hat, ci95[0]) <= lo + tol:
+        return "low"
+    if max(b_hat, ci95[1]) >= hi - tol:
+        return "high"
+    return ""
+
+
 def _finish(b_hat, ci68, ci95, se, prob_neg, method, groups, n_shots, e_mean, n_main,
-            key_main, domain, clustering, structure_betas, flag):
+            key_main, domain, clustering, structure_betas, flag, beta_range):
     th = thresholds(*key_main, domain)
+    limit = _range_limit(b_hat, ci95, beta_range)
     sign, words = _sign_words(prob_neg, ci95)
     conf = prob_neg if sign != "positive" else 1.0 - prob_neg
     verdict = (f"{words} with {100 * conf:.0f}% confidence (flat-prior probability of that "
@@ -268,6 +284,12 @@ def _finish(b_hat, ci68, ci95, se, prob_neg, method, groups, n_shots, e_mean, n_
     if sign == "undetermined":
         verdict = (f"{words}: P(beta~ < 0) = {100 * prob_neg:.0f}%, beta~ = {b_hat:.4g} "
                    f"(95%: {ci95[0]:.4g} .. {ci95[1]:.4g}), {_regime(b_hat, th, n_main)}")
+    if limit:
+        edge = beta_range[0] if limit == "low" else beta_range[1]
+        verdict += (f"; the {'low' if limit == 'low' else 'high'} end of the 95% interval is the "
+                    f"end of the sampled ladder (beta~ N = {edge * n_main:.3g}): the energy lies "
+                    f"at or beyond what the density of states covers, so beta~ may be "
+                    f"{'lower' if limit == 'low' else 'higher'} still")
     if flag:
         verdict += "; structure and energy disagree: not in equilibrium"
     return BetaEstimate(
@@ -275,7 +297,8 @@ def _finish(b_hat, ci68, ci95, se, prob_neg, method, groups, n_shots, e_mean, n_
         n_shots=n_shots, n_plus=key_main[0], n_minus=key_main[1], groups=groups,
         energy_per_vortex=float(e_mean), temperature_sign=sign, prob_negative=float(prob_neg),
         clustering=clustering, structure_betas=structure_betas, not_in_equilibrium=flag,
-        thresholds=th, regime=_regime(b_hat, th, n_main), verdict=verdict)
+        thresholds=th, regime=_regime(b_hat, th, n_main), verdict=verdict,
+        range_limited=limit)
 
 
 def _prepare(configs, domain, core_radius, dos_provider, cache_dir, settings, seed):
@@ -368,7 +391,7 @@ def estimate_ensemble(configs: Sequence, domain: Any, core_radius: float, *,
     e_mean = float(np.mean(np.concatenate([g.energies / (g.n_plus + g.n_minus) for g in gs])))
     return _finish(b_hat, ci68, ci95, se, prob_neg, "ensemble maximum likelihood", groups_t,
                    n_shots, e_mean, sum(key_main), key_main, domain, clustering,
-                   structure_betas, flag)
+                   structure_betas, flag, (lo, hi))
 
 
 #: the name thermo.compare looks for
@@ -427,4 +450,4 @@ def estimate_single(positions: Any, signs: Any, domain: Any, core_radius: float,
                   structure_observables(g.pos, _signs(*key_main)).items()}
     return _finish(b_mic, ci68, ci95, float(np.hypot(fisher, b_err)), prob_neg,
                    "microcanonical", ((*key_main, 1),), 1, e / sum(key_main), sum(key_main),
-                   key_main, domain, clustering, {}, False)
+                   key_main, domain, clustering, {}, False, (lo, hi))

@@ -433,6 +433,10 @@ def _vortex_dataset(f: h5py.File, name: str, rows: np.ndarray) -> h5py.Dataset:
     ds = f.create_dataset(name, data=rows, maxshape=(None,), chunks=(1024,))
     ds.attrs.update(unit_frame="1", unit_t="hbar/mu", unit_x="xi", unit_y="xi", unit_sign="1",
                     unit_track="1")
+    # the SI factors beside the table, so it can be read without the root attributes
+    for key, si_key in (("unit_length_m", "xi_in_m"), ("unit_time_s", "hbar_over_mu_in_s")):
+        if key in f.attrs:
+            ds.attrs[si_key] = float(f.attrs[key])
     return ds
 
 

@@ -77,3 +77,18 @@ def test_analyse_reports_beta_fields_for_a_window(tmp_path):
     for key in ("beta", "beta_ci68", "beta_ci95", "n_plus", "n_minus", "verdict", "frames"):
         assert key in rec
     assert rec["frames"] == 7
+
+
+def test_vortex_table_carries_its_si_factors(tmp_path):
+    import h5py
+
+    protocol = _protocol(tmp_path)
+    out = pipeline.simulate(protocol, tmp_path / "tiny.h5")
+    with h5py.File(out) as f:
+        attrs = f["vortices"].attrs
+        assert attrs["unit_x"] == "xi"
+        # xi = hbar / sqrt(m mu) [definition]; recomputed from scipy.constants
+        from scipy.constants import hbar
+        u = protocol.units
+        assert attrs["xi_in_m"] == pytest.approx(hbar / np.sqrt(u.mass_kg * u.mu_J), rel=1e-12)
+        assert attrs["hbar_over_mu_in_s"] == pytest.approx(hbar / u.mu_J, rel=1e-12)

@@ -92,3 +92,56 @@ def test_vortex_table_carries_its_si_factors(tmp_path):
         u = protocol.units
         assert attrs["xi_in_m"] == pytest.approx(hbar / np.sqrt(u.mass_kg * u.mu_J), rel=1e-12)
         assert attrs["hbar_over_mu_in_s"] == pytest.approx(hbar / u.mu_J, rel=1e-12)
+
+
+def _imprinted(tmp_path, name, vortices):
+    imprint = ", ".join(f"{{ x_xi = {x}, y_xi = {y}, sign = {s} }}" for x, y, s in vortices)
+    text = f"""
+units = "healing"
+name = "{name}"
+[atoms]
+species = "87Rb"
+chemical_potential_nK = 20.0
+axial_frequency_hz = 1000.0
+[trap]
+shape = "disk"
+radius_xi = 26.0
+[grid]
+nx = 64
+size_xi = 60.0
+[ground_state]
+dt_tau = 0.05
+max_steps = 400
+imprint = [{imprint}]
+[evolution]
+duration_tau = 4.0
+dt_tau = 0.05
+output_interval_tau = 1.0
+damping = 0.01
+"""
+    path = tmp_path / f"{name}.toml"
+    path.write_text(text)
+    return parse_protocol(text, source=str(path))
+
+
+def test_imprinted_clusters_read_negative_and_pairs_positive(tmp_path):
+    """End to end through the GP solver, the detector and the thermometry: two like-sign
+    clusters (large positive point-vortex energy, the clustered branch) must come out at
+    negative beta, four tight vortex-antivortex pairs (very negative energy) at positive beta.
+    [exact: the Kirchhoff-Routh energy of reference-values.md orders these configurations;
+    the sign of beta follows from E against the beta = 0 mean -N + (Q^2 - N)/4]"""
+    ring = [(3.2 * np.cos(a), 3.2 * np.sin(a)) for a in np.linspace(0, 2 * np.pi, 4, endpoint=False)]
+    clusters = [(9 + x, y, 1) for x, y in ring] + [(-9 + x, y, -1) for x, y in ring]
+    pairs = []
+    for cx, cy in ((8, 8), (-8, 8), (-8, -8), (8, -8)):
+        pairs += [(cx - 1.6, cy, 1), (cx + 1.6, cy, -1)]
+    results = {}
+    for name, vortices in (("clusters", clusters), ("pairs", pairs)):
+        out = pipeline.simulate(_imprinted(tmp_path, name, vortices), tmp_path / f"{name}.h5")
+        with RunFile.open(out) as run:
+            last = run.read_vortices()
+            last = last[last["frame"] == run.n_frames - 1]
+        assert (last["sign"] > 0).sum() == 4 and (last["sign"] < 0).sum() == 4
+        results[name] = pipeline.analyse(out, window=(0.0, 4.0), cache_dir=tmp_path / "dos")
+    assert results["clusters"]["beta_ci95"][1] < 0
+    assert results["pairs"]["beta_ci95"][0] > 0

@@ -351,19 +351,25 @@ def run_tempering(domain: Domain, n_plus: int, n_minus: int, betas, n_sweeps: in
 
 
 def default_ladder(n_plus: int, n_minus: int, core_radius: float, domain: Domain,
-                   n_temps: int = 24, beta_max: float = 2.0, overshoot: float = 1.15) -> np.ndarray:
+                   n_temps: int = 24, beta_max: float = 1.0, overshoot: float = 1.15) -> np.ndarray:
     """A beta ladder from +beta_max through 0 down to just beyond the like-sign collapse.
 
     The negative end is ``overshoot`` x (-2 / max(N+, N-)): a cluster of k like-sign vortices
     collapses once beta < -2/k (power counting; -4/N for a neutral gas, -2/N for one species,
-    reference-values.md), regularized here by the core. The top beta_max = 2 lies beyond the
-    pair-collapse bound beta = 1, which the core also regularizes. Spacing follows where
-    <E> changes fastest (the spacing should scale as 1/std(E)): for beta < 0 the points go as
+    reference-values.md), regularized here by the core. The top is the pair-collapse bound
+    beta_max = 1 (a +- pair at separation r weighs r^(1 - 2 beta) dr, integrable only for
+    beta < 1; the same holds for a vortex and its image): beyond it every pair sits at the
+    core and the statistics measure the core radius, not a point-vortex temperature, and
+    stirred condensates are not expected there. Rungs above 1 (the earlier top was 2) cost
+    sampling where no measurement falls and, because E hardly changes there, they are the
+    least precise part of beta(E). Spacing follows where <E> changes fastest (the spacing
+    should scale as 1/std(E)): for beta < 0 the points go as
     beta_min sin(pi t / 2), t uniform, crowding towards the clustering/collapse end; for
     beta > 0 as beta_max t^2, crowding towards beta = 0, where the free +- pairs bind and E
-    falls steeply, while beyond beta ~ 1 the pairs sit at the core and E changes slowly.
-    ~55 % of the points lie at negative beta.
-    This is a heuristic starting point: check ``TemperingResult.swap_acceptance``.
+    falls steeply. ~55 % of the points lie at negative beta.
+    This is a heuristic starting point: :func:`thermo.dos.build` refines it from a short
+    pilot run (equal increments of the integral of std(E) d beta); check
+    ``TemperingResult.swap_acceptance``.
 
     Parameters
     ----------

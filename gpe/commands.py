@@ -510,5 +510,20 @@ def _cmd_demo(args) -> int:
     return 0
 
 
+# --------------------------------------------------------------------------- describe
+def _register_describe(sub) -> None:
+    p = _add(sub, "describe", "list the observables recorded at every output time, with units")
+    p.set_defaults(handler=_cmd_describe)
+
+
+def _cmd_describe(args) -> int:
+    from gpe import diagnostics
+
+    print("observables stored in every run file (observables/<name>), simulation units:")
+    print(diagnostics.describe())
+    return 0
+
+
 REGISTRY = [_register_init, _register_run, _register_vortices, _register_plot,
-            _register_temperature, _register_compare, _register_sweep, _register_demo]
+            _register_temperature, _register_compare, _register_sweep, _register_demo,
+            _register_describe]

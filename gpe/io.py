@@ -31,14 +31,6 @@ FORMAT_VERSION = 1
 VORTEX_ROW = np.dtype([("frame", "<i8"), ("t", "<f8"), ("x", "<f8"), ("y", "<f8"),
                        ("sign", "i1"), ("track", "<i8")])
 
-#: Units of the observables the solver produces; other names are stored with unit "".
-OBSERVABLE_UNITS = {
-    "norm": "n0 xi^2", "e_kin": "mu n0 xi^2", "e_trap": "mu n0 xi^2", "e_int": "mu n0 xi^2",
-    "e_beam": "mu n0 xi^2", "energy": "mu n0 xi^2", "mu": "mu", "lz": "hbar n0 xi^2",
-    "atom_number": "1", "n_plus": "1", "n_minus": "1",
-}
-
-
 @dataclass(frozen=True)
 class Checkpoint:
     """State needed to resume: full-precision psi at time t after ``step`` steps, with
@@ -287,9 +279,12 @@ class RunFile:
             yield index, float(t), self._f["snapshots/psi"][index]
 
     def append_frame(self, t: float, psi: np.ndarray, observables: Mapping[str, float] | None = None,
-                     vortices: np.ndarray | None = None) -> int:
+                     vortices: np.ndarray | None = None,
+                     units: Mapping[str, str] | None = None) -> int:
         """Append one frame (snapshot, observables, vortex rows); returns its index.
 
+        ``units`` gives the unit of each observable, stored as its dataset's ``unit``
+        attribute when the dataset is first created (see gpe.diagnostics).
         Units: t in hbar/mu; psi in sqrt(n0); vortex x, y in xi.
         """
         f, n = self._f, self.n_frames
@@ -307,7 +302,7 @@ class RunFile:
                 ds = obs_group.create_dataset(name, shape=(n,), dtype=np.float64,
                                               maxshape=(None,), chunks=(256,), fillvalue=np.nan)
                 ds[...] = np.nan
-                ds.attrs["unit"] = OBSERVABLE_UNITS.get(name, "")
+                ds.attrs["unit"] = (units or {}).get(name, "")
             _append(obs_group[name], n, float(observables.get(name, np.nan)))
         if vortices is not None and len(vortices):
             rows = _vortex_rows(vortices, self.path)
@@ -344,7 +339,7 @@ class RunFile:
         f.flush()
 
     def read_observables(self) -> dict[str, np.ndarray]:
-        """Every observable of the complete frames, by name (units in :data:`OBSERVABLE_UNITS`)."""
+        """Every observable of the complete frames, by name (units: :meth:`observable_unit`)."""
         n = self.n_frames
         return {name: ds[:n] for name, ds in self._f["observables"].items()}
 

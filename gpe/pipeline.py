@@ -197,15 +197,14 @@ def simulate(protocol, out_path, *, resume: bool = False,
 
 
 def _write_frame(run, protocol, psi, t, v_static, beams, grid, region, frame) -> np.ndarray:
-    from gpe.solver import observables
+    from gpe import diagnostics
 
     v_beam = beams.potential(t, grid) if beams.n_beams else None
-    obs = observables(psi, grid, v_static, v_beam, 1.0)
-    obs["atom_number"] = protocol.units.atom_number(obs["norm"])
     rows = _detect(np.asarray(psi), grid, region, frame, t)
-    obs["n_plus"] = float(np.count_nonzero(rows["sign"] > 0))
-    obs["n_minus"] = float(np.count_nonzero(rows["sign"] < 0))
-    run.append_frame(t, psi, obs, vortices=rows)
+    state = diagnostics.FrameState(np.asarray(psi), t, grid, v_static, v_beam, 1.0,
+                                   protocol.units, rows)
+    run.append_frame(t, psi, diagnostics.evaluate(state), vortices=rows,
+                     units=diagnostics.units())
     return rows
 
 

@@ -120,7 +120,7 @@ def test_metadata_snapshots_and_vortex_replacement(tmp_path):
     rng = np.random.default_rng(3)
     rng.random(5)
     with _create(path, extra_attrs={"mu_run": 0.98}) as run:
-        run.append_frame(0.0, _psi0(), {"norm": 2.0})
+        run.append_frame(0.0, _psi0(), {"norm": 2.0}, units={"norm": "n0 xi^2"})
         run.write_checkpoint(_psi0().astype(np.complex128), 0.0, 0, rng=rng)
         run.replace_vortices(_rows(0, 0.0, 4))
         run.mark_complete()

@@ -203,3 +203,12 @@ def test_strict_stops_at_the_first_bad_row(tmp_path, capsys, rng):
     assert main(["temperature", str(table), "--disk-radius-um", "30", "--strict"]) == 2
     err = capsys.readouterr().err
     assert "shots.csv" in err and "line" in err and "sign" in err
+
+
+def test_describe_lists_every_observable_with_its_unit(capsys):
+    from gpe import diagnostics
+
+    assert main(["describe"]) == 0
+    out = capsys.readouterr().out
+    for name, d in diagnostics.REGISTRY.items():
+        assert name in out and d.unit in out

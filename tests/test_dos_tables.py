@@ -25,6 +25,12 @@ def test_tables_match_direct_reweighting(small_gas):
     assert ok.sum() >= 30
     assert np.all(np.abs(b_tab[ok] - b_dir[ok]) < 0.2 * err_dir[ok])
     np.testing.assert_allclose(err_tab[ok], err_dir[ok], rtol=0.1)
+    k_tab, kerr_tab = d.beta_micro(e, method="kernel")
+    k_dir, kerr_dir = d.beta_micro(e, method="kernel", direct=True)
+    ok = np.isfinite(k_dir) & np.isfinite(kerr_dir)
+    assert ok.sum() >= 30
+    assert np.all(np.abs(k_tab[ok] - k_dir[ok]) < 0.2 * kerr_dir[ok])
+    np.testing.assert_allclose(kerr_tab[ok], kerr_dir[ok], rtol=0.1)
     grid, mean, mean_err = d.canonical_curve("energy")
     beta = 0.5 * (grid[1:] + grid[:-1])[::7]
     direct, direct_err = d.mean_energy(beta)

@@ -213,11 +213,11 @@ class DensityOfStates:
             lw0 = lw0[keep] + np.log(counts[keep].astype(float))
             e, v = e[keep], v[keep]
         if is_energy:
-            _, mean, var, _ = dos_tables.tilted_moments(e, lw0, beta)
+            _, mean, var, _, _ = dos_tables.tilted_moments(e, lw0, beta)
             return mean, var
         shift = float(np.mean(v))
         vs = v - shift
-        _, _, _, vm = dos_tables.tilted_moments(e, lw0, beta, np.stack([vs, vs * vs]))
+        _, _, _, _, vm = dos_tables.tilted_moments(e, lw0, beta, np.stack([vs, vs * vs]))
         return vm[:, 0] + shift, vm[:, 1] - vm[:, 0] ** 2
 
     def _with_errors(self, fn, max_replicates: int | None = None):
@@ -361,9 +361,25 @@ class DensityOfStates:
             en = en[keep]
         return dos_tables.beta_micro_kernel(en, lw0, e, grid)
 
-    def beta_micro(self, energy: Any, n_grid: int = dos_tables.N_TILT, direct: bool = False
-                   ) -> tuple[np.ndarray, np.ndarray]:
+    def _beta_saddle(self, e: np.ndarray, ld, counts, grid: np.ndarray) -> np.ndarray:
+        lw0 = -ld
+        en = self.energies
+        if counts is not None:
+            keep = counts > 0
+            lw0 = lw0[keep] + np.log(counts[keep].astype(float))
+            en = en[keep]
+        _, mean, var, k3, _ = dos_tables.tilted_moments(en, lw0, grid)
+        return dos_tables.beta_saddle_from_cumulants(e, grid, mean, var, k3)
+
+    def beta_micro(self, energy: Any, n_grid: int = dos_tables.N_TILT, direct: bool = False,
+                   method: str = "saddle") -> tuple[np.ndarray, np.ndarray]:
         """Microcanonical beta(E) = dS/dE with a bootstrap standard error.
+
+        ``method="saddle"`` (default): beta_c(E) - kappa3 / (2 kappa2^2) from the canonical
+        cumulants at the canonical inverse beta_c(E) (derivation and O(1/N^2) remainder in
+        :func:`thermo.dos_tables.beta_saddle_from_cumulants`); it has nearly the precision
+        of the canonical curves. ``method="kernel"``: kernel estimate of the log derivative
+        of the tilted energy density (no expansion, but several times noisier).
 
         NaN outside :meth:`energy_range` (no samples there to differentiate). By default
         the value is interpolated from :attr:`tables` (computed once per density of
@@ -372,17 +388,21 @@ class DensityOfStates:
 
         Units: E in E0, beta in 1/E0.
         """
+        if method not in ("saddle", "kernel"):
+            raise SamplerError(f"beta_micro method = {method!r}; accepted: 'saddle', 'kernel'")
         e = np.atleast_1d(np.asarray(energy, float))
         if not direct and n_grid == dos_tables.N_TILT:
             t = self.tables
-            grid, val, err = t["energy"], t["beta_micro"], t["beta_micro_err"]
+            name = "beta_saddle" if method == "saddle" else "beta_micro"
+            grid, val, err = t["energy"], t[name], t[name + "_err"]
             inside = (e >= grid[0]) & (e <= grid[-1])
             b = np.where(inside, np.interp(e, grid, val), np.nan)
             be = np.where(inside, np.interp(e, grid, err), np.nan)
             return b, be
         lo, hi = self.beta_range
         grid = np.linspace(lo, hi, n_grid)
-        return self._with_errors(lambda ld, c: self._beta_micro(e, ld, c, grid))
+        fn = self._beta_saddle if method == "saddle" else self._beta_micro
+        return self._with_errors(lambda ld, c: fn(e, ld, c, grid))
 
     # ---------------------------------------------------------------- tables
     @property

@@ -8,7 +8,9 @@ the curves are computed once per density of states on fine grids and then interp
 * on a beta grid over the ladder: ln Z(beta) - ln Z(0) (central and every replicate),
   <E>, Var E and the structure observables with bootstrap errors;
 * on an energy grid over :meth:`~thermo.dos.DensityOfStates.energy_range`: the
-  microcanonical beta(E) = dS/dE and its bootstrap error.
+  microcanonical beta(E) = dS/dE and its bootstrap error, twice: by a kernel estimate of
+  the tilted energy density (:func:`beta_micro_kernel`) and by the saddle-point
+  (cumulant) expansion of :func:`beta_saddle_from_cumulants`.
 
 The grids are fine enough that interpolation errors are far below the bootstrap errors
 (checked in tests/test_dos_tables.py against the direct evaluation). Work is done in chunks of
@@ -24,7 +26,7 @@ from typing import Any
 import numpy as np
 
 #: bump when the content or grids of the tables change (stored tables are then recomputed)
-TABLE_VERSION = 3
+TABLE_VERSION = 4
 N_BETA = 161         # beta grid points for ln Z, <E>, Var E, observables
 N_ENERGY = 201       # energy grid points for beta_micro
 N_TILT = N_BETA      # beta grid inverting <E>(beta) inside beta_micro: the same grid, reused
@@ -39,7 +41,7 @@ def _lse_rows(a: np.ndarray) -> np.ndarray:
 
 def tilted_moments(energies: np.ndarray, lw0: np.ndarray, betas: np.ndarray,
                    values: np.ndarray | None = None
-                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray | None]:
+                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray | None]:
     """Moments under the weights exp(lw0 - beta E), chunked over beta.
 
     Parameters
@@ -49,8 +51,8 @@ def tilted_moments(energies: np.ndarray, lw0: np.ndarray, betas: np.ndarray,
 
     Returns
     -------
-    log_sum : (M,) ln sum_n exp(lw0 - beta E_n); mean, var : (M,) of E;
-    value_means : (M, V) or None.
+    log_sum : (M,) ln sum_n exp(lw0 - beta E_n); mean, var, kappa3 : (M,) first three
+    cumulants of E; value_means : (M, V) or None.
 
     Units: E in E0, beta in 1/E0.
     """
@@ -59,7 +61,7 @@ def tilted_moments(energies: np.ndarray, lw0: np.ndarray, betas: np.ndarray,
     es = e - shift
     b = np.atleast_1d(np.asarray(betas, float))
     m = b.size
-    log_sum, mean, var = np.empty(m), np.empty(m), np.empty(m)
+    log_sum, mean, var, k3 = np.empty(m), np.empty(m), np.empty(m), np.empty(m)
     vmeans = None if values is None else np.empty((m, values.shape[0]))
     rows = max(1, _CHUNK_ELEMENTS // max(e.size, 1))
     for start in range(0, m, rows):
@@ -73,11 +75,13 @@ def tilted_moments(energies: np.ndarray, lw0: np.ndarray, betas: np.ndarray,
         lw /= tot[:, None]
         m1 = lw @ es
         m2 = lw @ (es * es)
+        m3 = lw @ (es * es * es)
         mean[sl] = m1 + shift
         var[sl] = m2 - m1 * m1
+        k3[sl] = m3 - 3 * m1 * m2 + 2 * m1 ** 3
         if values is not None:
             vmeans[sl] = lw @ values.T
-    return log_sum, mean, var, vmeans
+    return log_sum, mean, var, k3, vmeans
 
 
 def beta_micro_kernel(energies: np.ndarray, lw0: np.ndarray, e: np.ndarray,
@@ -94,7 +98,7 @@ def beta_micro_kernel(energies: np.ndarray, lw0: np.ndarray, e: np.ndarray,
     """
     e = np.atleast_1d(np.asarray(e, float))
     if tilt_moments is None:
-        _, mean, var, _ = tilted_moments(energies, lw0, tilt_grid)
+        _, mean, var, _, _ = tilted_moments(energies, lw0, tilt_grid)
     else:
         mean, var = tilt_moments
     order = np.argsort(mean)
@@ -112,6 +116,62 @@ def beta_micro_kernel(energies: np.ndarray, lw0: np.ndarray, e: np.ndarray,
         kern = np.exp(lw - 0.5 * z * z)
         dlogp = -(kern * z).sum(axis=1) / (h * kern.sum(axis=1))
         out[idx] = b_tilt[idx] + dlogp
+    return out
+
+
+def beta_saddle_from_cumulants(e: np.ndarray, grid: np.ndarray, mean: np.ndarray,
+                               var: np.ndarray, kappa3: np.ndarray) -> np.ndarray:
+    """dS/dE from canonical cumulants: beta_c(E) - kappa3 / (2 kappa2^2) at beta_c(E).
+
+    Derivation. The canonical density of E is p_beta(E) = g(E) exp(-beta E) / Z(beta), so
+    for any beta, S(E) = ln g(E) = ln Z(beta) + beta E + ln p_beta(E) and
+
+        dS/dE = beta + d ln p_beta / dE      (beta held fixed).
+
+    Choose beta = beta_c(E), the canonical inverse (<E>_beta_c = E), so that E is the mean
+    of p_beta_c. Write p by its Edgeworth series in z = (E' - E)/sigma, sigma^2 = kappa2:
+    p = phi(z)/sigma [1 + kappa3/(6 sigma^3) He3(z) + O(1/N)] with He3 = z^3 - 3z. At z = 0
+    phi'/phi = 0 and He3'(0) = -3, so d ln p/dE = -kappa3 / (2 kappa2^2) + r, hence
+
+        beta_mic(E) = beta_c(E) - kappa3 / (2 kappa2^2),     kappa_n at beta_c(E).
+
+    For extensive cumulants (kappa_n ~ N) the correction is O(1/N) and the remainder r
+    is O(1/N^2): it collects kappa5 / (8 kappa2^3) (He5'(0) = 15) and kappa3 kappa4 /
+    kappa2^4 terms (He4'(0) = He6'(0) = 0, the even terms drop). For one vortex in a disk
+    (p_beta(E) proportional to exp((1 - beta) E), E < 0: kappa2 = (1 - beta)^-2,
+    kappa3 = -2 (1 - beta)^-3) the correction is 1 - beta_c, so beta_mic = 1 = dS/dE
+    exactly: the remainder vanishes there.
+
+    The inversion E -> beta_c uses cubic Hermite interpolation with the exact slope
+    d<E>/d beta = -kappa2 at each grid point (linear interpolation would make an error
+    ~ d beta^2 kappa3 / kappa2, as large as the correction where kappa2 is large).
+
+    Parameters
+    ----------
+    e : (M,) energies; grid : (G,) betas; mean, var, kappa3 : (G,) cumulants of E there.
+
+    Returns
+    -------
+    (M,) beta_mic; NaN outside the range of <E> over the grid.
+
+    Units: E in E0, beta in 1/E0.
+    """
+    from scipy.interpolate import CubicHermiteSpline
+
+    e = np.atleast_1d(np.asarray(e, float))
+    order = np.argsort(mean)
+    m, b, v = mean[order], grid[order], var[order]
+    keep = np.concatenate([[True], np.diff(m) > 0])   # strictly increasing knots
+    m, b, v = m[keep], b[keep], v[keep]
+    corr = (kappa3 / (2.0 * var * var))[order][keep]
+    out = np.full(e.shape, np.nan)
+    inside = (e >= m[0]) & (e <= m[-1]) & np.isfinite(e)
+    if m.size < 2 or not inside.any():
+        return out
+    b_c = CubicHermiteSpline(m, b, -1.0 / v)(e[inside])
+    # the correction is itself O(1/N) and smooth in beta: linear interpolation suffices
+    c_of_e = np.interp(b_c, b[::-1], corr[::-1])
+    out[inside] = b_c - c_of_e
     return out
 
 
@@ -139,14 +199,15 @@ def compute_tables(dos: Any) -> dict[str, np.ndarray]:
     names = sorted(dos.observables)
     vals_all = np.stack([dos.observables[k] for k in names]) if names else None
     sets = _replicate_lw0(dos)
-    log_z, mean, var, obs = [], [], [], []
+    log_z, mean, var, kap3, obs = [], [], [], [], []
     for e, lw0, keep in sets:
         vals = None if vals_all is None else (vals_all if keep is None else vals_all[:, keep])
-        ls, mu, v, vm = tilted_moments(e, lw0, grid, vals)
+        ls, mu, v, k3, vm = tilted_moments(e, lw0, grid, vals)
         ls0 = _lse_rows(lw0[None, :])[0]
         log_z.append(ls - ls0)
         mean.append(mu)
         var.append(v)
+        kap3.append(k3)
         obs.append(vm)
     # energy grid: uniform in E, plus the images <E>(beta) of the beta grid, which crowd
     # where beta(E) bends fastest (the high-beta end); ends = <E> at the ladder's ends
@@ -155,6 +216,8 @@ def compute_tables(dos: Any) -> dict[str, np.ndarray]:
                                        np.clip(mean[0], e_lo, e_hi)]))
     micro = np.array([beta_micro_kernel(e, lw0, e_grid, grid, (mu, v))
                       for (e, lw0, _), mu, v in zip(sets, mean, var)])
+    saddle = np.array([beta_saddle_from_cumulants(e_grid, grid, mu, v, k3)
+                       for mu, v, k3 in zip(mean, var, kap3)])
 
     def err(stack):
         reps = np.asarray(stack[1:])
@@ -167,7 +230,8 @@ def compute_tables(dos: Any) -> dict[str, np.ndarray]:
                log_z_reps=np.array(log_z[1:]).reshape(len(sets) - 1, N_BETA),
                mean_energy=mean[0], mean_energy_err=err(mean),
                var_energy=var[0], var_energy_err=err(var),
-               energy=e_grid, beta_micro=micro[0], beta_micro_err=err(micro))
+               energy=e_grid, beta_micro=micro[0], beta_micro_err=err(micro),
+               beta_saddle=saddle[0], beta_saddle_err=err(saddle))
     for i, name in enumerate(names):
         stack = [o[:, i] for o in obs]
         out[f"obs__{name}"] = stack[0]
@@ -180,5 +244,5 @@ def tables_valid(tables: dict | None, dos: Any) -> bool:
     if not tables or int(tables.get("version", -1)) != TABLE_VERSION:
         return False
     need = {"beta", "log_z", "log_z_reps", "mean_energy", "var_energy", "energy",
-            "beta_micro", "beta_micro_err"} | {f"obs__{k}" for k in dos.observables}
+            "beta_micro", "beta_micro_err", "beta_saddle", "beta_saddle_err"} | {f"obs__{k}" for k in dos.observables}
     return need <= set(tables) and tables["log_z_reps"].shape[0] == dos.boot_f.shape[0]

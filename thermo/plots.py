@@ -39,15 +39,18 @@ def plot_temperature_series(result: dict, path) -> Path:
     ax.axhspan(-1e3, 0, color=WARM, zorder=0, label="negative temperature")
     ax.fill_between(x, lo * n, hi * n, color=BAND, alpha=0.3, lw=0, label="95% interval")
     ax.plot(x, beta * n, "o-", color=BAND, ms=3, label=r"$\tilde\beta N$ (microcanonical)")
-    th_done = set()
+    # thresholds of the most common vortex number, in beta~N; the label of the lower line goes
+    # below it and that of the upper line above it, since the two lie close
+    lines = {}
     for r in recs:
+        nn = r["n_plus"] + r["n_minus"]
         for name, value in r.get("thresholds", {}).items():
-            if name in ("clustering_onset", "like_sign_collapse") and name not in th_done:
-                nn = r["n_plus"] + r["n_minus"]
-                ax.axhline(value * nn, color="0.45", ls="--", lw=1)
-                ax.text(x[0], value * nn, " " + name.replace("_", " ") + r" ($\tilde\beta N$)",
-                        va="bottom", fontsize=8, color="0.3")
-                th_done.add(name)
+            if name in ("clustering_onset", "like_sign_collapse") and name not in lines:
+                lines[name] = value * nn
+    for k, (name, level) in enumerate(sorted(lines.items(), key=lambda item: item[1])):
+        ax.axhline(level, color="0.45", ls="--", lw=1)
+        ax.text(x[0], level, " " + name.replace("_", " "), fontsize=8, color="0.3",
+                va="top" if k == 0 else "bottom")
     finite = np.isfinite(beta * n)
     if finite.any():
         span = np.nanmax(np.abs(np.concatenate([lo[finite] * n[finite], hi[finite] * n[finite]])))

@@ -138,18 +138,18 @@ def test_frame_rows_and_table_errors():
         frame_rows(table, 5, n_frames=4)
 
 
-def test_relaxed_random_configuration_found_exactly(rng):
-    """After a short imaginary-time relaxation (gpe.solver.find_ground_state with the vortex
-    phase pinned) in a hard-wall disk: every vortex found with its sign, no extras (nothing
-    in the wall or outside). Positions: within 0.12 xi (0.5 dx) of the imprinted centres.
-    For isolated vortices the relaxed zeros stay within 0.02 xi, but next to 3 xi neighbours
-    they move by up to ~0.1 xi during this relaxation (0.22 xi at dx = 0.5), so the imprinted
-    centres are not the exact zeros of the relaxed field; the 0.1 dx detector accuracy is
-    checked on exact synthetic fields above."""
+@pytest.mark.parametrize("n", [128, 256])
+def test_relaxed_random_configuration_found_exactly(rng, n):
+    """After a short imaginary-time relaxation of the cores (gpe.solver.find_ground_state with
+    the vortices held) in a hard-wall disk, dx = 0.5 and 0.25 xi: every vortex found with its
+    sign, no extras (nothing in the wall or outside), positions within 0.1 grid spacing of the
+    imprinted centres (requirement of the brief). find_ground_state holds the zeros of the
+    field at the imprinted centres (test_ground_state.py checks that on the Fourier
+    interpolant of the field, independently of this detector), so the imprint is the truth."""
     from gpe.grid import Grid
     from gpe.solver import find_ground_state
 
-    grid = Grid(256, 256, 64.0, 64.0)
+    grid = Grid(n, n, 64.0, 64.0)
     r = np.hypot(grid.X, grid.Y)
     trap = 10.0 * (1.0 + np.tanh((r - 28.0) / 0.5))      # tanh-walled disk (common practice)
     positions, signs = random_configuration(rng, 30, 24.0, 3.0, radius=24.0)
@@ -160,4 +160,4 @@ def test_relaxed_random_configuration_found_exactly(rng):
     dist, same_sign, nearest = match(det, positions, signs)
     assert np.unique(nearest).size == len(positions)
     assert same_sign.all()
-    assert dist.max() < 0.12
+    assert dist.max() < 0.1 * grid.dx

@@ -225,8 +225,16 @@ def _vortex_holds(grid: Grid, positions, signs, core_size: float, dtype):
     """Phase factor (0 inside the free core disks) and zero constraint of imprinted vortices."""
     pos = np.asarray(positions, dtype=np.float64).reshape(-1, 2)
     phase_factor = winding_phase(grid, pos, signs).astype(dtype)
+    radius = _FREE_CORE_RADIUS * core_size
+    hx, hy = int(np.ceil(radius / grid.dx)) + 1, int(np.ceil(radius / grid.dy)) + 1
     for (x0, y0) in pos:
-        phase_factor[np.hypot(grid.X - x0, grid.Y - y0) < _FREE_CORE_RADIUS * core_size] = 0.0
+        # a local box per core (periodic indices) instead of a distance over the whole grid
+        ix, iy = int(np.rint((x0 - grid.x[0]) / grid.dx)), int(np.rint((y0 - grid.y[0]) / grid.dy))
+        cols, rows = np.arange(ix - hx, ix + hx + 1), np.arange(iy - hy, iy + hy + 1)
+        inside = np.hypot(grid.x[0] + cols[None, :] * grid.dx - x0,
+                          grid.y[0] + rows[:, None] * grid.dy - y0) < radius
+        box = np.ix_(rows % grid.ny, cols % grid.nx)
+        phase_factor[box] = np.where(inside, 0.0, phase_factor[box])
     return phase_factor, _ZeroHold(grid, pos, core_size)
 
 

@@ -278,10 +278,11 @@ class _ZeroHold:
                 "coincide to within ~1e-4 of the correction width "
                 f"{sigma:.3g} xi); give distinct positions")
         self.ainv = np.linalg.inv(a) if a.size else a
+        self.values = np.zeros(pos.shape[0], dtype=np.complex128)   # work array of apply()
 
     def apply(self, psi: np.ndarray) -> None:
         _hold_zeros(psi, self.rows, self.cols, self.wy, self.wx, self.ainv,
-                    self.g_rows, self.g_cols, self.gy, self.gx)
+                    self.g_rows, self.g_cols, self.gy, self.gx, self.values)
 
 
 def _axis_setup(coord, origin, h, n, nodes, sigma):
@@ -311,10 +312,12 @@ def _bump_on(stencil, centre, f, h, n, half, sigma):
 
 
 @njit(cache=True)
-def _hold_zeros(psi, rows, cols, wy, wx, ainv, g_rows, g_cols, gy, gx):
-    """psi -= sum_j c_j bump_j with c = ainv @ (interpolated psi at the centres), in place."""
+def _hold_zeros(psi, rows, cols, wy, wx, ainv, g_rows, g_cols, gy, gx, val):
+    """psi -= sum_j c_j bump_j with c = ainv @ (interpolated psi at the centres), in place.
+
+    ``val`` (M,) complex128 is a work array.
+    """
     m = rows.shape[0]
-    val = np.zeros(m, dtype=np.complex128)
     for k in range(m):
         acc = 0j
         for a in range(rows.shape[1]):

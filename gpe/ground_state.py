@@ -19,7 +19,7 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-from numba import njit, prange
+from numba import njit
 
 from gpe import kernels
 from gpe.errors import SimulationError, VorthermError
@@ -186,7 +186,7 @@ def _relax(grid, psi, fftb, v_trap, v_beam, v_kernel, g, norm, shift, dt, tol, c
                     f"{total}); dt = {dt} is probably too large for the potential height "
                     f"(max V = {v_kernel.max():.3g}); reduce dt or use a finer guess")
             if phase_factor is not None:
-                _pin_phase_where_set(psi, phase_factor)
+                kernels.pin_phase(psi, phase_factor)
                 hold.apply(psi)
             fftb.forward(psi)
             if j == chunk - 1:
@@ -200,7 +200,7 @@ def _relax(grid, psi, fftb, v_trap, v_beam, v_kernel, g, norm, shift, dt, tol, c
         steps += chunk
         if phase_factor is not None:
             # the closing kinetic half step drifts the zeros a little: hold them again
-            _pin_phase_where_set(psi, phase_factor)
+            kernels.pin_phase(psi, phase_factor)
             hold.apply(psi)
         renormalise()
         obs = observables(psi, grid, v_trap, v_beam, g)
@@ -236,17 +236,6 @@ def _vortex_holds(grid: Grid, positions, signs, core_size: float, dtype):
         box = np.ix_(rows % grid.ny, cols % grid.nx)
         phase_factor[box] = np.where(inside, 0.0, phase_factor[box])
     return phase_factor, _ZeroHold(grid, pos, core_size)
-
-
-@njit(cache=True, parallel=True)
-def _pin_phase_where_set(psi, phase_factor):
-    """psi <- |psi| phase_factor where phase_factor != 0; elsewhere psi is left alone."""
-    ny, nx = psi.shape
-    for j in prange(ny):
-        for i in range(nx):
-            f = phase_factor[j, i]
-            if f.real != 0.0 or f.imag != 0.0:
-                psi[j, i] = abs(psi[j, i]) * f
 
 
 class _ZeroHold:

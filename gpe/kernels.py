@@ -364,11 +364,15 @@ def scale_inplace(psi, scale):
 
 @njit(cache=True, error_model="numpy", parallel=True, fastmath=_FASTMATH)
 def pin_phase(psi, phase_factor):
-    """Replace the phase of ``psi`` by that of the unit-modulus ``phase_factor``. Units: none."""
+    """Replace the phase of ``psi`` by that of the unit-modulus ``phase_factor`` wherever the
+    factor is non-zero; where it is zero (e.g. inside vortex cores) ``psi`` is left alone.
+    Units: none."""
     ny, nx = psi.shape
     for j in prange(ny):
         for i in range(nx):
-            psi[j, i] = abs(psi[j, i]) * phase_factor[j, i]
+            f = phase_factor[j, i]
+            if f.real != 0.0 or f.imag != 0.0:
+                psi[j, i] = abs(psi[j, i]) * f
 
 
 @njit(cache=True, error_model="numpy", parallel=True, fastmath=_FASTMATH)

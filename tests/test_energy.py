@@ -10,7 +10,7 @@ from thermo.errors import ConfigurationError
 
 
 def disk_energy_numpy(pos, signs):
-    """Straightforward numpy transcription of the disk formula [pub: Lin, PNAS 27, 570 (1941);
+    """Straightforward numpy rendering of the disk formula [pub: Lin, PNAS 27, 570 (1941);
     form and normalization as in reference-values.md]."""
     u = pos[:, 0] + 1j * pos[:, 1]
     e = np.log(1 - abs(u) ** 2).sum()

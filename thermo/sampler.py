@@ -130,8 +130,8 @@ def integrated_autocorr_time(x: np.ndarray, c: float = 5.0) -> float:
 
     .. math:: \\tau_{int}(M) = 1 + 2\\sum_{t=1}^{M} \\rho(t),
 
-    taking the smallest window M with M >= c tau_int(M) [Sokal, Monte Carlo Methods in
-    Statistical Mechanics (1996 lectures, Cargese); c = 5 is common practice]. With this
+    taking the smallest window M with M >= c tau_int(M) [A. D. Sokal, "Monte Carlo Methods in
+    Statistical Mechanics: Foundations and New Algorithms" (1996); c = 5 is common practice]. With this
     definition the variance of the mean is tau_int Var(x) / n and the effective sample size
     n / tau_int.
 

@@ -352,22 +352,23 @@ class DensityOfStates:
         m = self._moments(np.array([hi, lo]), self.energies, self.log_denom, None)[0]
         return float(m[0]), float(m[1])
 
-    def _beta_micro(self, e: np.ndarray, ld, counts, grid: np.ndarray) -> np.ndarray:
+    def _weighted_energies(self, ld, counts) -> tuple[np.ndarray, np.ndarray]:
+        """Pooled energies and their log weights at beta = 0 (a bootstrap replicate's counts
+        applied when given)."""
         lw0 = -ld
         en = self.energies
         if counts is not None:
             keep = counts > 0
             lw0 = lw0[keep] + np.log(counts[keep].astype(float))
             en = en[keep]
+        return en, lw0
+
+    def _beta_micro(self, e: np.ndarray, ld, counts, grid: np.ndarray) -> np.ndarray:
+        en, lw0 = self._weighted_energies(ld, counts)
         return dos_tables.beta_micro_kernel(en, lw0, e, grid)
 
     def _beta_saddle(self, e: np.ndarray, ld, counts, grid: np.ndarray) -> np.ndarray:
-        lw0 = -ld
-        en = self.energies
-        if counts is not None:
-            keep = counts > 0
-            lw0 = lw0[keep] + np.log(counts[keep].astype(float))
-            en = en[keep]
+        en, lw0 = self._weighted_energies(ld, counts)
         _, mean, var, k3, _ = dos_tables.tilted_moments(en, lw0, grid)
         return dos_tables.beta_saddle_from_cumulants(e, grid, mean, var, k3)
 

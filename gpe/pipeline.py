@@ -123,7 +123,6 @@ def simulate(protocol, out_path, *, resume: bool = False,
     pathlib.Path of the run file.
     """
     from gpe.io import RunFile
-    from gpe.solver import Solver, SolverSettings
 
     out_path = Path(out_path)
     grid = protocol.grid
@@ -144,6 +143,7 @@ def simulate(protocol, out_path, *, resume: bool = False,
         psi0, t0, step0, frame0 = ck.psi, ck.t, ck.step, ck.frame
         mu_run = run.attrs_float("mu_run")
         run.truncate_to_frame(frame0)
+        solver = _make_solver(protocol, v_static, beams, mu_run, psi0, t0, step0, threads)
     else:
         gs, psi0 = _initial_state(protocol, v_static, beams, threads)
         if not gs.converged:
@@ -152,6 +152,8 @@ def simulate(protocol, out_path, *, resume: bool = False,
                           f"after {gs.steps} steps (mu = {gs.mu:.6g}); raise "
                           "ground_state.max_steps or dt", stacklevel=2)
         mu_run = gs.mu
+        # the solver checks the time step against the potential: fail before writing a file
+        solver = _make_solver(protocol, v_static, beams, mu_run, psi0, 0.0, 0, threads)
         tmp = out_path.with_name(out_path.name + ".part")
         tmp.unlink(missing_ok=True)  # left by a run killed before its first checkpoint
         run = RunFile.create(tmp, protocol=protocol, static_potential=v_static,
@@ -165,9 +167,6 @@ def simulate(protocol, out_path, *, resume: bool = False,
         run = RunFile.open(out_path, "r+")
         frame0 = 1
 
-    settings = SolverSettings(dt=ev.dt, gamma=ev.gamma, mu=mu_run, g=1.0,
-                              precision=ev.precision, threads=threads)
-    solver = Solver(grid, v_static, beams, settings, psi0, t0=t0, step0=step0)
     frame = frame0
     last_ck_wall = time.monotonic()
     since_ck = 0
@@ -194,6 +193,15 @@ def simulate(protocol, out_path, *, resume: bool = False,
     finally:
         run.close()
     return out_path
+
+
+def _make_solver(protocol, v_static, beams, mu_run, psi0, t0, step0, threads):
+    from gpe.solver import Solver, SolverSettings
+
+    ev = protocol.evolution
+    settings = SolverSettings(dt=ev.dt, gamma=ev.gamma, mu=mu_run, g=1.0,
+                              precision=ev.precision, threads=threads)
+    return Solver(protocol.grid, v_static, beams, settings, psi0, t0=t0, step0=step0)
 
 
 def _write_frame(run, protocol, psi, t, v_static, beams, grid, region, frame) -> np.ndarray:

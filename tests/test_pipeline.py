@@ -145,3 +145,13 @@ def test_imprinted_clusters_read_negative_and_pairs_positive(tmp_path):
         results[name] = pipeline.analyse(out, window=(0.0, 4.0), cache_dir=tmp_path / "dos")
     assert results["clusters"]["beta_ci95"][1] < 0
     assert results["pairs"]["beta_ci95"][0] > 0
+
+
+def test_time_step_too_large_for_the_beam_fails_before_any_file(tmp_path):
+    from gpe.errors import SimulationError
+
+    protocol = _protocol(tmp_path, ["beams.0.height_mu=200.0", "evolution.dt_tau=0.1",
+                                    "evolution.output_interval_tau=1.0"])
+    with pytest.raises(SimulationError, match="too large"):
+        pipeline.simulate(protocol, tmp_path / "steep.h5")
+    assert not list(tmp_path.glob("steep.h5*"))

@@ -154,6 +154,7 @@ def simulate(protocol, out_path, *, resume: bool = False,
         mu_run = gs.mu
         # the solver checks the time step against the potential: fail before writing a file
         solver = _make_solver(protocol, v_static, beams, mu_run, psi0, 0.0, 0, threads)
+        out_path.parent.mkdir(parents=True, exist_ok=True)
         tmp = out_path.with_name(out_path.name + ".part")
         tmp.unlink(missing_ok=True)  # left by a run killed before its first checkpoint
         run = RunFile.create(tmp, protocol=protocol, static_potential=v_static,

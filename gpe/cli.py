@@ -10,7 +10,6 @@ from __future__ import annotations
 import argparse
 import sys
 import warnings
-from pathlib import Path
 
 from gpe.errors import VorthermError
 

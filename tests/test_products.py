@@ -1,0 +1,45 @@
+"""What is made from a finished run: re-detected vortex tables in SI and the figures."""
+
+import csv
+
+import h5py
+import numpy as np
+import pytest
+
+from gpe import products
+from gpe.errors import VorthermError
+from gpe.io import RunFile
+
+
+def test_redetect_exports_si_and_changes_the_run_only_when_stored(tiny_run, tmp_path):
+    with RunFile.open(tiny_run) as run:
+        stored = run.read_vortices()
+        length_m = run.units()["length_m"]
+        time_s = run.units()["time_s"]
+    table, _, path = products.redetect(tiny_run, threshold=0.2, csv_path=tmp_path / "v.csv")
+    rows = list(csv.DictReader(line for line in path.open() if not line.startswith("#")))
+    assert len(rows) == table.size
+    if table.size:
+        # micrometres and milliseconds from the stored SI factors [definition of the units]
+        assert float(rows[0]["x_um"]) == pytest.approx(table["x"][0] * length_m * 1e6, rel=1e-5)
+        assert float(rows[0]["t_ms"]) == pytest.approx(table["t"][0] * time_s * 1e3, rel=1e-5)
+    with h5py.File(tiny_run) as f:
+        np.testing.assert_array_equal(f["vortices"][...], stored)
+    # a stricter threshold, stored: the table is replaced as a whole
+    strict, _, _ = products.redetect(tiny_run, threshold=0.9, store=True,
+                                     csv_path=tmp_path / "v2.csv")
+    with RunFile.open(tiny_run) as run:
+        assert run.read_vortices().size == strict.size <= table.size
+
+
+def test_store_needs_every_frame(tiny_run, tmp_path):
+    with pytest.raises(VorthermError, match="every"):
+        products.redetect(tiny_run, frames=[0], store=True, csv_path=tmp_path / "v.csv")
+
+
+def test_figures_are_written_for_the_chosen_frames(tiny_run, tmp_path):
+    written = products.make_figures(tiny_run, tmp_path / "fig", frames=[0, -1])
+    names = {p.name for p in written}
+    assert {"tiny_density_phase.png", "tiny_vortex_counts.png", "tiny_energies.png",
+            "tiny_spectra_frame0.png", "tiny_spectra_frame5.png"} <= names
+    assert all(p.stat().st_size > 5000 for p in written)

@@ -168,6 +168,7 @@ def _cmd_compare(args) -> int:
     from gpe.io import RunFile
     from gpe.thermometry import dos_settings
     from thermo import compare as cmp
+    from thermo import plots as thermo_plots
     from thermo.degrade import ImagingModel, degrade_many
     from thermo.measured import read_measured
 
@@ -211,7 +212,7 @@ def _cmd_compare(args) -> int:
     csv_path = cmp.write_csv(comparison, stem.with_suffix(".csv"))
     json_path = cmp.write_json(comparison, stem.with_suffix(".json"))
     fig_path = stem.with_suffix(".png")
-    cmp.plot_comparison(comparison, fig_path, length_scale_um=scale_um)
+    thermo_plots.plot_comparison(comparison, fig_path, length_scale_um=scale_um)
     if args.json:
         print(json.dumps(cmp.comparison_to_dict(comparison), indent=1, allow_nan=True))
     else:

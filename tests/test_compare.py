@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from thermo.compare import (
-    QUANTITIES, CompareError, compare_ensembles, plot_comparison, shot_statistics, write_csv,
+    QUANTITIES, CompareError, compare_ensembles, shot_statistics, write_csv,
     write_json,
 )
 from thermo.degrade import ImagingModel, degrade_many
@@ -112,14 +112,6 @@ def test_writers_round_trip(tmp_path, rng):
              if not ln.startswith("#")]
     assert lines[0].startswith("quantity,unit,simulation,measured,difference,ci95_low")
     assert len(lines) == 1 + len(res.rows)
-
-
-def test_figure_draws(tmp_path, rng):
-    res = compare_ensembles(_uniform_shots(rng, 10), _uniform_shots(rng, 8), Disk(), 0.02,
-                            include_beta=False, n_boot=200, n_permutations=200)
-    fig = plot_comparison(res, tmp_path / "c.png", length_scale_um=40.0)
-    assert (tmp_path / "c.png").stat().st_size > 10_000
-    assert len(fig.axes) == 15
 
 
 def test_bad_input_raises(rng):

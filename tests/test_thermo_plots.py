@@ -43,3 +43,26 @@ def test_temperature_figure_is_labelled_and_marks_thresholds(tmp_path):
     assert "clustering onset" in labels and "like sign collapse" in labels
     levels = sorted(line.get_ydata()[0] for line in axes[0].lines if line.get_linestyle() == "--")
     assert levels[0] == -4.0 and abs(levels[1] + 3.6705) < 1e-3
+
+
+def test_comparison_figure_draws_every_panel(tmp_path, rng):
+    import numpy as np
+
+    from thermo.compare import compare_ensembles
+    from thermo.domains import Disk
+    from thermo.plots import plot_comparison
+
+    def shots(n_shots):
+        out = []
+        for _ in range(n_shots):
+            n = int(rng.integers(10, 20))
+            out.append((Disk().sample_uniform(rng, n), np.repeat([1, -1], [n // 2, n - n // 2])))
+        return out
+
+    res = compare_ensembles(shots(10), shots(8), Disk(), 0.02, include_beta=False, n_boot=200,
+                            n_permutations=200)
+    fig = plot_comparison(res, tmp_path / "c.png", length_scale_um=40.0)
+    assert (tmp_path / "c.png").stat().st_size > 10_000
+    # nine per-shot histograms, g_like, g_opposite, two example configurations, the table
+    assert len(fig.axes) == 15
+    assert all(ax.get_xlabel() for ax in fig.axes[:9])

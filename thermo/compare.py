@@ -14,7 +14,8 @@ beta is not a per-shot quantity: each side gets one ensemble estimate from
 :mod:`thermo.estimate`; its difference, interval and p-value come from the two stated
 standard errors (normal approximation), and the KS column is empty for it.
 
-The figure (:func:`plot_comparison`) imports matplotlib lazily with the Agg backend.
+The figure (:func:`thermo.plots.plot_comparison`, also reachable here) imports matplotlib
+lazily with the Agg backend.
 """
 
 from __future__ import annotations
@@ -427,104 +428,10 @@ def pooled_pair_correlation(configurations: Sequence[Configuration], domain: Any
         return r, np.where(den_l > 0, num_l / den_l, np.nan), np.where(den_o > 0, num_o / den_o, np.nan)
 
 
-def _domain_outline(ax: Any, domain: Any, scale: float) -> None:
-    kind = getattr(domain, "kind", "disk")
-    if kind == "disk":
-        th = np.linspace(0, 2 * np.pi, 200)
-        ax.plot(scale * np.cos(th), scale * np.sin(th), color="0.3", lw=1)
-    else:
-        pts = np.asarray(domain.sample_uniform(np.random.default_rng(0), 20000))
-        x0, y0 = pts.min(axis=0)
-        x1, y1 = pts.max(axis=0)
-        ax.plot(scale * np.array([x0, x1, x1, x0, x0]), scale * np.array([y0, y0, y1, y1, y0]),
-                color="0.3", lw=1)
+def __getattr__(name: str):
+    """``plot_comparison`` lives in thermo.plots (figures sit at the edge); forwarded here."""
+    if name == "plot_comparison":
+        from thermo.plots import plot_comparison
 
-
-def plot_comparison(comparison: Comparison, path: str | Path | None = None, *,
-                    length_scale_um: float | None = None, example: int = 0) -> Any:
-    """Figure: per-shot histograms overlaid, g++(r) and g+-(r) of both sides, and one
-    example configuration of each side drawn to the same scale.
-
-    Parameters
-    ----------
-    comparison : result of :func:`compare_ensembles`.
-    path : if given, the figure is saved there (format from the suffix).
-    length_scale_um : if given, example configurations are drawn in micrometres.
-    example : index of the shot drawn from each side.
-
-    Returns
-    -------
-    matplotlib.figure.Figure
-
-    Units: histogram axes as in ``QUANTITIES``; r and positions in units of the domain
-    size (or um with ``length_scale_um``).
-    """
-    import matplotlib
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    colours = ("#1b7837", "#762a83")  # simulation, measured
-    fig, axes = plt.subplots(3, 5, figsize=(17, 10), constrained_layout=True)
-    flat = axes.ravel()
-    for ax, name in zip(flat[:9], QUANTITIES):
-        a, b = comparison.per_shot[name]
-        a, b = a[np.isfinite(a)], b[np.isfinite(b)]
-        both = np.concatenate([a, b])
-        if both.size == 0:
-            ax.set_axis_off()
-            continue
-        edges = np.histogram_bin_edges(both, bins=min(30, max(5, int(np.sqrt(both.size)))))
-        for vals, c, lab in ((a, colours[0], comparison.labels[0]),
-                             (b, colours[1], comparison.labels[1])):
-            ax.hist(vals, bins=edges, density=True, histtype="step", lw=1.8, color=c, label=lab)
-        row = next((r for r in comparison.rows if r.quantity == name), None)
-        ptxt = f"p_KS={row.p_ks:.2g}, p_perm={row.p_permutation:.2g}" if row else ""
-        ax.set_title(f"{name}\n{ptxt}", fontsize=9)
-        ax.set_xlabel(QUANTITIES[name][0], fontsize=8)
-    flat[0].legend(fontsize=8)
-
-    scale = 1.0 if length_scale_um is None else float(length_scale_um)
-    unit = "domain size" if length_scale_um is None else "um"
-    pts = np.asarray(comparison.domain.sample_uniform(np.random.default_rng(0), 20000))
-    # the last bins near the diameter hold almost no reference pairs and are pure noise
-    r_max = 0.9 * float(np.linalg.norm(pts.max(axis=0) - pts.min(axis=0)))
-    for ax, which, title in ((flat[9], 1, "g_like(r) (++ and --)"),
-                             (flat[10], 2, "g_+-(r)")):
-        for configs, c, lab in ((comparison.simulation, colours[0], comparison.labels[0]),
-                                (comparison.measured, colours[1], comparison.labels[1])):
-            res = pooled_pair_correlation(configs, comparison.domain, r_max)
-            ax.plot(scale * res[0], res[which], color=c, marker=".", label=lab)
-        ax.axhline(1.0, color="0.6", lw=0.8, ls="--")
-        ax.set_title(title, fontsize=9)
-        ax.set_xlabel(f"r ({unit})", fontsize=8)
-    for ax, configs, lab in ((flat[11], comparison.simulation, comparison.labels[0]),
-                             (flat[12], comparison.measured, comparison.labels[1])):
-        pos, s = configs[min(example, len(configs) - 1)]
-        _domain_outline(ax, comparison.domain, scale)
-        plus, minus = s > 0, s < 0
-        ax.scatter(scale * pos[plus, 0], scale * pos[plus, 1], s=40, marker="o",
-                   facecolor="#f4a582", edgecolor="#b2182b", label="+")
-        ax.scatter(scale * pos[minus, 0], scale * pos[minus, 1], s=44, marker="^",
-                   facecolor="#92c5de", edgecolor="#2166ac", label="-")
-        ax.set_aspect("equal")
-        ax.set_title(f"{lab}: one shot\nN+={int(plus.sum())}, N-={int(minus.sum())}",
-                     fontsize=9)
-        ax.set_xlabel(f"x ({unit})", fontsize=8)
-        ax.legend(fontsize=7, loc="upper right")
-    lims = [flat[11].get_xlim(), flat[12].get_xlim(), flat[11].get_ylim(), flat[12].get_ylim()]
-    lo, hi = min(v[0] for v in lims), max(v[1] for v in lims)
-    for ax in (flat[11], flat[12]):
-        ax.set_xlim(lo, hi)
-        ax.set_ylim(lo, hi)
-    text = [f"{r.quantity}: {r.simulation:.3g} vs {r.measured:.3g}"
-            f"{'  *' if r.significant else ''}" for r in comparison.rows]
-    # the notes (long verdict sentences) are in the CSV/JSON; here only the table, so the
-    # text panel does not stretch the layout
-    flat[13].text(0.0, 1.0, "\n".join(["sim vs measured (* differs at 5%)"] + text),
-                  va="top", fontsize=8, family="monospace", transform=flat[13].transAxes)
-    flat[13].set_axis_off()
-    flat[14].set_axis_off()
-    flat[9].legend(fontsize=8)
-    if path is not None:
-        fig.savefig(path, dpi=110)
-    return fig
+        return plot_comparison
+    raise AttributeError(f"module 'thermo.compare' has no attribute {name!r}")

@@ -7,8 +7,10 @@ potential u_k(x) = beta_k E(x), so the self-consistent MBAR equations
 .. math::
     f_i = -\\ln \\sum_n \\frac{e^{-\\beta_i E_n}}{\\sum_k N_k e^{f_k - \\beta_k E_n}}
 
-involve only the pooled energies. They are solved here by Newton's method on the convex
-MBAR objective (K ~ 20 states, so the K x K Hessian is cheap); this takes a handful of
+involve only the pooled energies, which are therefore binned finely in E (width
+0.05 / max |beta|, :func:`thermo.dos_tables.energy_bins`) before solving. They are solved
+by Newton's method on the convex MBAR objective (K ~ 20 states, so the K x K Hessian is
+cheap); this takes a handful of
 iterations from a thermodynamic-integration start, which makes a block bootstrap of the
 whole estimate (re-solving for every replicate) affordable. pymbar 4 solves the same
 equations and is used in the tests as an independent check.
@@ -69,8 +71,10 @@ def solve_mbar(energies: np.ndarray, betas: np.ndarray, n_k: np.ndarray,
     Parameters
     ----------
     energies : (Ntot,) pooled energies; betas : (K,); n_k : (K,) samples per state.
-    counts : (Ntot,) multiplicity of each sample (bootstrap), default all ones.
-    f_init : (K,) starting free energies; default from thermodynamic integration.
+    counts : (Ntot,) multiplicity of each energy (bootstrap, or the occupation of energy
+        bins when ``energies`` are bin energies), default all ones.
+    f_init : (K,) starting free energies; default from thermodynamic integration (needs
+        the energies in state order, n_k per state, i.e. not binned).
 
     Returns
     -------
@@ -85,16 +89,12 @@ def solve_mbar(energies: np.ndarray, betas: np.ndarray, n_k: np.ndarray,
     ln_n = np.log(np.asarray(n_k, float))
     k = b.size
     if f_init is None:
-        # d f / d beta = <E>: trapezoid over the (sorted) ladder with per-state means
-        offsets = np.concatenate([[0], np.cumsum(n_k)])
+        # d f / d beta = <E>: per-state means of consecutive blocks of n_k samples
+        offsets = np.concatenate([[0], np.cumsum(n_k)]).astype(int)
         means = np.array([np.average(e[offsets[i]:offsets[i + 1]],
                                      weights=c[offsets[i]:offsets[i + 1]] + 1e-300)
                           for i in range(k)])
-        order = np.argsort(b)
-        f = np.zeros(k)
-        fs = np.concatenate([[0], np.cumsum(0.5 * np.diff(b[order])
-                                            * (means[order][1:] + means[order][:-1]))])
-        f[order] = fs
+        f = _ti_start(b, means)
     else:
         f = np.array(f_init, float)
     f -= f[0]
@@ -167,6 +167,10 @@ class DensityOfStates:
         """(lowest, highest) beta of the ladder; reweighting is trusted inside it."""
         return float(self.betas.min()), float(self.betas.max())
 
+    def energy_bins(self) -> tuple[np.ndarray, np.ndarray]:
+        """(bin of each pooled sample, bin energies): see thermo.dos_tables.energy_bins."""
+        return self._memo("bins", lambda: dos_tables.energy_bins(self.energies, self.betas))
+
     def _replicate_log_denoms(self) -> list[np.ndarray]:
         cache = self.__dict__.get("_ld_cache")
         if cache is None:
@@ -208,9 +212,13 @@ class DensityOfStates:
         """Weighted mean and variance of ``values`` at each beta (chunked, no (M, n) matrix)."""
         is_energy = values is self.energies
         lw0, e, v = -ld, self.energies, values
+        # observables may be evaluated on a subset of the samples (NaN elsewhere)
+        keep = None if is_energy else np.isfinite(values)
         if counts is not None:
-            keep = counts > 0
-            lw0 = lw0[keep] + np.log(counts[keep].astype(float))
+            keep = counts > 0 if keep is None else keep & (counts > 0)
+        if keep is not None:
+            c = 1.0 if counts is None else counts[keep].astype(float)
+            lw0 = lw0[keep] + np.log(c)
             e, v = e[keep], v[keep]
         if is_energy:
             _, mean, var, _, _ = dos_tables.tilted_moments(e, lw0, beta)
@@ -244,9 +252,14 @@ class DensityOfStates:
                 raise SamplerError(f"unknown observable {name!r}; available: "
                                    f"{['energy', *sorted(self.observables)]}")
         stack = np.stack(vals)                                  # (V, Ntot)
+        # observables may be evaluated on a subset of the samples (NaN elsewhere): each
+        # average is normalised over the samples where its observable exists
+        ok = np.isfinite(stack)
+        filled = np.where(ok, stack, 0.0)
 
         def fn(ld, c):
-            return self._weights(b, ld, c) @ stack.T            # (M, V)
+            w = self._weights(b, ld, c)
+            return (w @ filled.T) / (w @ ok.T)                   # (M, V)
 
         mean, err = self._with_errors(fn, max_replicates)
         return {name: (mean[:, i], err[:, i]) for i, name in enumerate(names)}
@@ -485,7 +498,14 @@ class DensityOfStates:
         k, s = en.shape
         n_k = np.full(k, s)
         flat = en.reshape(-1)
-        f, ld = solve_mbar(flat, betas, n_k)
+        # MBAR and every bootstrap replicate are solved on fine energy bins (see
+        # thermo.dos_tables.energy_bins): the cost follows the bins, not the samples
+        bin_of, e_bin = dos_tables.energy_bins(flat, betas)
+        nb = e_bin.size
+        f0 = _ti_start(betas, en.mean(axis=1))
+        f, _ = solve_mbar(e_bin, betas, n_k, counts=np.bincount(bin_of, minlength=nb),
+                          f_init=f0)
+        ld = logsumexp(-np.outer(betas, flat) + (f + np.log(n_k))[:, None], axis=0)
 
         if n_blocks is None:
             tau = max(_tau_int(row) for row in en)
@@ -501,7 +521,8 @@ class DensityOfStates:
                 idx = (starts[:, None] + np.arange(block_len)[None, :]).ravel()
                 np.add.at(counts[i], idx, 1.0)
             c = counts.reshape(-1)
-            boot_f[r], _ = solve_mbar(flat, betas, counts.sum(axis=1), counts=c, f_init=f)
+            boot_f[r], _ = solve_mbar(e_bin, betas, counts.sum(axis=1),
+                                      counts=np.bincount(bin_of, c, minlength=nb), f_init=f)
             boot_counts[r] = c.astype(np.uint16)
 
         if observables is None:
@@ -510,8 +531,17 @@ class DensityOfStates:
             signs = getattr(result, "signs", None)
             if pos is not None and signs is not None and np.shape(pos)[2] >= 2:
                 from thermo.classify import structure_observables
-                p = np.asarray(pos, float)
-                observables = structure_observables(p.reshape(k * s, *p.shape[2:]), signs)
+                # the structure observables cost far more per sample than the energy, and
+                # their averages need less precision than beta(E): evaluate them on an
+                # evenly strided subset (NaN elsewhere) of _OBSERVED_PER_REPLICA per rung
+                stride = max(1, s // _OBSERVED_PER_REPLICA)
+                p = np.asarray(pos, float)[:, ::stride]
+                sub = structure_observables(p.reshape(-1, *p.shape[2:]), signs)
+                observables = {}
+                for name, v in sub.items():
+                    full = np.full((k, s), np.nan)
+                    full[:, ::stride] = np.asarray(v).reshape(k, -1)
+                    observables[name] = full.reshape(-1)
         diag = {name: np.asarray(getattr(result, name)) for name in
                 ("acceptance", "swap_acceptance", "tau_int", "ess") if hasattr(result, name)}
         dom = getattr(result, "domain", None)
@@ -524,9 +554,21 @@ class DensityOfStates:
                    diagnostics=diag, settings=dict(settings or {}))
 
 
+def _ti_start(betas: np.ndarray, means: np.ndarray) -> np.ndarray:
+    """Free energies from d f / d beta = <E> (trapezoid over the sorted ladder), f[0] = 0."""
+    order = np.argsort(betas)
+    f = np.zeros(betas.size)
+    f[order] = np.concatenate([[0], np.cumsum(0.5 * np.diff(betas[order])
+                                              * (means[order][1:] + means[order][:-1]))])
+    return f - f[0]
+
+
 # ====================================================================== build
-#: recorded samples per replica when DosSettings.thin is None (thinning chosen to match)
-_SAMPLES_PER_REPLICA = 1000
+#: recorded samples per replica when DosSettings.thin is None (thinning chosen to match);
+#: MBAR, its bootstrap and the tables work on energy bins, so their cost hardly grows with it
+_SAMPLES_PER_REPLICA = 4000
+#: samples per replica on which the structure observables are evaluated (strided subset)
+_OBSERVED_PER_REPLICA = 1000
 #: number of tempering runs started by :func:`build` (and so by
 #: :func:`thermo.dos_cache.load_or_build`) in this process; a cache hit leaves it unchanged,
 #: so tests use it to prove that nothing was resampled
@@ -542,7 +584,8 @@ class DosSettings:
     n_temps : ladder size passed to ``thermo.sampler.default_ladder`` (None: its default).
     n_sweeps : Monte Carlo sweeps per replica after burn-in.
     burn_in, thin : passed to ``run_tempering`` when not None; thin None keeps about
-        1000 samples per replica (thin = n_sweeps // 1000).
+        4000 samples per replica (thin = max(2, n_sweeps // 4000)); the structure observables
+        are evaluated on about 1000 of them.
     n_boot : bootstrap replicates for the uncertainties.
     betas : explicit ladder (overrides n_temps) or None.
 
@@ -580,10 +623,12 @@ def build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
         kw = {} if settings.n_temps is None else {"n_temps": settings.n_temps}
         betas = np.asarray(sampler.default_ladder(n_plus, n_minus, core_radius, domain, **kw))
     kw = {k: getattr(settings, k) for k in ("burn_in", "thin") if getattr(settings, k) is not None}
-    # MBAR, its bootstrap and the tables cost O(stored samples) and dominate the build
-    # when every sweep is kept; successive sweeps are strongly correlated (tau_int of E is
-    # ~1-60 sweeps along the ladder), so keeping ~_SAMPLES_PER_REPLICA loses little
-    kw.setdefault("thin", max(1, int(settings.n_sweeps) // _SAMPLES_PER_REPLICA))
+    # successive sweeps are strongly correlated (tau_int of E is ~1-60 sweeps along the
+    # ladder), so keeping every sweep adds little over ~_SAMPLES_PER_REPLICA, while the
+    # stored positions and the per-sample reweighting grow with the count
+    # (and never every sweep: one sweep moves each vortex once, so consecutive sweeps are
+    # nearly the same configuration, tau_int >= a few sweeps)
+    kw.setdefault("thin", max(2, int(settings.n_sweeps) // _SAMPLES_PER_REPLICA))
     BUILD_COUNT += 1
     result = sampler.run_tempering(domain, n_plus, n_minus, betas, settings.n_sweeps,
                                    core_radius, rng, **kw)

@@ -26,11 +26,18 @@ from typing import Any
 import numpy as np
 
 #: bump when the content or grids of the tables change (stored tables are then recomputed)
-TABLE_VERSION = 4
+TABLE_VERSION = 5
 N_BETA = 161         # beta grid points for ln Z, <E>, Var E, observables
 N_ENERGY = 201       # energy grid points for beta_micro
 N_TILT = N_BETA      # beta grid inverting <E>(beta) inside beta_micro: the same grid, reused
 _CHUNK_ELEMENTS = 2_000_000   # rows x samples per chunk (~16 MB of float64)
+#: energy bin width times max |beta| of the ladder. Every state's reduced potential is
+#: beta_k E, so samples in one bin differ in every weight by at most a factor
+#: exp(BIN_BETA_WIDTH); with the bin's mean energy as its representative the first-order
+#: error cancels and the second-order one is ~BIN_BETA_WIDTH^2 / 24 ~ 1e-4 in ln weight,
+#: nearly the same for all bins (so it drops out of normalised averages). The cost of MBAR,
+#: its bootstrap and the tables then follows the number of bins, not of samples.
+BIN_BETA_WIDTH = 0.05
 
 
 def _lse_rows(a: np.ndarray) -> np.ndarray:
@@ -175,12 +182,85 @@ def beta_saddle_from_cumulants(e: np.ndarray, grid: np.ndarray, mean: np.ndarray
     return out
 
 
-def _replicate_lw0(dos: Any) -> list[tuple[np.ndarray, np.ndarray]]:
-    """(energies, lw0) restricted to the samples each weighting uses: central first."""
-    out = [(dos.energies, -dos.log_denom, None)]
-    for ld, c in zip(dos._replicate_log_denoms(), dos.boot_counts):
-        keep = c > 0
-        out.append((dos.energies[keep], -ld[keep] + np.log(c[keep].astype(float)), keep))
+def energy_bins(energies: np.ndarray, betas: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Fine energy bins for the pooled samples (equal blocks per state, in ladder order).
+
+    The width at energy E is BIN_BETA_WIDTH / b(E), b(E) the largest |beta_k| among the
+    states whose samples span E (at least 2 % of max |beta|). Why that suffices: a sample
+    at E carries weight at a target beta only if states near that beta reach E, and the
+    MBAR denominator's slope d ln(sum_k ...)/dE is an average of -beta_k over the states
+    that reach E; so every weight varies across a bin by at most ~exp(BIN_BETA_WIDTH).
+    Narrow bins are spent only where the high-|beta| states sample.
+
+    Returns
+    -------
+    idx : (Ntot,) bin of each sample (only occupied bins are numbered);
+    e_bin : (nb,) mean energy of the samples in each bin (its representative).
+
+    Units: E in E0, beta in 1/E0.
+    """
+    e = np.asarray(energies, float)
+    b = np.abs(np.atleast_1d(np.asarray(betas, float)))
+    bmax = float(b.max()) if b.size else 0.0
+    lo, hi = (float(e.min()), float(e.max())) if e.size else (0.0, 0.0)
+    if bmax == 0 or hi <= lo:
+        raw = np.floor((e - lo) / (max(hi - lo, 1.0) * 1e-4)).astype(np.int64)
+    else:
+        grid = np.linspace(lo, hi, 8193)
+        cap = np.full(grid.size, 0.02 * bmax)
+        per_state = e.reshape(b.size, -1) if e.size % b.size == 0 else e[None, :]
+        caps = b if per_state.shape[0] == b.size else np.array([bmax])
+        for row, bk in zip(per_state, caps):
+            step = grid[1] - grid[0]
+            inside = (grid >= row.min() - step) & (grid <= row.max() + step)
+            cap[inside] = np.maximum(cap[inside], bk)
+        # bin coordinate: integral of b(E) / BIN_BETA_WIDTH, so a unit step is one bin
+        t = np.concatenate([[0.0], np.cumsum(np.maximum(cap[1:], cap[:-1]) * np.diff(grid))])
+        raw = np.floor(np.interp(e, grid, t) / BIN_BETA_WIDTH).astype(np.int64)
+    _, idx = np.unique(raw, return_inverse=True)
+    idx = idx.ravel()
+    e_bin = np.bincount(idx, e) / np.bincount(idx)
+    return idx, e_bin
+
+
+def binned_log_denom(e_bin: np.ndarray, betas: np.ndarray, f: np.ndarray,
+                     n_k: np.ndarray) -> np.ndarray:
+    """MBAR denominators ln sum_k N_k exp(f_k - beta_k E) at the bin energies."""
+    a = -np.outer(betas, e_bin) + (np.asarray(f, float) + np.log(n_k))[:, None]
+    return _lse_rows(a.T)
+
+
+def binned_sets(dos: Any) -> list[dict]:
+    """Binned log weights at beta = 0 of the central estimate and of every replicate.
+
+    Each entry: ``e``, ``lw0`` (occupied bins of that weighting) and, when the DOS has
+    observables, ``e_obs``, ``lw0_obs``, ``vals`` (V, nb_obs): the bin means of the
+    observables over the samples where they were evaluated (they may be evaluated on a
+    subset, NaN elsewhere) with the log weights of those samples.
+    """
+    idx, e_bin = dos.energy_bins()
+    nb = e_bin.size
+    k = dos.betas.size
+    names = sorted(dos.observables)
+    vals = np.stack([dos.observables[n] for n in names]) if names else None
+    mask = np.isfinite(vals).all(axis=0) if names else None
+    out = []
+    pairs = [(dos.f, None)] + list(zip(dos.boot_f, dos.boot_counts))
+    for f, counts in pairs:
+        c = np.ones(idx.size) if counts is None else counts.astype(float)
+        n_k = c.reshape(k, -1).sum(axis=1)
+        ld = binned_log_denom(e_bin, dos.betas, f, n_k)
+        tot = np.bincount(idx, c, minlength=nb)
+        occ = tot > 0
+        item = dict(e=e_bin[occ], lw0=np.log(tot[occ]) - ld[occ])
+        if names:
+            io, co = idx[mask], c[mask]
+            tot_o = np.bincount(io, co, minlength=nb)
+            occ_o = tot_o > 0
+            sums = np.stack([np.bincount(io, co * v[mask], minlength=nb) for v in vals])
+            item.update(e_obs=e_bin[occ_o], lw0_obs=np.log(tot_o[occ_o]) - ld[occ_o],
+                        vals=sums[:, occ_o] / tot_o[occ_o])
+        out.append(item)
     return out
 
 
@@ -197,13 +277,13 @@ def compute_tables(dos: Any) -> dict[str, np.ndarray]:
     lo, hi = dos.beta_range
     grid = np.linspace(lo, hi, N_BETA)
     names = sorted(dos.observables)
-    vals_all = np.stack([dos.observables[k] for k in names]) if names else None
-    sets = _replicate_lw0(dos)
+    sets = binned_sets(dos)
     log_z, mean, var, kap3, obs = [], [], [], [], []
-    for e, lw0, keep in sets:
-        vals = None if vals_all is None else (vals_all if keep is None else vals_all[:, keep])
-        ls, mu, v, k3, vm = tilted_moments(e, lw0, grid, vals)
-        ls0 = _lse_rows(lw0[None, :])[0]
+    for st in sets:
+        ls, mu, v, k3, _ = tilted_moments(st["e"], st["lw0"], grid)
+        vm = (tilted_moments(st["e_obs"], st["lw0_obs"], grid, st["vals"])[4]
+              if names else None)
+        ls0 = _lse_rows(st["lw0"][None, :])[0]
         log_z.append(ls - ls0)
         mean.append(mu)
         var.append(v)
@@ -214,8 +294,8 @@ def compute_tables(dos: Any) -> dict[str, np.ndarray]:
     e_lo, e_hi = dos.energy_range()
     e_grid = np.unique(np.concatenate([np.linspace(e_lo, e_hi, N_ENERGY),
                                        np.clip(mean[0], e_lo, e_hi)]))
-    micro = np.array([beta_micro_kernel(e, lw0, e_grid, grid, (mu, v))
-                      for (e, lw0, _), mu, v in zip(sets, mean, var)])
+    micro = np.array([beta_micro_kernel(st["e"], st["lw0"], e_grid, grid, (mu, v))
+                      for st, mu, v in zip(sets, mean, var)])
     saddle = np.array([beta_saddle_from_cumulants(e_grid, grid, mu, v, k3)
                        for mu, v, k3 in zip(mean, var, kap3)])
 

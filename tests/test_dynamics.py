@@ -137,7 +137,7 @@ def _obstacle_run(tmp_path, speed_c):
     number of vortices seen in any frame and their signs in that frame."""
     from gpe import pipeline
     from gpe.io import RunFile
-    from gpe.protocol import parse_protocol
+    from gpe.protocol import ProtocolWarning, parse_protocol
 
     duration = 2 * round((56.0 / speed_c + 20.0) / 2)
     text = f"""
@@ -170,7 +170,11 @@ end_xi = [30.0, 0.0]
 speed_c = {speed_c}
 start_time_tau = 10.0
 """
-    out = pipeline.simulate(parse_protocol(text, source="obstacle.toml"), tmp_path / "o.h5")
+    # The protocol check counts the 100 mu inside the obstacle, where there is no fluid, and
+    # warns; the solver's own check (phase per step where the condensate is) passes.
+    with pytest.warns(ProtocolWarning, match=r"dt \* max\(V"):
+        protocol = parse_protocol(text, source="obstacle.toml")
+    out = pipeline.simulate(protocol, tmp_path / "o.h5")
     with RunFile.open(out) as run:
         table = run.read_vortices()
         counts = [int(np.count_nonzero(table["frame"] == f)) for f in range(run.n_frames)]

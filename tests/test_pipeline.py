@@ -150,8 +150,11 @@ def test_imprinted_clusters_read_negative_and_pairs_positive(tmp_path):
 def test_time_step_too_large_for_the_beam_fails_before_any_file(tmp_path):
     from gpe.errors import SimulationError
 
-    protocol = _protocol(tmp_path, ["beams.0.height_mu=200.0", "evolution.dt_tau=0.1",
-                                    "evolution.output_interval_tau=1.0"])
+    from gpe.protocol import ProtocolWarning
+
+    with pytest.warns(ProtocolWarning, match="rad per step"):   # the file check warns first
+        protocol = _protocol(tmp_path, ["beams.0.height_mu=200.0", "evolution.dt_tau=0.1",
+                                        "evolution.output_interval_tau=1.0"])
     with pytest.raises(SimulationError, match="too large"):
         pipeline.simulate(protocol, tmp_path / "steep.h5")
     assert not list(tmp_path.glob("steep.h5*"))

@@ -2,13 +2,11 @@
 
 import json
 import math
+import re
 import warnings
 from pathlib import Path
 
-import re
-
 import numpy as np
-
 import pytest
 import scipy.constants as sc
 

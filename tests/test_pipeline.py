@@ -10,7 +10,7 @@ import pytest
 from gpe import pipeline
 from gpe.io import RunFile
 from gpe.protocol import parse_protocol
-from tiny_protocol import tiny_protocol_text
+from tiny_protocol import healing_header, tiny_protocol_text
 
 TINY = tiny_protocol_text()
 
@@ -96,14 +96,7 @@ def test_vortex_table_carries_its_si_factors(tmp_path):
 
 def _imprinted(tmp_path, name, vortices):
     imprint = ", ".join(f"{{ x_xi = {x}, y_xi = {y}, sign = {s} }}" for x, y, s in vortices)
-    text = f"""
-units = "healing"
-name = "{name}"
-[atoms]
-species = "87Rb"
-chemical_potential_nK = 20.0
-axial_frequency_hz = 1000.0
-[trap]
+    text = healing_header(name) + f"""[trap]
 shape = "disk"
 radius_xi = 26.0
 [grid]

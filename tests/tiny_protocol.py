@@ -5,19 +5,24 @@ be quick and to shed a few vortices, not to model an experiment.
 """
 
 
+def healing_header(name: str = "tiny") -> str:
+    """The top of a healing-unit protocol: 87Rb at mu = 20 nK, f_z = 1 kHz (quasi-2D)."""
+    return f"""
+units = "healing"
+name = "{name}"
+[atoms]
+species = "87Rb"
+chemical_potential_nK = 20.0
+axial_frequency_hz = 1000.0
+"""
+
+
 def tiny_protocol_text(duration: float = 12.0, output_interval: float = 1.0, rows: int = 1,
                        speed: float = 0.5, seed: int = 3) -> str:
     """TOML text of the tiny protocol. Units: durations in hbar/mu, speed in c."""
     array = ("" if rows == 1 else
              f"[beams.array]\ncolumns = 1\nrows = {rows}\nspacing_xi = 3.0\n")
-    return f"""
-units = "healing"
-name = "tiny"
-[atoms]
-species = "87Rb"
-chemical_potential_nK = 20.0
-axial_frequency_hz = 1000.0
-[trap]
+    return healing_header() + f"""[trap]
 shape = "disk"
 radius_xi = 20.0
 [grid]

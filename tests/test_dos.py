@@ -107,7 +107,10 @@ def test_reweighted_mean_energy_matches_direct_sampling_off_ladder(small_gas):
     from thermo.sampler import run_tempering
     d = small_gas
     ladder = np.sort(d.betas)
-    for beta in (-0.5, 0.4):
+    for near in (-0.5, 0.4):
+        # halfway between the two rungs around `near` (the build spaces its ladder itself)
+        k = np.searchsorted(ladder, near)
+        beta = 0.5 * (ladder[k - 1] + ladder[k])
         assert np.min(np.abs(ladder - beta)) > 0.01
         run = run_tempering(Disk(), 2, 2, [beta], 6000, 0.01, np.random.default_rng(7))
         e = run.energies[0]
@@ -176,3 +179,13 @@ def test_saddle_point_micro_beta_agrees_with_kernel_estimate(small_gas):
     _, s_err = d.beta_micro(e, method="saddle")
     _, k_err = d.beta_micro(e, method="kernel")
     assert np.nanmedian(s_err / k_err) < 1.0
+
+
+
+def test_build_ladder_ends(small_gas):
+    """The build's pilot-spaced ladder keeps the physical ends, +1 (pair collapse) and
+    1.15 x (-4/N) beyond the like-sign collapse [exact power counting, reference-values.md];
+    the <C1>(0) check above runs on the observables of its strided configurations."""
+    d = small_gas
+    assert d.betas[0] == 1.0 and d.betas[-1] == pytest.approx(-1.15 * 4 / 4)
+    assert np.all(np.diff(d.betas) < 0) and 0.0 in d.betas

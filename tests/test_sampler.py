@@ -7,8 +7,8 @@ from scipy import integrate
 from thermo.domains import Box, Disk
 from thermo.energy import energy_batch
 from thermo.errors import SamplerError
-from thermo.sampler import (default_ladder, integrated_autocorr_time, run_tempering,
-                            swap_probability)
+from thermo.sampler import (adaptive_ladder, default_ladder, integrated_autocorr_time,
+                            run_tempering, swap_probability)
 
 
 def _mean_and_se(x):
@@ -221,6 +221,31 @@ def test_default_ladder():
     # only for beta~ < 1) [exact, reference-values.md]: beyond it only the core holds the gas
     # up, so the default ladder stops there (it ran to 2 before; changed deliberately)
     assert b[0] == 1.0 and s[0] == 1.0
+
+
+def test_adaptive_ladder_keeps_the_ends_and_crowds_where_energy_is_narrow():
+    # Same ends as default_ladder: +1 (pair collapse) and 1.15 x (-4/N) for a neutral gas
+    # [exact power counting, reference-values.md]; in between the rungs follow the pilot's
+    # sigma_E, so the positive side (bound pairs, narrow E) gets more rungs than the default.
+    b = adaptive_ladder(4, 4, 0.01, Disk(), np.random.default_rng(4), n_temps=12, pilot_sweeps=300)
+    d = default_ladder(4, 4, 0.01, Disk(), n_temps=12)
+    assert b.shape == (12,) and np.all(np.diff(b) < 0)
+    assert b[0] == d[0] == 1.0 and b[-1] == d[-1] == pytest.approx(-1.15 * 4 / 8) and 0.0 in b
+    assert np.sum(b > 0) > np.sum(d > 0)
+    with pytest.raises(SamplerError, match="pilot_sweeps"):
+        adaptive_ladder(4, 4, 0.01, Disk(), np.random.default_rng(4), pilot_sweeps=10)
+
+
+def test_position_stride_keeps_the_matching_configurations(rng):
+    # the stored configurations are those of recorded samples 0, m, 2m, ...: their energies
+    # recomputed from scratch must equal the recorded ones [exact]
+    res = run_tempering(Disk(), 3, 2, [0.5, -0.3], 700, 0.01, rng, thin=2, position_stride=50)
+    assert res.energies.shape == (2, 350) and res.positions.shape == (2, 7, 5, 2)
+    for k in range(2):
+        np.testing.assert_allclose(energy_batch(res.positions[k], res.signs, Disk()),
+                                   res.energies[k, ::50], rtol=1e-9, atol=1e-9)
+    with pytest.raises(SamplerError, match="position_stride"):
+        run_tempering(Disk(), 1, 1, [0.0], 10, 0.01, rng, position_stride=0)
 
 
 @pytest.mark.slow

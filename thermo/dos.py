@@ -566,7 +566,7 @@ def _ti_start(betas: np.ndarray, means: np.ndarray) -> np.ndarray:
 # ====================================================================== build
 #: recorded samples per replica when DosSettings.thin is None (thinning chosen to match);
 #: MBAR, its bootstrap and the tables work on energy bins, so their cost hardly grows with it
-_SAMPLES_PER_REPLICA = 4000
+_SAMPLES_PER_REPLICA = 32000
 #: samples per replica on which the structure observables are evaluated (strided subset)
 _OBSERVED_PER_REPLICA = 1000
 #: number of tempering runs started by :func:`build` (and so by
@@ -620,8 +620,12 @@ def build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
     if settings.betas is not None:
         betas = np.asarray(settings.betas, float)
     else:
+        # rungs spaced from a short pilot run, denser where E hardly fluctuates (beta > 0),
+        # so that the error of beta(E) is even along the ladder (see adaptive_ladder)
         kw = {} if settings.n_temps is None else {"n_temps": settings.n_temps}
-        betas = np.asarray(sampler.default_ladder(n_plus, n_minus, core_radius, domain, **kw))
+        kw["pilot_sweeps"] = int(min(1000, max(100, settings.n_sweeps // 20)))
+        betas = np.asarray(sampler.adaptive_ladder(n_plus, n_minus, core_radius, domain, rng,
+                                                   **kw))
     kw = {k: getattr(settings, k) for k in ("burn_in", "thin") if getattr(settings, k) is not None}
     # successive sweeps are strongly correlated (tau_int of E is ~1-60 sweeps along the
     # ladder), so keeping every sweep adds little over ~_SAMPLES_PER_REPLICA, while the
@@ -629,15 +633,30 @@ def build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
     # (and never every sweep: one sweep moves each vortex once, so consecutive sweeps are
     # nearly the same configuration, tau_int >= a few sweeps)
     kw.setdefault("thin", max(2, int(settings.n_sweeps) // _SAMPLES_PER_REPLICA))
+    # configurations only for the strided subset on which the structure observables are
+    # evaluated (the same stride as from_tempering's), so many energies cost little memory
+    s_rec = int(settings.n_sweeps) // int(kw["thin"])
+    stride = max(1, s_rec // _OBSERVED_PER_REPLICA)
     BUILD_COUNT += 1
     result = sampler.run_tempering(domain, n_plus, n_minus, betas, settings.n_sweeps,
-                                   core_radius, rng, **kw)
+                                   core_radius, rng, position_stride=stride, **kw)
+    observables = None
+    if result.positions.shape[2] >= 2:
+        from thermo.classify import structure_observables
+        k = betas.size
+        sub = structure_observables(result.positions.reshape(-1, *result.positions.shape[2:]),
+                                    result.signs)
+        observables = {}
+        for name, v in sub.items():
+            full = np.full((k, s_rec), np.nan)
+            full[:, ::stride] = np.asarray(v).reshape(k, -1)
+            observables[name] = full.reshape(-1)
     stored = dict(n_temps=int(betas.size), n_sweeps=int(settings.n_sweeps),
                   burn_in=settings.burn_in, thin=settings.thin, n_boot=int(settings.n_boot),
                   betas=[float(b) for b in betas] if settings.betas is not None else None)
     return DensityOfStates.from_tempering(result, n_boot=settings.n_boot, rng=rng,
                                           domain_key=repr(tuple(domain.key())),
-                                          settings=stored)
+                                          settings=stored, observables=observables)
 
 
 # The on-disk cache moved to thermo.dos_cache, which imports this module; the old names are

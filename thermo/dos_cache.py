@@ -30,7 +30,7 @@ from thermo.errors import SamplerError
 
 #: bump when the file layout changes: it is part of :func:`cache_key`, so files of another
 #: version are left alone (and refused by :func:`load`) and the build is redone under a new name
-FORMAT_VERSION = 3
+FORMAT_VERSION = 4  # 4: builds use the pilot-spaced ladder and 2x-thinned energies
 #: densities of states already read in this process: path -> (mtime_ns, size, dos), so
 #: repeated estimates do not re-read the npz (a changed file is read again)
 _LOADED: dict[Path, tuple[int, int, DensityOfStates]] = {}

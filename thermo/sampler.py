@@ -30,8 +30,8 @@ from .domains import Domain, wall_distance_kernel
 from .energy import move_energy_change_kernel, total_energy_kernel, validate_configuration
 from .errors import SamplerError
 
-__all__ = ["TemperingResult", "run_tempering", "default_ladder", "swap_probability",
-           "integrated_autocorr_time"]
+__all__ = ["TemperingResult", "run_tempering", "default_ladder", "adaptive_ladder",
+           "swap_probability", "integrated_autocorr_time"]
 
 # Step-size bounds and adaptation block (common practice: aim at ~40 % acceptance).
 _MIN_STEP = 1e-5
@@ -55,7 +55,7 @@ def swap_probability(beta_i: float, beta_j: float, e_i: float, e_j: float) -> fl
 @njit(cache=True)
 def _tempering_kernel(pos, energies, signs, betas, steps, max_step, kind, params, core,
                       n_total, burn_in, thin, adapt_every, target, out_e, out_pos,
-                      move_acc, move_att, swap_acc, swap_att, seed):
+                      move_acc, move_att, swap_acc, swap_att, seed, pos_stride):
     np.random.seed(seed)
     n_rep = pos.shape[0]
     n = pos.shape[1]
@@ -119,9 +119,10 @@ def _tempering_kernel(pos, energies, signs, betas, steps, max_step, kind, params
         if production and (sweep - burn_in + 1) % thin == 0:
             for k in range(n_rep):
                 out_e[k, rec] = energies[k]
-                for i in range(n):
-                    out_pos[k, rec, i, 0] = pos[k, i, 0]
-                    out_pos[k, rec, i, 1] = pos[k, i, 1]
+                if rec % pos_stride == 0:
+                    for i in range(n):
+                        out_pos[k, rec // pos_stride, i, 0] = pos[k, i, 0]
+                        out_pos[k, rec // pos_stride, i, 1] = pos[k, i, 1]
             rec += 1
 
 
@@ -174,8 +175,9 @@ class TemperingResult:
         Inverse temperatures of the ladder, in the order given. Units: 1/E0.
     energies : ndarray (K, S)
         Energy of each recorded sample at each beta. Units: E0.
-    positions : ndarray (K, S, N, 2)
-        Recorded configurations at each beta (scaled positions).
+    positions : ndarray (K, ceil(S / position_stride), N, 2)
+        Recorded configurations at each beta (scaled positions): those of the recorded
+        samples 0, position_stride, 2 position_stride, ... (every sample by default).
     signs : ndarray int64 (N,)
         Signs: the first n_plus are +1, the rest -1.
     acceptance : ndarray (K,)
@@ -257,7 +259,8 @@ def _initial_configuration(domain, n, core, rng) -> np.ndarray:
 
 def run_tempering(domain: Domain, n_plus: int, n_minus: int, betas, n_sweeps: int,
                   core_radius: float, rng: np.random.Generator, burn_in: int | None = None,
-                  thin: int = 1, initial=None, target_acceptance: float = 0.4) -> TemperingResult:
+                  thin: int = 1, initial=None, target_acceptance: float = 0.4,
+                  position_stride: int = 1) -> TemperingResult:
     """Sample the canonical ensemble at every beta of a ladder with parallel tempering.
 
     Parameters
@@ -282,6 +285,10 @@ def run_tempering(domain: Domain, n_plus: int, n_minus: int, betas, n_sweeps: in
         Starting positions (first n_plus rows positive); default: random non-overlapping.
     target_acceptance : float
         Move acceptance aimed at during burn-in (common practice: 0.3-0.5).
+    position_stride : int
+        Keep the configuration of every ``position_stride``-th recorded sample only (the
+        energies of all): where E decorrelates in a few sweeps, recording it often pays,
+        while storing every configuration would cost K S N 16 bytes.
 
     Returns
     -------
@@ -307,6 +314,8 @@ def run_tempering(domain: Domain, n_plus: int, n_minus: int, betas, n_sweeps: in
     if not (isinstance(core_radius, (int, float)) and math.isfinite(core_radius) and 0 < core_radius < 0.25):
         raise SamplerError(f"core_radius = {core_radius!r}: must be > 0 (it regularizes the "
                            "collapse) and < 0.25 domain units")
+    if not (isinstance(position_stride, (int, np.integer)) and position_stride >= 1):
+        raise SamplerError(f"position_stride = {position_stride!r}: must be a positive integer")
     if not (0.05 <= target_acceptance <= 0.95):
         raise SamplerError(f"target_acceptance = {target_acceptance!r}: must be in [0.05, 0.95]")
     signs = np.array([1] * n_plus + [-1] * n_minus, dtype=np.int64)
@@ -328,7 +337,7 @@ def run_tempering(domain: Domain, n_plus: int, n_minus: int, betas, n_sweeps: in
     steps = np.full(k_rep, min(0.3, size / 4))
     s_rec = n_sweeps // thin
     out_e = np.empty((k_rep, s_rec))
-    out_pos = np.empty((k_rep, s_rec, n, 2))
+    out_pos = np.empty((k_rep, -(-s_rec // position_stride), n, 2))
     move_acc = np.zeros(k_rep)
     move_att = np.zeros(k_rep)
     swap_acc = np.zeros(max(k_rep - 1, 0))
@@ -338,7 +347,7 @@ def run_tempering(domain: Domain, n_plus: int, n_minus: int, betas, n_sweeps: in
     _tempering_kernel(pos, energies, signs, b, steps, size, code, params, float(core_radius),
                       int(burn + s_rec * thin), int(burn), int(thin), adapt_every,
                       float(target_acceptance), out_e, out_pos, move_acc, move_att,
-                      swap_acc, swap_att, seed)
+                      swap_acc, swap_att, seed, int(position_stride))
     tau = np.array([integrated_autocorr_time(e) for e in out_e])
     with np.errstate(invalid="ignore", divide="ignore"):
         ess = s_rec / tau
@@ -402,3 +411,88 @@ def default_ladder(n_plus: int, n_minus: int, core_radius: float, domain: Domain
     neg = beta_min * np.sin(0.5 * np.pi * np.arange(1, n_neg + 1) / n_neg)
     pos = beta_max * (np.arange(1, n_pos + 1) / n_pos) ** 2
     return np.concatenate((pos[::-1], [0.0], neg))
+
+
+def adaptive_ladder(n_plus: int, n_minus: int, core_radius: float, domain: Domain,
+                    rng: np.random.Generator, n_temps: int = 24, pilot_sweeps: int = 1000,
+                    max_swap_gap: float = 1.5, beta_max: float = 1.0,
+                    overshoot: float = 1.15) -> np.ndarray:
+    """A ladder with the same ends as :func:`default_ladder`, spaced from a short pilot run.
+
+    Why: the error of beta read off <E>(beta) (or off dS/dE) is SE(<E>)/Var(E) ~
+    1/sqrt(n_eff Var(E)) (Cramer-Rao for the exponential family p(E) ~ g(E) exp(-beta E)),
+    and MBAR pools the rungs within ~1/sigma_E of beta. With rho(beta) rungs per unit beta
+    the samples pooled at beta grow as rho/sigma_E, so the squared error goes as
+    1/(sigma_E rho): an even error needs rho ~ 1/sigma_E, i.e. MORE rungs where E hardly
+    fluctuates (the bound-pair side, beta > 0) and fewer at the clustering end, where
+    sigma_E is 30x larger. Swaps need beta gaps with |d beta| sigma_E <~ 2 (acceptance
+    ~ erfc(|d beta| sigma_E / 2) for Gaussian E, common practice), so the density is
+    rho = max(A / sigma_E, sigma_E / max_swap_gap) with A set by the number of rungs,
+    doubled over the last ~2/sigma_E below beta_max (MBAR pools from one side there); beta = 0
+    is kept as a rung.
+
+    The pilot runs ``default_ladder`` (same n_temps) for ``pilot_sweeps`` sweeps; sigma_E is
+    interpolated in ln sigma_E, linearly in beta, between the pilot rungs.
+
+    Parameters
+    ----------
+    n_plus, n_minus, core_radius, domain : as for :func:`default_ladder`.
+    rng : numpy.random.Generator
+        Source of the pilot run.
+    n_temps : int
+        Number of rungs K >= 3.
+    pilot_sweeps : int
+        Sweeps of the pilot run (after its own burn-in).
+    max_swap_gap : float
+        Largest |d beta| sigma_E allowed between neighbours (dimensionless).
+    beta_max, overshoot : float
+        Ends of the ladder, as for :func:`default_ladder`.
+
+    Returns
+    -------
+    ndarray (K,)
+        Decreasing betas, from beta_max to the negative end. Units: 1/E0.
+    """
+    pilot = default_ladder(n_plus, n_minus, core_radius, domain, n_temps=n_temps,
+                           beta_max=beta_max, overshoot=overshoot)
+    if not (isinstance(pilot_sweeps, (int, np.integer)) and pilot_sweeps >= 50):
+        raise SamplerError(f"pilot_sweeps = {pilot_sweeps!r}: must be an integer >= 50")
+    if not (math.isfinite(max_swap_gap) and max_swap_gap > 0):
+        raise SamplerError(f"max_swap_gap = {max_swap_gap!r}: must be > 0")
+    res = run_tempering(domain, n_plus, n_minus, pilot, int(pilot_sweeps), core_radius, rng,
+                        burn_in=max(200, int(pilot_sweeps) // 4))
+    sd = res.energies.std(axis=1, ddof=1)
+    b_inc = pilot[::-1]
+    ln_sd = np.log(np.maximum(sd[::-1], 1e-12))
+    grid = np.linspace(b_inc[0], b_inc[-1], 4001)
+    sig = np.exp(np.interp(grid, b_inc, ln_sd))
+
+    # MBAR at the top end pools rungs from one side only, so the error there is ~2x the
+    # interior one: double the density over the last ~2/sigma_E below beta_max
+    boost = 1.0 + np.exp(-(grid[-1] - grid) * sig[-1] / 2.0)
+
+    def cumulative(a):
+        rho = np.maximum(a * boost / sig, sig / max_swap_gap)
+        return np.concatenate(([0.0], np.cumsum(0.5 * (rho[1:] + rho[:-1]) * np.diff(grid))))
+
+    # the swap floor alone may already need more than K - 1 gaps: then A = 0 (swap-limited)
+    lo, hi = 0.0, 1.0
+    while cumulative(hi)[-1] < n_temps - 1:
+        hi *= 2.0
+    if cumulative(lo)[-1] >= n_temps - 1:
+        hi = lo
+    for _ in range(60):
+        mid = 0.5 * (lo + hi)
+        if cumulative(mid)[-1] < n_temps - 1:
+            lo = mid
+        else:
+            hi = mid
+    c = cumulative(hi)
+    # beta = 0 stays a rung, as in default_ladder: the uniform ensemble is known exactly
+    # there and it divides the two signs; the gaps are shared in proportion to the integral
+    c0 = float(np.interp(0.0, grid, c))
+    m = int(min(max(round((n_temps - 1) * c0 / c[-1]), 1), n_temps - 2))
+    targets = np.concatenate((np.linspace(0.0, c0, m + 1), np.linspace(c0, c[-1], n_temps - m)[1:]))
+    betas = np.interp(targets, c, grid)
+    betas[0], betas[m], betas[-1] = b_inc[0], 0.0, b_inc[-1]
+    return betas[::-1].copy()

@@ -153,7 +153,7 @@ EFFORT = {"quick": (800, 12), "standard": (4000, 40), "thorough": (16000, 60)}
 
 def dos_settings(effort: str):
     """``thermo.dos.DosSettings`` for an effort name: quick, standard or thorough."""
-    from thermo.dos import DosSettings
+    from thermo.dos_build import DosSettings
 
     if effort not in EFFORT:
         raise VorthermError(f"effort {effort!r}; accepted: {', '.join(EFFORT)}")

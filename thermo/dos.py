@@ -20,7 +20,7 @@ per-sample observable (the structure observables of thermo.classify), ln g(E) on
 the microcanonical beta(E) = dS/dE. Uncertainties are the spread over a block bootstrap
 (contiguous blocks of each temperature's series, so autocorrelation is respected).
 
-:func:`build` runs the sampler and pools it; :mod:`thermo.dos_cache` keeps builds on disk
+:func:`thermo.dos_build.build` runs the sampler and pools it (re-exported here); :mod:`thermo.dos_cache` keeps builds on disk
 (:func:`~thermo.dos_cache.load_or_build` and the other cache names are re-exported here).
 
 Units: energies in E0 = rho kappa^2 / (4 pi); beta in 1/E0 (beta~).
@@ -33,96 +33,9 @@ from typing import Any, Sequence
 
 import numpy as np
 
-
-def logsumexp(a: np.ndarray, axis: int | None = None, keepdims: bool = False) -> np.ndarray:
-    """ln sum exp(a) along an axis; plain numpy (scipy's version is ~3x slower here)."""
-    a = np.asarray(a, float)
-    m = np.max(a, axis=axis, keepdims=True)
-    m = np.where(np.isfinite(m), m, 0.0)
-    with np.errstate(divide="ignore"):
-        out = np.log(np.sum(np.exp(a - m), axis=axis, keepdims=True)) + m
-    return out if keepdims else np.squeeze(out, axis=axis) if axis is not None else out.item()
-
-from thermo.errors import SamplerError
 from thermo import dos_tables
-
-
-def _tau_int(x: np.ndarray) -> float:
-    """Integrated autocorrelation time (in samples) with Sokal's window c = 5."""
-    x = np.asarray(x, float) - np.mean(x)
-    n = x.size
-    if n < 8 or np.var(x) == 0:
-        return 1.0
-    f = np.fft.rfft(x, 2 * n)
-    acf = np.fft.irfft(f * np.conj(f))[:n] / (np.var(x) * n)
-    tau = 1.0
-    for m in range(1, n):
-        tau += 2 * acf[m]
-        if m >= 5 * tau:
-            break
-    return max(1.0, float(tau))
-
-
-def solve_mbar(energies: np.ndarray, betas: np.ndarray, n_k: np.ndarray,
-               counts: np.ndarray | None = None, f_init: np.ndarray | None = None,
-               tol: float = 1e-10, max_iter: int = 200) -> tuple[np.ndarray, np.ndarray]:
-    """Solve the MBAR equations for states u_k = beta_k E by Newton's method.
-
-    Parameters
-    ----------
-    energies : (Ntot,) pooled energies; betas : (K,); n_k : (K,) samples per state.
-    counts : (Ntot,) multiplicity of each energy (bootstrap, or the occupation of energy
-        bins when ``energies`` are bin energies), default all ones.
-    f_init : (K,) starting free energies; default from thermodynamic integration (needs
-        the energies in state order, n_k per state, i.e. not binned).
-
-    Returns
-    -------
-    f : (K,) dimensionless free energies -ln Z_k (gauge f[0] = 0).
-    log_denom : (Ntot,) ln sum_k N_k exp(f_k - beta_k E_n).
-
-    Units: energies in E0, betas in 1/E0, f dimensionless.
-    """
-    e = np.asarray(energies, float)
-    b = np.asarray(betas, float)
-    c = np.ones_like(e) if counts is None else np.asarray(counts, float)
-    ln_n = np.log(np.asarray(n_k, float))
-    k = b.size
-    if f_init is None:
-        # d f / d beta = <E>: per-state means of consecutive blocks of n_k samples
-        offsets = np.concatenate([[0], np.cumsum(n_k)]).astype(int)
-        means = np.array([np.average(e[offsets[i]:offsets[i + 1]],
-                                     weights=c[offsets[i]:offsets[i + 1]] + 1e-300)
-                          for i in range(k)])
-        f = _ti_start(b, means)
-    else:
-        f = np.array(f_init, float)
-    f -= f[0]
-    minus_u = -np.outer(b, e) + ln_n[:, None]               # (K, Ntot)
-
-    def objective(fv):
-        a = minus_u + fv[:, None]
-        ld = logsumexp(a, axis=0)
-        return float(c @ ld - np.exp(ln_n) @ fv), a, ld
-
-    obj, a, ld = objective(f)
-    for _ in range(max_iter):
-        pi = np.exp(a - ld[None, :])
-        pc = pi * c[None, :]
-        grad = pc.sum(axis=1) - np.exp(ln_n)
-        if np.max(np.abs(grad) / np.exp(ln_n)) < tol:
-            break
-        hess = np.diag(pc.sum(axis=1)) - pc @ pi.T
-        step = np.zeros(k)
-        step[1:] = np.linalg.solve(hess[1:, 1:], -grad[1:])
-        t = 1.0
-        while True:  # backtracking keeps Newton monotone far from the solution
-            new_obj, new_a, new_ld = objective(f + t * step)
-            if new_obj <= obj + 1e-12 * abs(obj) or t < 1e-8:
-                break
-            t *= 0.5
-        f, obj, a, ld = f + t * step, new_obj, new_a, new_ld
-    return f, ld
+from thermo.errors import SamplerError
+from thermo.mbar import _ti_start, logsumexp, solve_mbar, tau_int
 
 
 @dataclass(frozen=True)
@@ -508,7 +421,7 @@ class DensityOfStates:
         ld = logsumexp(-np.outer(betas, flat) + (f + np.log(n_k))[:, None], axis=0)
 
         if n_blocks is None:
-            tau = max(_tau_int(row) for row in en)
+            tau = max(tau_int(row) for row in en)
             n_blocks = int(max(10, min(s, s // max(1, int(np.ceil(4 * tau))))))
         n_blocks = int(min(n_blocks, s))
         block_len = s // n_blocks
@@ -554,109 +467,8 @@ class DensityOfStates:
                    diagnostics=diag, settings=dict(settings or {}))
 
 
-def _ti_start(betas: np.ndarray, means: np.ndarray) -> np.ndarray:
-    """Free energies from d f / d beta = <E> (trapezoid over the sorted ladder), f[0] = 0."""
-    order = np.argsort(betas)
-    f = np.zeros(betas.size)
-    f[order] = np.concatenate([[0], np.cumsum(0.5 * np.diff(betas[order])
-                                              * (means[order][1:] + means[order][:-1]))])
-    return f - f[0]
-
-
-# ====================================================================== build
-#: recorded samples per replica when DosSettings.thin is None (thinning chosen to match);
-#: MBAR, its bootstrap and the tables work on energy bins, so their cost hardly grows with it
-_SAMPLES_PER_REPLICA = 32000
 #: samples per replica on which the structure observables are evaluated (strided subset)
 _OBSERVED_PER_REPLICA = 1000
-#: number of tempering runs started by :func:`build` (and so by
-#: :func:`thermo.dos_cache.load_or_build`) in this process; a cache hit leaves it unchanged,
-#: so tests use it to prove that nothing was resampled
-BUILD_COUNT = 0
-
-
-@dataclass(frozen=True)
-class DosSettings:
-    """Effort settings for building a density of states.
-
-    Attributes
-    ----------
-    n_temps : ladder size passed to ``thermo.sampler.default_ladder`` (None: its default).
-    n_sweeps : Monte Carlo sweeps per replica after burn-in.
-    burn_in, thin : passed to ``run_tempering`` when not None; thin None keeps about
-        4000 samples per replica (thin = max(2, n_sweeps // 4000)); the structure observables
-        are evaluated on about 1000 of them.
-    n_boot : bootstrap replicates for the uncertainties.
-    betas : explicit ladder (overrides n_temps) or None.
-
-    Units: betas in 1/E0.
-    """
-
-    n_temps: int | None = None
-    n_sweeps: int = 4000
-    burn_in: int | None = None
-    thin: int | None = None
-    n_boot: int = 40
-    betas: tuple[float, ...] | None = None
-
-    def __post_init__(self) -> None:
-        if int(self.n_sweeps) < 10:
-            raise SamplerError(f"DosSettings.n_sweeps = {self.n_sweeps}; need >= 10")
-        if int(self.n_boot) < 2:
-            raise SamplerError(f"DosSettings.n_boot = {self.n_boot}; need >= 2 for errors")
-
-
-def build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
-          settings: DosSettings = DosSettings(), rng: np.random.Generator | None = None
-          ) -> DensityOfStates:
-    """Run parallel tempering (thermo.sampler) and pool it with MBAR; no caching.
-
-    Units: core radius in the domain's length unit; betas in 1/E0.
-    """
-    global BUILD_COUNT
-    from thermo import sampler  # imported here: the sampler is only needed to build
-
-    rng = np.random.default_rng() if rng is None else rng
-    if settings.betas is not None:
-        betas = np.asarray(settings.betas, float)
-    else:
-        # rungs spaced from a short pilot run, denser where E hardly fluctuates (beta > 0),
-        # so that the error of beta(E) is even along the ladder (see adaptive_ladder)
-        kw = {} if settings.n_temps is None else {"n_temps": settings.n_temps}
-        kw["pilot_sweeps"] = int(min(1000, max(100, settings.n_sweeps // 20)))
-        betas = np.asarray(sampler.adaptive_ladder(n_plus, n_minus, core_radius, domain, rng,
-                                                   **kw))
-    kw = {k: getattr(settings, k) for k in ("burn_in", "thin") if getattr(settings, k) is not None}
-    # successive sweeps are strongly correlated (tau_int of E is ~1-60 sweeps along the
-    # ladder), so keeping every sweep adds little over ~_SAMPLES_PER_REPLICA, while the
-    # stored positions and the per-sample reweighting grow with the count
-    # (and never every sweep: one sweep moves each vortex once, so consecutive sweeps are
-    # nearly the same configuration, tau_int >= a few sweeps)
-    kw.setdefault("thin", max(2, int(settings.n_sweeps) // _SAMPLES_PER_REPLICA))
-    # configurations only for the strided subset on which the structure observables are
-    # evaluated (the same stride as from_tempering's), so many energies cost little memory
-    s_rec = int(settings.n_sweeps) // int(kw["thin"])
-    stride = max(1, s_rec // _OBSERVED_PER_REPLICA)
-    BUILD_COUNT += 1
-    result = sampler.run_tempering(domain, n_plus, n_minus, betas, settings.n_sweeps,
-                                   core_radius, rng, position_stride=stride, **kw)
-    observables = None
-    if result.positions.shape[2] >= 2:
-        from thermo.classify import structure_observables
-        k = betas.size
-        sub = structure_observables(result.positions.reshape(-1, *result.positions.shape[2:]),
-                                    result.signs)
-        observables = {}
-        for name, v in sub.items():
-            full = np.full((k, s_rec), np.nan)
-            full[:, ::stride] = np.asarray(v).reshape(k, -1)
-            observables[name] = full.reshape(-1)
-    stored = dict(n_temps=int(betas.size), n_sweeps=int(settings.n_sweeps),
-                  burn_in=settings.burn_in, thin=settings.thin, n_boot=int(settings.n_boot),
-                  betas=[float(b) for b in betas] if settings.betas is not None else None)
-    return DensityOfStates.from_tempering(result, n_boot=settings.n_boot, rng=rng,
-                                          domain_key=repr(tuple(domain.key())),
-                                          settings=stored, observables=observables)
 
 
 # The on-disk cache moved to thermo.dos_cache, which imports this module; the old names are
@@ -664,6 +476,8 @@ def build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
 # working without an import cycle.
 _MOVED_TO_CACHE = ("FORMAT_VERSION", "default_cache_dir", "cache_key", "cache_path", "save",
                    "load", "load_or_build")
+# Likewise the build (thermo.dos_build imports DensityOfStates from here).
+_MOVED_TO_BUILD = ("DosSettings", "build", "BUILD_COUNT")
 
 
 def __getattr__(name: str) -> object:
@@ -671,4 +485,8 @@ def __getattr__(name: str) -> object:
         from thermo import dos_cache
 
         return getattr(dos_cache, name)
+    if name in _MOVED_TO_BUILD:
+        from thermo import dos_build
+
+        return getattr(dos_build, name)
     raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

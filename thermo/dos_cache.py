@@ -25,7 +25,8 @@ from typing import Any
 import numpy as np
 
 from thermo import dos_tables
-from thermo.dos import DensityOfStates, DosSettings, build
+from thermo.dos import DensityOfStates
+from thermo.dos_build import DosSettings, build
 from thermo.errors import SamplerError
 
 #: bump when the file layout changes: it is part of :func:`cache_key`, so files of another

@@ -35,7 +35,8 @@ from scipy.special import jn_zeros
 from scipy.stats import chi2
 
 from thermo.classify import structure_observables
-from thermo.dos import DensityOfStates, DosSettings
+from thermo.dos import DensityOfStates
+from thermo.dos_build import DosSettings
 from thermo.dos_cache import load_or_build
 from thermo.energy import energy_batch, validate_configuration
 from thermo.errors import ConfigurationError

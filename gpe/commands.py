@@ -35,10 +35,10 @@ def _cmd_init(args) -> int:
 # --------------------------------------------------------------------------- run
 def _register_run(sub) -> None:
     p = add_command(sub, "run", "simulate a protocol and write its run file (HDF5)",
-             "Simulate a stirring protocol: ground state with the beams at their start positions, "
-             "then damped real-time evolution; snapshots, observables and vortices are written "
-             "to the run file at every output time (times in the protocol's units: ms in SI "
-             "protocols, hbar/mu in healing-unit protocols).")
+                    "Simulate a stirring protocol: ground state with the beams at their start positions, "
+                    "then damped real-time evolution; snapshots, observables and vortices are written "
+                    "to the run file at every output time (times in the protocol's units: ms in SI "
+                    "protocols, hbar/mu in healing-unit protocols).")
     p.add_argument("protocol", type=Path, nargs="?", help="protocol file (TOML)")
     p.add_argument("-o", "--output", type=Path, help="run file to write (default: PROTOCOL with .h5)")
     p.add_argument("--set", dest="overrides", action="append", default=[], metavar="SECTION.KEY=VALUE",
@@ -86,11 +86,11 @@ def _cmd_run(args) -> int:
 # --------------------------------------------------------------------------- sweep
 def _register_sweep(sub) -> None:
     p = add_command(sub, "sweep", "run a grid of protocols overnight: summary table and phase map",
-             "Every point of the sweep file (base protocol, axes, seeds, what to measure) runs "
-             "the whole pipeline into its own run file. Rerunning the same command resumes: "
-             "complete points are skipped, incomplete ones continue from their checkpoints. "
-             "Local by default (a pool sized to the cores); --scheduler sends the points to an "
-             "existing Dask cluster (pip install 'vortherm[cluster]').")
+                    "Every point of the sweep file (base protocol, axes, seeds, what to measure) runs "
+                    "the whole pipeline into its own run file. Rerunning the same command resumes: "
+                    "complete points are skipped, incomplete ones continue from their checkpoints. "
+                    "Local by default (a pool sized to the cores); --scheduler sends the points to an "
+                    "existing Dask cluster (pip install 'vortherm[cluster]').")
     p.add_argument("sweep", type=Path, help="sweep file (TOML), see docs/sweep.md")
     p.add_argument("-o", "--output", type=Path, help="output folder (default: out/<stem>/ beside the sweep file)")
     p.add_argument("--scheduler", metavar="ADDRESS", help="Dask scheduler address, e.g. tcp://head:8786")
@@ -142,9 +142,9 @@ def _cmd_sweep(args) -> int:
 # --------------------------------------------------------------------------- vortices
 def _register_vortices(sub) -> None:
     p = add_command(sub, "vortices", "re-detect vortices in a run file and export them as CSV (um)",
-             "Detection by phase winding around every grid plaquette, restricted to where the "
-             "fluid is. The run file is only changed with --store (the old table is then "
-             "replaced in one step).")
+                    "Detection by phase winding around every grid plaquette, restricted to where the "
+                    "fluid is. The run file is only changed with --store (the old table is then "
+                    "replaced in one step).")
     p.add_argument("run", type=Path, help="run file (.h5)")
     p.add_argument("--threshold", type=float, default=0.2,
                    help="density threshold relative to the peak background density, in (0, 1)")
@@ -197,9 +197,9 @@ def _cmd_plot(args) -> int:
 # --------------------------------------------------------------------------- demo
 def _register_demo(sub) -> None:
     p = add_command(sub, "demo", "run the demo scenario end to end and say where the outputs are",
-             "Simulates runs/demo.toml (a scenario of our own: a 87Rb condensate in a disk "
-             "stirred by a moving beam), detects the vortices, draws figures, measures the "
-             "vortex-gas temperature and prints the verdict.")
+                    "Simulates runs/demo.toml (a scenario of our own: a 87Rb condensate in a disk "
+                    "stirred once by a paddle of six beams), detects the vortices, draws figures, measures the "
+                    "vortex-gas temperature and prints the verdict.")
     p.add_argument("-o", "--output", type=Path, default=Path("demo-output"),
                    help="folder for all outputs (default: ./demo-output)")
     p.add_argument("--threads", type=int, help="FFT threads (default: all cores)")

@@ -16,10 +16,10 @@ from gpe.errors import VorthermError
 # --------------------------------------------------------------------------- temperature
 def _register_temperature(sub) -> None:
     p = add_command(sub, "temperature", "inverse temperature beta of vortex configurations (both signs)",
-             "beta per output time of a run file, or per shot and for the ensemble of a measured "
-             "table (CSV/HDF5: shot, x, y, sign; positions in um about the trap centre, or "
-             "pixels with --pixel-um and --center). beta is in units of 1/E0 with "
-             "E0 = rho kappa^2/(4 pi); beta*N compares across vortex numbers.")
+                    "beta per output time of a run file, or per shot and for the ensemble of a measured "
+                    "table (CSV/HDF5: shot, x, y, sign; positions in um about the trap centre, or "
+                    "pixels with --pixel-um and --center). beta is in units of 1/E0 with "
+                    "E0 = rho kappa^2/(4 pi); beta*N compares across vortex numbers.")
     p.add_argument("source", type=Path, help="run file (.h5 from `vortherm run`) or measured table (.csv/.h5)")
     p.add_argument("--disk-radius-um", type=float, help="measured table: disk radius in um")
     p.add_argument("--box-um", type=float, nargs=2, metavar=("LX", "LY"),
@@ -133,11 +133,11 @@ def _temperature_of_table(args) -> dict:
 # --------------------------------------------------------------------------- compare
 def _register_compare(sub) -> None:
     p = add_command(sub, "compare", "simulated vs measured vortex statistics, side by side",
-             "Frames of one or more run files (e.g. seeds of one protocol) near --time-ms, or in "
-             "--window-ms, form the simulated ensemble; the measured table (CSV/HDF5) the other. "
-             "Prints simulation | measured | difference (95% interval) | p-value for vortex "
-             "numbers, energy per vortex, beta, D, C1, dipole/cluster/free fractions and mean "
-             "nearest-neighbour distance, with Kolmogorov-Smirnov and permutation tests.")
+                    "Frames of one or more run files (e.g. seeds of one protocol) near --time-ms, or in "
+                    "--window-ms, form the simulated ensemble; the measured table (CSV/HDF5) the other. "
+                    "Prints simulation | measured | difference (95% interval) | p-value for vortex "
+                    "numbers, energy per vortex, beta, D, C1, dipole/cluster/free fractions and mean "
+                    "nearest-neighbour distance, with Kolmogorov-Smirnov and permutation tests.")
     p.add_argument("runs", type=Path, nargs="+", help="run files (.h5)")
     p.add_argument("--measured", type=Path, required=True, help="measured vortex table (.csv/.h5)")
     p.add_argument("--time-ms", type=float, help="simulation time to compare at, ms (default: last frame)")

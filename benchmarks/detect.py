@@ -12,7 +12,7 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # run from a checkout
 
-from gpe.vortices import find_vortices  # noqa: E402
+from gpe.analysis.vortices import find_vortices  # noqa: E402
 
 
 def synthetic_frame(n: int = 1024, length: float = 256.0, n_vortices: int = 200, seed: int = 1):

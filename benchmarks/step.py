@@ -24,13 +24,13 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from gpe.fft import auto_threads, make_fft  # noqa: E402
-from gpe.grid import Grid  # noqa: E402
-from gpe.solver import Solver, SolverSettings  # noqa: E402
+from gpe.field.fft import auto_threads, make_fft  # noqa: E402
+from gpe.field.grid import Grid  # noqa: E402
+from gpe.field.solver import Solver, SolverSettings  # noqa: E402
 
 
 class OrbitingBeam:
-    """One Gaussian beam on a circle (stands in for gpe.potentials.BeamSet)."""
+    """One Gaussian beam on a circle (stands in for gpe.field.traps.BeamSet)."""
 
     n_beams = 1
 
@@ -126,7 +126,7 @@ def main(argv=None) -> None:
             print(f"{n:>5}^2 {precision:>10} {used:>3} {backend:>7} {t_step * 1e3:8.2f} "
                   f"{t_fft * 1e3:11.2f} {t_step / t_fft:8.2f} {t_numpy * 1e3:9.2f} "
                   f"{t_numpy / t_step:8.1f}")
-    import numba  # already imported by gpe.kernels; the layer is known after the first kernel
+    import numba  # already imported by gpe.field.kernels; the layer is known after the first kernel
 
     print(f"OMP_WAIT_POLICY={os.environ.get('OMP_WAIT_POLICY')}, "
           f"numba threading layer {numba.threading_layer()}")

@@ -4,7 +4,7 @@ Run: ``python benchmarks/thermo_dos.py [--budget SECONDS]``. Target (common prac
 interactive tool): under 60 s on 2 cores. The sweep count is doubled while the predicted
 time of the next build still fits the budget and the worst bootstrap standard error of
 N beta(E) exceeds the tolerance. The total time is what a user waits (sampling, MBAR,
-bootstrap and the tables of thermo.dos_tables).
+bootstrap and the tables of thermo.dos.tables).
 
 Two estimates of beta(E) are reported, each with its real bootstrap error:
 
@@ -108,8 +108,8 @@ def time_dos_build(n_plus: int = 20, n_minus: int = 20, core_radius: float = 0.0
     cache-hit time. Units: seconds; beta in 1/E0.
     """
     from thermo.domains import Disk
-    from thermo import dos as dosmod
-    from thermo import dos_cache
+    from thermo.dos import model as dosmod
+    from thermo.dos import cache as dos_cache
 
     out = {"attempts": []}
     t_total = time.perf_counter()

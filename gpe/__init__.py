@@ -8,7 +8,7 @@ import os as _os
 # numba's kernels and pyFFTW each bring an OpenMP runtime; their idle workers spin by default
 # and steal the two cores from each other between split-step stages (measured: 5x slower steps
 # at 512^2). Passive waiting must be chosen before either runtime loads; a user's own setting
-# is kept. See gpe/kernels.py.
+# is kept. See gpe/field/kernels.py.
 _os.environ.setdefault("OMP_WAIT_POLICY", "PASSIVE")
 
 __version__ = "0.1.0"

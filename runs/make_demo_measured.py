@@ -2,9 +2,9 @@
 
 The table is NOT a measurement. It is drawn by vortherm's own point-vortex sampler
 (thermo.sampler, canonical ensemble at a known negative beta~) in a disk of radius 40 um,
-then degraded the way imaging would (thermo.degrade: 0.5 um Gaussian position error, one
+then degraded the way imaging would (thermo.data.degrade: 0.5 um Gaussian position error, one
 sign in 50 recorded wrongly), and written in the measured-table format read by
-thermo.measured. Three deliberately unusable rows are appended to show the row reporting.
+thermo.data.measured. Three deliberately unusable rows are appended to show the row reporting.
 
 Usage::
 
@@ -20,7 +20,7 @@ from pathlib import Path
 
 import numpy as np
 
-from thermo.degrade import ImagingModel, degrade
+from thermo.data.degrade import ImagingModel, degrade
 from thermo.domains import Disk
 from thermo.sampler import run_tempering
 

@@ -1,7 +1,7 @@
 import numpy as np
 import pytest
 
-from gpe.cli import main
+from gpe.cli.main import main
 from tiny_protocol import tiny_protocol_text
 
 

@@ -11,7 +11,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from gpe.errors import ProtocolError
-from gpe.sweep import PointTask, SweepResult, load_sweep, run_sweep
+from gpe.sweep.execute import PointTask, SweepResult, load_sweep, run_sweep
 
 SWEEP_TEXT = """
 base = "base.toml"

@@ -1,4 +1,4 @@
-"""Tests of gpe.beams: switch-on/off ramps, beam paths, rigid arrays, the BeamSet and the check
+"""Tests of gpe.field.beams: switch-on/off ramps, beam paths, rigid arrays, the BeamSet and the check
 that beams stay on the grid."""
 
 import math
@@ -6,7 +6,7 @@ import math
 import numpy as np
 import pytest
 
-from gpe.beams import (
+from gpe.field.beams import (
     Beam,
     BeamSet,
     CirclePath,
@@ -17,7 +17,7 @@ from gpe.beams import (
     array_offsets,
     find_beam_excursion,
 )
-from gpe.grid import Grid
+from gpe.field.grid import Grid
 
 GRID = Grid(128, 96, 64.0, 48.0)  # dx = dy = 0.5 xi
 

@@ -11,11 +11,11 @@ import numpy as np
 import pytest
 
 from conftest import TINY
-from gpe.cli import main
+from gpe.cli.main import main
 
 
 def test_init_writes_a_protocol_that_parses(tmp_path, capsys):
-    from gpe.protocol import load_protocol
+    from gpe.setup.protocol import load_protocol
 
     path = tmp_path / "my.toml"
     assert main(["init", str(path)]) == 0
@@ -111,7 +111,7 @@ def test_plot_writes_figures(tiny_run, tmp_path):
 
 
 def test_describe_lists_every_observable_with_its_unit(capsys):
-    from gpe import diagnostics
+    from gpe.analysis import diagnostics
 
     assert main(["describe"]) == 0
     out = capsys.readouterr().out
@@ -131,6 +131,6 @@ def test_demo_runs_end_to_end(tmp_path, capsys, monkeypatch):
     for name in ("demo.h5", "demo.toml", "demo_vortices.csv", "demo_temperature.csv",
                  "demo_temperature.png", "figures/demo_density_phase.png"):
         assert (out / name).exists(), name
-    from gpe import pipeline
+    from gpe.run import simulate as pipeline
 
     assert pipeline.is_complete(out / "demo.h5")

@@ -2,7 +2,7 @@
 
 import pytest
 
-from gpe.cli_args import parse_frames, parse_seeds
+from gpe.cli.args import parse_frames, parse_seeds
 from gpe.errors import VorthermError
 
 

@@ -5,7 +5,7 @@ import json
 
 import numpy as np
 
-from gpe.cli import main
+from gpe.cli.main import main
 
 
 def test_temperature_json_has_the_promised_fields(tiny_run, tmp_path, capsys, monkeypatch):

@@ -1,4 +1,4 @@
-"""Tests of thermo.compare: simulated vs measured statistics and their tests of difference."""
+"""Tests of thermo.data.compare: simulated vs measured statistics and their tests of difference."""
 
 from __future__ import annotations
 
@@ -8,11 +8,11 @@ import math
 import numpy as np
 import pytest
 
-from thermo.compare import (
+from thermo.data.compare import (
     QUANTITIES, CompareError, compare_ensembles, shot_statistics, write_csv,
     write_json,
 )
-from thermo.degrade import ImagingModel, degrade_many
+from thermo.data.degrade import ImagingModel, degrade_many
 from thermo.domains import Disk
 
 
@@ -150,7 +150,7 @@ def _sampled_shots(seed, beta_n_values, n=12, n_shots=40, core=0.02):
 
 
 def _beta_options(cache_dir):
-    from thermo.dos import DosSettings
+    from thermo.dos.model import DosSettings
     # small effort: enough to separate beta~ N = +8 from -3 (common practice: check the
     # swap acceptance of a real build); cache in the test's own directory
     return dict(cache_dir=cache_dir, settings=DosSettings(n_sweeps=600, n_temps=12, n_boot=10))

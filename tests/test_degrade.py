@@ -1,4 +1,4 @@
-"""Tests of thermo.degrade: imaging degradation of simulated vortex configurations."""
+"""Tests of thermo.data.degrade: imaging degradation of simulated vortex configurations."""
 
 from __future__ import annotations
 
@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from thermo.degrade import DegradeError, ImagingModel, degrade, degrade_many
+from thermo.data.degrade import DegradeError, ImagingModel, degrade, degrade_many
 from thermo.domains import Box, Disk
 
 

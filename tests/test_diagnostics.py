@@ -4,11 +4,11 @@ once, and the values agree with the solver's own observables."""
 import numpy as np
 import pytest
 
-from gpe import diagnostics
-from gpe.grid import Grid
-from gpe.solver import observables
-from gpe.units import HealingUnits, SPECIES
-from gpe.vortices import VORTEX_DTYPE
+from gpe.analysis import diagnostics
+from gpe.field.grid import Grid
+from gpe.field.solver import observables
+from gpe.setup.units import HealingUnits, SPECIES
+from gpe.analysis.vortices import VORTEX_DTYPE
 
 
 @pytest.fixture

@@ -1,4 +1,4 @@
-"""Tests of thermo.dos: MBAR pooling, canonical reweighting, ln g(E), beta(E).
+"""Tests of thermo.dos.model: MBAR pooling, canonical reweighting, ln g(E), beta(E).
 
 The disk cache is tested in test_dos_cache.py, the tabulated curves in test_dos_tables.py.
 """
@@ -128,7 +128,7 @@ def test_one_vortex_saddle_point_micro_beta_is_exact(one_vortex_dos):
 
 
 def test_saddle_point_micro_beta_agrees_with_kernel_estimate(small_gas):
-    """The saddle-point dS/dE (cumulant expansion, thermo.dos_tables) and the direct kernel
+    """The saddle-point dS/dE (cumulant expansion, thermo.dos.tables) and the direct kernel
     estimate of d ln g/dE (no expansion) agree for the 2+2 gas within 4 bootstrap SE of
     their difference (paired: both from the same replicate), plus 0.02/N per vortex for the
     O(1/N^2) remainder of the expansion. The kernel estimate is exact for a Gaussian

@@ -1,10 +1,10 @@
-"""thermo.dos_build: effort settings and the ladder a build runs on."""
+"""thermo.dos.build: effort settings and the ladder a build runs on."""
 
 import numpy as np
 import pytest
 
 from dos_samples import small_gas_dos
-from thermo.dos_build import DosSettings
+from thermo.dos.build import DosSettings
 
 
 @pytest.fixture(scope="module")

@@ -1,13 +1,13 @@
-"""Tests of thermo.dos_cache: the npz files, cache hits, effort coverage, in-process reuse."""
+"""Tests of thermo.dos.cache: the npz files, cache hits, effort coverage, in-process reuse."""
 
 import numpy as np
 import pytest
 
 from dos_samples import one_vortex_dos
-from thermo import dos as dosmod
-from thermo import dos_cache
+from thermo.dos import model as dosmod
+from thermo.dos import cache as dos_cache
 from thermo.domains import Disk
-from thermo.dos import DosSettings
+from thermo.dos.model import DosSettings
 from thermo.errors import SamplerError
 
 # caching is what is tested here, not physics: a cheap 2+2 build is enough
@@ -85,8 +85,8 @@ def test_more_effort_rebuilds_and_then_covers_less(tmp_path):
 
 
 def test_old_import_paths_still_work():
-    """The cache names moved out of thermo.dos are forwarded from it."""
-    from thermo.dos import FORMAT_VERSION, load_or_build
+    """The cache names moved out of thermo.dos.model are forwarded from it."""
+    from thermo.dos.model import FORMAT_VERSION, load_or_build
 
     assert load_or_build is dos_cache.load_or_build
     assert FORMAT_VERSION == dos_cache.FORMAT_VERSION and dosmod.cache_path is dos_cache.cache_path

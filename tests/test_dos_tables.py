@@ -1,4 +1,4 @@
-"""Tests of thermo.dos_tables: the tabulated curves of a density of states."""
+"""Tests of thermo.dos.tables: the tabulated curves of a density of states."""
 
 import numpy as np
 import pytest
@@ -13,7 +13,7 @@ def small_gas():
 
 
 def test_tables_match_direct_reweighting(small_gas):
-    """The tabulated curves (thermo.dos_tables) are interpolations of the direct MBAR
+    """The tabulated curves (thermo.dos.tables) are interpolations of the direct MBAR
     reweighting: at energies and betas between table points they agree to a small
     fraction of the bootstrap error, and the tabulated error is the bootstrap error."""
     d = small_gas

@@ -1,6 +1,6 @@
-"""Vortex structure and motion in Gross-Pitaevskii fields, measured with gpe.vortices.
+"""Vortex structure and motion in Gross-Pitaevskii fields, measured with gpe.analysis.vortices.
 
-The fields come from gpe.solver (imaginary-time relaxation with the vortex phase pinned, then
+The fields come from gpe.field.solver (imaginary-time relaxation with the vortex phase pinned, then
 real-time split-step evolution without damping); positions from find_vortices. Units: healing
 units, xi = hbar/sqrt(m mu), time hbar/mu, c = 1, hbar/m = 1.
 """
@@ -10,9 +10,9 @@ import pytest
 from scipy.integrate import solve_bvp
 from scipy.interpolate import CubicSpline
 
-from gpe.grid import Grid
-from gpe.solver import Solver, SolverSettings, find_ground_state
-from gpe.vortices import find_vortices
+from gpe.field.grid import Grid
+from gpe.field.solver import Solver, SolverSettings, find_ground_state
+from gpe.analysis.vortices import find_vortices
 
 
 def hard_wall_disk(grid, radius, height=20.0, width=0.4):
@@ -135,9 +135,9 @@ def _obstacle_run(tmp_path, speed_c):
     """A nearly impenetrable Gaussian obstacle (V0 = 100 mu, waist 6 xi: radius ~9 xi where
     V = mu) dragged along a wide box (110 x 120 xi) at constant speed; returns the largest
     number of vortices seen in any frame and their signs in that frame."""
-    from gpe import pipeline
-    from gpe.io import RunFile
-    from gpe.protocol import ProtocolWarning, parse_protocol
+    from gpe.run import simulate as pipeline
+    from gpe.run.runfile import RunFile
+    from gpe.setup.protocol import ProtocolWarning, parse_protocol
 
     duration = 2 * round((56.0 / speed_c + 20.0) / 2)
     text = f"""

@@ -1,17 +1,17 @@
-"""Tests of gpe.flow: superfluid velocity from psi and the flow of point vortices."""
+"""Tests of gpe.analysis.flow: superfluid velocity from psi and the flow of point vortices."""
 
 import numpy as np
 import pytest
 
 from gpe.errors import VorthermError
-from gpe.flow import (
+from gpe.analysis.flow import (
     current_density,
     point_vortex_velocity,
     point_vortex_vorticity,
     superfluid_velocity,
     vorticity,
 )
-from gpe.grid import Grid
+from gpe.field.grid import Grid
 
 
 def test_plane_wave_velocity_is_its_wavevector():

@@ -1,4 +1,4 @@
-"""Tests of thermo.geometry: pixel calibration and the geometry of a measured table."""
+"""Tests of thermo.data.geometry: pixel calibration and the geometry of a measured table."""
 
 from __future__ import annotations
 
@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 
 from thermo.errors import MeasuredTableError
-from thermo.geometry import PixelCalibration, pixels_to_um, resolve_geometry, um_to_pixels
+from thermo.data.geometry import PixelCalibration, pixels_to_um, resolve_geometry, um_to_pixels
 
 
 def test_pixel_conversion_round_trips(rng):

@@ -2,7 +2,7 @@ import numpy as np
 import pytest
 
 from gpe.errors import VorthermError
-from gpe.grid import Grid
+from gpe.field.grid import Grid
 
 
 def test_coordinates_centred_and_spacing():

@@ -7,9 +7,9 @@ import scipy.sparse as sp
 from scipy.sparse.linalg import eigsh
 
 from gpe.errors import VorthermError
-from gpe.grid import Grid
-from gpe.ground_state import find_ground_state, imprint_vortices
-from gpe.solver import observables
+from gpe.field.grid import Grid
+from gpe.field.ground_state import find_ground_state, imprint_vortices
+from gpe.field.solver import observables
 
 GRID = Grid(64, 64, 16.0, 16.0)
 HARMONIC = 0.5 * (GRID.X**2 + GRID.Y**2)  # oscillator units, omega = 1
@@ -103,9 +103,9 @@ def test_ground_state_input_errors():
 
 
 def test_old_import_path_from_gpe_solver_still_works():
-    # The names moved here from gpe.solver and are forwarded from there (PEP 562).
-    import gpe.ground_state as moved
-    import gpe.solver as old
+    # The names moved here from gpe.field.solver and are forwarded from there (PEP 562).
+    import gpe.field.ground_state as moved
+    import gpe.field.solver as old
 
     for name in moved.__all__:
         assert getattr(old, name) is getattr(moved, name)

@@ -5,16 +5,16 @@ import numpy as np
 import pytest
 
 from gpe.errors import RunFileError
-from gpe.grid import Grid
-from gpe.io import FORMAT_VERSION, VORTEX_ROW, RunFile
-from gpe.solver import Solver, SolverSettings
+from gpe.field.grid import Grid
+from gpe.run.runfile import FORMAT_VERSION, VORTEX_ROW, RunFile
+from gpe.field.solver import Solver, SolverSettings
 
 GRID = Grid(32, 32, 16.0, 16.0)
 TRAP = 0.05 * (GRID.X**2 + GRID.Y**2)
 
 
 class CircularBeam:
-    """Test double of gpe.potentials.BeamSet: one beam moving on a circle."""
+    """Test double of gpe.field.traps.BeamSet: one beam moving on a circle."""
 
     n_beams = 1
     waists = np.array([1.5])

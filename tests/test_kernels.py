@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
 
-from gpe import kernels
+from gpe.field import kernels
 
 
 def _rows(n_beams, nx, ny, rng):
@@ -148,7 +148,7 @@ def test_openmp_wait_policy_defaults_to_passive_but_keeps_a_user_setting(preset)
     env = {k: v for k, v in os.environ.items() if k != "OMP_WAIT_POLICY"}
     if preset:
         env["OMP_WAIT_POLICY"] = preset
-    code = "import os, gpe.kernels; print(os.environ['OMP_WAIT_POLICY'])"
+    code = "import os, gpe.field.kernels; print(os.environ['OMP_WAIT_POLICY'])"
     out = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True,
                          check=True, cwd=os.path.dirname(os.path.dirname(__file__)))
     assert out.stdout.strip() == (preset or "PASSIVE")

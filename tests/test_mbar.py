@@ -19,11 +19,11 @@ def test_mbar_free_energies_agree_with_pymbar(rng):
 
 
 def test_binned_mbar_agrees_with_pymbar_on_the_samples(rng):
-    """MBAR solved on the fine energy bins of thermo.dos_tables.energy_bins (as builds do)
+    """MBAR solved on the fine energy bins of thermo.dos.tables.energy_bins (as builds do)
     against pymbar 4 (Shirts & Chodera 2008) on the unbinned samples: the binning changes
     the free energies by far less than their statistical error (~0.05 here)."""
     pymbar = pytest.importorskip("pymbar")
-    from thermo.dos_tables import energy_bins
+    from thermo.dos.tables import energy_bins
     res = one_vortex_result(rng, np.linspace(-2.0, 0.5, 6), 2000)
     flat = res.energies.reshape(-1)
     idx, e_bin = energy_bins(flat, res.betas)

@@ -1,4 +1,4 @@
-"""Tests of thermo.measured: reading measured vortex tables, units, and row reporting.
+"""Tests of thermo.data.measured: reading measured vortex tables, units, and row reporting.
 
 The geometry, the pixel calibration and the geometry TOML are tested in test_geometry.py."""
 
@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 
 from thermo.domains import Box, Disk
-from thermo.measured import (
+from thermo.data.measured import (
     MeasuredTableError, MeasuredTableWarning, PixelCalibration, read_measured, um_to_pixels,
 )
 

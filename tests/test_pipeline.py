@@ -7,9 +7,9 @@ every test to a few seconds.
 import numpy as np
 import pytest
 
-from gpe import pipeline
-from gpe.io import RunFile
-from gpe.protocol import parse_protocol
+from gpe.run import simulate as pipeline
+from gpe.run.runfile import RunFile
+from gpe.setup.protocol import parse_protocol
 from tiny_protocol import healing_header, tiny_protocol_text
 
 TINY = tiny_protocol_text()
@@ -143,7 +143,7 @@ def test_imprinted_clusters_read_negative_and_pairs_positive(tmp_path):
 def test_time_step_too_large_for_the_beam_fails_before_any_file(tmp_path):
     from gpe.errors import SimulationError
 
-    from gpe.protocol import ProtocolWarning
+    from gpe.setup.protocol import ProtocolWarning
 
     with pytest.warns(ProtocolWarning, match="rad per step"):   # the file check warns first
         protocol = _protocol(tmp_path, ["beams.0.height_mu=200.0", "evolution.dt_tau=0.1",

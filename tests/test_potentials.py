@@ -1,14 +1,14 @@
-"""Tests of gpe.potentials: trap shapes, signed distances, smooth walls and mask images.
+"""Tests of gpe.field.traps: trap shapes, signed distances, smooth walls and mask images.
 
-Ramps, beam paths and the BeamSet (gpe/beams.py) are tested in test_beams.py.
+Ramps, beam paths and the BeamSet (gpe/field/beams.py) are tested in test_beams.py.
 """
 
 import numpy as np
 import pytest
 
 from gpe.errors import ProtocolError
-from gpe.grid import Grid
-from gpe.potentials import TrapConfig, build_trap, load_mask, signed_distance_box
+from gpe.field.grid import Grid
+from gpe.field.traps import TrapConfig, build_trap, load_mask, signed_distance_box
 
 GRID = Grid(128, 96, 64.0, 48.0)  # dx = dy = 0.5 xi
 
@@ -102,8 +102,9 @@ def test_bad_masks_raise_protocol_error_naming_file(tmp_path):
 
 
 def test_beam_names_are_still_importable_from_potentials():
-    # gpe/potentials.py re-exports the beam classes that moved to gpe/beams.py
-    from gpe import beams, potentials
+    # gpe/field/traps.py re-exports the beam classes that moved to gpe/field/beams.py
+    from gpe.field import beams
+    from gpe.field import traps as potentials
 
     for name in ("Beam", "BeamSet", "CirclePath", "LinePath", "PolylinePath", "Ramp",
                  "StaticPath", "array_offsets", "find_beam_excursion"):

@@ -6,9 +6,9 @@ import h5py
 import numpy as np
 import pytest
 
-from gpe import products
+from gpe.run import products
 from gpe.errors import VorthermError
-from gpe.io import RunFile
+from gpe.run.runfile import RunFile
 
 
 def test_redetect_exports_si_and_changes_the_run_only_when_stored(tiny_run, tmp_path):

@@ -1,4 +1,4 @@
-"""Tests of gpe.progress: the text progress bar (what it draws, where and when)."""
+"""Tests of gpe.cli.progress: the text progress bar (what it draws, where and when)."""
 
 import io
 import math
@@ -6,8 +6,8 @@ import sys
 
 import pytest
 
-from gpe import progress
-from gpe.progress import ProgressBar, _format_seconds
+from gpe.cli import progress
+from gpe.cli.progress import ProgressBar, _format_seconds
 
 
 class FakeClock:

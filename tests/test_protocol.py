@@ -1,4 +1,4 @@
-"""Tests of gpe.protocol: schema, units, overrides, validation messages and warnings."""
+"""Tests of gpe.setup.protocol: schema, units, overrides, validation messages and warnings."""
 
 import json
 import math
@@ -11,7 +11,7 @@ import pytest
 import scipy.constants as sc
 
 from gpe.errors import ProtocolError
-from gpe.protocol import ProtocolWarning, example_protocol_text, load_protocol, parse_protocol
+from gpe.setup.protocol import ProtocolWarning, example_protocol_text, load_protocol, parse_protocol
 
 ROOT = Path(__file__).resolve().parents[1]
 A0 = sc.physical_constants["Bohr radius"][0]

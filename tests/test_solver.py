@@ -6,12 +6,12 @@ import numpy as np
 import pytest
 
 from gpe.errors import SimulationError, VorthermError
-from gpe.grid import Grid
-from gpe.solver import Solver, SolverSettings, observables
+from gpe.field.grid import Grid
+from gpe.field.solver import Solver, SolverSettings, observables
 
 
 class CircularBeam:
-    """Test double of gpe.potentials.BeamSet: one beam on a circle, height ramped in."""
+    """Test double of gpe.field.traps.BeamSet: one beam on a circle, height ramped in."""
 
     n_beams = 1
 

@@ -1,12 +1,12 @@
-"""Tests of gpe.spectra: Helmholtz split, Parseval, and the k^-3 spectrum of a vortex core."""
+"""Tests of gpe.analysis.spectra: Helmholtz split, Parseval, and the k^-3 spectrum of a vortex core."""
 
 import numpy as np
 import pytest
 from scipy.special import j1
 
 from gpe.errors import VorthermError
-from gpe.grid import Grid
-from gpe.spectra import (
+from gpe.field.grid import Grid
+from gpe.analysis.spectra import (
     density_weighted_velocity,
     helmholtz_split,
     kinetic_energy_spectra,

@@ -1,4 +1,4 @@
-"""Tests of the sweep machinery (gpe/sweep.py): executors, resuming, failures.
+"""Tests of the sweep machinery (gpe/sweep/execute.py): executors, resuming, failures.
 
 Most tests use the cheap stand-in point function of tests/sweep_stand_in.py. The sweep-file parser
 is tested in test_sweep_file.py, the summary tables in test_sweep_table.py, the phase maps in
@@ -15,7 +15,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from gpe.sweep import PointTask, SweepError, load_sweep, plan_local, run_sweep
+from gpe.sweep.execute import PointTask, SweepError, load_sweep, plan_local, run_sweep
 from sweep_stand_in import (SWEEP_TEXT, calls, overrides_of, run_stand_in, stand_in_is_complete,
                             write_sweep_file)
 
@@ -124,7 +124,7 @@ DEMO = Path(__file__).resolve().parents[1] / "runs" / "demo.toml"
 
 def protocol_checked_point(task: PointTask) -> dict:
     """Parse the point's protocol for real (the overrides must be accepted), then stand in."""
-    from gpe.protocol import load_protocol
+    from gpe.setup.protocol import load_protocol
 
     protocol = load_protocol(task.base, task.overrides)
     assert protocol.evolution.seed == int(overrides_of(task)["evolution.seed"])
@@ -144,7 +144,7 @@ def test_invalid_point_of_a_real_protocol_fails_alone(tmp_path):
     # 2.5 um in healing lengths, against xi = hbar / sqrt(m mu) from scipy.constants
     from scipy import constants
 
-    from gpe.protocol import load_protocol
+    from gpe.setup.protocol import load_protocol
 
     p = load_protocol(DEMO)
     xi = constants.hbar / math.sqrt(p.atoms.mass_kg * p.atoms.chemical_potential_J)
@@ -154,8 +154,8 @@ def test_invalid_point_of_a_real_protocol_fails_alone(tmp_path):
 def test_measurement_time_is_converted_to_hbar_over_mu():
     from scipy import constants
 
-    from gpe.protocol import load_protocol
-    from gpe.sweep import _time_to_simulation
+    from gpe.setup.protocol import load_protocol
+    from gpe.sweep.execute import _time_to_simulation
 
     p = load_protocol(DEMO)
     tau_s = constants.hbar / p.atoms.chemical_potential_J  # time unit hbar/mu
@@ -195,7 +195,7 @@ speed_c = 0.6
 @pytest.mark.slow
 def test_end_to_end_with_the_real_pipeline(tmp_path):
     """Two points of a tiny protocol through simulate + analyse, then a rerun that skips both."""
-    from gpe import pipeline
+    from gpe.run import simulate as pipeline
 
     (tmp_path / "tiny.toml").write_text(TINY_PROTOCOL)
     src = tmp_path / "s.toml"

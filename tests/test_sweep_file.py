@@ -1,4 +1,4 @@
-"""Tests of the sweep-file parser (gpe/sweep_file.py): axes, ranges, seeds, measure, errors.
+"""Tests of the sweep-file parser (gpe/sweep/file.py): axes, ranges, seeds, measure, errors.
 
 The file of tests/sweep_stand_in.py and the repository's demo sweep are parsed; running sweeps
 is tested in test_sweep.py.
@@ -12,7 +12,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from gpe.sweep_file import QUANTITIES, SweepError, load_sweep, parse_sweep
+from gpe.sweep.file import QUANTITIES, SweepError, load_sweep, parse_sweep
 from sweep_stand_in import write_sweep_file
 
 DEMO = Path(__file__).resolve().parents[1] / "runs" / "demo.toml"
@@ -93,13 +93,13 @@ def test_misspelt_protocol_key_is_caught_before_running(tmp_path):
 
 
 def test_old_import_paths_still_work():
-    """The parser's names moved out of gpe.sweep are re-exported by it."""
-    import gpe.sweep
-    import gpe.sweep_file
+    """The parser's names moved out of gpe.sweep.execute are re-exported by it."""
+    import gpe.sweep.execute
+    import gpe.sweep.file
 
     for name in ("QUANTITIES", "SEED_KEY", "SUFFIX_UNITS", "Axis", "Measure", "Point", "Sweep",
                  "SweepError", "format_value", "load_sweep", "parse_sweep"):
-        assert getattr(gpe.sweep, name) is getattr(gpe.sweep_file, name)
+        assert getattr(gpe.sweep.execute, name) is getattr(gpe.sweep.file, name)
 
 
 @pytest.mark.parametrize("value", [0.1, 1e-12, 3, -2.5, True, False, 'a "quoted" name', "x\\y"])
@@ -107,7 +107,7 @@ def test_format_value_is_read_back_by_toml(value):
     """An override's right-hand side is TOML: tomllib must give back the same value and type."""
     import tomllib
 
-    from gpe.sweep_file import format_value
+    from gpe.sweep.file import format_value
 
     back = tomllib.loads(f"v = {format_value(value)}")["v"]
     assert back == value and type(back) is type(value)

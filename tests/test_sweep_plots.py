@@ -1,4 +1,4 @@
-"""Tests of the sweep phase maps (gpe/sweep_plots.py)."""
+"""Tests of the sweep phase maps (gpe/figures/sweep.py)."""
 
 from __future__ import annotations
 
@@ -7,7 +7,7 @@ import concurrent.futures as cf
 import numpy as np
 import pytest
 
-from gpe.sweep import SweepError
+from gpe.sweep.execute import SweepError
 from sweep_stand_in import run_stand_in, write_sweep_file
 
 
@@ -19,7 +19,7 @@ def sweep_file(tmp_path):
 def test_phase_map_outlines_negative_beta(sweep_file, tmp_path):
     from matplotlib.colors import CenteredNorm
 
-    from gpe.sweep_plots import plot_sweep
+    from gpe.figures.sweep import plot_sweep
 
     result = run_stand_in(sweep_file, tmp_path / "out", executor=cf.ThreadPoolExecutor(2))
     fig = plot_sweep(tmp_path / "out", path=tmp_path / "map.png")

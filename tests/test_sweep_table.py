@@ -1,4 +1,4 @@
-"""Tests of the sweep summary tables (gpe/sweep_table.py): columns, units, aggregation, readers."""
+"""Tests of the sweep summary tables (gpe/sweep/table.py): columns, units, aggregation, readers."""
 
 from __future__ import annotations
 
@@ -7,7 +7,7 @@ import concurrent.futures as cf
 import numpy as np
 import pytest
 
-from gpe.sweep import read_summary, read_table
+from gpe.sweep.execute import read_summary, read_table
 from sweep_stand_in import run_stand_in, write_sweep_file
 
 

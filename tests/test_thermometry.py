@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 
 from gpe.errors import VorthermError
-from gpe.potentials import TrapConfig
-from gpe.thermometry import (CORE_RADIUS_XI, WALL_LAYER_XI, domain_for_trap, gas_configuration,
+from gpe.field.traps import TrapConfig
+from gpe.run.thermometry import (CORE_RADIUS_XI, WALL_LAYER_XI, domain_for_trap, gas_configuration,
                              onset_verdict)
 
 

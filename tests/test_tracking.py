@@ -1,4 +1,4 @@
-"""Tests of gpe.tracking: linking vortices across frames, annihilation and creation events.
+"""Tests of gpe.analysis.tracking: linking vortices across frames, annihilation and creation events.
 
 The frames are synthetic fields (tests/vortex_fields.py) that vanish exactly at the imprinted
 centres, moved along known paths, so every true identity and event time is known.
@@ -8,8 +8,8 @@ import numpy as np
 import pytest
 
 from gpe.errors import VorthermError
-from gpe.tracking import ANNIHILATION, CREATION, find_events, track_vortices
-from gpe.vortices import VORTEX_DTYPE, detect_frames
+from gpe.analysis.tracking import ANNIHILATION, CREATION, find_events, track_vortices
+from gpe.analysis.vortices import VORTEX_DTYPE, detect_frames
 from vortex_fields import axis, imprint, random_configuration
 
 

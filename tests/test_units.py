@@ -1,4 +1,4 @@
-"""Tests of gpe.units: species table, quasi-2D coupling, healing units, Thomas-Fermi mu."""
+"""Tests of gpe.setup.units: species table, quasi-2D coupling, healing units, Thomas-Fermi mu."""
 
 import math
 
@@ -8,7 +8,7 @@ import scipy.constants as sc
 from scipy import integrate
 
 from gpe.errors import VorthermError
-from gpe.units import (
+from gpe.setup.units import (
     SPECIES,
     HealingUnits,
     axial_length,
@@ -44,7 +44,7 @@ def test_species_table_has_required_isotopes_and_tunable_flags():
 def test_quasi2d_coupling_equals_overlap_integral_of_axial_gaussian():
     # [pub] Petrov, Holzmann & Shlyapnikov, PRL 84, 2551 (2000): g2D = g3D * int |phi_0(z)|^4 dz
     # with g3D = 4 pi hbar^2 a/m and phi_0 the axial oscillator ground state. The integral is
-    # done here by scipy quadrature, independently of the closed form in gpe.units.
+    # done here by scipy quadrature, independently of the closed form in gpe.setup.units.
     m = SPECIES["87Rb"].mass_kg
     a_s = 100.4 * A0
     omega_z = 2 * np.pi * 750.0

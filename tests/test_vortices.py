@@ -1,4 +1,4 @@
-"""Tests of gpe.vortices: detection, refinement, fluid restriction, the vortex table.
+"""Tests of gpe.analysis.vortices: detection, refinement, fluid restriction, the vortex table.
 
 The synthetic fields of tests/vortex_fields.py vanish exactly at every imprinted centre, so the
 true positions are known exactly. Tracking and events are tested in test_tracking.py.
@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from gpe.errors import VorthermError
-from gpe.vortices import VORTEX_DTYPE, find_vortices, frame_rows
+from gpe.analysis.vortices import VORTEX_DTYPE, find_vortices, frame_rows
 from vortex_fields import axis, imprint, random_configuration
 
 
@@ -140,14 +140,14 @@ def test_frame_rows_and_table_errors():
 
 @pytest.mark.parametrize("n", [128, 256])
 def test_relaxed_random_configuration_found_exactly(rng, n):
-    """After a short imaginary-time relaxation of the cores (gpe.solver.find_ground_state with
+    """After a short imaginary-time relaxation of the cores (gpe.field.solver.find_ground_state with
     the vortices held) in a hard-wall disk, dx = 0.5 and 0.25 xi: every vortex found with its
     sign, no extras (nothing in the wall or outside), positions within 0.1 grid spacing of the
     imprinted centres (requirement of the brief). find_ground_state holds the zeros of the
     field at the imprinted centres (test_ground_state.py checks that on the Fourier
     interpolant of the field, independently of this detector), so the imprint is the truth."""
-    from gpe.grid import Grid
-    from gpe.solver import find_ground_state
+    from gpe.field.grid import Grid
+    from gpe.field.solver import find_ground_state
 
     grid = Grid(n, n, 64.0, 64.0)
     r = np.hypot(grid.X, grid.Y)

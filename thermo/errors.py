@@ -27,5 +27,5 @@ class SamplerError(ThermoError, ValueError):
 
 
 class MeasuredTableError(ThermoError, ValueError):
-    """A measured vortex table or its geometry cannot be read (``thermo.measured``,
-    ``thermo.geometry``). The message names the file, line or key and what is accepted."""
+    """A measured vortex table or its geometry cannot be read (``thermo.data.measured``,
+    ``thermo.data.geometry``). The message names the file, line or key and what is accepted."""

@@ -35,9 +35,9 @@ from scipy.special import jn_zeros
 from scipy.stats import chi2
 
 from thermo.classify import structure_observables
-from thermo.dos import DensityOfStates
-from thermo.dos_build import DosSettings
-from thermo.dos_cache import load_or_build
+from thermo.dos.model import DensityOfStates
+from thermo.dos.build import DosSettings
+from thermo.dos.cache import load_or_build
 from thermo.energy import energy_batch, validate_configuration
 from thermo.errors import ConfigurationError
 
@@ -324,7 +324,7 @@ def estimate_ensemble(configs: Sequence, domain: Any, core_radius: float, *,
     ----------
     configs : sequence of (positions (N, 2), signs (N,)) pairs; N+ / N- may differ per shot.
     domain : thermo.domains.Disk or Box; core_radius : hard-core radius a (length unit).
-    cache_dir, settings, seed : passed to :func:`thermo.dos_cache.load_or_build`.
+    cache_dir, settings, seed : passed to :func:`thermo.dos.cache.load_or_build`.
     rng : if given, its first draw seeds a density-of-states build (instead of ``seed``).
     dos_provider : callable (n_plus, n_minus) -> DensityOfStates, replacing the cache.
     equilibrium_z : disagreement (in combined standard errors) that sets
@@ -395,7 +395,7 @@ def estimate_ensemble(configs: Sequence, domain: Any, core_radius: float, *,
                    structure_betas, flag, (lo, hi))
 
 
-#: the name thermo.compare looks for
+#: the name thermo.data.compare looks for
 estimate_ensemble_beta = estimate_ensemble
 
 

@@ -376,7 +376,7 @@ def default_ladder(n_plus: int, n_minus: int, core_radius: float, domain: Domain
     beta_min sin(pi t / 2), t uniform, crowding towards the clustering/collapse end; for
     beta > 0 as beta_max t^2, crowding towards beta = 0, where the free +- pairs bind and E
     falls steeply. ~55 % of the points lie at negative beta.
-    This is a heuristic starting point: :func:`thermo.dos.build` uses
+    This is a heuristic starting point: :func:`thermo.dos.build.build` uses
     :func:`adaptive_ladder`, which runs it briefly and respaces the rungs by the measured
     std(E); check ``TemperingResult.swap_acceptance``.
 

@@ -1,0 +1,267 @@
+"""Subcommands of ``vortherm``: argument definitions and thin handlers.
+
+Each ``_register_*`` adds one subparser; handlers import the numerics lazily and only translate
+between the command line and the library functions (no physics here).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from gpe.cli.args import add_command, parse_frames, parse_seeds
+from gpe.cli.thermo_commands import _cmd_temperature, _register_compare, _register_temperature
+from gpe.errors import VorthermError
+
+
+# --------------------------------------------------------------------------- init
+def _register_init(sub) -> None:
+    p = add_command(sub, "init", "write a commented example protocol (TOML)")
+    p.add_argument("path", type=Path, help="where to write the protocol, e.g. my.toml")
+    p.add_argument("--force", action="store_true", help="overwrite an existing file")
+    p.set_defaults(handler=_cmd_init)
+
+
+def _cmd_init(args) -> int:
+    from gpe.setup.protocol import example_protocol_text
+
+    if args.path.exists() and not args.force:
+        raise VorthermError(f"{args.path} exists already; pass --force to overwrite it, "
+                            "or choose another file name.")
+    args.path.write_text(example_protocol_text())
+    print(f"wrote {args.path}: edit it, then `vortherm run {args.path}`")
+    return 0
+
+
+# --------------------------------------------------------------------------- run
+def _register_run(sub) -> None:
+    p = add_command(sub, "run", "simulate a protocol and write its run file (HDF5)",
+                    "Simulate a stirring protocol: ground state with the beams at their start positions, "
+                    "then damped real-time evolution; snapshots, observables and vortices are written "
+                    "to the run file at every output time (times in the protocol's units: ms in SI "
+                    "protocols, hbar/mu in healing-unit protocols).")
+    p.add_argument("protocol", type=Path, nargs="?", help="protocol file (TOML)")
+    p.add_argument("-o", "--output", type=Path, help="run file to write (default: PROTOCOL with .h5)")
+    p.add_argument("--set", dest="overrides", action="append", default=[], metavar="SECTION.KEY=VALUE",
+                   help="override a protocol value, e.g. --set beams.0.height_mu=2.5 (repeatable)")
+    p.add_argument("--resume", type=Path, metavar="RUN.h5",
+                   help="continue an interrupted run from its last checkpoint")
+    p.add_argument("--seeds", metavar="A-B|A,B,..",
+                   help="run one file per noise seed (writes NAME_seedK.h5), for ensembles")
+    p.add_argument("--threads", type=int, help="FFT threads (default: all cores)")
+    p.add_argument("--force", action="store_true", help="overwrite an existing run file")
+    p.set_defaults(handler=_cmd_run)
+
+
+def _cmd_run(args) -> int:
+    from gpe.run import simulate as pipeline
+    from gpe.setup.protocol import load_protocol
+
+    if args.resume is not None:
+        path = pipeline.simulate_resume(args.resume, progress=pipeline.terminal_progress_factory(),
+                                        threads=args.threads)
+        print(pipeline.summary_text(path))
+        return 0
+    if args.protocol is None:
+        raise VorthermError("vortherm run needs a protocol file (or --resume RUN.h5); "
+                            "`vortherm init my.toml` writes an example")
+    output = args.output or args.protocol.with_suffix(".h5")
+    seeds = parse_seeds(args.seeds) if args.seeds else [None]
+    for seed in seeds:
+        overrides = list(args.overrides)
+        out = output
+        if seed is not None:
+            overrides.append(f"evolution.seed={seed}")
+            out = output.with_name(f"{output.stem}_seed{seed}{output.suffix}")
+        protocol = load_protocol(args.protocol, overrides)
+        if out.exists() and not args.force:
+            raise VorthermError(f"{out} exists already; continue it with `vortherm run --resume {out}`, "
+                                "or pass --force to start again, or -o for another name.")
+        path = pipeline.simulate(protocol, out, progress=pipeline.terminal_progress_factory(), threads=args.threads)
+        print(pipeline.summary_text(path))
+    return 0
+
+
+
+
+# --------------------------------------------------------------------------- sweep
+def _register_sweep(sub) -> None:
+    p = add_command(sub, "sweep", "run a grid of protocols overnight: summary table and phase map",
+                    "Every point of the sweep file (base protocol, axes, seeds, what to measure) runs "
+                    "the whole pipeline into its own run file. Rerunning the same command resumes: "
+                    "complete points are skipped, incomplete ones continue from their checkpoints. "
+                    "Local by default (a pool sized to the cores); --scheduler sends the points to an "
+                    "existing Dask cluster (pip install 'vortherm[cluster]').")
+    p.add_argument("sweep", type=Path, help="sweep file (TOML), see docs/sweep.md")
+    p.add_argument("-o", "--output", type=Path, help="output folder (default: out/<stem>/ beside the sweep file)")
+    p.add_argument("--scheduler", metavar="ADDRESS", help="Dask scheduler address, e.g. tcp://head:8786")
+    p.add_argument("--workers", type=int, help="local worker processes (default: cores / threads)")
+    p.add_argument("--threads", type=int, help="FFT threads per point")
+    p.set_defaults(handler=_cmd_sweep)
+
+
+def _cmd_sweep(args) -> int:
+    from gpe.sweep import execute as sw
+
+    spec = sw.load_sweep(args.sweep)
+    out_dir = args.output or sw.default_out_dir(args.sweep)
+    bar = {}
+
+    def progress(p) -> None:
+        from gpe.cli.progress import ProgressBar
+
+        if "bar" not in bar:
+            bar["bar"] = ProgressBar(p.total, label="sweep", unit="points")
+        eta = "" if p.eta_s is None else f"ETA {p.eta_s / 60:.1f} min"
+        bar["bar"].update(p.done + p.skipped + p.failed,
+                          extra=f"running {p.running} failed {p.failed} skipped {p.skipped} {eta}")
+
+    result = sw.run_sweep(spec, out_dir, scheduler=args.scheduler, workers=args.workers,
+                          threads=args.threads, progress=progress)
+    if "bar" in bar:
+        bar["bar"].close()
+    print(f"summary tables: {', '.join(str(v) for v in result.files.values())}")
+    if result.failed:
+        print(f"{len(result.failed)} point(s) failed:")
+        for pid, err in result.failed.items():
+            print(f"  {pid}: {err}")
+    try:
+        from gpe.figures.sweep import plot_sweep
+
+        plot_sweep(result, "beta", path=Path(out_dir) / "phase_map.png")
+        print(f"phase map: {Path(out_dir) / 'phase_map.png'}")
+    except VorthermError as exc:
+        print(f"no phase map: {exc}")
+    if result.interrupted:
+        print("interrupted: rerun the same command to continue")
+        return 130
+    return 0 if not result.failed else 1
+
+
+
+
+# --------------------------------------------------------------------------- vortices
+def _register_vortices(sub) -> None:
+    p = add_command(sub, "vortices", "re-detect vortices in a run file and export them as CSV (um)",
+                    "Detection by phase winding around every grid plaquette, restricted to where the "
+                    "fluid is. The run file is only changed with --store (the old table is then "
+                    "replaced in one step).")
+    p.add_argument("run", type=Path, help="run file (.h5)")
+    p.add_argument("--threshold", type=float, default=0.2,
+                   help="density threshold relative to the peak background density, in (0, 1)")
+    p.add_argument("--region", choices=("trap", "all"), default="trap",
+                   help="'trap': only inside the trap walls; 'all': the whole grid")
+    p.add_argument("--frames", help="frames to use, e.g. 10:40 or 5,9,-1 (default: all)")
+    p.add_argument("--csv", type=Path, help="CSV to write (default: RUN_vortices.csv)")
+    p.add_argument("--store", action="store_true",
+                   help="replace the vortex table of the run file with the new detection")
+    p.set_defaults(handler=_cmd_vortices)
+
+
+def _cmd_vortices(args) -> int:
+    from gpe.run import products
+
+    frames = parse_frames(args.frames)
+    table, events, csv_path = products.redetect(args.run, threshold=args.threshold,
+                                                region=args.region, frames=frames,
+                                                csv_path=args.csv, store=args.store)
+    n_frames = len(set(table["frame"].tolist())) if table.size else 0
+    print(f"{table.size} vortices in {n_frames} frames with vortices; "
+          f"{len(events)} annihilation/creation events")
+    print(f"table written to {csv_path} (x, y in um about the grid centre)")
+    if args.store:
+        print(f"vortex table of {args.run} replaced")
+    return 0
+
+
+# --------------------------------------------------------------------------- plot
+def _register_plot(sub) -> None:
+    p = add_command(sub, "plot", "figures from a run file: density, phase, vortices, energies, spectra")
+    p.add_argument("run", type=Path, help="run file (.h5)")
+    p.add_argument("--frames", default="-1", help="frames to draw, e.g. 0,30,-1 (default: the last)")
+    p.add_argument("--movie", action="store_true", help="also write an animation (mp4 or GIF)")
+    p.add_argument("-o", "--output", type=Path, help="folder for the figures (default: beside the run)")
+    p.set_defaults(handler=_cmd_plot)
+
+
+def _cmd_plot(args) -> int:
+    from gpe.run import products
+
+    out_dir = args.output or args.run.with_name(args.run.stem + "_figures")
+    written = products.make_figures(args.run, out_dir, frames=parse_frames(args.frames),
+                                    movie=args.movie)
+    for path in written:
+        print(f"figure: {path}")
+    return 0
+
+
+# --------------------------------------------------------------------------- demo
+def _register_demo(sub) -> None:
+    p = add_command(sub, "demo", "run the demo scenario end to end and say where the outputs are",
+                    "Simulates runs/demo.toml (a scenario of our own: a 87Rb condensate in a disk "
+                    "stirred once by a paddle of six beams), detects the vortices, draws figures, measures the "
+                    "vortex-gas temperature and prints the verdict.")
+    p.add_argument("-o", "--output", type=Path, default=Path("demo-output"),
+                   help="folder for all outputs (default: ./demo-output)")
+    p.add_argument("--threads", type=int, help="FFT threads (default: all cores)")
+    p.set_defaults(handler=_cmd_demo)
+
+
+def _cmd_demo(args) -> int:
+    import argparse as _ap
+
+    from gpe.run import simulate as pipeline
+
+    from gpe.run import products
+    from gpe.setup.protocol import parse_protocol
+
+    out = args.output
+    out.mkdir(parents=True, exist_ok=True)
+    source = Path(__file__).resolve().parent.parent / "runs" / "demo.toml"
+    if not source.exists():
+        raise VorthermError(f"the demo protocol {source} is missing; the demo runs from a source "
+                            "checkout installed with `pip install -e .`")
+    text = source.read_text()
+    protocol_path = out / "demo.toml"
+    protocol_path.write_text(text)
+    protocol = parse_protocol(text, source=str(protocol_path))
+    run_path = out / "demo.h5"
+    print(f"1/4 simulating {protocol_path} -> {run_path}")
+    resume = run_path.exists() and not pipeline.is_complete(run_path)
+    if not pipeline.is_complete(run_path):
+        if run_path.exists() and not resume:
+            run_path.unlink()
+        pipeline.simulate(protocol, run_path, resume=resume, progress=pipeline.terminal_progress_factory(),
+                          threads=args.threads)
+    print(pipeline.summary_text(run_path))
+    print("2/4 figures")
+    for path in products.make_figures(run_path, out / "figures", frames=[0, -1], movie=False):
+        print(f"  {path}")
+    print("3/4 vortex table")
+    _, _, csv_path = products.redetect(run_path, csv_path=out / "demo_vortices.csv")
+    print(f"  {csv_path}")
+    print("4/4 temperature of the vortex gas")
+    targs = _ap.Namespace(source=run_path, frames=None, effort="quick", csv=out / "demo_temperature.csv",
+                          json=False, plot=True, disk_radius_um=None, box_um=None, core_um=None,
+                          pixel_um=None, center=None, strict=False)
+    _cmd_temperature(targs)
+    print(f"\nall demo outputs are in {out.resolve()}")
+    return 0
+
+
+# --------------------------------------------------------------------------- describe
+def _register_describe(sub) -> None:
+    p = add_command(sub, "describe", "list the observables recorded at every output time, with units")
+    p.set_defaults(handler=_cmd_describe)
+
+
+def _cmd_describe(args) -> int:
+    from gpe.analysis import diagnostics
+
+    print("observables stored in every run file (observables/<name>), simulation units:")
+    print(diagnostics.describe())
+    return 0
+
+
+REGISTRY = [_register_init, _register_run, _register_vortices, _register_plot,
+            _register_temperature, _register_compare, _register_sweep, _register_demo,
+            _register_describe]

@@ -1,0 +1,243 @@
+"""Subcommands of the thermometry side: ``temperature`` and ``compare``.
+
+Thin handlers: they read run files and measured tables, call gpe.run.thermometry and thermo, and
+print or write the results. Registered in gpe.cli.commands.REGISTRY.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+from gpe.cli.args import add_command, parse_frames
+from gpe.errors import VorthermError
+
+
+# --------------------------------------------------------------------------- temperature
+def _register_temperature(sub) -> None:
+    p = add_command(sub, "temperature", "inverse temperature beta of vortex configurations (both signs)",
+                    "beta per output time of a run file, or per shot and for the ensemble of a measured "
+                    "table (CSV/HDF5: shot, x, y, sign; positions in um about the trap centre, or "
+                    "pixels with --pixel-um and --center). beta is in units of 1/E0 with "
+                    "E0 = rho kappa^2/(4 pi); beta*N compares across vortex numbers.")
+    p.add_argument("source", type=Path, help="run file (.h5 from `vortherm run`) or measured table (.csv/.h5)")
+    p.add_argument("--disk-radius-um", type=float, help="measured table: disk radius in um")
+    p.add_argument("--box-um", type=float, nargs=2, metavar=("LX", "LY"),
+                   help="measured table: box sides in um")
+    p.add_argument("--core-um", type=float,
+                   help="measured table: vortex core radius in um (default: 2%% of the domain size)")
+    p.add_argument("--pixel-um", type=float, help="measured table in pixels: pixel size in um")
+    p.add_argument("--center", type=float, nargs=2, metavar=("X", "Y"),
+                   help="measured table in pixels: trap centre in pixels")
+    p.add_argument("--strict", action="store_true", help="stop at the first unusable row")
+    p.add_argument("--frames", help="run file: frames to use, e.g. 10:40 or 5,9,-1 (default: all)")
+    p.add_argument("--effort", choices=("quick", "standard", "thorough"), default="quick",
+                   help="Monte Carlo effort of the density of states (cached on disk per N+, N-)")
+    p.add_argument("--csv", type=Path, help="where to write the table (default: beside the source)")
+    p.add_argument("--json", action="store_true", help="print the results as JSON on stdout")
+    p.add_argument("--plot", action="store_true", help="draw beta(t) and clustering observables")
+    p.set_defaults(handler=_cmd_temperature)
+
+
+def _is_run_file(path: Path) -> bool:
+    if path.suffix.lower() not in (".h5", ".hdf5"):
+        return False
+    import h5py
+
+    try:
+        with h5py.File(path, "r") as f:
+            return "format_version" in f.attrs and "snapshots" in f
+    except OSError:
+        return False
+
+
+def _cmd_temperature(args) -> int:
+    from gpe.run import thermometry
+
+    if not args.source.exists():
+        raise VorthermError(f"{args.source}: no such file; give a run file (.h5) or a measured "
+                            "table (.csv)")
+    if _is_run_file(args.source):
+        result = _temperature_of_run(args)
+    else:
+        result = _temperature_of_table(args)
+    csv_path = args.csv or args.source.with_name(args.source.stem + "_temperature.csv")
+    thermometry.write_records_csv(csv_path, result["records"], result["time_key"])
+    if args.json:
+        print(json.dumps(thermometry.json_report(result), indent=1, allow_nan=True))
+    else:
+        print(thermometry.text_report(result))
+        print(f"table written to {csv_path}")
+    if args.plot:
+        from gpe.figures import thermometry as thermo_plots
+
+        fig_path = args.source.with_name(args.source.stem + "_temperature.png")
+        thermo_plots.plot_temperature_series(result, fig_path)
+        print(f"figure written to {fig_path}")
+    return 0
+
+
+def _temperature_of_run(args) -> dict:
+    from gpe.run import simulate as pipeline
+    from gpe.run import thermometry
+    from gpe.run.runfile import RunFile
+
+    with RunFile.open(args.source, "r") as run:
+        n_frames = len(run.frame_times())
+    frames = pipeline.select_frames(args.source, parse_frames(args.frames), n_frames)
+    vd, times, configs, left_out, protocol = pipeline.run_configurations(args.source, frames)
+    si = protocol.unit_system == "SI"
+    t_user = times * protocol.units.time_s * 1e3 if si else times
+    unit = "ms" if si else "hbar/mu"
+    records = thermometry.configuration_records(configs, vd.domain, vd.core_radius,
+                                                effort=args.effort)
+    for rec, f, t, (wall, pairs) in zip(records, frames, t_user, left_out):
+        rec.update({"frame": f, "t": float(t), "left_out_wall": wall, "left_out_pairs": pairs})
+    # the ensemble over the last third of the run: where a stirred gas has settled, if ever
+    last = max(1, len(configs) // 3)
+    ensemble = thermometry.ensemble_record(configs[-last:], vd.domain, vd.core_radius,
+                                           effort=args.effort)
+    ensemble["window"] = [float(t_user[-last]), float(t_user[-1])]
+    return {"kind": "run", "source": str(args.source), "time_key": "t", "time_unit": unit,
+            "records": records, "ensemble": ensemble,
+            "onset": thermometry.onset_verdict(t_user, records, unit),
+            "approximation": vd.approximate, "domain": vd.domain.kind}
+
+
+def _temperature_of_table(args) -> dict:
+    from gpe.run import thermometry
+    from thermo.data.measured import read_measured
+
+    shape = None
+    kw = {}
+    if args.disk_radius_um is not None:
+        shape, kw["radius_um"] = "disk", args.disk_radius_um
+    if args.box_um is not None:
+        shape, kw["width_um"], kw["height_um"] = "box", args.box_um[0], args.box_um[1]
+    table = read_measured(args.source, shape=shape, core_um=args.core_um, pixel_um=args.pixel_um,
+                          center_px=args.center, strict=args.strict, **kw)
+    core = table.core_radius if table.core_radius is not None else 0.02
+    configs = table.configurations
+    records = thermometry.configuration_records(configs, table.domain, core, effort=args.effort)
+    for rec, shot in zip(records, table.shot_ids):
+        rec["shot"] = shot
+    ensemble = thermometry.ensemble_record(configs, table.domain, core, effort=args.effort)
+    return {"kind": "measured", "source": str(args.source), "time_key": "shot",
+            "time_unit": "", "records": records, "ensemble": ensemble,
+            "onset": ensemble["verdict"], "approximation": "",
+            "domain": table.domain.kind,
+            "problems": [str(p) for p in table.problems]}
+
+
+
+
+# --------------------------------------------------------------------------- compare
+def _register_compare(sub) -> None:
+    p = add_command(sub, "compare", "simulated vs measured vortex statistics, side by side",
+                    "Frames of one or more run files (e.g. seeds of one protocol) near --time-ms, or in "
+                    "--window-ms, form the simulated ensemble; the measured table (CSV/HDF5) the other. "
+                    "Prints simulation | measured | difference (95% interval) | p-value for vortex "
+                    "numbers, energy per vortex, beta, D, C1, dipole/cluster/free fractions and mean "
+                    "nearest-neighbour distance, with Kolmogorov-Smirnov and permutation tests.")
+    p.add_argument("runs", type=Path, nargs="+", help="run files (.h5)")
+    p.add_argument("--measured", type=Path, required=True, help="measured vortex table (.csv/.h5)")
+    p.add_argument("--time-ms", type=float, help="simulation time to compare at, ms (default: last frame)")
+    p.add_argument("--window-ms", type=float, nargs=2, metavar=("T0", "T1"),
+                   help="use every frame in this window, ms")
+    p.add_argument("--pixel-um", type=float, help="measured table in pixels: pixel size in um")
+    p.add_argument("--center", type=float, nargs=2, metavar=("X", "Y"), help="trap centre in pixels")
+    p.add_argument("--strict", action="store_true",
+                   help="stop at the first unusable row of the measured table instead of listing them")
+    p.add_argument("--blur-um", type=float, default=0.0, help="imaging model: position blur (um, rms)")
+    p.add_argument("--resolution-um", type=float, default=0.0,
+                   help="imaging model: vortices closer than this are not resolved (um)")
+    p.add_argument("--edge-loss-um", type=float, default=0.0,
+                   help="imaging model: vortices this close to the wall are lost (um)")
+    p.add_argument("--sign-error", type=float, default=0.0,
+                   help="imaging model: probability of a wrong sign (0..1)")
+    p.add_argument("--seed", type=int, default=0, help="seed of the imaging model and the tests")
+    p.add_argument("--effort", choices=("quick", "standard", "thorough"), default="quick")
+    p.add_argument("-o", "--output", type=Path, help="stem of the CSV/JSON/PNG outputs")
+    p.add_argument("--json", action="store_true", help="print the table as JSON on stdout")
+    p.set_defaults(handler=_cmd_compare)
+
+
+def _cmd_compare(args) -> int:
+    import numpy as np
+
+    from gpe.run import simulate as pipeline
+    from gpe.run.runfile import RunFile
+    from gpe.run.thermometry import dos_settings
+    from thermo.data import compare as cmp
+    from gpe.figures import thermometry as thermo_plots
+    from thermo.data.degrade import ImagingModel, degrade_many
+    from thermo.data.measured import read_measured
+
+    sim_configs, vd, protocol = [], None, None
+    for run_path in args.runs:
+        with RunFile.open(run_path, "r") as run:
+            times = np.asarray(run.frame_times())
+        _, _, _, _, protocol = pipeline.run_configurations(run_path, [len(times) - 1])
+        ms = times * protocol.units.time_s * 1e3
+        if args.window_ms:
+            frames = [i for i, t in enumerate(ms) if args.window_ms[0] <= t <= args.window_ms[1]]
+        elif args.time_ms is not None:
+            frames = [int(np.argmin(np.abs(ms - args.time_ms)))]
+        else:
+            frames = [len(ms) - 1]
+        if not frames:
+            raise VorthermError(f"{run_path}: no frame in --window-ms {args.window_ms}; frames "
+                                f"span {ms[0]:.4g}..{ms[-1]:.4g} ms")
+        vd, _, configs, _, _ = pipeline.run_configurations(run_path, frames)
+        sim_configs.extend(configs)
+    scale_um = vd.scale * protocol.units.length_m * 1e6
+    # The measured table keeps its own geometry (TOML beside it, or its options): both sides
+    # are compared in scaled units of their own domain, which must be of the same shape.
+    measured = read_measured(args.measured, pixel_um=args.pixel_um, center_px=args.center,
+                             strict=args.strict)
+    if measured.domain.kind != vd.domain.kind:
+        raise VorthermError(f"{args.measured}: the measured domain is a {measured.domain.kind}, "
+                            f"the simulation's a {vd.domain.kind}; compare needs the same shape")
+    if vd.domain.kind == "box" and abs(measured.domain.aspect - vd.domain.aspect) > 0.02 * vd.domain.aspect:
+        raise VorthermError(f"{args.measured}: box aspect {measured.domain.aspect:.3g} differs "
+                            f"from the simulation's {vd.domain.aspect:.3g}")
+    core = min(vd.core_radius, measured.core_radius or vd.core_radius)
+    model = ImagingModel(blur=args.blur_um / scale_um, resolution=args.resolution_um / scale_um,
+                         edge_loss=args.edge_loss_um / scale_um, sign_flip=args.sign_error)
+    sim_configs = degrade_many(sim_configs, vd.domain, model, np.random.default_rng(args.seed),
+                               core_radius=core)
+    comparison = cmp.compare_ensembles(sim_configs, measured.configurations, vd.domain,
+                                       core, seed=args.seed,
+                                       beta_options={"settings": dos_settings(args.effort)})
+    stem = args.output or args.measured.with_name(args.measured.stem + "_vs_simulation")
+    csv_path = cmp.write_csv(comparison, stem.with_suffix(".csv"))
+    json_path = cmp.write_json(comparison, stem.with_suffix(".json"))
+    fig_path = stem.with_suffix(".png")
+    thermo_plots.plot_comparison(comparison, fig_path, length_scale_um=scale_um)
+    if args.json:
+        print(json.dumps(cmp.comparison_to_dict(comparison), indent=1, allow_nan=True))
+    else:
+        print(_format_comparison(comparison))
+        print(f"written: {csv_path}, {json_path}, {fig_path}")
+    return 0
+
+
+def _format_comparison(comparison) -> str:
+    def num(v, width: int = 10) -> str:
+        return f"{v:{width}.4g}" if v == v else f"{'-':>{width}}"
+
+    def unit(text: str) -> str:
+        return "E0" if text.startswith("E0") else text[:11]
+
+    head = (f"{'quantity':<18} {'unit':<11} {comparison.labels[0]:>10} {comparison.labels[1]:>10} "
+            f"{'difference':>10} {'95% interval':>23} {'KS p':>9} {'perm. p':>9}")
+    lines = [head, "-" * len(head)]
+    for r in comparison.rows:
+        lines.append(f"{r.quantity:<18} {unit(r.unit):<11} {num(r.simulation)} {num(r.measured)} "
+                     f"{num(r.difference)} [{num(r.ci95_low)}, {num(r.ci95_high)}] "
+                     f"{num(r.p_ks, 9)} {num(r.p_permutation, 9)}")
+    lines.append("E0 = rho kappa^2/(4 pi); lengths in units of the domain size (disk radius)")
+    lines.extend(f"note: {n}" for n in comparison.notes)
+    return "\n".join(lines)
+
+

@@ -1,0 +1,516 @@
+"""The protocol file (TOML): parse, apply ``--set`` overrides, validate, resolve units.
+
+Every dimensioned key carries its unit as a suffix (``radius_um``, ``dt_ms``, ``height_mu``,
+``speed_c`` ...). ``units = "SI"`` (default) accepts SI suffixes and multiples of the natural
+scales (xi, hbar/mu, mu, c); ``units = "healing"`` accepts only the natural ones (the [atoms]
+section is always SI). The reference of every key is docs/protocol.md.
+
+Units: the resolved :class:`Protocol` holds lengths in xi, times in hbar/mu, energies in mu,
+speeds in c, angular frequencies in rad per hbar/mu; SI values are kept in ``units``/``atoms``.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import json
+import math
+import tomllib
+import warnings
+from dataclasses import dataclass, field
+from importlib import resources
+from pathlib import Path
+from typing import Any, Sequence
+
+import numpy as np
+import scipy.constants as const
+
+from gpe.field.beams import (Beam, BeamSet, CirclePath, LinePath, PolylinePath, Ramp, StaticPath, array_offsets,
+                       find_beam_excursion)
+from gpe.errors import ProtocolError, VorthermError
+from gpe.field.grid import Grid
+from gpe.field.traps import TrapConfig, build_trap, load_mask
+# the schema machinery lives in gpe.setup.schema; its public tables stay importable from here
+from gpe.setup.schema import (SCHEMA, SELECTED, SI_OUT, SIM_OUT, SUFFIXES, Spec, _apply_overrides,
+                                 _Context, _describe, _describe_value, _Section)
+from gpe.setup.units import (BOHR_RADIUS_M, HealingUnits, get_species, quasi2d_coupling, tf_mu_flat,
+                       tf_mu_harmonic, tf_number_flat, tf_number_harmonic)
+
+
+class ProtocolWarning(UserWarning):
+    """A protocol is valid but one of its numbers goes against common practice."""
+
+
+# ------------------------------------------------------------------------------------------
+# resolved configuration
+# ------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class AtomsConfig:
+    """The atoms, in SI. ``norm`` = integral |psi|^2 dx dy (xi^2) that holds ``number`` atoms.
+
+    Units: SI as named; number in atoms; norm in xi^2 (|psi|^2 in n0).
+    """
+
+    species: str
+    mass_kg: float
+    scattering_length_m: float
+    axial_frequency_hz: float
+    axial_length_m: float
+    g2d_Jm2: float
+    chemical_potential_J: float
+    number: float
+    number_given: bool
+    norm: float
+
+
+@dataclass(frozen=True)
+class GroundStateConfig:
+    """Imaginary-time ground-state settings. Units: dt in hbar/mu, imprint positions in xi."""
+
+    dt: float = field(metadata={"dim": "time"})
+    mu_tolerance: float
+    energy_tolerance: float
+    max_steps: int
+    fixed: str
+    noise_amplitude: float
+    imprint_positions: tuple[tuple[float, float], ...] = field(metadata={"dim": "length"})
+    imprint_signs: tuple[int, ...]
+
+
+@dataclass(frozen=True)
+class EvolutionConfig:
+    """Real-time evolution settings. Units: times in hbar/mu; gamma dimensionless; seconds of wall time."""
+
+    duration: float = field(metadata={"dim": "time"})
+    dt: float = field(metadata={"dim": "time"})
+    output_interval: float = field(metadata={"dim": "time"})
+    gamma: float
+    precision: str
+    seed: int
+    checkpoint_every_outputs: int
+    checkpoint_every_s: float
+
+    @property
+    def steps_per_output(self) -> int:
+        return int(round(self.output_interval / self.dt))
+
+    @property
+    def n_outputs(self) -> int:
+        """Outputs after t = 0 (the initial state is output 0)."""
+        return int(math.floor(self.duration / self.output_interval + 1e-9))
+
+    @property
+    def n_steps(self) -> int:
+        return self.n_outputs * self.steps_per_output
+
+
+@dataclass(frozen=True)
+class Protocol:
+    """A validated protocol, resolved to simulation units (SI factors in ``units``).
+
+    Units: lengths xi, times hbar/mu, energies mu, speeds c (see the config classes).
+    """
+
+    source_name: str
+    source_text: str
+    overrides: tuple[str, ...]
+    name: str
+    description: str
+    unit_system: str
+    units: HealingUnits
+    atoms: AtomsConfig
+    trap: TrapConfig
+    grid: Grid
+    ground_state: GroundStateConfig
+    evolution: EvolutionConfig
+    beams: tuple[Beam, ...]
+
+    def build_beams(self) -> BeamSet:
+        """The protocol's beams as a :class:`~gpe.field.traps.BeamSet` (may be empty)."""
+        return BeamSet(self.beams)
+
+    def build_trap(self) -> np.ndarray:
+        """Static trap on the grid, ``(ny, nx)``. Units: mu."""
+        return build_trap(self.trap, self.grid)
+
+    def to_dict(self) -> dict:
+        """Fully resolved protocol: every dimensioned value in simulation units and in SI."""
+        u, g = self.units, self.grid
+        evo = _describe(self.evolution, u)
+        evo.update(steps_per_output=self.evolution.steps_per_output, n_outputs=self.evolution.n_outputs,
+                   n_steps=self.evolution.n_steps)
+        return {
+            "format": "vortherm-protocol/1", "name": self.name, "description": self.description,
+            "source_name": self.source_name, "unit_system": self.unit_system,
+            "overrides": list(self.overrides), "units": u.as_dict(),
+            "atoms": dataclasses.asdict(self.atoms), "trap": _describe(self.trap, u),
+            "grid": {"nx": g.nx, "ny": g.ny, **_describe_value("length_x", g.length_x, "length", u),
+                     **_describe_value("length_y", g.length_y, "length", u),
+                     **_describe_value("dx", g.dx, "length", u), **_describe_value("dy", g.dy, "length", u)},
+            "ground_state": _describe(self.ground_state, u), "evolution": evo,
+            "beams": [_describe(b, u) for b in self.beams],
+        }
+
+    def to_json(self) -> str:
+        """:meth:`to_dict` as an indented JSON string."""
+        return json.dumps(self.to_dict(), indent=1)
+
+
+
+# ------------------------------------------------------------------------------------------
+# resolution: atoms and units, trap, grid, settings, beams
+# ------------------------------------------------------------------------------------------
+def _si_measure(sec: _Section, base: str) -> float:
+    """A trap size or frequency in SI (m, rad/s); healing-unit spellings are refused here."""
+    value, suffix = sec.raw(base)
+    if suffix not in ("um", "hz", "rad_per_ms"):
+        si_names = [n for n in sec.ctx.names(base, sec.specs[base]) if not n.endswith(("xi", "rad_per_tau"))]
+        sec.fail(base, "with atoms.number the trap must be given in SI units (a size in healing "
+                 "lengths depends on mu, which the atom number is meant to fix)", ", ".join(si_names))
+    return value * {"um": 1e-6, "hz": 2 * math.pi, "rad_per_ms": 1e3}[suffix]
+
+
+def _pair(sec: _Section, both: str, x: str, y: str, si: bool = False):
+    """(x, y) from ``both`` or from ``x`` and ``y`` (e.g. size / size_x, size_y)."""
+    read = (lambda b: _si_measure(sec, b)) if si else sec.get
+    if sec.has(both):
+        if sec.has(x) or sec.has(y):
+            sec.fail(x if sec.has(x) else y, f"give either {sec.key(both)} or {x}/{y}, not both",
+                     f"{sec.key(both)}, or {sec.key(x)} with {sec.key(y)}")
+        return read(both), read(both)
+    for name in (x, y):
+        if not sec.has(name):
+            sec.fail(name, "missing required value", f"{sec.key(both)}, or {sec.key(x)} with {sec.key(y)}")
+    return read(x), read(y)
+
+
+def _mask_path(sec: _Section, base_dir: Path) -> Path:
+    path = Path(sec.get("file")).expanduser()
+    return path if path.is_absolute() else (base_dir / path)
+
+
+def _mask_pixels(sec: _Section, base_dir: Path) -> int:
+    try:
+        return int(load_mask(_mask_path(sec, base_dir), sec.get("invert")).sum())
+    except ProtocolError as exc:
+        sec.fail("file", str(exc).rstrip("."), "a path relative to the protocol file, of a PNG/BMP/TIFF "
+                 "image (allowed region bright) or a .npy 2D array")
+    raise AssertionError("unreachable")
+
+
+def _flat_area(trap: TrapConfig, pixels: int) -> float:
+    """Area of a flat-bottomed trap. Units: xi^2."""
+    return {"disk": math.pi * trap.radius**2, "box": trap.length_x * trap.length_y,
+            "annulus": math.pi * (trap.outer_radius**2 - trap.inner_radius**2),
+            "mask": pixels * trap.mask_pixel_size**2}[trap.shape]
+
+
+def _resolve_atoms(ctx: _Context, sec: _Section, trap: _Section, base_dir: Path) -> tuple[float, float, float, float, Any]:
+    """Species, coupling and mu (J). Returns (mass, a_s, omega_z, g2d, mu) and sets ctx.units."""
+    try:
+        species = get_species(sec.get("species"))
+    except VorthermError as exc:
+        sec.fail("species", str(exc), "87Rb, 23Na, 39K, 41K, 7Li, 133Cs")
+    if sec.has("scattering_length"):
+        a_s = sec.get("scattering_length")
+    elif species.scattering_length_a0 is None:
+        sec.fail("scattering_length", f"missing: {species.name} is Feshbach-tuned and has no default",
+                 "scattering_length_a0 or scattering_length_nm")
+    else:
+        a_s = species.scattering_length_a0 * BOHR_RADIUS_M
+    omega_z = sec.get("axial_frequency")
+    g2d = quasi2d_coupling(species.mass_kg, a_s, omega_z)
+    if ctx.mode == "healing" and sec.has("number"):
+        sec.fail("number", "with units = \"healing\" the atom number follows from the trap size and "
+                 "cannot be set", "chemical_potential_nK or chemical_potential_hz (sets the SI scale)")
+    which = sec.one_of("number", "chemical_potential")
+    if which == "chemical_potential":
+        mu = sec.get("chemical_potential")
+    elif trap.get("shape") == "harmonic":
+        wx, wy = _pair(trap, "frequency", "frequency_x", "frequency_y", si=True)
+        mu = tf_mu_harmonic(g2d, sec.get("number"), species.mass_kg, wx, wy)
+    else:
+        shape = trap.get("shape")
+        if shape == "disk":
+            area = math.pi * _si_measure(trap, "radius") ** 2
+        elif shape == "annulus":
+            area = math.pi * (_si_measure(trap, "outer_radius") ** 2 - _si_measure(trap, "inner_radius") ** 2)
+        elif shape == "box":
+            lx, ly = _pair(trap, "size", "size_x", "size_y", si=True)
+            area = lx * ly
+        else:
+            area = _mask_pixels(trap, base_dir) * _si_measure(trap, "pixel_size") ** 2
+        if area <= 0:
+            trap.fail("inner_radius", "must be smaller than outer_radius", "0 < inner_radius < outer_radius")
+        mu = tf_mu_flat(g2d, sec.get("number"), area)
+    ctx.units = HealingUnits(species.mass_kg, mu, g2d)
+    return species, a_s, omega_z, g2d, mu
+
+
+def _resolve_trap(sec: _Section, base_dir: Path) -> TrapConfig:
+    shape = sec.get("shape")
+    kw: dict[str, Any] = {"shape": shape, "wall_height": sec.get("wall_height", None if shape == "harmonic" else 5.0)}
+    if shape == "harmonic":
+        kw["omega_x"], kw["omega_y"] = _pair(sec, "frequency", "frequency_x", "frequency_y")
+        return TrapConfig(**kw)
+    kw["edge_width"] = sec.get("edge_width")
+    if shape == "disk":
+        kw["radius"] = sec.get("radius")
+    elif shape == "annulus":
+        kw["inner_radius"], kw["outer_radius"] = sec.get("inner_radius"), sec.get("outer_radius")
+        if kw["inner_radius"] >= kw["outer_radius"]:
+            sec.fail("inner_radius", "must be smaller than outer_radius", "0 < inner_radius < outer_radius")
+    elif shape == "box":
+        kw["length_x"], kw["length_y"] = _pair(sec, "size", "size_x", "size_y")
+    else:
+        _mask_pixels(sec, base_dir)
+        kw.update(mask_file=str(_mask_path(sec, base_dir).resolve()), mask_pixel_size=sec.get("pixel_size"),
+                  mask_invert=sec.get("invert"))
+    return TrapConfig(**kw)
+
+
+def _resolve_grid(sec: _Section, trap: TrapConfig) -> Grid:
+    nx = sec.get("nx")
+    if nx < 8 or nx % 2:
+        sec.fail("nx", f"{nx} is not an even number >= 8", "an even integer, e.g. 128, 192 or 256")
+    ny = sec.get("ny")
+    if ny is not None and (ny < 8 or ny % 2):
+        sec.fail("ny", f"{ny} is not an even number >= 8", "an even integer, e.g. 128, 192 or 256")
+    ext_x, ext_y = trap.extent()
+    if sec.has("size") or sec.has("size_x") or sec.has("size_y"):
+        if sec.has("spacing"):
+            sec.fail("spacing", "give either the grid size or its spacing, not both", "size_* or spacing_*")
+        lx, ly = _pair(sec, "size", "size_x", "size_y")
+    elif sec.has("spacing"):
+        lx = nx * sec.get("spacing")
+        ny = ny or nx
+        ly = ny * sec.get("spacing")
+    else:
+        lx, ly = ext_x + 2 * sec.get("padding"), ext_y + 2 * sec.get("padding")
+    if ny is None:   # keep square cells
+        ny = nx if abs(lx - ly) < 1e-9 * lx else max(8, 2 * int(round(0.5 * nx * ly / lx)))
+    grid = Grid(nx, ny, lx, ly)
+    if trap.shape != "mask" and (ext_x > lx or ext_y > ly):
+        where = "size_x" if ext_x > lx else "size_y"
+        given = [k for k in (where, "size", "spacing") if sec.has(k)]
+        sec.fail(given[0] if given else "nx",
+                 f"the trap ({ext_x:.4g} x {ext_y:.4g} xi) does not fit into the periodic grid "
+                 f"({lx:.4g} x {ly:.4g} xi)", "a grid larger than the trap by a few edge widths "
+                 "(or leave the size out: it is then the trap size plus padding_* on each side)")
+    return grid
+
+
+def _resolve_settings(gs: _Section, imprints: list[_Section], ev: _Section) -> tuple:
+    ground = GroundStateConfig(
+        dt=gs.get("dt"), mu_tolerance=gs.get("mu_tolerance"), energy_tolerance=gs.get("energy_tolerance"),
+        max_steps=gs.get("max_steps"), fixed=gs.get("fixed"), noise_amplitude=gs.get("noise_amplitude"),
+        imprint_positions=tuple((s.get("x"), s.get("y")) for s in imprints),
+        imprint_signs=tuple(s.get("sign") for s in imprints))
+    dt, interval, duration = ev.get("dt"), ev.get("output_interval"), ev.get("duration")
+    ratio = interval / dt
+    if abs(ratio - round(ratio)) > 1e-6 * ratio or round(ratio) < 1:
+        lo, hi = max(1, math.floor(ratio)), math.ceil(ratio)
+        ev.fail("output_interval", f"is {ratio:.6g} time steps, not a whole number",
+                f"a whole multiple of {ev.key('dt')}, e.g. {lo} or {hi} steps")
+    if interval > duration * (1 + 1e-9):
+        ev.fail("output_interval", "is longer than evolution.duration", f"{ev.key('output_interval')} <= duration")
+    if ev.get("damping") >= 1.0:
+        ev.fail("damping", f"gamma = {ev.get('damping')} is not < 1", "a dimensionless gamma in [0, 1), "
+                "typically 1e-4 to 3e-2")
+    evolution = EvolutionConfig(
+        duration=duration, dt=dt, output_interval=interval, gamma=ev.get("damping"),
+        precision=ev.get("precision"), seed=ev.get("seed"),
+        checkpoint_every_outputs=ev.get("checkpoint_every_outputs"), checkpoint_every_s=ev.get("checkpoint_every_s"))
+    return ground, evolution
+
+
+def _resolve_path(sec: _Section):
+    kind, start_time = sec.get("kind"), sec.get("start_time")
+    mode_ok = {"line": ("once", "back_and_forth"), "polyline": ("once", "back_and_forth", "loop")}
+    if kind in mode_ok and sec.get("mode") not in mode_ok[kind]:
+        sec.fail("mode", f"\"{sec.get('mode')}\" is not a mode of a {kind} path",
+                 " or ".join(f'"{m}"' for m in mode_ok[kind]))
+    if kind == "static":
+        return StaticPath(*sec.get("position"))
+    if kind == "line":
+        path = LinePath(start=sec.get("start"), end=sec.get("end"), speed=sec.need("speed"),
+                        mode=sec.get("mode"), start_time=start_time)
+        if path.length == 0:
+            sec.fail("end", "equals start (a line of zero length)", "an end point different from start")
+        return path
+    if kind == "circle":
+        radius = sec.get("radius")
+        omega = sec.get("angular_speed") if sec.one_of("angular_speed", "speed") == "angular_speed" \
+            else sec.get("speed") / radius
+        return CirclePath(radius=radius, angular_speed=omega, centre=sec.get("centre"),
+                          start_angle=sec.get("start_angle"), start_time=start_time,
+                          sense=1 if sec.get("sense") == "counterclockwise" else -1)
+    points = sec.get("points")
+    n_legs = len(points) - 1 + (sec.get("mode") == "loop")
+    if sec.one_of("speed", "speeds") == "speed":
+        speeds = (sec.get("speed"),) * n_legs
+    else:
+        speeds = sec.get("speeds")
+        if len(speeds) != n_legs:
+            sec.fail("speeds", f"has {len(speeds)} entries for {n_legs} segments", f"{n_legs} speeds (one per "
+                     "segment; a loop has one more segment back to the first point), or a single speed_*")
+    p = np.asarray(points)
+    legs = np.diff(np.vstack([p, p[:1]]) if sec.get("mode") == "loop" else p, axis=0)
+    if np.any(np.hypot(*legs.T) == 0):
+        sec.fail("points", "two consecutive points coincide (a segment of zero length)", "distinct consecutive points")
+    return PolylinePath(points=points, speeds=speeds, mode=sec.get("mode"), start_time=start_time)
+
+
+def _resolve_beam(beam: _Section, path: _Section, array: _Section | None) -> Beam:
+    ramp = Ramp(on_time=beam.get("switch_on_time"), on_duration=beam.get("switch_on_duration"),
+                off_time=beam.get("switch_off_time"), off_duration=beam.get("switch_off_duration"))
+    if ramp.off_time is not None and ramp.off_time < ramp.on_time + ramp.on_duration:
+        beam.fail("switch_off_time", "starts before the switch-on ramp has ended",
+                  f"{beam.key('switch_off_time')} >= switch_on_time + switch_on_duration")
+    offsets = ((0.0, 0.0),)
+    if array is not None:
+        cols, rows = array.get("columns"), array.get("rows")
+        spacing = array.need("spacing", "needed for more than one beam") if cols * rows > 1 else 0.0
+        offsets = array_offsets(cols, rows, spacing, array.get("spacing_y", spacing), array.get("angle"))
+    return Beam(waist=beam.get("waist"), height=beam.get("height"), path=_resolve_path(path),
+                ramp=ramp, offsets=offsets)
+
+
+# ------------------------------------------------------------------------------------------
+# checks of common practice, entry points
+# ------------------------------------------------------------------------------------------
+def _check_practice(ctx: _Context, p: Protocol, grid_sec: _Section, ev: _Section, beam_secs: list) -> None:
+    """Errors for beams leaving the grid; ProtocolWarnings for choices against common practice."""
+    g, u, src = p.grid, p.units, ctx.source
+    warn = lambda msg: warnings.warn(ProtocolWarning(f"{src}: {msg}"), stacklevel=4)
+    spacing = max(g.dx, g.dy)
+    if spacing > 1.0:   # common practice: dx <= xi resolves vortex cores
+        warn(f"[grid] spacing dx = {g.dx:.3g} xi, dy = {g.dy:.3g} xi under-resolves the healing length "
+             f"(xi = {u.length_m * 1e6:.3g} um); common practice is dx <= xi, e.g. nx >= "
+             f"{2 * math.ceil(g.length_x / 2)}.")
+    beams = p.build_beams()
+    for i, beam in enumerate(p.beams):
+        if beam.waist < 2 * spacing:
+            warn(f"[beams.{i}] waist {beam.waist:.3g} xi is under 2 grid spacings ({spacing:.3g} xi); the "
+                 "beam is poorly resolved (common practice: waist >= 2 dx).")
+    hit = find_beam_excursion(beams, g, p.evolution.duration)
+    if hit is not None:
+        sec = beam_secs[hit.beam_index][1]
+        sec.fail("kind", f"the beam centre reaches (x, y) = ({hit.x:.4g}, {hit.y:.4g}) xi = "
+                 f"({u.length_to_si(hit.x) * 1e6:.4g}, {u.length_to_si(hit.y) * 1e6:.4g}) um at t = "
+                 f"{hit.time:.4g} hbar/mu = {u.time_to_si(hit.time) * 1e3:.4g} ms, closer than one waist "
+                 f"to the edge of the grid", f"a path with |x| <= {hit.limit_x:.4g} xi and |y| <= "
+                 f"{hit.limit_y:.4g} xi while the beam is on (or a larger [grid])")
+    dt = p.evolution.dt
+    v_max = float(p.build_trap().max()) + max(beams.max_height(), 0.0) + 1.0
+    k2_max = (math.pi / g.dx) ** 2 + (math.pi / g.dy) ** 2
+    if dt * v_max > 1.0:   # common practice: at most ~1 rad of potential phase per step
+        warn(f"[evolution] {ev.key('dt')}: dt * max(V + g|psi|^2) = {dt:.3g} * {v_max:.3g} = {dt * v_max:.3g} rad "
+             f"per step exceeds ~1 rad (common practice); use dt <= {1.0 / v_max:.3g} hbar/mu.")
+    if dt * k2_max / 2 > 1.0:
+        warn(f"[evolution] {ev.key('dt')}: dt * k_max^2 / 2 = {dt * k2_max / 2:.3g} rad per step exceeds ~1 rad "
+             f"(common practice); use dt <= {2.0 / k2_max:.3g} hbar/mu for this grid.")
+    if p.evolution.gamma > 0.1:
+        warn(f"[evolution] damping gamma = {p.evolution.gamma} is far above the usual 1e-4 to 3e-2.")
+    ratio = p.atoms.chemical_potential_J / (const.hbar * 2 * math.pi * p.atoms.axial_frequency_hz)
+    if ratio > 1.0:
+        warn(f"[atoms] mu / (hbar omega_z) = {ratio:.3g}: the gas is not quasi-2D (needs mu << hbar "
+             "omega_z); the quasi-2D coupling is then inaccurate.")
+
+
+def parse_protocol(text: str, source: str = "<protocol>", overrides: Sequence[str] = (),
+                   base_dir: str | Path | None = None) -> Protocol:
+    """Parse, override, validate and resolve a protocol given as TOML text.
+
+    Parameters
+    ----------
+    text : str
+        The TOML text.
+    source : str
+        Name used in error messages (usually the file path).
+    overrides : sequence of str
+        ``section.key=value`` strings applied before validation (``beams.0.path.speed_c=0.5``).
+    base_dir : path, optional
+        Directory against which relative mask paths are resolved (default: working directory).
+
+    Returns
+    -------
+    Protocol
+
+    Raises
+    ------
+    ProtocolError
+        With one paragraph naming the file, the key and what would be accepted.
+
+    Units
+    -----
+    As written in the file; resolved to simulation units (xi, hbar/mu, mu, c).
+    """
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise ProtocolError(f"{source}: not valid TOML ({exc}). Accepted: TOML syntax, e.g. "
+                            "radius_um = 30.0 under a [trap] header; see docs/protocol.md.") from None
+    ctx = _Context(source, _apply_overrides(data, overrides, source))
+    base_dir = Path(base_dir) if base_dir is not None else Path.cwd()
+    if isinstance(data.get("units"), str) and data["units"].lower() in ("si", "healing"):
+        data["units"] = "SI" if data["units"].lower() == "si" else "healing"   # spelling is not physics
+    top = _Section(ctx, "", "", data)
+    ctx.mode = top.get("units")
+    atoms = _Section(ctx, "atoms", "atoms", top.get("atoms"))
+    trap_sec = _Section(ctx, "trap", "trap", top.get("trap"), selector="shape")
+    grid_sec = _Section(ctx, "grid", "grid", top.get("grid"))
+    gs = _Section(ctx, "ground_state", "ground_state", top.get("ground_state"))
+    imprints = [_Section(ctx, f"ground_state.imprint.{i}", "ground_state.imprint", t)
+                for i, t in enumerate(gs.get("imprint"))]
+    ev = _Section(ctx, "evolution", "evolution", top.get("evolution"))
+    beam_secs = []
+    for i, table in enumerate(top.get("beams")):
+        b = _Section(ctx, f"beams.{i}", "beams", table)
+        path = _Section(ctx, f"beams.{i}.path", "beams.path", b.get("path"), selector="kind")
+        array = _Section(ctx, f"beams.{i}.array", "beams.array", b.get("array")) if b.has("array") else None
+        beam_secs.append((b, path, array))
+
+    species, a_s, omega_z, g2d, mu = _resolve_atoms(ctx, atoms, trap_sec, base_dir)
+    units = ctx.units
+    trap = _resolve_trap(trap_sec, base_dir)
+    if atoms.has("number"):
+        number = atoms.get("number")
+    elif trap.shape == "harmonic":
+        number = tf_number_harmonic(g2d, mu, species.mass_kg, units.rate_to_si(trap.omega_x),
+                                    units.rate_to_si(trap.omega_y))
+    else:
+        pixels = _mask_pixels(trap_sec, base_dir) if trap.shape == "mask" else 0
+        number = tf_number_flat(g2d, mu, _flat_area(trap, pixels) * units.length_m**2)
+    atoms_cfg = AtomsConfig(species=species.name, mass_kg=species.mass_kg, scattering_length_m=a_s,
+                            axial_frequency_hz=omega_z / (2 * math.pi),
+                            axial_length_m=math.sqrt(const.hbar / (species.mass_kg * omega_z)),
+                            g2d_Jm2=g2d, chemical_potential_J=mu, number=number,
+                            number_given=atoms.has("number"), norm=units.norm_for(number))
+    grid = _resolve_grid(grid_sec, trap)
+    ground, evolution = _resolve_settings(gs, imprints, ev)
+    beams = tuple(_resolve_beam(*secs) for secs in beam_secs)
+    protocol = Protocol(source_name=source, source_text=text, overrides=tuple(overrides),
+                        name=top.get("name") or Path(source).stem, description=top.get("description"),
+                        unit_system=ctx.mode, units=units, atoms=atoms_cfg, trap=trap, grid=grid,
+                        ground_state=ground, evolution=evolution, beams=beams)
+    _check_practice(ctx, protocol, grid_sec, ev, beam_secs)
+    return protocol
+
+
+def load_protocol(path: str | Path, overrides: Sequence[str] = ()) -> Protocol:
+    """Read a protocol file and resolve it (see :func:`parse_protocol`); masks are relative to it.
+
+    Units: as in the file; resolved to simulation units.
+    """
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as exc:
+        raise ProtocolError(f"{path}: cannot read the protocol file ({exc}). Accepted: a readable UTF-8 "
+                            "TOML file, e.g. one written by `vortherm init`.") from None
+    return parse_protocol(text, str(path), overrides, base_dir=path.parent)
+
+
+def example_protocol_text() -> str:
+    """The commented example protocol (gpe/setup/templates/example.toml) written by ``vortherm init``."""
+    return resources.files("gpe.setup").joinpath("templates/example.toml").read_text(encoding="utf-8")

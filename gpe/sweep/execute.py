@@ -1,0 +1,384 @@
+"""Parameter sweeps: a grid of protocol overrides -> one run per point and seed -> a summary table.
+
+A sweep file (TOML) names a base protocol, one or more axes (protocol keys in the protocol's own
+units, written exactly as ``--set`` overrides), the noise seeds and what to measure at the end.
+:func:`load_sweep` validates it (:mod:`gpe.sweep.file`); :func:`run_sweep` runs every point
+through an executor (anything with ``submit`` returning :class:`concurrent.futures.Future`: a
+local process pool, a dask distributed ``Client``), resumes an interrupted sweep from its output
+folder and writes the tables (CSV and HDF5, described in ``docs/sweep.md``) through
+:mod:`gpe.sweep.table`.
+
+Units: axis values in the protocol's units (the key's suffix says which); measurement times in the
+protocol's time unit; beta in 1/E0 with E0 = rho kappa^2 / (4 pi); energies per vortex in E0.
+"""
+
+from __future__ import annotations
+
+import concurrent.futures as cf
+import json
+import os
+import time
+import traceback
+from dataclasses import asdict, dataclass
+from pathlib import Path
+from typing import Any, Callable, Mapping
+
+from gpe.errors import VorthermError
+# The sweep file and the summary tables live in gpe.sweep.file and gpe.sweep.table; their public
+# names are re-exported here so that ``from gpe.sweep.execute import load_sweep, read_summary`` (and the
+# others) keeps working.
+from gpe.sweep.file import (QUANTITIES, SEED_KEY, SUFFIX_UNITS, Axis, Measure,  # noqa: F401
+                            Point, Sweep, SweepError, format_value, load_sweep, parse_sweep)
+from gpe.sweep.table import (SUMMARY_FORMAT_VERSION, SweepResult, _read_json,  # noqa: F401
+                             _summarise, _write_json, column_header, read_summary, read_table)
+
+# NumPy, h5py and the pipeline are imported inside functions on purpose: a spawned worker imports
+# this module first, and the thread-count variables set by ``_init_worker`` only take effect if no
+# numerical library has been loaded before.
+
+
+def default_out_dir(sweep_path: str | os.PathLike) -> Path:
+    """Where a sweep writes by default: ``out/<sweep file stem>/`` beside the sweep file."""
+    path = Path(sweep_path)
+    return path.parent / "out" / path.stem
+
+
+# -- one point ----------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class PointTask:
+    """Everything a worker needs for one point: plain data only, so it pickles anywhere.
+
+    Units: ``threads`` is the number of FFT/numba threads the point may use.
+    """
+
+    point_id: str
+    base: str
+    overrides: tuple[str, ...]
+    run_path: str
+    measure: Measure
+    threads: int | None = None
+    stop_path: str = ""
+
+
+def run_point(task: PointTask) -> dict:
+    """The default point function: simulate (or resume) the run, then analyse it.
+
+    A complete run file (verified by ``gpe.run.simulate.is_complete``) is analysed without
+    simulating again; an incomplete one is resumed from its checkpoint.
+    """
+    from gpe.setup.protocol import load_protocol
+
+    protocol = load_protocol(task.base, task.overrides)  # an invalid point fails here, cheaply
+    from gpe.run import simulate as pipeline
+
+    run_path = Path(task.run_path)
+    if not pipeline.is_complete(run_path):
+        pipeline.simulate(protocol, run_path, resume=run_path.exists(), threads=task.threads)
+    scale = _time_to_simulation(protocol, task.measure.time_unit)
+    m = task.measure
+    at_time = None if m.at_time is None else m.at_time * scale
+    window = None if m.window is None else (m.window[0] * scale, m.window[1] * scale)
+    return pipeline.analyse(run_path, time=at_time, window=window)
+
+
+def _time_to_simulation(protocol: Any, time_unit: str) -> float:
+    """Factor from a measurement time unit to hbar/mu (tau)."""
+    if time_unit == "protocol":
+        time_unit = "tau" if str(protocol.unit_system).lower() == "healing" else "ms"
+    return 1.0 if time_unit == "tau" else 1e-3 / protocol.units.time_s
+
+
+_WORKER_INTERRUPTED = False
+
+
+def _execute(point_fn: Callable[[PointTask], Mapping], task: PointTask) -> dict:
+    """Run one point in a worker; turn an ordinary failure into a record, so the sweep goes on.
+
+    ``KeyboardInterrupt`` is not caught: it stops the sweep.
+    """
+    global _WORKER_INTERRUPTED
+    if _WORKER_INTERRUPTED or (task.stop_path and os.path.exists(task.stop_path)):
+        # the sweep was interrupted after this task was queued: do not start it
+        return {"status": "cancelled", "values": {}, "error": "", "elapsed_s": 0.0}
+    start = time.perf_counter()
+    try:
+        raw = point_fn(task)
+        values = {}
+        for q in task.measure.quantities:
+            if q not in raw:
+                raise SweepError(f"the analysis returned no '{q}' (it gave {sorted(raw)})")
+            values[q] = float(raw[q])
+        record = {"status": "ok", "values": values, "error": ""}
+    except KeyboardInterrupt:
+        # Ctrl-C reaches the workers before the main process can leave the stop file; a worker
+        # that saw it must not start the tasks still queued for it.
+        _WORKER_INTERRUPTED = True
+        raise
+    except Exception as exc:  # noqa: BLE001 -- any failure of one point is recorded, not fatal
+        record = {"status": "failed", "values": {}, "error": f"{type(exc).__name__}: {exc}",
+                  "traceback": traceback.format_exc()}
+    record["elapsed_s"] = time.perf_counter() - start
+    return record
+
+
+# -- executors ----------------------------------------------------------------------------------
+def usable_cores() -> int:
+    """Cores this process may run on (affinity-aware)."""
+    try:
+        return len(os.sched_getaffinity(0))
+    except AttributeError:  # not on Linux
+        return os.cpu_count() or 1
+
+
+def plan_local(cores: int, workers: int | None = None, threads: int | None = None,
+               n_tasks: int | None = None) -> tuple[int, int]:
+    """Choose (workers, threads per worker) with workers x threads <= cores.
+
+    Independent runs scale better than threads inside one FFT, so the default is one worker
+    per core with one thread each; fewer tasks than workers hand the spare cores to threads.
+    """
+    for name, v in (("workers", workers), ("threads", threads)):
+        if v is not None and (isinstance(v, bool) or not isinstance(v, int) or v < 1):
+            raise SweepError(f"{name} must be an integer >= 1, got {v!r}")
+    if workers is not None and threads is not None and workers * threads > cores:
+        raise SweepError(f"{workers} workers x {threads} threads would oversubscribe the "
+                         f"{cores} cores; choose workers x threads <= {cores}")
+    for name, v in (("workers", workers), ("threads", threads)):
+        if v is not None and v > cores:
+            raise SweepError(f"{v} {name} exceed the {cores} usable cores")
+    if workers is None:
+        workers = max(1, cores // threads) if threads else cores
+    if n_tasks is not None:
+        workers = max(1, min(workers, n_tasks))
+    if threads is None:
+        threads = max(1, cores // workers)
+    return workers, threads
+
+
+def _init_worker(threads: int) -> None:
+    # Set before numpy/numba/pyfftw are imported in this fresh (spawned) process.
+    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS",
+                "NUMBA_NUM_THREADS"):
+        os.environ[var] = str(threads)
+
+
+def local_executor(workers: int, threads: int) -> cf.ProcessPoolExecutor:
+    """A process pool of ``workers`` spawned processes, each limited to ``threads`` threads."""
+    import multiprocessing
+
+    return cf.ProcessPoolExecutor(max_workers=workers, mp_context=multiprocessing.get_context(
+        "spawn"), initializer=_init_worker, initargs=(threads,))
+
+
+def connect_scheduler(address: str) -> Any:
+    """A dask ``distributed.Client`` connected to the scheduler at ``address``."""
+    try:
+        from distributed import Client
+    except ImportError:
+        raise SweepError("running on a cluster needs dask.distributed, which is not installed; "
+                         "install it with `pip install vortherm[cluster]`") from None
+    try:
+        return Client(address, timeout="20s")
+    except OSError as exc:
+        raise SweepError(f"cannot reach the dask scheduler at '{address}': {exc}") from None
+
+
+def _as_executor(executor: Any) -> Any:
+    # A dask Client returns its own futures; its concurrent.futures view returns standard ones.
+    if hasattr(executor, "get_executor"):
+        return executor.get_executor(pure=False)
+    if not hasattr(executor, "submit"):
+        raise SweepError(f"executor {executor!r} has no submit(); pass a "
+                         f"concurrent.futures.Executor or a dask distributed Client")
+    return executor
+
+
+
+# -- running a sweep ----------------------------------------------------------------------------
+@dataclass(frozen=True)
+class Progress:
+    """A snapshot for the progress bar. ``eta_s`` is None until a point has finished.
+
+    Units: seconds of wall-clock time.
+    """
+
+    total: int
+    done: int
+    skipped: int
+    running: int
+    failed: int
+    pending: int
+    elapsed_s: float
+    eta_s: float | None
+
+
+def _prepare(sweep: Sweep, out_dir: Path) -> list[Point]:
+    """Create the output folder; refuse one that belongs to a different sweep."""
+    points = sweep.points()
+    (out_dir / "runs").mkdir(parents=True, exist_ok=True)
+    (out_dir / "points").mkdir(exist_ok=True)
+    manifest = out_dir / "manifest.json"
+    old = _read_json(manifest) if manifest.exists() else None
+    new = {"format_version": SUMMARY_FORMAT_VERSION, "sweep_file": sweep.source,
+           "base": str(sweep.base), "points": {p.point_id: list(p.overrides) for p in points}}
+    if old is not None:
+        for pid, overrides in old.get("points", {}).items():
+            if pid in new["points"] and new["points"][pid] != overrides:
+                raise SweepError(
+                    f"output folder '{out_dir}' belongs to a different sweep: point {pid} was "
+                    f"{overrides}, now {new['points'][pid]}; choose a new output folder (finished "
+                    f"runs are never overwritten)")
+        new["points"] = {**old.get("points", {}), **new["points"]}
+    _write_json(manifest, new)
+    (out_dir / "sweep.toml").write_text(sweep.text, encoding="utf-8")
+    return points
+
+
+def _default_is_complete(path: Path) -> bool:
+    from gpe.run.simulate import is_complete
+
+    return is_complete(path)
+
+
+def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
+              scheduler: str | None = None, workers: int | None = None,
+              threads: int | None = None, point_fn: Callable[[PointTask], Mapping] = run_point,
+              is_complete: Callable[[Path], bool] | None = None,
+              progress: Callable[[Progress], None] | None = None) -> SweepResult:
+    """Run (or resume) every point of ``sweep`` and write the summary tables into ``out_dir``.
+
+    Parameters
+    ----------
+    executor : anything with ``submit`` (a ``concurrent.futures.Executor`` or a dask
+        ``Client``); None starts a local pool of ``workers`` spawned processes with
+        ``threads`` FFT threads each (workers x threads <= cores).
+    scheduler : address of a dask scheduler, used when ``executor`` is None.
+    point_fn : top-level (picklable) function ``PointTask -> mapping`` with the measured
+        quantities; :func:`run_point` runs the full pipeline.
+    is_complete : verifies a finished run file; default ``gpe.run.simulate.is_complete``.
+    progress : called with a :class:`Progress` after each point and about once a second.
+
+    Returns
+    -------
+    SweepResult ; ``interrupted`` is True after Ctrl-C (pending points were cancelled, their
+    state kept; rerun to continue).
+    """
+    out_dir = Path(out_dir)
+    points = _prepare(sweep, out_dir)
+    stop_path = out_dir / "STOP"
+    stop_path.unlink(missing_ok=True)
+    global _WORKER_INTERRUPTED
+    _WORKER_INTERRUPTED = False  # in-process executors share this flag with us
+    is_complete = is_complete or _default_is_complete
+    measure = asdict(sweep.measure)
+    records: dict[str, dict] = {}
+    todo: list[Point] = []
+    for p in points:
+        rec = _read_json(out_dir / "points" / f"{p.point_id}.json") or {}
+        run_path = out_dir / "runs" / f"{p.point_id}.h5"
+        if (rec.get("status") == "ok" and rec.get("measure") == json.loads(json.dumps(measure))
+                and _verified(is_complete, run_path)):
+            records[p.point_id] = rec
+        else:
+            todo.append(p)
+    n_skipped = len(points) - len(todo)
+
+    own, client, capacity = None, None, None
+    if executor is None and scheduler is not None:
+        executor = client = connect_scheduler(scheduler)
+    if executor is None:
+        capacity, threads = plan_local(usable_cores(), workers, threads, max(1, len(todo)))
+        executor = own = local_executor(capacity, threads)
+    else:
+        executor = _as_executor(executor)
+        threads = threads or 1  # a cluster worker's share of cores is set where it is started
+
+    start = time.monotonic()
+    futures: dict[cf.Future, Point] = {}
+    interrupted = False
+    last_report = 0.0
+    n_done_here = 0
+
+    def report(force: bool = False) -> None:
+        nonlocal last_report
+        now = time.monotonic()
+        if progress is None or (not force and now - last_report < 1.0):
+            return
+        last_report = now
+        ok = sum(r["status"] == "ok" for r in records.values())
+        failed = sum(r["status"] == "failed" for r in records.values())
+        running = sum(f.running() for f in futures if not f.done())
+        if capacity is not None:
+            running = min(running, capacity)
+        left = len(points) - ok - failed
+        elapsed = now - start
+        eta = elapsed / n_done_here * left if n_done_here else None
+        progress(Progress(len(points), ok, n_skipped, running, failed, left - running,
+                          elapsed, eta))
+
+    def finish(fut: cf.Future, point: Point) -> None:
+        nonlocal n_done_here
+        exc = fut.exception()
+        if isinstance(exc, KeyboardInterrupt):
+            raise KeyboardInterrupt
+        if exc is not None:  # the worker itself died (killed, out of memory, lost node)
+            outcome = {"status": "failed", "values": {}, "elapsed_s": float("nan"),
+                       "error": f"worker lost: {type(exc).__name__}: {exc}; rerun to retry"}
+        else:
+            outcome = fut.result()
+            if outcome["status"] == "cancelled":  # a stop file left by another session
+                raise KeyboardInterrupt
+        records[point.point_id] = _save_record(out_dir, point, sweep, outcome)
+        n_done_here += 1
+
+    try:
+        for p in todo:
+            task = PointTask(p.point_id, str(sweep.base), p.overrides,
+                             str(out_dir / "runs" / f"{p.point_id}.h5"), sweep.measure, threads,
+                             str(stop_path))
+            futures[executor.submit(_execute, point_fn, task)] = p
+        report(force=True)
+        waiting = set(futures)
+        while waiting:
+            finished, waiting = cf.wait(waiting, timeout=1.0, return_when=cf.FIRST_COMPLETED)
+            for fut in sorted(finished, key=lambda f: futures[f].point_id):
+                finish(fut, futures[fut])
+            report(force=bool(finished))
+    except KeyboardInterrupt:
+        interrupted = True
+        # Tasks already handed to a worker cannot be cancelled; the stop file tells them not to
+        # start, so the pool shuts down as soon as the running points are interrupted.
+        stop_path.touch()
+        for fut in futures:
+            fut.cancel()
+    finally:
+        if own is not None:
+            own.shutdown(wait=True, cancel_futures=True)
+        if client is not None:
+            client.close()
+    if interrupted:  # keep every point that finished before the pool stopped
+        for fut, p in futures.items():
+            if (fut.done() and not fut.cancelled() and fut.exception() is None
+                    and p.point_id not in records and fut.result()["status"] != "cancelled"):
+                records[p.point_id] = _save_record(out_dir, p, sweep, fut.result())
+    result = _summarise(sweep, out_dir, points, records, interrupted)
+    report(force=True)
+    return result
+
+
+def _verified(is_complete: Callable[[Path], bool], path: Path) -> bool:
+    if not path.exists():
+        return False
+    try:
+        return bool(is_complete(path))
+    except (VorthermError, OSError):  # an unreadable file is simply not complete
+        return False
+
+
+def _save_record(out_dir: Path, point: Point, sweep: Sweep, outcome: Mapping) -> dict:
+    rec = {"point_id": point.point_id, "grid_id": point.grid_id, "seed": point.seed,
+           "overrides": list(point.overrides), "run_file": f"runs/{point.point_id}.h5",
+           "measure": asdict(sweep.measure), **outcome}
+    rec = json.loads(json.dumps(rec))  # tuples -> lists, so that reruns compare equal
+    _write_json(out_dir / "points" / f"{point.point_id}.json", rec)
+    return rec

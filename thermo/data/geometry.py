@@ -1,0 +1,215 @@
+"""Geometry of a measured cloud: the domain in micrometres, the camera calibration, and the
+small TOML file beside a measured table that gives them.
+
+The geometry (disk radius, or box width and height, and the vortex core radius) comes from
+keyword arguments or from a TOML file beside the table (same stem, ``.toml``); keyword
+arguments override the file key by key. Accepted TOML keys::
+
+    shape = "disk"          # or "box"
+    radius_um = 40.0        # disk
+    width_um = 80.0         # box (x extent)
+    height_um = 60.0        # box (y extent)
+    core_um = 0.5           # vortex core radius (optional, needed for beta)
+    pixel_um = 0.8          # only if the table is in pixels
+    center_px = [256.0, 240.0]
+
+The public names are also importable from :mod:`thermo.data.measured`, which reads the tables.
+
+Units: micrometres; pixel coordinates in pixels; thermo's scaled positions in units of the
+disk radius or of the box height.
+"""
+
+from __future__ import annotations
+
+import math
+import tomllib
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Sequence
+
+import numpy as np
+
+from thermo.errors import MeasuredTableError
+
+GEOMETRY_KEYS = ("shape", "radius_um", "width_um", "height_um", "core_um", "pixel_um",
+                 "center_px")
+
+
+@dataclass(frozen=True)
+class Geometry:
+    """Physical geometry of the measured cloud.
+
+    Attributes
+    ----------
+    shape : ``"disk"`` or ``"box"``.
+    radius_um : disk radius; width_um, height_um : box sides (x and y).
+    core_um : vortex core radius, ``None`` if not known.
+
+    Units: micrometres.
+    """
+
+    shape: str
+    radius_um: float | None = None
+    width_um: float | None = None
+    height_um: float | None = None
+    core_um: float | None = None
+
+    def __post_init__(self) -> None:
+        if self.shape == "disk":
+            _positive("radius_um", self.radius_um, "a disk")
+        elif self.shape == "box":
+            _positive("width_um", self.width_um, "a box")
+            _positive("height_um", self.height_um, "a box")
+        else:
+            raise MeasuredTableError(
+                f"geometry shape {self.shape!r} is not known; accepted: 'disk', 'box'")
+        if self.core_um is not None and not (math.isfinite(self.core_um)
+                                             and self.core_um > 0):
+            raise MeasuredTableError(f"core_um must be a positive number; got {self.core_um}")
+
+    @property
+    def length_scale_um(self) -> float:
+        """Micrometres per scaled thermo unit: the disk radius, or the box side along y
+        (thermo.domains.Box is [-aspect/2, aspect/2] x [-1/2, 1/2])."""
+        return float(self.radius_um if self.shape == "disk" else self.height_um)
+
+    def domain(self) -> Any:
+        """The thermo domain object for this geometry (thermo.domains)."""
+        from thermo import domains
+        if self.shape == "disk":
+            return domains.Disk()
+        return domains.Box(float(self.width_um) / float(self.height_um))
+
+    def to_scaled(self, xy_um: Any) -> np.ndarray:
+        """Positions about the trap centre in um -> thermo scaled positions.
+
+        Both thermo domains are centred on the origin, so this is a division.
+        """
+        return np.asarray(xy_um, dtype=np.float64) / self.length_scale_um
+
+    def to_um(self, xy_scaled: Any) -> np.ndarray:
+        """Inverse of :meth:`to_scaled`."""
+        return np.asarray(xy_scaled, dtype=np.float64) * self.length_scale_um
+
+
+def _positive(key: str, value: Any, what: str) -> None:
+    if value is None or not isinstance(value, (int, float)) or not math.isfinite(value) \
+            or value <= 0:
+        raise MeasuredTableError(
+            f"{what} needs a positive number {key} (micrometres); got {value!r}")
+
+
+@dataclass(frozen=True)
+class PixelCalibration:
+    """Camera calibration: pixel size and the trap centre in pixel coordinates.
+
+    Units: pixel_um in micrometres per pixel; center_px in pixels.
+    """
+
+    pixel_um: float
+    center_px: tuple[float, float]
+
+    def __post_init__(self) -> None:
+        _positive("pixel_um", self.pixel_um, "a pixel calibration")
+        if len(self.center_px) != 2 or not all(math.isfinite(float(c)) for c in self.center_px):
+            raise MeasuredTableError(
+                f"center_px must be two finite pixel coordinates [x, y]; got {self.center_px!r}")
+
+
+def pixels_to_um(xy_px: Any, calibration: PixelCalibration) -> np.ndarray:
+    """Pixel coordinates -> micrometres about the trap centre.
+
+    .. math:: x_{\\mu m} = (x_{px} - c_x)\\, p, \\quad y_{\\mu m} = (y_{px} - c_y)\\, p
+
+    Units: input pixels, output micrometres.
+    """
+    xy = np.asarray(xy_px, dtype=np.float64)
+    return (xy - np.asarray(calibration.center_px, dtype=np.float64)) * calibration.pixel_um
+
+
+def um_to_pixels(xy_um: Any, calibration: PixelCalibration) -> np.ndarray:
+    """Inverse of :func:`pixels_to_um`. Units: input micrometres, output pixels."""
+    xy = np.asarray(xy_um, dtype=np.float64)
+    return xy / calibration.pixel_um + np.asarray(calibration.center_px, dtype=np.float64)
+
+
+def geometry_file_for(path: str | Path) -> Path:
+    """The TOML file that sits beside a table: same stem, suffix ``.toml``."""
+    return Path(path).with_suffix(".toml")
+
+
+def read_geometry_file(path: str | Path) -> dict[str, Any]:
+    """Read and check a geometry TOML (keys listed in the module docstring)."""
+    path = Path(path)
+    try:
+        data = tomllib.loads(path.read_text(encoding="utf-8"))
+    except tomllib.TOMLDecodeError as exc:
+        raise MeasuredTableError(f"{path}: not valid TOML ({exc})") from exc
+    unknown = sorted(set(data) - set(GEOMETRY_KEYS))
+    if unknown:
+        raise MeasuredTableError(
+            f"{path}: unknown key(s) {unknown}; accepted keys: {list(GEOMETRY_KEYS)}")
+    for key in ("radius_um", "width_um", "height_um", "core_um", "pixel_um"):
+        if key in data and (isinstance(data[key], bool)
+                            or not isinstance(data[key], (int, float))):
+            raise MeasuredTableError(f"{path}: {key} must be a number; got {data[key]!r}")
+    if "center_px" in data:
+        c = data["center_px"]
+        if not (isinstance(c, list) and len(c) == 2
+                and all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in c)):
+            raise MeasuredTableError(
+                f"{path}: center_px must be a list of two numbers [x, y]; got {c!r}")
+    return data
+
+
+def resolve_geometry(table_path: str | Path, *, shape: str | None = None,
+                     radius_um: float | None = None, width_um: float | None = None,
+                     height_um: float | None = None, core_um: float | None = None,
+                     pixel_um: float | None = None,
+                     center_px: Sequence[float] | None = None,
+                     geometry_file: str | Path | None = None
+                     ) -> tuple[Geometry, PixelCalibration | None]:
+    """Combine keyword geometry with the TOML beside the table (keywords win).
+
+    ``shape`` defaults to ``"disk"`` when a radius is known, ``"box"`` when width and
+    height are. Returns the geometry and the pixel calibration (None for tables in um).
+
+    Units: micrometres; center_px in pixels.
+    """
+    gfile = Path(geometry_file) if geometry_file is not None else geometry_file_for(table_path)
+    data: dict[str, Any] = {}
+    if gfile.exists():
+        data = read_geometry_file(gfile)
+    elif geometry_file is not None:
+        raise MeasuredTableError(f"geometry file {gfile} does not exist")
+    given = dict(shape=shape, radius_um=radius_um, width_um=width_um, height_um=height_um,
+                 core_um=core_um, pixel_um=pixel_um,
+                 center_px=None if center_px is None else list(center_px))
+    merged = {**data, **{k: v for k, v in given.items() if v is not None}}
+    shp = merged.get("shape")
+    if shp is None:
+        if merged.get("radius_um") is not None:
+            shp = "disk"
+        elif merged.get("width_um") is not None and merged.get("height_um") is not None:
+            shp = "box"
+        else:
+            raise MeasuredTableError(
+                f"{table_path}: no geometry; give radius_um (disk) or width_um and "
+                f"height_um (box), as arguments or in {gfile.name} beside the table")
+    geometry = Geometry(shape=str(shp),
+                        radius_um=_opt_float(merged.get("radius_um")) if shp == "disk" else None,
+                        width_um=_opt_float(merged.get("width_um")) if shp == "box" else None,
+                        height_um=_opt_float(merged.get("height_um")) if shp == "box" else None,
+                        core_um=_opt_float(merged.get("core_um")))
+    calib = None
+    if merged.get("pixel_um") is not None or merged.get("center_px") is not None:
+        if merged.get("pixel_um") is None or merged.get("center_px") is None:
+            raise MeasuredTableError(
+                f"{table_path}: a table in pixels needs both pixel_um and center_px [x, y]")
+        cx, cy = merged["center_px"]
+        calib = PixelCalibration(float(merged["pixel_um"]), (float(cx), float(cy)))
+    return geometry, calib
+
+
+def _opt_float(v: Any) -> float | None:
+    return None if v is None else float(v)

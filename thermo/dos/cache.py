@@ -1,0 +1,166 @@
+"""On-disk cache of densities of states (thermo.dos.model), keyed by (N+, N-, domain, core radius).
+
+A density of states costs a parallel-tempering run and an MBAR bootstrap to build (seconds to
+minutes), and the estimators ask for the same few keys again and again, across processes. So
+:func:`load_or_build` keeps each build as a compressed npz file (samples, MBAR solution,
+bootstrap replicates and the tables of :mod:`thermo.dos.tables`) under
+``$XDG_CACHE_HOME/vortherm/dos``, reuses a stored build made with at least the requested effort,
+and remembers loaded files in memory so repeated estimates in one process do not re-read them.
+Files are written atomically (temporary file, then rename), so concurrent processes never read
+half a file. The public names are re-exported by :mod:`thermo.dos.model`.
+
+Units: energies in E0 = rho kappa^2 / (4 pi); beta in 1/E0; core radius in the domain's length
+unit.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+import tempfile
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from thermo.dos import tables as dos_tables
+from thermo.dos.model import DensityOfStates
+from thermo.dos.build import DosSettings, build
+from thermo.errors import SamplerError
+
+#: bump when the file layout changes: it is part of :func:`cache_key`, so files of another
+#: version are left alone (and refused by :func:`load`) and the build is redone under a new name
+FORMAT_VERSION = 4  # 4: builds use the pilot-spaced ladder and 2x-thinned energies
+#: densities of states already read in this process: path -> (mtime_ns, size, dos), so
+#: repeated estimates do not re-read the npz (a changed file is read again)
+_LOADED: dict[Path, tuple[int, int, DensityOfStates]] = {}
+
+
+def default_cache_dir() -> "os.PathLike[str]":
+    """$XDG_CACHE_HOME/vortherm/dos (or ~/.cache/vortherm/dos)."""
+    base = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
+    return Path(base) / "vortherm" / "dos"
+
+
+def cache_key(n_plus: int, n_minus: int, domain: Any, core_radius: float) -> tuple:
+    """(N+, N-, domain key, core radius, format version): what a stored DOS depends on."""
+    return (int(n_plus), int(n_minus), tuple(domain.key()), float(core_radius), FORMAT_VERSION)
+
+
+def cache_path(n_plus: int, n_minus: int, domain: Any, core_radius: float,
+               cache_dir: Any = None) -> Path:
+    """File name of the cached density of states for this key."""
+    key = cache_key(n_plus, n_minus, domain, core_radius)
+    digest = hashlib.sha1(repr(key).encode()).hexdigest()[:16]
+    d = Path(cache_dir) if cache_dir is not None else Path(default_cache_dir())
+    return d / f"dos_{int(n_plus)}p{int(n_minus)}m_{digest}.npz"
+
+
+def save(dos: DensityOfStates, path: Any, key: tuple) -> None:
+    """Write a DensityOfStates to ``path`` (npz), atomically (temp file, then rename)."""
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    meta = dict(n_plus=dos.n_plus, n_minus=dos.n_minus, domain_key=dos.domain_key,
+                core_radius=dos.core_radius, settings=dos.settings, key=repr(key),
+                format_version=FORMAT_VERSION)
+    arrays = dict(betas=dos.betas, n_k=dos.n_k, energies=dos.energies, f=dos.f,
+                  log_denom=dos.log_denom, boot_f=dos.boot_f, boot_counts=dos.boot_counts,
+                  meta=np.array(json.dumps(meta)))
+    arrays.update({f"obs__{k}": v for k, v in dos.observables.items()})
+    arrays.update({f"diag__{k}": v for k, v in dos.diagnostics.items()})
+    if dos.has_tables():   # the tables cost more than a load: a second process reuses them
+        arrays.update({f"tab__{k}": v for k, v in dos.tables.items()})
+    fd, tmp = tempfile.mkstemp(dir=path.parent, suffix=".npz.part")
+    os.close(fd)
+    try:
+        with open(tmp, "wb") as fh:
+            np.savez_compressed(fh, **arrays)
+        os.replace(tmp, path)
+    finally:
+        if os.path.exists(tmp):
+            os.remove(tmp)
+
+
+def load(path: Any) -> tuple[DensityOfStates, dict]:
+    """Read a DensityOfStates written by :func:`save`; returns (dos, metadata)."""
+    with np.load(Path(path), allow_pickle=False) as z:
+        meta = json.loads(str(z["meta"]))
+        if meta.get("format_version") != FORMAT_VERSION:
+            raise SamplerError(f"{path}: DOS cache format {meta.get('format_version')} != "
+                               f"{FORMAT_VERSION}; delete the file to rebuild it")
+        obs = {k[5:]: z[k] for k in z.files if k.startswith("obs__")}
+        diag = {k[6:]: z[k] for k in z.files if k.startswith("diag__")}
+        dos = DensityOfStates(
+            n_plus=int(meta["n_plus"]), n_minus=int(meta["n_minus"]),
+            domain_key=meta["domain_key"], core_radius=float(meta["core_radius"]),
+            betas=z["betas"], n_k=z["n_k"], energies=z["energies"], f=z["f"],
+            log_denom=z["log_denom"], boot_f=z["boot_f"], boot_counts=z["boot_counts"],
+            observables=obs, diagnostics=diag, settings=meta["settings"])
+        tables = {k[5:]: z[k] for k in z.files if k.startswith("tab__")}
+    if dos_tables.tables_valid(tables, dos):
+        object.__setattr__(dos, "_tables", tables)
+    return dos, meta
+
+
+def _settings_cover(stored: dict, wanted: DosSettings) -> bool:
+    """A stored build is reused when it used at least the requested effort."""
+    if wanted.betas is not None and tuple(stored.get("betas") or ()) != tuple(wanted.betas):
+        return False
+    if wanted.n_temps is not None and stored.get("n_temps") not in (None, wanted.n_temps) \
+            and wanted.betas is None:
+        return False
+    return (stored.get("n_sweeps", 0) >= wanted.n_sweeps
+            and stored.get("n_boot", 0) >= wanted.n_boot)
+
+
+def load_or_build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
+                  cache_dir: Any = None, seed: int | np.random.Generator | None = 0,
+                  settings: DosSettings = DosSettings()) -> DensityOfStates:
+    """The density of states for (N+, N-, domain, core radius), from disk if possible.
+
+    The file is keyed by :func:`cache_key`; a stored build is reused when it was made with
+    at least the requested effort (sweeps, bootstrap replicates, same ladder), otherwise it
+    is rebuilt and overwritten.
+
+    Parameters
+    ----------
+    n_plus, n_minus : vortex numbers; domain : thermo.domains.Disk or Box;
+    core_radius : hard-core radius a (domain length unit).
+    cache_dir : directory; default ``$XDG_CACHE_HOME/vortherm/dos``.
+    seed : int or Generator for a build (a cache hit ignores it).
+    settings : DosSettings (effort).
+
+    Units: energies in E0, betas in 1/E0, a in the domain's length unit.
+    """
+    if int(n_plus) < 0 or int(n_minus) < 0 or int(n_plus) + int(n_minus) < 1:
+        raise SamplerError(f"need n_plus, n_minus >= 0 and at least one vortex; got "
+                           f"({n_plus}, {n_minus})")
+    path = cache_path(n_plus, n_minus, domain, core_radius, cache_dir)
+    if path.exists():
+        st = path.stat()
+        hit = _LOADED.get(path)
+        if hit is not None and hit[:2] == (st.st_mtime_ns, st.st_size) \
+                and _settings_cover(hit[2].settings, settings):
+            return hit[2]
+        try:
+            dos, meta = load(path)
+        except (OSError, ValueError, KeyError) as exc:  # unreadable file: rebuild it
+            dos, meta = None, {"error": str(exc)}
+        if dos is not None and _settings_cover(dos.settings, settings):
+            if not dos.has_tables():     # written before tables existed: add them once
+                _ = dos.tables
+                save(dos, path, cache_key(n_plus, n_minus, domain, core_radius))
+            _remember(path, dos)
+            return dos
+    rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
+    dos = build(n_plus, n_minus, domain, core_radius, settings, rng)
+    _ = dos.tables                       # computed once here, stored with the samples
+    save(dos, path, cache_key(n_plus, n_minus, domain, core_radius))
+    _remember(path, dos)
+    return dos
+
+
+def _remember(path: Path, dos: DensityOfStates) -> None:
+    st = path.stat()
+    _LOADED[path] = (st.st_mtime_ns, st.st_size, dos)

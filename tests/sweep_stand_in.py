@@ -11,7 +11,9 @@ from __future__ import annotations
 from pathlib import Path
 
 from gpe.errors import ProtocolError
-from gpe.sweep.execute import PointTask, SweepResult, load_sweep, run_sweep
+from gpe.sweep.execute import PointTask, run_sweep
+from gpe.sweep.table import SweepResult
+from gpe.sweep.file import load_sweep
 
 SWEEP_TEXT = """
 base = "base.toml"

@@ -131,6 +131,6 @@ def test_demo_runs_end_to_end(tmp_path, capsys, monkeypatch):
     for name in ("demo.h5", "demo.toml", "demo_vortices.csv", "demo_temperature.csv",
                  "demo_temperature.png", "figures/demo_density_phase.png"):
         assert (out / name).exists(), name
-    from gpe.run import simulate as pipeline
+    from gpe.run import reading
 
-    assert pipeline.is_complete(out / "demo.h5")
+    assert reading.is_complete(out / "demo.h5")

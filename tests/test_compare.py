@@ -150,7 +150,7 @@ def _sampled_shots(seed, beta_n_values, n=12, n_shots=40, core=0.02):
 
 
 def _beta_options(cache_dir):
-    from thermo.dos.model import DosSettings
+    from thermo.dos.build import DosSettings
     # small effort: enough to separate beta~ N = +8 from -3 (common practice: check the
     # swap acceptance of a real build); cache in the test's own directory
     return dict(cache_dir=cache_dir, settings=DosSettings(n_sweeps=600, n_temps=12, n_boot=10))

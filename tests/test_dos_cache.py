@@ -1,14 +1,32 @@
 """Tests of thermo.dos.cache: the npz files, cache hits, effort coverage, in-process reuse."""
 
+import contextlib
+
 import numpy as np
 import pytest
 
 from dos_samples import one_vortex_dos
-from thermo.dos import model as dosmod
 from thermo.dos import cache as dos_cache
 from thermo.domains import Disk
-from thermo.dos.model import DosSettings
+from thermo.dos.build import DosSettings
 from thermo.errors import SamplerError
+
+@contextlib.contextmanager
+def counting_builds():
+    """Count the density-of-states builds that the cache starts (a spy on its ``build``)."""
+    calls = []
+    real = dos_cache.build
+
+    def spy(*args, **kwargs):
+        calls.append(args[:2])
+        return real(*args, **kwargs)
+
+    dos_cache.build = spy
+    try:
+        yield calls
+    finally:
+        dos_cache.build = real
+
 
 # caching is what is tested here, not physics: a cheap 2+2 build is enough
 N_PLUS, N_MINUS, CORE = 2, 2, 0.01
@@ -18,10 +36,10 @@ SETTINGS = DosSettings(n_temps=6, n_sweeps=300, n_boot=4)
 @pytest.fixture(scope="module")
 def small_gas(tmp_path_factory):
     cache = tmp_path_factory.mktemp("dos_cache")
-    before = dosmod.BUILD_COUNT
-    d = dos_cache.load_or_build(N_PLUS, N_MINUS, Disk(), CORE, cache_dir=cache, seed=3,
-                                settings=SETTINGS)
-    assert dosmod.BUILD_COUNT == before + 1
+    with counting_builds() as builds:
+        d = dos_cache.load_or_build(N_PLUS, N_MINUS, Disk(), CORE, cache_dir=cache, seed=3,
+                                    settings=SETTINGS)
+    assert len(builds) == 1
     return d, cache
 
 
@@ -48,10 +66,10 @@ def test_cache_hit_returns_identical_arrays_without_resampling(small_gas):
     d, cache = small_gas
     path = dos_cache.cache_path(N_PLUS, N_MINUS, Disk(), CORE, cache)
     mtime = path.stat().st_mtime_ns
-    before = dosmod.BUILD_COUNT
-    again = dos_cache.load_or_build(N_PLUS, N_MINUS, Disk(), CORE, cache_dir=cache, seed=99,
-                                    settings=SETTINGS)
-    assert dosmod.BUILD_COUNT == before and path.stat().st_mtime_ns == mtime
+    with counting_builds() as builds:
+        again = dos_cache.load_or_build(N_PLUS, N_MINUS, Disk(), CORE, cache_dir=cache, seed=99,
+                                        settings=SETTINGS)
+    assert not builds and path.stat().st_mtime_ns == mtime
     for name in ("betas", "energies", "f", "log_denom", "boot_f", "boot_counts"):
         np.testing.assert_array_equal(getattr(again, name), getattr(d, name))
     for k, v in d.observables.items():
@@ -75,18 +93,10 @@ def test_tables_are_stored_and_loaded_objects_reused(small_gas):
 
 def test_more_effort_rebuilds_and_then_covers_less(tmp_path):
     """A stored build is reused only when it used at least the requested sweeps."""
-    before = dosmod.BUILD_COUNT
-    dos_cache.load_or_build(1, 1, Disk(), CORE, cache_dir=tmp_path, settings=SETTINGS)
-    more = DosSettings(n_temps=6, n_sweeps=2 * SETTINGS.n_sweeps, n_boot=4)
-    big = dos_cache.load_or_build(1, 1, Disk(), CORE, cache_dir=tmp_path, settings=more)
-    assert dosmod.BUILD_COUNT == before + 2 and big.settings["n_sweeps"] == more.n_sweeps
-    again = dos_cache.load_or_build(1, 1, Disk(), CORE, cache_dir=tmp_path, settings=SETTINGS)
-    assert dosmod.BUILD_COUNT == before + 2 and again is big
-
-
-def test_old_import_paths_still_work():
-    """The cache names moved out of thermo.dos.model are forwarded from it."""
-    from thermo.dos.model import FORMAT_VERSION, load_or_build
-
-    assert load_or_build is dos_cache.load_or_build
-    assert FORMAT_VERSION == dos_cache.FORMAT_VERSION and dosmod.cache_path is dos_cache.cache_path
+    with counting_builds() as builds:
+        dos_cache.load_or_build(1, 1, Disk(), CORE, cache_dir=tmp_path, settings=SETTINGS)
+        more = DosSettings(n_temps=6, n_sweeps=2 * SETTINGS.n_sweeps, n_boot=4)
+        big = dos_cache.load_or_build(1, 1, Disk(), CORE, cache_dir=tmp_path, settings=more)
+        assert len(builds) == 2 and big.settings["n_sweeps"] == more.n_sweeps
+        again = dos_cache.load_or_build(1, 1, Disk(), CORE, cache_dir=tmp_path, settings=SETTINGS)
+    assert len(builds) == 2 and again is big

@@ -8,10 +8,10 @@ units, xi = hbar/sqrt(m mu), time hbar/mu, c = 1, hbar/m = 1.
 import numpy as np
 import pytest
 from scipy.integrate import solve_bvp
-from scipy.interpolate import CubicSpline
 
 from gpe.field.grid import Grid
-from gpe.field.solver import Solver, SolverSettings, find_ground_state
+from gpe.field.solver import Solver, SolverSettings
+from gpe.field.ground_state import find_ground_state
 from gpe.analysis.vortices import find_vortices
 
 

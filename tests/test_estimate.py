@@ -5,7 +5,7 @@ import pytest
 from scipy import stats
 
 from thermo.domains import Disk
-from thermo.dos.model import DosSettings
+from thermo.dos.build import DosSettings
 from thermo.errors import ConfigurationError
 from thermo.estimate import estimate_ensemble, estimate_single, thresholds
 from thermo.sampler import run_tempering
@@ -128,7 +128,7 @@ def test_energy_beyond_the_ladder_is_flagged_not_silently_clipped(tmp_path):
     import numpy as np
 
     from thermo.domains import Disk
-    from thermo.dos.model import DosSettings
+    from thermo.dos.build import DosSettings
     from thermo.estimate import estimate_single
 
     ang = np.linspace(0, 2 * np.pi, 3, endpoint=False)

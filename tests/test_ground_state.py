@@ -102,19 +102,6 @@ def test_ground_state_input_errors():
         find_ground_state(GRID, HARMONIC, norm=1.0, noise=0.1)
 
 
-def test_old_import_path_from_gpe_solver_still_works():
-    # The names moved here from gpe.field.solver and are forwarded from there (PEP 562).
-    import gpe.field.ground_state as moved
-    import gpe.field.solver as old
-
-    for name in moved.__all__:
-        assert getattr(old, name) is getattr(moved, name)
-    with pytest.raises(AttributeError, match="no attribute"):
-        getattr(old, "no_such_name")
-
-
-
-# -- vortex imprint ---------------------------------------------------------------------------------
 def test_imprinted_vortices_wind_by_their_sign():
     # [exact] the phase winds by 2 pi s around a vortex of sign s.
     psi = imprint_vortices(np.ones(GRID.shape), GRID, [[-3.0, 0.1], [3.0, 0.1]], [1, -1])

@@ -11,9 +11,8 @@ import numpy as np
 import pytest
 
 from thermo.domains import Box, Disk
-from thermo.data.measured import (
-    MeasuredTableError, MeasuredTableWarning, PixelCalibration, read_measured, um_to_pixels,
-)
+from thermo.data.measured import MeasuredTableError, MeasuredTableWarning, read_measured
+from thermo.data.geometry import PixelCalibration, um_to_pixels
 
 GOOD = """# a comment line
 shot, x, y, sign

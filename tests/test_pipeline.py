@@ -8,6 +8,10 @@ import numpy as np
 import pytest
 
 from gpe.run import simulate as pipeline
+
+from gpe.run import reading
+
+from gpe.run import thermometry
 from gpe.run.runfile import RunFile
 from gpe.setup.protocol import parse_protocol
 from tiny_protocol import healing_header, tiny_protocol_text
@@ -24,7 +28,7 @@ def _protocol(tmp_path, overrides=()):
 def test_simulate_writes_a_complete_self_describing_run(tmp_path):
     protocol = _protocol(tmp_path)
     out = pipeline.simulate(protocol, tmp_path / "tiny.h5")
-    assert pipeline.is_complete(out)
+    assert reading.is_complete(out)
     with RunFile.open(out, "r") as run:
         times = np.asarray(run.frame_times())
         obs = run.read_observables()
@@ -34,7 +38,7 @@ def test_simulate_writes_a_complete_self_describing_run(tmp_path):
     # with damping the energy relative to mu N can only go down (dissipation), up to the
     # work done by the moving beam; the atom number changes by well under a percent here
     assert abs(obs["norm"][-1] / obs["norm"][0] - 1) < 0.05
-    assert "vortices at the end" in pipeline.summary_text(out)
+    assert "vortices at the end" in reading.summary_text(out)
 
 
 class _Stop(Exception):
@@ -53,9 +57,9 @@ def test_interrupted_run_resumes_to_the_same_file(tmp_path):
     part = tmp_path / "part.h5"
     with pytest.raises(_Stop):
         pipeline.simulate(protocol, part, progress=stop_after_frame_7)
-    assert part.exists() and not pipeline.is_complete(part)
+    assert part.exists() and not reading.is_complete(part)
     pipeline.simulate_resume(part)
-    assert pipeline.is_complete(part)
+    assert reading.is_complete(part)
     with RunFile.open(whole, "r") as a, RunFile.open(part, "r") as b:
         np.testing.assert_array_equal(a.frame_times(), b.frame_times())
         for i in range(len(a.frame_times())):
@@ -73,7 +77,7 @@ def test_seeds_change_the_noise_and_nothing_else(tmp_path):
 
 def test_analyse_reports_beta_fields_for_a_window(tmp_path):
     out = pipeline.simulate(_protocol(tmp_path), tmp_path / "tiny.h5")
-    rec = pipeline.analyse(out, window=(6.0, 12.0), cache_dir=tmp_path / "dos")
+    rec = thermometry.analyse(out, window=(6.0, 12.0), cache_dir=tmp_path / "dos")
     for key in ("beta", "beta_ci68", "beta_ci95", "n_plus", "n_minus", "verdict", "frames"):
         assert key in rec
     assert rec["frames"] == 7
@@ -135,7 +139,7 @@ def test_imprinted_clusters_read_negative_and_pairs_positive(tmp_path):
             last = run.read_vortices()
             last = last[last["frame"] == run.n_frames - 1]
         assert (last["sign"] > 0).sum() == 4 and (last["sign"] < 0).sum() == 4
-        results[name] = pipeline.analyse(out, window=(0.0, 4.0), cache_dir=tmp_path / "dos")
+        results[name] = thermometry.analyse(out, window=(0.0, 4.0), cache_dir=tmp_path / "dos")
     assert results["clusters"]["beta_ci95"][1] < 0
     assert results["pairs"]["beta_ci95"][0] > 0
 

@@ -99,13 +99,3 @@ def test_bad_masks_raise_protocol_error_naming_file(tmp_path):
         load_mask(junk)
     with pytest.raises(ProtocolError, match="missing.npy"):
         load_mask(tmp_path / "missing.npy")
-
-
-def test_beam_names_are_still_importable_from_potentials():
-    # gpe/field/traps.py re-exports the beam classes that moved to gpe/field/beams.py
-    from gpe.field import beams
-    from gpe.field import traps as potentials
-
-    for name in ("Beam", "BeamSet", "CirclePath", "LinePath", "PolylinePath", "Ramp",
-                 "StaticPath", "array_offsets", "find_beam_excursion"):
-        assert getattr(potentials, name) is getattr(beams, name)

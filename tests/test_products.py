@@ -6,6 +6,7 @@ import h5py
 import numpy as np
 import pytest
 
+from gpe.figures import standard
 from gpe.run import products
 from gpe.errors import VorthermError
 from gpe.run.runfile import RunFile
@@ -38,7 +39,7 @@ def test_store_needs_every_frame(tiny_run, tmp_path):
 
 
 def test_figures_are_written_for_the_chosen_frames(tiny_run, tmp_path):
-    written = products.make_figures(tiny_run, tmp_path / "fig", frames=[0, -1])
+    written = standard.make_figures(tiny_run, tmp_path / "fig", frames=[0, -1])
     names = {p.name for p in written}
     assert {"tiny_density_phase.png", "tiny_vortex_counts.png", "tiny_energies.png",
             "tiny_spectra_frame0.png", "tiny_spectra_frame5.png"} <= names

@@ -15,7 +15,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from gpe.sweep.execute import PointTask, SweepError, load_sweep, plan_local, run_sweep
+from gpe.sweep.execute import PointTask, plan_local, run_sweep
+from gpe.sweep.file import SweepError, load_sweep
 from sweep_stand_in import (SWEEP_TEXT, calls, overrides_of, run_stand_in, stand_in_is_complete,
                             write_sweep_file)
 
@@ -195,7 +196,8 @@ speed_c = 0.6
 @pytest.mark.slow
 def test_end_to_end_with_the_real_pipeline(tmp_path):
     """Two points of a tiny protocol through simulate + analyse, then a rerun that skips both."""
-    from gpe.run import simulate as pipeline
+    from gpe.run import reading
+    from gpe.run import thermometry
 
     (tmp_path / "tiny.toml").write_text(TINY_PROTOCOL)
     src = tmp_path / "s.toml"
@@ -207,9 +209,9 @@ def test_end_to_end_with_the_real_pipeline(tmp_path):
     assert first.complete, first.failed
     runs = sorted((tmp_path / "out" / "runs").glob("*.h5"))
     assert [p.stem for p in runs] == ["p000_s0", "p001_s0"]
-    assert all(pipeline.is_complete(p) for p in runs)
+    assert all(reading.is_complete(p) for p in runs)
     for row in first.runs:  # the table holds what analyse() says about the same run
-        direct = pipeline.analyse(tmp_path / "out" / "runs" / f"{row['point_id']}.h5",
+        direct = thermometry.analyse(tmp_path / "out" / "runs" / f"{row['point_id']}.h5",
                                   window=(10.0, 20.0))
         # equal up to round-off: the worker ran with one thread, this process with several
         np.testing.assert_allclose([row["n_plus"], row["beta"]],

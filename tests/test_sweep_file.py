@@ -92,16 +92,6 @@ def test_misspelt_protocol_key_is_caught_before_running(tmp_path):
         load_sweep(src)
 
 
-def test_old_import_paths_still_work():
-    """The parser's names moved out of gpe.sweep.execute are re-exported by it."""
-    import gpe.sweep.execute
-    import gpe.sweep.file
-
-    for name in ("QUANTITIES", "SEED_KEY", "SUFFIX_UNITS", "Axis", "Measure", "Point", "Sweep",
-                 "SweepError", "format_value", "load_sweep", "parse_sweep"):
-        assert getattr(gpe.sweep.execute, name) is getattr(gpe.sweep.file, name)
-
-
 @pytest.mark.parametrize("value", [0.1, 1e-12, 3, -2.5, True, False, 'a "quoted" name', "x\\y"])
 def test_format_value_is_read_back_by_toml(value):
     """An override's right-hand side is TOML: tomllib must give back the same value and type."""

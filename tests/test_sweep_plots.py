@@ -7,7 +7,7 @@ import concurrent.futures as cf
 import numpy as np
 import pytest
 
-from gpe.sweep.execute import SweepError
+from gpe.sweep.file import SweepError
 from sweep_stand_in import run_stand_in, write_sweep_file
 
 

@@ -7,7 +7,7 @@ import concurrent.futures as cf
 import numpy as np
 import pytest
 
-from gpe.sweep.execute import read_summary, read_table
+from gpe.sweep.table import read_summary, read_table
 from sweep_stand_in import run_stand_in, write_sweep_file
 
 

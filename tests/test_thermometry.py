@@ -7,8 +7,8 @@ import pytest
 
 from gpe.errors import VorthermError
 from gpe.field.traps import TrapConfig
-from gpe.run.thermometry import (CORE_RADIUS_XI, WALL_LAYER_XI, domain_for_trap, gas_configuration,
-                             onset_verdict)
+from gpe.run.gas import CORE_RADIUS_XI, WALL_LAYER_XI, domain_for_trap, gas_configuration
+from gpe.run.thermometry import onset_verdict
 
 
 def test_disk_trap_maps_to_unit_disk_shrunk_by_the_wall_layer():

@@ -147,7 +147,7 @@ def test_relaxed_random_configuration_found_exactly(rng, n):
     field at the imprinted centres (test_ground_state.py checks that on the Fourier
     interpolant of the field, independently of this detector), so the imprint is the truth."""
     from gpe.field.grid import Grid
-    from gpe.field.solver import find_ground_state
+    from gpe.field.ground_state import find_ground_state
 
     grid = Grid(n, n, 64.0, 64.0)
     r = np.hypot(grid.X, grid.Y)

@@ -30,15 +30,10 @@ from gpe.errors import VorthermError
 
 __all__ = [
     "VORTEX_DTYPE",
-    "EVENT_DTYPE",
-    "ANNIHILATION",
-    "CREATION",
     "Detection",
     "find_vortices",
     "fluid_background",
     "detect_frames",
-    "track_vortices",
-    "find_events",
     "frame_rows",
 ]
 
@@ -461,17 +456,3 @@ def frame_rows(table: np.ndarray, frame: int, n_frames: int | None = None) -> np
         raise VorthermError(f"vortex table: frame {frame} is out of range; the run has "
                             f"{n_frames} frames (0..{n_frames - 1}, or negative from the end)")
     return table[table["frame"] == index]
-
-
-# Tracking and events moved to gpe.analysis.tracking, which imports this module; the old names are
-# forwarded on first use (PEP 562) so that ``from gpe.analysis.vortices import track_vortices`` keeps
-# working without an import cycle.
-_MOVED_TO_TRACKING = ("ANNIHILATION", "CREATION", "EVENT_DTYPE", "track_vortices", "find_events")
-
-
-def __getattr__(name: str) -> object:
-    if name in _MOVED_TO_TRACKING:
-        from gpe.analysis import tracking
-
-        return getattr(tracking, name)
-    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

@@ -1,7 +1,8 @@
 """Subcommands of ``vortherm``: argument definitions and thin handlers.
 
-Each ``_register_*`` adds one subparser; handlers import the numerics lazily and only translate
-between the command line and the library functions (no physics here).
+Each ``_register_*`` adds one subparser; handlers only translate between the command line and
+the library functions (no physics here). They import the numerics inside the handler on purpose:
+``vortherm --help`` and argument errors then answer without loading numba, pyFFTW or h5py.
 """
 
 from __future__ import annotations
@@ -9,7 +10,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from gpe.cli.args import add_command, parse_frames, parse_seeds
-from gpe.cli.thermo_commands import _cmd_temperature, _register_compare, _register_temperature
+from gpe.cli.thermo_commands import register_compare, register_temperature, show_temperature
 from gpe.errors import VorthermError
 
 
@@ -53,13 +54,14 @@ def _register_run(sub) -> None:
 
 
 def _cmd_run(args) -> int:
-    from gpe.run import simulate as pipeline
+    from gpe.cli import progress
+    from gpe.run import reading, simulate
     from gpe.setup.protocol import load_protocol
 
     if args.resume is not None:
-        path = pipeline.simulate_resume(args.resume, progress=pipeline.terminal_progress_factory(),
+        path = simulate.simulate_resume(args.resume, progress=progress.terminal_progress_factory(),
                                         threads=args.threads)
-        print(pipeline.summary_text(path))
+        print(reading.summary_text(path))
         return 0
     if args.protocol is None:
         raise VorthermError("vortherm run needs a protocol file (or --resume RUN.h5); "
@@ -76,8 +78,8 @@ def _cmd_run(args) -> int:
         if out.exists() and not args.force:
             raise VorthermError(f"{out} exists already; continue it with `vortherm run --resume {out}`, "
                                 "or pass --force to start again, or -o for another name.")
-        path = pipeline.simulate(protocol, out, progress=pipeline.terminal_progress_factory(), threads=args.threads)
-        print(pipeline.summary_text(path))
+        path = simulate.simulate(protocol, out, progress=progress.terminal_progress_factory(), threads=args.threads)
+        print(reading.summary_text(path))
     return 0
 
 
@@ -184,10 +186,10 @@ def _register_plot(sub) -> None:
 
 
 def _cmd_plot(args) -> int:
-    from gpe.run import products
+    from gpe.figures import standard
 
     out_dir = args.output or args.run.with_name(args.run.stem + "_figures")
-    written = products.make_figures(args.run, out_dir, frames=parse_frames(args.frames),
+    written = standard.make_figures(args.run, out_dir, frames=parse_frames(args.frames),
                                     movie=args.movie)
     for path in written:
         print(f"figure: {path}")
@@ -207,16 +209,14 @@ def _register_demo(sub) -> None:
 
 
 def _cmd_demo(args) -> int:
-    import argparse as _ap
-
-    from gpe.run import simulate as pipeline
-
-    from gpe.run import products
+    from gpe.cli import progress
+    from gpe.figures import standard
+    from gpe.run import products, reading, simulate, thermometry
     from gpe.setup.protocol import parse_protocol
 
     out = args.output
     out.mkdir(parents=True, exist_ok=True)
-    source = Path(__file__).resolve().parent.parent / "runs" / "demo.toml"
+    source = Path(__file__).resolve().parents[2] / "runs" / "demo.toml"
     if not source.exists():
         raise VorthermError(f"the demo protocol {source} is missing; the demo runs from a source "
                             "checkout installed with `pip install -e .`")
@@ -226,24 +226,22 @@ def _cmd_demo(args) -> int:
     protocol = parse_protocol(text, source=str(protocol_path))
     run_path = out / "demo.h5"
     print(f"1/4 simulating {protocol_path} -> {run_path}")
-    resume = run_path.exists() and not pipeline.is_complete(run_path)
-    if not pipeline.is_complete(run_path):
+    resume = run_path.exists() and not reading.is_complete(run_path)
+    if not reading.is_complete(run_path):
         if run_path.exists() and not resume:
             run_path.unlink()
-        pipeline.simulate(protocol, run_path, resume=resume, progress=pipeline.terminal_progress_factory(),
+        simulate.simulate(protocol, run_path, resume=resume, progress=progress.terminal_progress_factory(),
                           threads=args.threads)
-    print(pipeline.summary_text(run_path))
+    print(reading.summary_text(run_path))
     print("2/4 figures")
-    for path in products.make_figures(run_path, out / "figures", frames=[0, -1], movie=False):
+    for path in standard.make_figures(run_path, out / "figures", frames=[0, -1], movie=False):
         print(f"  {path}")
     print("3/4 vortex table")
     _, _, csv_path = products.redetect(run_path, csv_path=out / "demo_vortices.csv")
     print(f"  {csv_path}")
     print("4/4 temperature of the vortex gas")
-    targs = _ap.Namespace(source=run_path, frames=None, effort="quick", csv=out / "demo_temperature.csv",
-                          json=False, plot=True, disk_radius_um=None, box_um=None, core_um=None,
-                          pixel_um=None, center=None, strict=False)
-    _cmd_temperature(targs)
+    result = thermometry.temperature_of_run(run_path, effort="quick")
+    show_temperature(result, run_path, csv_path=out / "demo_temperature.csv", plot=True)
     print(f"\nall demo outputs are in {out.resolve()}")
     return 0
 
@@ -263,5 +261,5 @@ def _cmd_describe(args) -> int:
 
 
 REGISTRY = [_register_init, _register_run, _register_vortices, _register_plot,
-            _register_temperature, _register_compare, _register_sweep, _register_demo,
+            register_temperature, register_compare, _register_sweep, _register_demo,
             _register_describe]

@@ -8,20 +8,15 @@ printed as one paragraph and give exit code 2; anything else is a bug and shows 
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 import warnings
 
+from gpe.cli import commands
 from gpe.errors import VorthermError
+from thermo.errors import ThermoError
 
 EXIT_INPUT_ERROR = 2
-
-
-def _thermo_error_types() -> tuple[type[BaseException], ...]:
-    try:
-        from thermo.errors import ThermoError
-    except ImportError:  # thermo not importable: only our own errors count
-        return (VorthermError,)
-    return (VorthermError, ThermoError)
 
 
 def _show_warning(message, category, filename, lineno, file=None, line=None) -> None:
@@ -29,8 +24,6 @@ def _show_warning(message, category, filename, lineno, file=None, line=None) -> 
 
 
 def build_parser() -> argparse.ArgumentParser:
-    from gpe.cli import commands
-
     parser = argparse.ArgumentParser(
         prog="vortherm",
         description=("Stir a 2D Bose-Einstein condensate on a CPU, find its quantized vortices "
@@ -48,16 +41,19 @@ def main(argv: list[str] | None = None) -> int:
     """Run the command line; returns the process exit code."""
     parser = build_parser()
     args = parser.parse_args(argv)
-    warnings.showwarning = _show_warning
-    try:
-        return int(args.handler(args) or 0)
-    except _thermo_error_types() as exc:
-        sys.stderr.write(f"error: {exc}\n")
-        return EXIT_INPUT_ERROR
-    except KeyboardInterrupt:
-        sys.stderr.write("interrupted: the run file keeps its last checkpoint; "
-                         "continue with `vortherm run --resume FILE.h5`\n")
-        return 130
+    # The command line only writes figure files: a headless backend unless the user chose one.
+    os.environ.setdefault("MPLBACKEND", "Agg")
+    with warnings.catch_warnings():   # one-line warnings for this command only, then restored
+        warnings.showwarning = _show_warning
+        try:
+            return int(args.handler(args) or 0)
+        except (VorthermError, ThermoError) as exc:
+            sys.stderr.write(f"error: {exc}\n")
+            return EXIT_INPUT_ERROR
+        except KeyboardInterrupt:
+            sys.stderr.write("interrupted: the run file keeps its last checkpoint; "
+                             "continue with `vortherm run --resume FILE.h5`\n")
+            return 130
 
 
 if __name__ == "__main__":  # pragma: no cover

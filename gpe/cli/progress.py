@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import sys
 import time
-from typing import TextIO
+from typing import Callable, TextIO
 
 
 def _format_seconds(seconds: float) -> str:
@@ -82,3 +82,19 @@ class ProgressBar:
         """Draw the final state and end the line."""
         self.stream.write(("\r" if self.interactive else "") + self._line(time.perf_counter()) + "\n")
         self.stream.flush()
+
+
+def terminal_progress_factory() -> Callable[[object], None]:
+    """A callback for :func:`gpe.run.simulate.simulate` that draws a progress bar on standard error
+    (it receives a ``gpe.run.simulate.RunProgress`` after every output)."""
+    state: dict = {}
+
+    def draw(p) -> None:
+        if "bar" not in state:
+            state["bar"] = ProgressBar(p.t_end, label="run", unit=p.time_unit)
+        bar = state["bar"]
+        bar.update(p.t, extra=f"{p.steps_per_s:,.0f} steps/s  N+={p.n_plus} N-={p.n_minus}")
+        if p.t >= p.t_end * (1 - 1e-12):
+            bar.close()
+
+    return draw

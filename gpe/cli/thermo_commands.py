@@ -1,7 +1,8 @@
 """Subcommands of the thermometry side: ``temperature`` and ``compare``.
 
-Thin handlers: they read run files and measured tables, call gpe.run.thermometry and thermo, and
-print or write the results. Registered in gpe.cli.commands.REGISTRY.
+Thin handlers: they parse options, call gpe.run.thermometry (the thermometry of runs and tables)
+and thermo, and print or write the results. The numerics are imported inside the handlers, for
+the reason given in gpe/cli/commands.py (a quick ``--help``). Registered in gpe.cli.commands.REGISTRY.
 """
 
 from __future__ import annotations
@@ -14,7 +15,7 @@ from gpe.errors import VorthermError
 
 
 # --------------------------------------------------------------------------- temperature
-def _register_temperature(sub) -> None:
+def register_temperature(sub) -> None:
     p = add_command(sub, "temperature", "inverse temperature beta of vortex configurations (both signs)",
                     "beta per output time of a run file, or per shot and for the ensemble of a measured "
                     "table (CSV/HDF5: shot, x, y, sign; positions in um about the trap centre, or "
@@ -40,10 +41,10 @@ def _register_temperature(sub) -> None:
 
 
 def _is_run_file(path: Path) -> bool:
-    if path.suffix.lower() not in (".h5", ".hdf5"):
-        return False
     import h5py
 
+    if path.suffix.lower() not in (".h5", ".hdf5"):
+        return False
     try:
         with h5py.File(path, "r") as f:
             return "format_version" in f.attrs and "snapshots" in f
@@ -58,81 +59,44 @@ def _cmd_temperature(args) -> int:
         raise VorthermError(f"{args.source}: no such file; give a run file (.h5) or a measured "
                             "table (.csv)")
     if _is_run_file(args.source):
-        result = _temperature_of_run(args)
+        result = thermometry.temperature_of_run(args.source, frames=parse_frames(args.frames),
+                                                effort=args.effort)
     else:
-        result = _temperature_of_table(args)
-    csv_path = args.csv or args.source.with_name(args.source.stem + "_temperature.csv")
-    thermometry.write_records_csv(csv_path, result["records"], result["time_key"])
-    if args.json:
-        print(json.dumps(thermometry.json_report(result), indent=1, allow_nan=True))
-    else:
-        print(thermometry.text_report(result))
-        print(f"table written to {csv_path}")
-    if args.plot:
-        from gpe.figures import thermometry as thermo_plots
-
-        fig_path = args.source.with_name(args.source.stem + "_temperature.png")
-        thermo_plots.plot_temperature_series(result, fig_path)
-        print(f"figure written to {fig_path}")
+        shape, kw = None, {}
+        if args.disk_radius_um is not None:
+            shape, kw["radius_um"] = "disk", args.disk_radius_um
+        if args.box_um is not None:
+            shape, kw["width_um"], kw["height_um"] = "box", args.box_um[0], args.box_um[1]
+        result = thermometry.temperature_of_table(
+            args.source, shape=shape, core_um=args.core_um, pixel_um=args.pixel_um,
+            center_px=args.center, strict=args.strict, effort=args.effort, **kw)
+    show_temperature(result, args.source, csv_path=args.csv, as_json=args.json, plot=args.plot)
     return 0
 
 
-def _temperature_of_run(args) -> dict:
-    from gpe.run import simulate as pipeline
-    from gpe.run import thermometry
-    from gpe.run.runfile import RunFile
+def show_temperature(result: dict, source: Path, *, csv_path: Path | None = None,
+                     as_json: bool = False, plot: bool = False) -> None:
+    """Write the table (and figure) of a thermometry result and print it (text or JSON)."""
+    from gpe.figures import thermometry as thermo_figures
+    from gpe.run import report
 
-    with RunFile.open(args.source, "r") as run:
-        n_frames = len(run.frame_times())
-    frames = pipeline.select_frames(args.source, parse_frames(args.frames), n_frames)
-    vd, times, configs, left_out, protocol = pipeline.run_configurations(args.source, frames)
-    si = protocol.unit_system == "SI"
-    t_user = times * protocol.units.time_s * 1e3 if si else times
-    unit = "ms" if si else "hbar/mu"
-    records = thermometry.configuration_records(configs, vd.domain, vd.core_radius,
-                                                effort=args.effort)
-    for rec, f, t, (wall, pairs) in zip(records, frames, t_user, left_out):
-        rec.update({"frame": f, "t": float(t), "left_out_wall": wall, "left_out_pairs": pairs})
-    # the ensemble over the last third of the run: where a stirred gas has settled, if ever
-    last = max(1, len(configs) // 3)
-    ensemble = thermometry.ensemble_record(configs[-last:], vd.domain, vd.core_radius,
-                                           effort=args.effort)
-    ensemble["window"] = [float(t_user[-last]), float(t_user[-1])]
-    return {"kind": "run", "source": str(args.source), "time_key": "t", "time_unit": unit,
-            "records": records, "ensemble": ensemble,
-            "onset": thermometry.onset_verdict(t_user, records, unit),
-            "approximation": vd.approximate, "domain": vd.domain.kind}
-
-
-def _temperature_of_table(args) -> dict:
-    from gpe.run import thermometry
-    from thermo.data.measured import read_measured
-
-    shape = None
-    kw = {}
-    if args.disk_radius_um is not None:
-        shape, kw["radius_um"] = "disk", args.disk_radius_um
-    if args.box_um is not None:
-        shape, kw["width_um"], kw["height_um"] = "box", args.box_um[0], args.box_um[1]
-    table = read_measured(args.source, shape=shape, core_um=args.core_um, pixel_um=args.pixel_um,
-                          center_px=args.center, strict=args.strict, **kw)
-    core = table.core_radius if table.core_radius is not None else 0.02
-    configs = table.configurations
-    records = thermometry.configuration_records(configs, table.domain, core, effort=args.effort)
-    for rec, shot in zip(records, table.shot_ids):
-        rec["shot"] = shot
-    ensemble = thermometry.ensemble_record(configs, table.domain, core, effort=args.effort)
-    return {"kind": "measured", "source": str(args.source), "time_key": "shot",
-            "time_unit": "", "records": records, "ensemble": ensemble,
-            "onset": ensemble["verdict"], "approximation": "",
-            "domain": table.domain.kind,
-            "problems": [str(p) for p in table.problems]}
+    csv_path = csv_path or source.with_name(source.stem + "_temperature.csv")
+    report.write_records_csv(csv_path, result["records"], result["time_key"])
+    if as_json:
+        print(json.dumps(report.json_report(result), indent=1, allow_nan=True))
+    else:
+        print(report.text_report(result))
+        print(f"table written to {csv_path}")
+    if plot:
+        fig_path = source.with_name(source.stem + "_temperature.png")
+        thermo_figures.plot_temperature_series(result, fig_path)
+        print(f"figure written to {fig_path}")
 
 
 
 
 # --------------------------------------------------------------------------- compare
-def _register_compare(sub) -> None:
+def register_compare(sub) -> None:
     p = add_command(sub, "compare", "simulated vs measured vortex statistics, side by side",
                     "Frames of one or more run files (e.g. seeds of one protocol) near --time-ms, or in "
                     "--window-ms, form the simulated ensemble; the measured table (CSV/HDF5) the other. "
@@ -165,11 +129,10 @@ def _register_compare(sub) -> None:
 def _cmd_compare(args) -> int:
     import numpy as np
 
-    from gpe.run import simulate as pipeline
+    from gpe.figures import thermometry as thermo_figures
+    from gpe.run import thermometry
     from gpe.run.runfile import RunFile
-    from gpe.run.thermometry import dos_settings
     from thermo.data import compare as cmp
-    from gpe.figures import thermometry as thermo_plots
     from thermo.data.degrade import ImagingModel, degrade_many
     from thermo.data.measured import read_measured
 
@@ -177,7 +140,7 @@ def _cmd_compare(args) -> int:
     for run_path in args.runs:
         with RunFile.open(run_path, "r") as run:
             times = np.asarray(run.frame_times())
-        _, _, _, _, protocol = pipeline.run_configurations(run_path, [len(times) - 1])
+        _, _, _, _, protocol = thermometry.run_configurations(run_path, [len(times) - 1])
         ms = times * protocol.units.time_s * 1e3
         if args.window_ms:
             frames = [i for i, t in enumerate(ms) if args.window_ms[0] <= t <= args.window_ms[1]]
@@ -188,7 +151,7 @@ def _cmd_compare(args) -> int:
         if not frames:
             raise VorthermError(f"{run_path}: no frame in --window-ms {args.window_ms}; frames "
                                 f"span {ms[0]:.4g}..{ms[-1]:.4g} ms")
-        vd, _, configs, _, _ = pipeline.run_configurations(run_path, frames)
+        vd, _, configs, _, _ = thermometry.run_configurations(run_path, frames)
         sim_configs.extend(configs)
     scale_um = vd.scale * protocol.units.length_m * 1e6
     # The measured table keeps its own geometry (TOML beside it, or its options): both sides
@@ -208,12 +171,12 @@ def _cmd_compare(args) -> int:
                                core_radius=core)
     comparison = cmp.compare_ensembles(sim_configs, measured.configurations, vd.domain,
                                        core, seed=args.seed,
-                                       beta_options={"settings": dos_settings(args.effort)})
+                                       beta_options={"settings": thermometry.dos_settings(args.effort)})
     stem = args.output or args.measured.with_name(args.measured.stem + "_vs_simulation")
     csv_path = cmp.write_csv(comparison, stem.with_suffix(".csv"))
     json_path = cmp.write_json(comparison, stem.with_suffix(".json"))
     fig_path = stem.with_suffix(".png")
-    thermo_plots.plot_comparison(comparison, fig_path, length_scale_um=scale_um)
+    thermo_figures.plot_comparison(comparison, fig_path, length_scale_um=scale_um)
     if args.json:
         print(json.dumps(cmp.comparison_to_dict(comparison), indent=1, allow_nan=True))
     else:

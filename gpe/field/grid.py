@@ -10,7 +10,6 @@ Units: lengths in healing lengths xi, wavenumbers in 1/xi.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from functools import cached_property
 
 import numpy as np
 

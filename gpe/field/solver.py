@@ -369,18 +369,3 @@ def observables(psi: np.ndarray, grid: Grid, V_static: np.ndarray,  # noqa: N803
     mu = (e_kin + e_trap + e_beam + 2 * e_int) / norm if norm > 0 else math.nan
     return {"norm": norm, "e_kin": e_kin, "e_trap": e_trap, "e_int": e_int, "e_beam": e_beam,
             "energy": energy, "mu": mu, "lz": lz}
-
-
-# The imaginary-time ground state and the vortex imprint live in gpe.field.ground_state, which imports
-# this module; their names are forwarded on first use (PEP 562) so that
-# ``from gpe.field.solver import find_ground_state`` keeps working without an import cycle.
-_MOVED_TO_GROUND_STATE = ("GroundState", "thomas_fermi_guess", "find_ground_state",
-                          "imprint_vortices", "winding_phase")
-
-
-def __getattr__(name: str) -> object:
-    if name in _MOVED_TO_GROUND_STATE:
-        from gpe.field import ground_state
-
-        return getattr(ground_state, name)
-    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

@@ -20,9 +20,6 @@ from pathlib import Path
 import numpy as np
 from scipy import ndimage
 
-# re-exported: the beams were defined in this module before gpe.field.beams existed
-from gpe.field.beams import (Beam, BeamExcursion, BeamPath, BeamSet, CirclePath, LinePath, PolylinePath,
-                       Ramp, StaticPath, array_offsets, find_beam_excursion)
 from gpe.errors import ProtocolError
 from gpe.field.grid import Grid
 

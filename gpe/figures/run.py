@@ -1,7 +1,8 @@
 """Figures of the field side: density/phase panels with vortices, vortex numbers, energies,
 kinetic-energy spectra, and animations.
 
-matplotlib is imported inside the functions (Agg backend), so ``import gpe`` stays fast.
+matplotlib is imported inside the functions, so ``import gpe`` stays fast; the backend is the
+caller's (a notebook keeps its own, the command line runs headless).
 Functions take arrays and tables, never paths; each returns the matplotlib Figure (or the
 written path for animations). Lengths are shown in micrometres when ``length_um`` (the healing
 length in um) is given, else in xi; times in ms when ``time_ms`` (hbar/mu in ms) is given.
@@ -25,9 +26,6 @@ MINUS_STYLE = dict(marker="^", s=30, facecolor="#17becf", edgecolor="#0b3c49", l
 
 
 def _pyplot():
-    import matplotlib
-
-    matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
     return plt
@@ -108,7 +106,7 @@ def vortex_counts(vortex_table, frame_times, events=None, *, time_ms: float | No
     ax.plot(frame_times * ts, n_plus, color="#e4572e", marker="o", ms=3, label="N₊ (+ vortices)")
     ax.plot(frame_times * ts, n_minus, color="#17becf", marker="^", ms=3, label="N₋ (− vortices)")
     if events is not None and len(events):
-        from gpe.analysis.vortices import ANNIHILATION
+        from gpe.analysis.tracking import ANNIHILATION
         ann = events[events["kind"] == ANNIHILATION]
         cre = events[events["kind"] != ANNIHILATION]
         if ann.size:

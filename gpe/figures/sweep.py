@@ -14,7 +14,8 @@ from typing import Any, Mapping
 
 import numpy as np
 
-from gpe.sweep.execute import Axis, SweepError, SweepResult, read_summary
+from gpe.sweep.file import Axis, SweepError
+from gpe.sweep.table import SweepResult, read_summary
 
 #: Diverging map for beta, centred on beta = 0 (white: infinite temperature). Large positive beta
 #: (cold) is blue; negative beta, hotter than any positive temperature, is red.

@@ -21,9 +21,6 @@ def plot_temperature_series(result: dict, path) -> Path:
     ``result`` is the dictionary built by ``vortherm temperature`` (records, ensemble, ...).
     Thresholds (clustering onset, like-sign collapse) are drawn where the records give them.
     """
-    import matplotlib
-
-    matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
     recs = result["records"]
@@ -112,8 +109,6 @@ def plot_comparison(comparison, path: str | Path | None = None, *,
     """
     from thermo.data.compare import QUANTITIES, pooled_pair_correlation
 
-    import matplotlib
-    matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
     colours = ("#1b7837", "#762a83")  # simulation, measured

@@ -1,23 +1,30 @@
 """The whole job for one protocol: ground state -> stirring -> run file -> vortices.
 
 ``simulate`` is the only place where the protocol, the solver, the detector and the run file
-meet; each of them stays ignorant of the others. ``analyse`` turns a finished run file into a
-temperature verdict through the thermometry back end.
+meet; each of them stays ignorant of the others. Reading a finished run back lives in
+gpe/run/reading.py, its thermometry in gpe/run/thermometry.py.
 
 Units: simulation units throughout (xi, hbar/mu, mu); SI only in the summary text.
 """
 
 from __future__ import annotations
 
-import math
 import time
+import warnings
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Callable
 
 import numpy as np
 
-from gpe.errors import RunFileError, VorthermError
+from gpe.analysis import diagnostics
+from gpe.analysis.tracking import track_vortices
+from gpe.analysis.vortices import VORTEX_DTYPE, find_vortices
+from gpe.errors import RunFileError
+from gpe.field.ground_state import find_ground_state
+from gpe.field.solver import Solver, SolverSettings
+from gpe.run.reading import protocol_of
+from gpe.run.runfile import RunFile
 
 #: Density threshold of the detector relative to the peak background (common practice: 0.1-0.3).
 DETECT_THRESHOLD = 0.2
@@ -36,24 +43,7 @@ class RunProgress:
     time_unit: str
 
 
-def terminal_progress_factory() -> Callable[[RunProgress], None]:
-    """A callback that draws a progress bar on standard error."""
-    from gpe.cli.progress import ProgressBar
-
-    state: dict = {}
-
-    def draw(p: RunProgress) -> None:
-        if "bar" not in state:
-            state["bar"] = ProgressBar(p.t_end, label="run", unit=p.time_unit)
-        bar = state["bar"]
-        bar.update(p.t, extra=f"{p.steps_per_s:,.0f} steps/s  N+={p.n_plus} N-={p.n_minus}")
-        if p.t >= p.t_end * (1 - 1e-12):
-            bar.close()
-
-    return draw
-
-
-def _detection_region(protocol, v_static: np.ndarray) -> np.ndarray:
+def detection_region(protocol, v_static: np.ndarray) -> np.ndarray:
     """Where vortices may be reported: inside the trap walls (or below mu for a harmonic trap)."""
     trap = protocol.trap
     if trap.shape == "harmonic":
@@ -62,8 +52,6 @@ def _detection_region(protocol, v_static: np.ndarray) -> np.ndarray:
 
 
 def _detect(psi: np.ndarray, grid, region: np.ndarray, frame: int, t: float) -> np.ndarray:
-    from gpe.analysis.vortices import VORTEX_DTYPE, find_vortices
-
     det = find_vortices(psi, grid.x, grid.y, threshold=DETECT_THRESHOLD, region=region)
     rows = np.empty(len(det), dtype=VORTEX_DTYPE)
     rows["frame"] = frame
@@ -77,8 +65,6 @@ def _detect(psi: np.ndarray, grid, region: np.ndarray, frame: int, t: float) -> 
 
 def _initial_state(protocol, v_static, beams, threads):
     """Ground state with the beams at their t = 0 heights and positions, plus seeded noise."""
-    from gpe.field.solver import find_ground_state
-
     gs_cfg = protocol.ground_state
     kwargs = {}
     if gs_cfg.fixed == "number":
@@ -121,14 +107,12 @@ def simulate(protocol, out_path, *, resume: bool = False,
     -------
     pathlib.Path of the run file.
     """
-    from gpe.run.runfile import RunFile
-
     out_path = Path(out_path)
     grid = protocol.grid
     ev = protocol.evolution
     v_static = protocol.build_trap()
     beams = protocol.build_beams()
-    region = _detection_region(protocol, v_static)
+    region = detection_region(protocol, v_static)
     t_end = ev.n_outputs * ev.output_interval
     time_unit = "ms" if protocol.unit_system == "SI" else "hbar/mu"
     to_user = protocol.units.time_s * 1e3 if time_unit == "ms" else 1.0
@@ -146,7 +130,6 @@ def simulate(protocol, out_path, *, resume: bool = False,
     else:
         gs, psi0 = _initial_state(protocol, v_static, beams, threads)
         if not gs.converged:
-            import warnings
             warnings.warn(f"{protocol.source_name}: ground state not converged to the tolerance "
                           f"after {gs.steps} steps (mu = {gs.mu:.6g}); raise "
                           "ground_state.max_steps or dt", stacklevel=2)
@@ -196,8 +179,6 @@ def simulate(protocol, out_path, *, resume: bool = False,
 
 
 def _make_solver(protocol, v_static, beams, mu_run, psi0, t0, step0, threads):
-    from gpe.field.solver import Solver, SolverSettings
-
     ev = protocol.evolution
     settings = SolverSettings(dt=ev.dt, gamma=ev.gamma, mu=mu_run, g=1.0,
                               precision=ev.precision, threads=threads)
@@ -205,8 +186,6 @@ def _make_solver(protocol, v_static, beams, mu_run, psi0, t0, step0, threads):
 
 
 def _write_frame(run, protocol, psi, t, v_static, beams, grid, region, frame) -> np.ndarray:
-    from gpe.analysis import diagnostics
-
     v_beam = beams.potential(t, grid) if beams.n_beams else None
     rows = _detect(np.asarray(psi), grid, region, frame, t)
     state = diagnostics.FrameState(np.asarray(psi), t, grid, v_static, v_beam, 1.0,
@@ -218,47 +197,13 @@ def _write_frame(run, protocol, psi, t, v_static, beams, grid, region, frame) ->
 
 def _finish_tracks(run) -> None:
     """Link the vortices of all frames into tracks once the run is complete."""
-    from gpe.analysis.vortices import track_vortices
-
     table = run.read_vortices()
     if table.size:
         run.replace_vortices(track_vortices(table, run.frame_times()))
 
 
-# ------------------------------------------------------------------------------------------
-# reading a run back: completeness, summary, thermometry
-# ------------------------------------------------------------------------------------------
-def protocol_of(run) -> object:
-    """Rebuild the :class:`~gpe.setup.protocol.Protocol` stored verbatim in an open run file."""
-    import warnings
-
-    from gpe.setup.protocol import ProtocolWarning, parse_protocol
-
-    with warnings.catch_warnings():  # its warnings were shown when the run was started
-        warnings.simplefilter("ignore", ProtocolWarning)
-        return parse_protocol(run.protocol_text(), source=run.protocol_source(),
-                              overrides=run.protocol_overrides(),
-                              base_dir=Path(run.protocol_source()).parent)
-
-
-def is_complete(run_path) -> bool:
-    """True when ``run_path`` is a readable run file whose run reached its final time."""
-    from gpe.run.runfile import RunFile
-
-    path = Path(run_path)
-    if not path.exists():
-        return False
-    try:
-        with RunFile.open(path, "r") as run:
-            return bool(run.is_complete())
-    except (RunFileError, OSError):
-        return False
-
-
 def simulate_resume(run_path, *, progress=None, threads=None) -> Path:
     """Continue the interrupted run in ``run_path`` from its last checkpoint."""
-    from gpe.run.runfile import RunFile
-
     path = Path(run_path)
     if not path.exists():
         raise RunFileError(f"{path}: no such run file to resume; start it with `vortherm run "
@@ -268,122 +213,3 @@ def simulate_resume(run_path, *, progress=None, threads=None) -> Path:
             return path
         protocol = protocol_of(run)
     return simulate(protocol, path, resume=True, progress=progress, threads=threads)
-
-
-def summary_text(run_path) -> str:
-    """Closing summary of a run: atoms, mu, healing length, sound speed, final vortex count."""
-    from gpe.run.runfile import RunFile
-
-    with RunFile.open(run_path, "r") as run:
-        protocol = protocol_of(run)
-        times = run.frame_times()
-        table = run.read_vortices()
-        obs = run.read_observables()
-    u = protocol.units
-    last = table[table["frame"] == len(times) - 1] if len(times) else table[:0]
-    n_plus = int(np.count_nonzero(last["sign"] > 0))
-    n_minus = int(np.count_nonzero(last["sign"] < 0))
-    mu_solved = float(obs["mu"][0]) if "mu" in obs and len(obs["mu"]) else math.nan
-    lines = [
-        f"run file: {run_path}",
-        f"  atoms N = {protocol.atoms.number:.4g}; species {protocol.atoms.species}",
-        f"  chemical potential mu = {u.energy_J / 1.380649e-23 * 1e9:.4g} nK "
-        f"(= 1 mu; solved ground state {mu_solved:.5g} mu)",
-        f"  healing length xi = {u.length_m * 1e6:.4g} um (= 1 xi); time unit hbar/mu = "
-        f"{u.time_s * 1e3:.4g} ms",
-        f"  sound speed c = {u.speed_m_s * 1e3:.4g} mm/s (= 1 c)",
-        f"  simulated {times[-1] * u.time_s * 1e3 if len(times) else 0:.4g} ms = "
-        f"{times[-1] if len(times) else 0:.4g} hbar/mu in {len(times)} frames",
-        f"  vortices at the end: N+ = {n_plus}, N- = {n_minus}",
-    ]
-    return "\n".join(lines)
-
-
-def select_frames(run_path, frames, n_frames: int, default: str = "all") -> list[int]:
-    """Frame indices chosen by ``frames`` (None, a slice or a list; negative count from the end).
-
-    ``default`` says what None means: "all" frames or the "last" one. Raises a clear error for
-    an empty run file or an index out of range.
-    """
-    if n_frames == 0:
-        raise RunFileError(f"{run_path}: the run file holds no snapshots (no frames to use)")
-    if frames is None:
-        chosen = list(range(n_frames)) if default == "all" else [n_frames - 1]
-    elif isinstance(frames, slice):
-        chosen = list(range(n_frames))[frames]
-    else:
-        chosen = list(frames)
-    for f in chosen:
-        if not -n_frames <= f < n_frames:
-            raise VorthermError(f"{run_path}: frame {f} out of range; the run has frames "
-                                f"0..{n_frames - 1} (negative numbers count from the end)")
-    return sorted({f % n_frames for f in chosen})
-
-
-def run_configurations(run_path, frames=None):
-    """Vortex configurations of a run on its point-vortex domain, one per frame.
-
-    ``frames`` as for :func:`select_frames` (default: all, in order). Returns (vortex_domain,
-    times, configurations, left_out, protocol) where configurations are (positions, signs)
-    pairs in domain units and left_out counts (wall, pairs) per frame.
-    """
-    from gpe.run.runfile import RunFile
-    from gpe.run.thermometry import domain_for_trap, gas_configuration
-
-    with RunFile.open(run_path, "r") as run:
-        protocol = protocol_of(run)
-        times = np.asarray(run.frame_times())
-        table = run.read_vortices()
-    vd = domain_for_trap(protocol.trap)
-    configs, left_out, sel_times = [], [], []
-    for f in select_frames(run_path, frames, len(times)):
-        rows = table[table["frame"] == f]
-        gas = gas_configuration(rows["x"], rows["y"], rows["sign"], vd)
-        configs.append((gas.positions, gas.signs))
-        left_out.append((gas.left_out_wall, gas.left_out_pairs))
-        sel_times.append(times[f])
-    return vd, np.asarray(sel_times), configs, left_out, protocol
-
-
-def analyse(run_path, *, time: float | None = None, window=None, effort: str = "quick",
-            cache_dir=None) -> dict:
-    """Thermometry of a run at one time (nearest frame) or over a window of frames.
-
-    Parameters
-    ----------
-    time : simulation time (hbar/mu) of the frame to use; default the last frame.
-    window : (t0, t1) in hbar/mu: all frames in it form one ensemble (consecutive frames are
-        correlated, so the interval is optimistic; say so when quoting it).
-
-    Returns a dict with beta, beta_ci68, beta_ci95, n_plus, n_minus, energy_per_vortex,
-    dipole_fraction, cluster_fraction, free_fraction, prob_negative, verdict, ...
-    """
-    from gpe.run.runfile import RunFile
-    from gpe.run.thermometry import ensemble_record
-
-    with RunFile.open(run_path, "r") as run:
-        times = np.asarray(run.frame_times())
-    if window is not None:
-        frames = [i for i, t in enumerate(times) if window[0] - 1e-9 <= t <= window[1] + 1e-9]
-        if not frames:
-            raise VorthermError(f"{run_path}: no frame in the window {window[0]:.4g}.."
-                                f"{window[1]:.4g} hbar/mu (frames span {times[0]:.4g}.."
-                                f"{times[-1]:.4g})")
-    elif time is not None:
-        frames = [int(np.argmin(np.abs(times - time)))]
-    else:
-        frames = [len(times) - 1]
-    vd, _, configs, left_out, _ = run_configurations(run_path, frames)
-    rec = ensemble_record(configs, vd.domain, vd.core_radius, effort=effort,
-                          cache_dir=cache_dir)
-    rec.update({
-        "n_plus": float(np.mean([np.sum(s > 0) for _, s in configs])),
-        "n_minus": float(np.mean([np.sum(s < 0) for _, s in configs])),
-        "frames": len(frames),
-        "left_out_wall": int(sum(w for w, _ in left_out)),
-        "left_out_pairs": int(sum(p for _, p in left_out)),
-        "approximation": vd.approximate,
-    })
-    for key in ("dipole_fraction", "cluster_fraction", "free_fraction", "energy_per_vortex"):
-        rec.setdefault(key, math.nan)
-    return rec

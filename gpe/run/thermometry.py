@@ -1,160 +1,38 @@
-"""Bridge from the field side to the vortex gas: run-file vortices -> thermo configurations.
+"""Thermometry of simulated vortex configurations: per frame, per ensemble, and of a whole run.
 
-The thermometry back end (``thermo``) works with signed points in a unit domain and a hard core.
-This module decides, for a simulated trap, which domain stands in for it and how detected
-vortices map onto that domain:
+The run side decides which frames make an ensemble and which domain stands in for the trap
+(gpe/run/gas.py); ``thermo`` does the statistical mechanics.
 
-* a flat-bottomed disk of radius R becomes the unit disk with R_eff = R - ``wall_layer`` (the
-  density vanishes over about one healing length at a hard wall, so the superfluid edge sits
-  inside the nominal radius: common practice);
-* a box becomes a ``thermo.domains.Box`` with the same aspect ratio, shrunk the same way;
-* a harmonic trap becomes the disk of the Thomas–Fermi radius, **flagged** as an approximation
-  (the density is not uniform, so the uniform-domain point-vortex model is only indicative);
-* annulus and mask traps have no point-vortex domain here; thermometry refuses them clearly.
-
-Vortices in the wall layer or closer to each other than two core radii (a pair about to
-annihilate) cannot be placed in the hard-core ensemble; they are left out and *counted*, and the
-count is reported beside every estimate.
-
-Units: inputs in xi (healing lengths); outputs in the domain's scaled length.
+Units: simulation units (xi, hbar/mu) for positions and times; beta in 1/E0, E0 = rho kappa^2/(4 pi).
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
-from pathlib import Path
 
 import numpy as np
 
 from gpe.errors import VorthermError
-
-#: Thickness of the depleted layer at a hard wall, in healing lengths (common practice: ~1 xi).
-WALL_LAYER_XI = 1.0
-#: Hard-core radius of a vortex in healing lengths: centres closer than 2a are one pair.
-CORE_RADIUS_XI = 0.5
-
-
-@dataclass(frozen=True)
-class VortexDomain:
-    """The point-vortex stand-in for a trap.
-
-    Attributes
-    ----------
-    domain : thermo.domains.Disk or Box
-    scale : float
-        Length of one domain unit in xi (disk: R_eff; box: the side along y).
-    center : (float, float)
-        Trap centre in xi.
-    core_radius : float
-        Hard core in domain units.
-    approximate : str
-        Empty for flat-bottomed traps; otherwise why the model is only an approximation.
-    """
-
-    domain: object
-    scale: float
-    center: tuple[float, float]
-    core_radius: float
-    approximate: str = ""
-
-    def to_domain(self, x: np.ndarray, y: np.ndarray) -> np.ndarray:
-        """Positions in xi -> (N, 2) positions in domain units."""
-        return np.column_stack(((np.asarray(x) - self.center[0]) / self.scale,
-                                (np.asarray(y) - self.center[1]) / self.scale))
-
-
-def domain_for_trap(trap, core_radius_xi: float = CORE_RADIUS_XI,
-                    wall_layer_xi: float = WALL_LAYER_XI) -> VortexDomain:
-    """Choose the point-vortex domain for a resolved trap (``gpe.field.traps.TrapConfig``).
-
-    Units: lengths in xi.
-    """
-    from thermo.domains import Box, Disk
-
-    shape = trap.shape
-    if shape == "disk":
-        r_eff = trap.radius - wall_layer_xi
-        if r_eff <= 4 * core_radius_xi:
-            raise VorthermError(f"thermometry: the disk radius {trap.radius:.3g} xi is too small "
-                                "for a vortex gas (need several healing lengths)")
-        return VortexDomain(Disk(), r_eff, (0.0, 0.0), core_radius_xi / r_eff)
-    if shape == "box":
-        lx = trap.length_x - 2 * wall_layer_xi
-        ly = trap.length_y - 2 * wall_layer_xi
-        if min(lx, ly) <= 4 * core_radius_xi:
-            raise VorthermError("thermometry: the box is too small for a vortex gas")
-        return VortexDomain(Box(aspect=lx / ly), ly, (0.0, 0.0), core_radius_xi / ly)
-    if shape == "harmonic":
-        # Thomas-Fermi radius at mu = 1: V(R) = 1 -> R = sqrt(2)/omega (geometric mean).
-        omega = math.sqrt(trap.omega_x * trap.omega_y)
-        r_tf = math.sqrt(2.0) / omega
-        return VortexDomain(Disk(), r_tf, (0.0, 0.0), core_radius_xi / r_tf,
-                            approximate=("harmonic trap: the uniform-disk point-vortex model of "
-                                         "radius R_TF is only an approximation"))
-    raise VorthermError(f"thermometry: trap shape {shape!r} has no point-vortex domain; accepted "
-                        "shapes: disk, box (harmonic as a flagged approximation)")
-
-
-@dataclass(frozen=True)
-class GasConfiguration:
-    """One frame's vortices on the domain, with what had to be left out."""
-
-    positions: np.ndarray
-    signs: np.ndarray
-    left_out_wall: int
-    left_out_pairs: int
-
-    @property
-    def n_plus(self) -> int:
-        return int(np.count_nonzero(self.signs > 0))
-
-    @property
-    def n_minus(self) -> int:
-        return int(np.count_nonzero(self.signs < 0))
-
-
-def gas_configuration(x, y, sign, vd: VortexDomain) -> GasConfiguration:
-    """Map detected vortices (xi) onto the point-vortex domain, leaving out what cannot fit.
-
-    Vortices closer than one core radius to the wall are left out (they sit in the depleted
-    layer); then, greedily by distance, any two vortices closer than two core radii are left out
-    together (for opposite signs this is a pair about to annihilate; like-sign overlaps do not
-    occur in a resolved field, but are handled the same way).
-    """
-    pos = vd.to_domain(x, y)
-    signs = np.asarray(sign, dtype=np.int64)
-    a = vd.core_radius
-    inside = vd.domain.contains(pos, margin=a * 1.0001) if len(pos) else np.zeros(0, bool)
-    n_wall = int(np.count_nonzero(~inside))
-    pos, signs = pos[inside], signs[inside]
-    n_pairs = 0
-    if len(pos) > 1:
-        d = np.hypot(pos[:, None, 0] - pos[None, :, 0], pos[:, None, 1] - pos[None, :, 1])
-        np.fill_diagonal(d, np.inf)
-        keep = np.ones(len(pos), dtype=bool)
-        for flat in np.argsort(d, axis=None):
-            i, j = divmod(int(flat), len(pos))
-            if d[i, j] >= 2 * a * 1.0001:
-                break
-            if keep[i] and keep[j]:
-                keep[i] = keep[j] = False
-                n_pairs += 1
-        pos, signs = pos[keep], signs[keep]
-    return GasConfiguration(pos, signs, n_wall, n_pairs)
+from gpe.run.gas import domain_for_trap, gas_configuration
+from gpe.run.reading import protocol_of, select_frames
+from gpe.run.runfile import RunFile
+from thermo.classify import structure_observables
+from thermo.data.measured import read_measured
+from thermo.dos.build import DosSettings
+from thermo.estimate import estimate_ensemble, estimate_single
 
 
 # ------------------------------------------------------------------------------------------
 # thermometry of configurations: one record per frame or shot, and one for an ensemble
 # ------------------------------------------------------------------------------------------
+#: Core radius of a measured table without one, in units of the domain size (disk radius).
+DEFAULT_TABLE_CORE = 0.02
 #: Effort of the density-of-states build (Monte Carlo sweeps per replica, bootstrap replicates).
 EFFORT = {"quick": (800, 12), "standard": (4000, 40), "thorough": (16000, 60)}
 
 
 def dos_settings(effort: str):
     """``thermo.dos.model.DosSettings`` for an effort name: quick, standard or thorough."""
-    from thermo.dos.build import DosSettings
-
     if effort not in EFFORT:
         raise VorthermError(f"effort {effort!r}; accepted: {', '.join(EFFORT)}")
     sweeps, boot = EFFORT[effort]
@@ -186,9 +64,6 @@ def configuration_records(configs, domain, core_radius: float, *, effort: str = 
     ``configs`` is a sequence of (positions, signs) in domain units. Fewer than two vortices
     give a record whose ``verdict`` says why beta is undefined (never a silent number).
     """
-    from thermo.classify import structure_observables
-    from thermo.estimate import estimate_single
-
     settings = dos_settings(effort)
     records = []
     for pos, signs in configs:
@@ -212,8 +87,6 @@ def ensemble_record(configs, domain, core_radius: float, *, effort: str = "quick
     Configurations with fewer than two vortices carry no temperature information and are left
     out (their number is reported as ``left_out_small``).
     """
-    from thermo.estimate import estimate_ensemble
-
     usable = [(p, s) for p, s in configs if len(s) >= 2]
     if not usable:
         return {"beta": math.nan, "beta_ci68": [math.nan, math.nan],
@@ -262,86 +135,160 @@ def onset_verdict(times: np.ndarray, records: list[dict], time_unit: str) -> str
 
 
 # ------------------------------------------------------------------------------------------
-# reports
+# a run's frames
 # ------------------------------------------------------------------------------------------
-CSV_COLUMNS = ("n_plus", "n_minus", "energy_per_vortex", "beta", "beta_ci68_lo", "beta_ci68_hi",
-               "beta_ci95_lo", "beta_ci95_hi", "temperature_sign", "prob_negative",
-               "dipole_moment", "c1", "dipole_fraction", "cluster_fraction", "free_fraction",
-               "left_out_wall", "left_out_pairs", "range_limited", "verdict")
-CSV_UNITS = {"energy_per_vortex": "E0", "beta": "1/E0", "beta_ci68_lo": "1/E0",
-             "beta_ci68_hi": "1/E0", "beta_ci95_lo": "1/E0", "beta_ci95_hi": "1/E0",
-             "dipole_moment": "domain size"}
+def run_configurations(run_path, frames=None):
+    """Vortex configurations of a run on its point-vortex domain, one per frame.
+
+    ``frames`` as for :func:`select_frames` (default: all, in order). Returns (vortex_domain,
+    times, configurations, left_out, protocol) where configurations are (positions, signs)
+    pairs in domain units and left_out counts (wall, pairs) per frame.
+    """
+    with RunFile.open(run_path, "r") as run:
+        protocol = protocol_of(run)
+        times = np.asarray(run.frame_times())
+        table = run.read_vortices()
+    vd = domain_for_trap(protocol.trap)
+    configs, left_out, sel_times = [], [], []
+    for f in select_frames(run_path, frames, len(times)):
+        rows = table[table["frame"] == f]
+        gas = gas_configuration(rows["x"], rows["y"], rows["sign"], vd)
+        configs.append((gas.positions, gas.signs))
+        left_out.append((gas.left_out_wall, gas.left_out_pairs))
+        sel_times.append(times[f])
+    return vd, np.asarray(sel_times), configs, left_out, protocol
 
 
-def _flat(rec: dict) -> dict:
-    out = dict(rec)
-    out["beta_ci68_lo"], out["beta_ci68_hi"] = rec["beta_ci68"]
-    out["beta_ci95_lo"], out["beta_ci95_hi"] = rec["beta_ci95"]
-    return out
+def ensemble_frames(times: np.ndarray, *, at_time: float | None = None,
+                    window: tuple[float, float] | None = None, default: str = "last_third",
+                    source: str = "run") -> list[int]:
+    """The frames that form a run's ensemble.
+
+    Parameters
+    ----------
+    times : output times of the run (hbar/mu).
+    at_time : the one frame nearest to this time (hbar/mu).
+    window : every frame with ``t0 <= t <= t1`` (hbar/mu).
+    default : what neither means: ``"last_third"`` (the last third of the frames, where a
+        stirred gas has settled, if ever) or ``"last"`` (the final frame).
+
+    Consecutive frames of one run are correlated; an interval over several of them is
+    optimistic (say so when quoting it).
+    """
+    times = np.asarray(times, dtype=float)
+    if len(times) == 0:
+        raise VorthermError(f"{source}: the run file holds no frames")
+    if window is not None:
+        frames = [i for i, t in enumerate(times) if window[0] - 1e-9 <= t <= window[1] + 1e-9]
+        if not frames:
+            raise VorthermError(f"{source}: no frame in the window {window[0]:.4g}..{window[1]:.4g} "
+                                f"hbar/mu (frames span {times[0]:.4g}..{times[-1]:.4g})")
+        return frames
+    if at_time is not None:
+        return [int(np.argmin(np.abs(times - at_time)))]
+    if default == "last":
+        return [len(times) - 1]
+    if default == "last_third":
+        last = max(1, len(times) // 3)
+        return list(range(len(times) - last, len(times)))
+    raise VorthermError(f"ensemble default {default!r}; accepted: 'last_third', 'last'")
 
 
-def write_records_csv(path, records: list[dict], time_key: str, time_unit: str = "") -> Path:
-    """Write per-frame (or per-shot) records as CSV, units in the header names."""
-    import csv
-
-    path = Path(path)
-    first = [time_key] + (["frame"] if time_key == "t" else [])
-    header = [f"{c} [{CSV_UNITS[c]}]" if c in CSV_UNITS else c for c in first + list(CSV_COLUMNS)]
-    with path.open("w", newline="") as fh:
-        writer = csv.writer(fh)
-        writer.writerow(header)
-        for rec in records:
-            flat = _flat(rec)
-            writer.writerow([flat.get(c, "") if not isinstance(flat.get(c), float)
-                             else f"{flat[c]:.6g}" for c in first + list(CSV_COLUMNS)])
-    return path
+def _ensemble_of(configs, left_out, vd, frames, *, effort, cache_dir) -> dict:
+    rec = ensemble_record(configs, vd.domain, vd.core_radius, effort=effort, cache_dir=cache_dir)
+    rec.update({
+        "n_plus": float(np.mean([np.sum(s > 0) for _, s in configs])),
+        "n_minus": float(np.mean([np.sum(s < 0) for _, s in configs])),
+        "frames": len(frames),
+        "left_out_wall": int(sum(w for w, _ in left_out)),
+        "left_out_pairs": int(sum(p for _, p in left_out)),
+        "approximation": vd.approximate,
+    })
+    for key in ("dipole_fraction", "cluster_fraction", "free_fraction", "energy_per_vortex"):
+        rec.setdefault(key, math.nan)
+    return rec
 
 
-def json_report(result: dict) -> dict:
-    """The JSON document of ``vortherm temperature --json``: frames or shots, and ensemble."""
-    key = "frames" if result["kind"] == "run" else "shots"
-    out = {key: result["records"], "ensemble": result["ensemble"],
-           "verdict": result["onset"], "beta_unit": "1/E0, E0 = rho kappa^2/(4 pi)",
-           "source": result["source"], "domain": result["domain"]}
-    if result.get("time_unit"):
-        out["time_unit"] = result["time_unit"]
-    if result.get("approximation"):
-        out["approximation"] = result["approximation"]
-    if result.get("problems"):
-        out["problems"] = result["problems"]
-    return out
+def temperature_of_run(run_path, *, frames=None, at_time: float | None = None,
+                       window: tuple[float, float] | None = None, ensemble_default: str = "last_third",
+                       per_frame: bool = True, effort: str = "quick", cache_dir=None) -> dict:
+    """Thermometry of a run file: beta of every chosen frame and of the run's ensemble.
+
+    Parameters
+    ----------
+    frames : frames that get a per-frame estimate (None, a slice or a list; default all).
+    at_time, window, ensemble_default : which frames form the ensemble
+        (:func:`ensemble_frames`; times in hbar/mu).
+    per_frame : False skips the per-frame estimates (sweeps need only the ensemble).
+    effort : density-of-states effort (quick, standard, thorough).
+
+    Returns
+    -------
+    dict with ``records`` (one per frame, times in the protocol's display unit), ``ensemble``
+    (with its ``window`` in that unit), ``onset`` (plain-language verdict), ``time_unit``,
+    ``approximation`` and ``domain``: the input of gpe/run/report.py.
+    """
+    with RunFile.open(run_path, "r") as run:
+        protocol = protocol_of(run)
+        times = np.asarray(run.frame_times())
+        table = run.read_vortices()
+    vd = domain_for_trap(protocol.trap)
+    unit = protocol.time_unit
+    chosen = select_frames(run_path, frames, len(times)) if per_frame else []
+    ens_frames = ensemble_frames(times, at_time=at_time, window=window, default=ensemble_default,
+                                 source=str(run_path))
+    gas = {}
+    for f in sorted(set(chosen) | set(ens_frames)):
+        rows = table[table["frame"] == f]
+        gas[f] = gas_configuration(rows["x"], rows["y"], rows["sign"], vd)
+    records = configuration_records([(gas[f].positions, gas[f].signs) for f in chosen],
+                                    vd.domain, vd.core_radius, effort=effort, cache_dir=cache_dir)
+    t_user = protocol.display_time(times)
+    for rec, f in zip(records, chosen):
+        rec.update({"frame": f, "t": float(t_user[f]), "left_out_wall": gas[f].left_out_wall,
+                    "left_out_pairs": gas[f].left_out_pairs})
+    ensemble = _ensemble_of([(gas[f].positions, gas[f].signs) for f in ens_frames],
+                            [(gas[f].left_out_wall, gas[f].left_out_pairs) for f in ens_frames],
+                            vd, ens_frames, effort=effort, cache_dir=cache_dir)
+    ensemble["window"] = [float(t_user[ens_frames[0]]), float(t_user[ens_frames[-1]])]
+    onset = onset_verdict(t_user[chosen], records, unit) if per_frame else ensemble["verdict"]
+    return {"kind": "run", "source": str(run_path), "time_key": "t", "time_unit": unit,
+            "records": records, "ensemble": ensemble, "onset": onset,
+            "approximation": vd.approximate, "domain": vd.domain.kind}
 
 
-def _fmt(v: float, width: int = 8) -> str:
-    return f"{v:{width}.3g}" if isinstance(v, (int, float)) and math.isfinite(v) else " " * (width - 3) + "  -"
+def temperature_of_table(path, *, shape: str | None = None, radius_um: float | None = None,
+                         width_um: float | None = None, height_um: float | None = None,
+                         core_um: float | None = None, pixel_um: float | None = None,
+                         center_px=None, strict: bool = False, effort: str = "quick",
+                         cache_dir=None) -> dict:
+    """Thermometry of a measured vortex table: beta of every shot and of the ensemble of shots.
+
+    Geometry options override the TOML beside the table (thermo/data/geometry.py); the core
+    radius defaults to 2% of the domain size. Returns the same kind of dict as
+    :func:`temperature_of_run`, keyed by shot.
+    """
+    table = read_measured(path, shape=shape, radius_um=radius_um, width_um=width_um,
+                          height_um=height_um, core_um=core_um, pixel_um=pixel_um,
+                          center_px=center_px, strict=strict)
+    core = table.core_radius if table.core_radius is not None else DEFAULT_TABLE_CORE
+    configs = table.configurations
+    records = configuration_records(configs, table.domain, core, effort=effort, cache_dir=cache_dir)
+    for rec, shot in zip(records, table.shot_ids):
+        rec["shot"] = shot
+    ensemble = ensemble_record(configs, table.domain, core, effort=effort, cache_dir=cache_dir)
+    return {"kind": "measured", "source": str(path), "time_key": "shot", "time_unit": "",
+            "records": records, "ensemble": ensemble, "onset": ensemble["verdict"],
+            "approximation": "", "domain": table.domain.kind,
+            "problems": [str(p) for p in table.problems]}
 
 
-def text_report(result: dict) -> str:
-    """A table a person reads in a terminal, then the ensemble estimate and the verdict."""
-    tk = result["time_key"]
-    unit = f" [{result['time_unit']}]" if result.get("time_unit") else ""
-    head = (f"{tk + unit:>12} {'N+':>4} {'N-':>4} {'E/N':>8} {'beta~':>8} {'95% interval':>19} "
-            f"{'beta~N':>8} {'D':>6} {'C1':>6} {'dip':>5} {'clu':>5} {'free':>5}")
-    lines = [head, "-" * len(head)]
-    for r in result["records"]:
-        n = r["n_plus"] + r["n_minus"]
-        lo, hi = r["beta_ci95"]
-        tval = r.get(tk, "")
-        tstr = f"{tval:12.4g}" if isinstance(tval, float) else f"{str(tval):>12}"
-        lines.append(
-            f"{tstr} {r['n_plus']:4d} {r['n_minus']:4d} {_fmt(r['energy_per_vortex'])} "
-            f"{_fmt(r['beta'])} [{_fmt(lo)} ,{_fmt(hi)}] {_fmt(r['beta'] * n)} "
-            f"{_fmt(r['dipole_moment'], 6)} {_fmt(r['c1'], 6)} {_fmt(r['dipole_fraction'], 5)} "
-            f"{_fmt(r['cluster_fraction'], 5)} {_fmt(r['free_fraction'], 5)}")
-    ens = result["ensemble"]
-    lines.append("")
-    where = (f" (frames in {ens['window'][0]:.4g}..{ens['window'][1]:.4g}{unit})"
-             if "window" in ens else "")
-    lines.append(f"ensemble{where}: {ens['verdict']}")
-    if result.get("approximation"):
-        lines.append(f"note: {result['approximation']}")
-    if result.get("problems"):
-        lines.append(f"note: {len(result['problems'])} table rows were left out (listed above)")
-    lines.append("")
-    lines.append("verdict: " + result["onset"])
-    return "\n".join(lines)
+def analyse(run_path, *, time: float | None = None, window=None, effort: str = "quick",
+            cache_dir=None) -> dict:
+    """The ensemble record of a run at one time (nearest frame) or over a window (sweeps).
+
+    Times in hbar/mu; neither given means the final frame. The same policy as
+    :func:`temperature_of_run`, without the per-frame estimates.
+    """
+    return temperature_of_run(run_path, at_time=time, window=window, ensemble_default="last",
+                              per_frame=False, effort=effort, cache_dir=cache_dir)["ensemble"]

@@ -29,8 +29,7 @@ from gpe.field.beams import (Beam, BeamSet, CirclePath, LinePath, PolylinePath, 
 from gpe.errors import ProtocolError, VorthermError
 from gpe.field.grid import Grid
 from gpe.field.traps import TrapConfig, build_trap, load_mask
-# the schema machinery lives in gpe.setup.schema; its public tables stay importable from here
-from gpe.setup.schema import (SCHEMA, SELECTED, SI_OUT, SIM_OUT, SUFFIXES, Spec, _apply_overrides,
+from gpe.setup.schema import (_apply_overrides,
                                  _Context, _describe, _describe_value, _Section)
 from gpe.setup.units import (BOHR_RADIUS_M, HealingUnits, get_species, quasi2d_coupling, tf_mu_flat,
                        tf_mu_harmonic, tf_number_flat, tf_number_harmonic)
@@ -123,6 +122,15 @@ class Protocol:
     ground_state: GroundStateConfig
     evolution: EvolutionConfig
     beams: tuple[Beam, ...]
+
+    @property
+    def time_unit(self) -> str:
+        """The unit in which this protocol's times are shown: "ms" (SI files) or "hbar/mu"."""
+        return "ms" if self.unit_system == "SI" else "hbar/mu"
+
+    def display_time(self, t):
+        """Simulation time (hbar/mu) -> the protocol's display unit (:attr:`time_unit`)."""
+        return self.units.time_to_ms(t) if self.unit_system == "SI" else t
 
     def build_beams(self) -> BeamSet:
         """The protocol's beams as a :class:`~gpe.field.traps.BeamSet` (may be empty)."""

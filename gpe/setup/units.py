@@ -258,6 +258,14 @@ class HealingUnits:
         """Time in hbar/mu -> s."""
         return tau * self.time_s
 
+    def time_to_ms(self, tau):
+        """Time in hbar/mu -> ms (scalars or arrays): the one conversion every report uses."""
+        return tau * (self.time_s * 1e3)
+
+    def ms_to_time(self, ms):
+        """Time in ms -> hbar/mu (scalars or arrays)."""
+        return ms / (self.time_s * 1e3)
+
     def energy_to_sim(self, joules: float) -> float:
         """Energy in J -> mu."""
         return joules / self.energy_J

@@ -63,22 +63,24 @@ class PointTask:
 def run_point(task: PointTask) -> dict:
     """The default point function: simulate (or resume) the run, then analyse it.
 
-    A complete run file (verified by ``gpe.run.simulate.is_complete``) is analysed without
+    A complete run file (verified by ``gpe.run.reading.is_complete``) is analysed without
     simulating again; an incomplete one is resumed from its checkpoint.
     """
     from gpe.setup.protocol import load_protocol
 
     protocol = load_protocol(task.base, task.overrides)  # an invalid point fails here, cheaply
     from gpe.run import simulate as pipeline
+    from gpe.run import reading
+    from gpe.run import thermometry
 
     run_path = Path(task.run_path)
-    if not pipeline.is_complete(run_path):
+    if not reading.is_complete(run_path):
         pipeline.simulate(protocol, run_path, resume=run_path.exists(), threads=task.threads)
     scale = _time_to_simulation(protocol, task.measure.time_unit)
     m = task.measure
     at_time = None if m.at_time is None else m.at_time * scale
     window = None if m.window is None else (m.window[0] * scale, m.window[1] * scale)
-    return pipeline.analyse(run_path, time=at_time, window=window)
+    return thermometry.analyse(run_path, time=at_time, window=window)
 
 
 def _time_to_simulation(protocol: Any, time_unit: str) -> float:
@@ -235,7 +237,7 @@ def _prepare(sweep: Sweep, out_dir: Path) -> list[Point]:
 
 
 def _default_is_complete(path: Path) -> bool:
-    from gpe.run.simulate import is_complete
+    from gpe.run.reading import is_complete
 
     return is_complete(path)
 
@@ -255,7 +257,7 @@ def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
     scheduler : address of a dask scheduler, used when ``executor`` is None.
     point_fn : top-level (picklable) function ``PointTask -> mapping`` with the measured
         quantities; :func:`run_point` runs the full pipeline.
-    is_complete : verifies a finished run file; default ``gpe.run.simulate.is_complete``.
+    is_complete : verifies a finished run file; default ``gpe.run.reading.is_complete``.
     progress : called with a :class:`Progress` after each point and about once a second.
 
     Returns

@@ -22,7 +22,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any, Mapping
 
 if TYPE_CHECKING:
-    from gpe.sweep.execute import Axis, Point, Sweep
+    from gpe.sweep.file import Axis, Point, Sweep
 
 # NumPy, SciPy and h5py are imported inside functions, as in gpe.sweep.execute: a spawned worker imports
 # this module (through gpe.sweep.execute) before its thread-count variables are set. gpe.sweep.execute imports
@@ -78,7 +78,7 @@ def _summarise(sweep: Sweep, out_dir: Path, points: list[Point], records: Mappin
     import numpy as np
     from scipy import stats
 
-    from gpe.sweep.execute import QUANTITIES
+    from gpe.sweep.file import QUANTITIES
 
     qs = sweep.measure.quantities
     units = {"point_id": "", "grid_id": "", "seed": "", "status": "", "error": "",
@@ -201,7 +201,7 @@ def read_summary(out_dir: str | os.PathLike) -> SweepResult:
     """Reopen the tables a finished (or interrupted) sweep wrote into ``out_dir``."""
     import h5py
 
-    from gpe.sweep.execute import Axis, SweepError
+    from gpe.sweep.file import Axis, SweepError
 
     out_dir = Path(out_dir)
     path = out_dir / "summary.h5"

@@ -14,8 +14,8 @@ beta is not a per-shot quantity: each side gets one ensemble estimate from
 :mod:`thermo.estimate`; its difference, interval and p-value come from the two stated
 standard errors (normal approximation), and the KS column is empty for it.
 
-The figure (:func:`gpe.figures.thermometry.plot_comparison`, also reachable here) imports matplotlib
-lazily with the Agg backend.
+The figure of a comparison is drawn on the field side (``gpe.figures.thermometry``): numerics
+here never import a figure module.
 """
 
 from __future__ import annotations
@@ -30,13 +30,10 @@ from typing import Any, Sequence
 import numpy as np
 from scipy import stats
 
-try:  # thermo/errors.py belongs to another owner; fall back until it exists
-    from thermo.errors import ThermoError as _Base
-except ImportError:  # pragma: no cover
-    _Base = Exception
+from thermo.errors import ThermoError
 
 
-class CompareError(_Base, ValueError):
+class CompareError(ThermoError, ValueError):
     """The two ensembles cannot be compared as given."""
 
 
@@ -426,12 +423,3 @@ def pooled_pair_correlation(configurations: Sequence[Configuration], domain: Any
             den[ok] += w
     with np.errstate(invalid="ignore", divide="ignore"):
         return r, np.where(den_l > 0, num_l / den_l, np.nan), np.where(den_o > 0, num_o / den_o, np.nan)
-
-
-def __getattr__(name: str):
-    """``plot_comparison`` lives in gpe.figures.thermometry (figures sit at the edge); forwarded here."""
-    if name == "plot_comparison":
-        from gpe.figures.thermometry import plot_comparison
-
-        return plot_comparison
-    raise AttributeError(f"module 'thermo.data.compare' has no attribute {name!r}")

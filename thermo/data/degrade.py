@@ -35,13 +35,10 @@ from typing import Any, Sequence
 
 import numpy as np
 
-try:  # thermo/errors.py belongs to another owner; fall back until it exists
-    from thermo.errors import ThermoError as _Base
-except ImportError:  # pragma: no cover
-    _Base = Exception
+from thermo.errors import ThermoError
 
 
-class DegradeError(_Base, ValueError):
+class DegradeError(ThermoError, ValueError):
     """Invalid imaging model or configuration for :func:`degrade`."""
 
 

@@ -21,10 +21,6 @@ from thermo.errors import SamplerError
 #: recorded samples per replica when DosSettings.thin is None (thinning chosen to match);
 #: MBAR, its bootstrap and the tables work on energy bins, so their cost hardly grows with it
 _SAMPLES_PER_REPLICA = 32000
-#: number of tempering runs started by :func:`build` (and so by
-#: :func:`thermo.dos.cache.load_or_build`) in this process; a cache hit leaves it unchanged,
-#: so tests use it to prove that nothing was resampled
-BUILD_COUNT = 0
 
 
 @dataclass(frozen=True)
@@ -65,7 +61,6 @@ def build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
 
     Units: core radius in the domain's length unit; betas in 1/E0.
     """
-    global BUILD_COUNT
     from thermo import sampler  # imported here: the sampler is only needed to build
 
     rng = np.random.default_rng() if rng is None else rng
@@ -89,7 +84,6 @@ def build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
     # evaluated (the same stride as from_tempering's), so many energies cost little memory
     s_rec = int(settings.n_sweeps) // int(kw["thin"])
     stride = max(1, s_rec // _OBSERVED_PER_REPLICA)
-    BUILD_COUNT += 1
     result = sampler.run_tempering(domain, n_plus, n_minus, betas, settings.n_sweeps,
                                    core_radius, rng, position_stride=stride, **kw)
     observables = None

@@ -469,24 +469,3 @@ class DensityOfStates:
 
 #: samples per replica on which the structure observables are evaluated (strided subset)
 _OBSERVED_PER_REPLICA = 1000
-
-
-# The on-disk cache moved to thermo.dos.cache, which imports this module; the old names are
-# forwarded on first use (PEP 562) so that ``from thermo.dos.model import load_or_build`` keeps
-# working without an import cycle.
-_MOVED_TO_CACHE = ("FORMAT_VERSION", "default_cache_dir", "cache_key", "cache_path", "save",
-                   "load", "load_or_build")
-# Likewise the build (thermo.dos.build imports DensityOfStates from here).
-_MOVED_TO_BUILD = ("DosSettings", "build", "BUILD_COUNT")
-
-
-def __getattr__(name: str) -> object:
-    if name in _MOVED_TO_CACHE:
-        from thermo.dos import cache as dos_cache
-
-        return getattr(dos_cache, name)
-    if name in _MOVED_TO_BUILD:
-        from thermo.dos import build as dos_build
-
-        return getattr(dos_build, name)
-    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

@@ -1,0 +1,90 @@
+"""Reading a run file back: its stored protocol, whether it is complete, a summary, frame choice.
+
+Every reader goes through here, so that what a run file means is decided in one place.
+
+Units: simulation units (xi, hbar/mu, mu); SI only in the summary text.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from pathlib import Path
+
+import numpy as np
+
+from gpe.errors import RunFileError, VorthermError
+from gpe.run.runfile import RunFile
+from gpe.setup.protocol import ProtocolWarning, parse_protocol
+
+
+# ------------------------------------------------------------------------------------------
+# reading a run back: stored protocol, completeness, summary, frames
+# ------------------------------------------------------------------------------------------
+def protocol_of(run) -> object:
+    """Rebuild the :class:`~gpe.setup.protocol.Protocol` stored verbatim in an open run file."""
+    with warnings.catch_warnings():  # its warnings were shown when the run was started
+        warnings.simplefilter("ignore", ProtocolWarning)
+        return parse_protocol(run.protocol_text(), source=run.protocol_source(),
+                              overrides=run.protocol_overrides(),
+                              base_dir=Path(run.protocol_source()).parent)
+
+
+def is_complete(run_path) -> bool:
+    """True when ``run_path`` is a readable run file whose run reached its final time."""
+    path = Path(run_path)
+    if not path.exists():
+        return False
+    try:
+        with RunFile.open(path, "r") as run:
+            return bool(run.is_complete())
+    except (RunFileError, OSError):
+        return False
+
+
+def summary_text(run_path) -> str:
+    """Closing summary of a run: atoms, mu, healing length, sound speed, final vortex count."""
+    with RunFile.open(run_path, "r") as run:
+        protocol = protocol_of(run)
+        times = run.frame_times()
+        table = run.read_vortices()
+        obs = run.read_observables()
+    u = protocol.units
+    last = table[table["frame"] == len(times) - 1] if len(times) else table[:0]
+    n_plus = int(np.count_nonzero(last["sign"] > 0))
+    n_minus = int(np.count_nonzero(last["sign"] < 0))
+    mu_solved = float(obs["mu"][0]) if "mu" in obs and len(obs["mu"]) else math.nan
+    lines = [
+        f"run file: {run_path}",
+        f"  atoms N = {protocol.atoms.number:.4g}; species {protocol.atoms.species}",
+        f"  chemical potential mu = {u.energy_J / 1.380649e-23 * 1e9:.4g} nK "
+        f"(= 1 mu; solved ground state {mu_solved:.5g} mu)",
+        f"  healing length xi = {u.length_m * 1e6:.4g} um (= 1 xi); time unit hbar/mu = "
+        f"{u.time_s * 1e3:.4g} ms",
+        f"  sound speed c = {u.speed_m_s * 1e3:.4g} mm/s (= 1 c)",
+        f"  simulated {times[-1] * u.time_s * 1e3 if len(times) else 0:.4g} ms = "
+        f"{times[-1] if len(times) else 0:.4g} hbar/mu in {len(times)} frames",
+        f"  vortices at the end: N+ = {n_plus}, N- = {n_minus}",
+    ]
+    return "\n".join(lines)
+
+
+def select_frames(run_path, frames, n_frames: int, default: str = "all") -> list[int]:
+    """Frame indices chosen by ``frames`` (None, a slice or a list; negative count from the end).
+
+    ``default`` says what None means: "all" frames or the "last" one. Raises a clear error for
+    an empty run file or an index out of range.
+    """
+    if n_frames == 0:
+        raise RunFileError(f"{run_path}: the run file holds no snapshots (no frames to use)")
+    if frames is None:
+        chosen = list(range(n_frames)) if default == "all" else [n_frames - 1]
+    elif isinstance(frames, slice):
+        chosen = list(range(n_frames))[frames]
+    else:
+        chosen = list(frames)
+    for f in chosen:
+        if not -n_frames <= f < n_frames:
+            raise VorthermError(f"{run_path}: frame {f} out of range; the run has frames "
+                                f"0..{n_frames - 1} (negative numbers count from the end)")
+    return sorted({f % n_frames for f in chosen})

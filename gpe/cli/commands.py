@@ -103,8 +103,9 @@ def _register_sweep(sub) -> None:
 
 def _cmd_sweep(args) -> int:
     from gpe.sweep import execute as sw
+    from gpe.sweep.file import load_sweep
 
-    spec = sw.load_sweep(args.sweep)
+    spec = load_sweep(args.sweep)
     out_dir = args.output or sw.default_out_dir(args.sweep)
     bar = {}
 

@@ -43,6 +43,12 @@ SUFFIXES = {
 }
 SI_OUT = {"length": "um", "time": "ms", "energy": "nK", "speed": "um_per_ms", "rate": "hz"}
 SIM_OUT = {"length": "xi", "time": "tau", "energy": "mu", "speed": "c", "rate": "rad_per_tau"}
+#: How each unit suffix is written in table headers and on axes.
+SUFFIX_LABELS = {"um": "um", "xi": "xi", "ms": "ms", "tau": "hbar/mu", "mu": "mu", "nK": "nK",
+                 "um_per_ms": "um/ms", "c": "c", "hz": "Hz", "rad_per_ms": "rad/ms",
+                 "rad_per_tau": "rad/(hbar/mu)", "deg": "deg", "rad": "rad", "a0": "a0", "nm": "nm"}
+#: Units of the keys whose unit is fixed by their name, not by a suffix.
+FIXED_UNITS = {("evolution", "checkpoint_every_s"): "s"}
 
 
 @dataclass(frozen=True)
@@ -289,6 +295,28 @@ class _Section:
     def fail(self, base_or_key: str, problem: str, accepted: str) -> None:
         key = self.key(base_or_key) if base_or_key in self.specs else base_or_key
         self.ctx.fail(self.where, key, problem, accepted)
+
+def unit_of_key(key: str) -> str:
+    """The unit a protocol key is written in, from the schema: ``beams.0.path.speed_um_per_ms``
+    -> ``"um/ms"``, ``evolution.duration_tau`` -> ``"hbar/mu"``, ``evolution.damping`` -> ``""``.
+
+    Unknown keys give ``""`` (the protocol itself reports them when it is read).
+    """
+    parts = key.split(".")
+    section = ".".join(p for p in parts[:-1] if not p.isdigit())
+    name = parts[-1]
+    specs = SCHEMA.get(section, {})
+    if (section, name) in FIXED_UNITS:
+        return FIXED_UNITS[(section, name)]
+    for base in sorted(specs, key=len, reverse=True):   # longest first: size_x before size
+        spec = specs[base]
+        if spec.dim is None or not name.startswith(base + "_"):
+            continue
+        suffix = name[len(base) + 1:]
+        if any(suffix in names for names in SUFFIXES[spec.dim].values()):
+            return SUFFIX_LABELS[suffix]
+    return ""
+
 
 def _describe_value(name: str, value: Any, dim: str, u: HealingUnits) -> dict:
     si = {"length": u.length_m * 1e6, "time": u.time_s * 1e3, "energy": u.temperature_K * 1e9,

@@ -24,13 +24,8 @@ from pathlib import Path
 from typing import Any, Callable, Mapping
 
 from gpe.errors import VorthermError
-# The sweep file and the summary tables live in gpe.sweep.file and gpe.sweep.table; their public
-# names are re-exported here so that ``from gpe.sweep.execute import load_sweep, read_summary`` (and the
-# others) keeps working.
-from gpe.sweep.file import (QUANTITIES, SEED_KEY, SUFFIX_UNITS, Axis, Measure,  # noqa: F401
-                            Point, Sweep, SweepError, format_value, load_sweep, parse_sweep)
-from gpe.sweep.table import (SUMMARY_FORMAT_VERSION, SweepResult, _read_json,  # noqa: F401
-                             _summarise, _write_json, column_header, read_summary, read_table)
+from gpe.sweep.file import Measure, Point, Sweep, SweepError
+from gpe.sweep.table import SUMMARY_FORMAT_VERSION, SweepResult, _read_json, _summarise, _write_json
 
 # NumPy, h5py and the pipeline are imported inside functions on purpose: a spawned worker imports
 # this module first, and the thread-count variables set by ``_init_worker`` only take effect if no

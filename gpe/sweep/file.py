@@ -4,8 +4,7 @@ A sweep file (TOML) names a base protocol, one or more axes (protocol keys in th
 units, written exactly as ``--set`` overrides), the noise seeds and what to measure at the end
 (``docs/sweep.md``). :func:`load_sweep` / :func:`parse_sweep` check every key and name the file,
 the table and what would be accepted; :meth:`Sweep.points` expands the grid into one
-:class:`Point` (overrides and seed) per run. Running the points is :mod:`gpe.sweep.execute`'s job, which
-re-exports these names.
+:class:`Point` (overrides and seed) per run. Running the points is :mod:`gpe.sweep.execute`'s job.
 
 Units: axis values in the protocol's units (the key's suffix says which); measurement times in the
 protocol's time unit unless the key says ``_ms`` or ``_tau`` (hbar/mu).
@@ -38,10 +37,6 @@ QUANTITIES: dict[str, tuple[str, str]] = {
     "free_fraction": ("1", "fraction of free vortices"),
     "energy_per_vortex": ("E0", "point-vortex energy per vortex"),
 }
-
-#: Unit implied by the suffix of a protocol key (DESIGN.md: explicit SI suffixes or multiples).
-SUFFIX_UNITS = {"_um": "um", "_ms": "ms", "_hz": "Hz", "_nK": "nK", "_mu": "mu", "_c": "c",
-                "_xi": "xi", "_s": "s", "_m": "m", "_deg": "deg", "_rad": "rad"}
 
 SEED_KEY = "evolution.seed"
 
@@ -205,7 +200,7 @@ def _parse_axis(src: str, i: int, table: Any) -> Axis:
         if scale == "log" and (start <= 0 or stop <= 0):
             raise SweepError(f"{where}.range: a log range needs start > 0 and stop > 0")
         values = tuple(_spaced(start, stop, num, scale))
-    unit = table.get("unit", _suffix_unit(key))
+    unit = table.get("unit", _key_unit(key))
     label = table.get("label", "")
     for name, v in (("unit", unit), ("label", label)):
         if not isinstance(v, str):
@@ -226,12 +221,13 @@ def _spaced(start: float, stop: float, num: int, scale: str) -> list[float]:
     return [float(f"{v:.12g}") for v in vals]
 
 
-def _suffix_unit(key: str) -> str:
-    last = key.rsplit(".", 1)[-1]
-    for suffix, unit in SUFFIX_UNITS.items():
-        if last.endswith(suffix):
-            return unit
-    return ""
+def _key_unit(key: str) -> str:
+    """The unit of a swept protocol key, from the protocol schema (its one unit-suffix table)."""
+    # imported here: the schema loads NumPy, and a spawned worker imports this module before
+    # its thread-count variables are set (see the note at the top)
+    from gpe.setup.schema import unit_of_key
+
+    return unit_of_key(key)
 
 
 def _parse_seeds(src: str, seeds: Any) -> tuple[int, ...]:

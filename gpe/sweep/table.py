@@ -4,7 +4,7 @@
 ``summary_runs.csv`` (one row per point and seed), ``summary_points.csv`` (one row per grid point,
 seeds aggregated), ``summary.h5`` (both tables with units and the sweep file) and ``state.json``;
 :func:`read_table` and :func:`read_summary` read them back. The formats are described in
-``docs/sweep.md``. The public names are re-exported by :mod:`gpe.sweep.execute`.
+``docs/sweep.md``.
 
 Units: every column carries its unit (``beta [1/E0]``; "" for labels and ids); beta in 1/E0 with
 E0 = rho kappa^2 / (4 pi); axis values in the protocol's units.
@@ -19,14 +19,12 @@ import os
 import time
 from dataclasses import asdict, dataclass
 from pathlib import Path
-from typing import TYPE_CHECKING, Any, Mapping
+from typing import Any, Mapping
 
-if TYPE_CHECKING:
-    from gpe.sweep.file import Axis, Point, Sweep
+from gpe.sweep.file import QUANTITIES, Axis, Point, Sweep, SweepError
 
 # NumPy, SciPy and h5py are imported inside functions, as in gpe.sweep.execute: a spawned worker imports
-# this module (through gpe.sweep.execute) before its thread-count variables are set. gpe.sweep.execute imports
-# this module, so the few names needed from it are imported where they are used.
+# this module (through gpe.sweep.execute) before its thread-count variables are set.
 
 SUMMARY_FORMAT_VERSION = 1
 
@@ -77,8 +75,6 @@ def _summarise(sweep: Sweep, out_dir: Path, points: list[Point], records: Mappin
                interrupted: bool) -> SweepResult:
     import numpy as np
     from scipy import stats
-
-    from gpe.sweep.file import QUANTITIES
 
     qs = sweep.measure.quantities
     units = {"point_id": "", "grid_id": "", "seed": "", "status": "", "error": "",
@@ -200,8 +196,6 @@ def read_table(path: str | os.PathLike) -> tuple[list[dict], dict[str, str]]:
 def read_summary(out_dir: str | os.PathLike) -> SweepResult:
     """Reopen the tables a finished (or interrupted) sweep wrote into ``out_dir``."""
     import h5py
-
-    from gpe.sweep.file import Axis, SweepError
 
     out_dir = Path(out_dir)
     path = out_dir / "summary.h5"

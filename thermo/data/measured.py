@@ -9,8 +9,7 @@ size and the pixel coordinates of the centre.
 The geometry (disk radius, or box width and height, and the vortex core radius) comes
 from keyword arguments or from a small TOML file beside the table (same stem,
 ``.toml``); keyword arguments override the file key by key. The geometry, the pixel
-calibration and that file are handled by :mod:`thermo.data.geometry`, whose public names
-are re-exported here.
+calibration and that file are handled by :mod:`thermo.data.geometry`.
 
 A row is unusable if a field is missing or not a finite number, the sign is not +-1,
 the position lies outside the domain, it repeats a position of its shot, or (when the
@@ -39,9 +38,7 @@ from typing import Any, Iterable, Sequence
 import numpy as np
 
 from thermo.errors import MeasuredTableError
-from thermo.data.geometry import (GEOMETRY_KEYS, Geometry, PixelCalibration,  # noqa: F401
-                             geometry_file_for, pixels_to_um, read_geometry_file,
-                             resolve_geometry, um_to_pixels)
+from thermo.data.geometry import (Geometry, PixelCalibration, pixels_to_um, resolve_geometry)
 
 
 class MeasuredTableWarning(UserWarning):

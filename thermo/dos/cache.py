@@ -7,7 +7,7 @@ bootstrap replicates and the tables of :mod:`thermo.dos.tables`) under
 ``$XDG_CACHE_HOME/vortherm/dos``, reuses a stored build made with at least the requested effort,
 and remembers loaded files in memory so repeated estimates in one process do not re-read them.
 Files are written atomically (temporary file, then rename), so concurrent processes never read
-half a file. The public names are re-exported by :mod:`thermo.dos.model`.
+half a file.
 
 Units: energies in E0 = rho kappa^2 / (4 pi); beta in 1/E0; core radius in the domain's length
 unit.

@@ -20,8 +20,8 @@ per-sample observable (the structure observables of thermo.classify), ln g(E) on
 the microcanonical beta(E) = dS/dE. Uncertainties are the spread over a block bootstrap
 (contiguous blocks of each temperature's series, so autocorrelation is respected).
 
-:func:`thermo.dos.build.build` runs the sampler and pools it (re-exported here); :mod:`thermo.dos.cache` keeps builds on disk
-(:func:`~thermo.dos.cache.load_or_build` and the other cache names are re-exported here).
+:func:`thermo.dos.build.build` runs the sampler and pools it; :mod:`thermo.dos.cache` keeps builds
+on disk (:func:`~thermo.dos.cache.load_or_build`).
 
 Units: energies in E0 = rho kappa^2 / (4 pi); beta in 1/E0 (beta~).
 """

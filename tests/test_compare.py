@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from thermo.data.compare import (
-    QUANTITIES, CompareError, compare_ensembles, shot_statistics, write_csv,
+    ROWS, CompareError, compare_ensembles, shot_statistics, write_csv,
     write_json,
 )
 from thermo.data.degrade import ImagingModel, degrade_many
@@ -49,7 +49,7 @@ def test_shot_order_and_vortex_order_do_not_matter(rng):
     permuted = [(p[o], s[o]) for p, s in shots for o in [rng.permutation(len(s))]]
     a = shot_statistics(shots, Disk())
     b = shot_statistics(permuted, Disk())
-    for k in QUANTITIES:
+    for k in ROWS:
         np.testing.assert_allclose(a[k], b[k], rtol=1e-12, atol=1e-12)
 
 

@@ -12,7 +12,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from gpe.sweep.file import QUANTITIES, SweepError, load_sweep, parse_sweep
+from gpe.sweep.file import MEASURABLE, SweepError, load_sweep, parse_sweep
 from sweep_stand_in import write_sweep_file
 
 DEMO = Path(__file__).resolve().parents[1] / "runs" / "demo.toml"
@@ -74,7 +74,7 @@ def test_missing_base_protocol_is_reported(tmp_path):
 
 
 def test_quantity_table_is_complete():
-    assert set(QUANTITIES) == {"beta", "n_plus", "n_minus", "dipole_fraction",
+    assert set(MEASURABLE) == {"beta", "n_plus", "n_minus", "dipole_fraction",
                                "cluster_fraction", "free_fraction", "energy_per_vortex"}
 
 
@@ -101,3 +101,34 @@ def test_format_value_is_read_back_by_toml(value):
 
     back = tomllib.loads(f"v = {format_value(value)}")["v"]
     assert back == value and type(back) is type(value)
+
+
+def test_axis_unit_for_every_suffix_in_the_protocol_schema(tmp_path):
+    """Every dimensioned key of the schema, in every suffix it accepts, gets the unit its suffix
+    names as the sweep axis unit (the schema's own table; the sweep keeps no copy of it)."""
+    from gpe.setup.schema import SCHEMA, SUFFIX_LABELS, SUFFIXES
+
+    expected = {"um": "um", "xi": "xi", "ms": "ms", "tau": "hbar/mu", "mu": "mu", "nK": "nK",
+                "um_per_ms": "um/ms", "c": "c", "hz": "Hz", "rad_per_ms": "rad/ms",
+                "rad_per_tau": "rad/(hbar/mu)", "deg": "deg", "rad": "rad", "a0": "a0", "nm": "nm"}
+    assert SUFFIX_LABELS == expected
+    (tmp_path / "p.toml").write_text("")  # the base must exist; it is not read here
+    checked = 0
+    for section, specs in SCHEMA.items():
+        prefix = ".".join(f"{part}.0" if part == "beams" or part == "imprint" else part
+                          for part in section.split(".")) if section else ""
+        for base, spec in specs.items():
+            if spec.dim is None:
+                continue
+            for suffix in {s for names in SUFFIXES[spec.dim].values() for s in names}:
+                key = f"{prefix}.{base}_{suffix}" if prefix else f"{base}_{suffix}"
+                text = (f'base = "p.toml"\n[[axes]]\nkey = "{key}"\nvalues = [1.0, 2.0]\n')
+                axis = parse_sweep(text, str(tmp_path / "s.toml"), check_protocol=False).axes[0]
+                assert axis.unit == expected[suffix], key
+                checked += 1
+    assert checked > 60
+    # the three keys the old copy of the table got wrong
+    for key, unit in (("beams.0.path.speed_um_per_ms", "um/ms"), ("trap.frequency_rad_per_ms", "rad/ms"),
+                      ("evolution.duration_tau", "hbar/mu"), ("evolution.damping", "")):
+        assert parse_sweep(f'base = "p.toml"\n[[axes]]\nkey = "{key}"\nvalues = [1.0]\n',
+                           str(tmp_path / "s.toml"), check_protocol=False).axes[0].unit == unit

@@ -25,7 +25,7 @@ def test_summary_columns_units_and_aggregation(sweep_file, tmp_path):
     header = (tmp_path / "out" / "summary_runs.csv").read_text().splitlines()[0].split(",")
     assert header == ["point_id", "grid_id", "seed", "beams.0.path.speed_c [c]",
                       "beams.0.waist_um [um]", "status", "error", "beta [1/E0]",
-                      "n_plus [count]", "dipole_fraction [1]"]
+                      "n_plus [1]", "dipole_fraction [1]"]  # units from thermo.quantities
     assert [r["point_id"] for r in runs] == sorted(r["point_id"] for r in runs)
     points, punits = read_table(result.files["points_csv"])
     assert punits["beta_mean"] == "1/E0" and punits["frac_beta_negative"] == "1"

@@ -16,6 +16,9 @@ from typing import Callable
 
 import numpy as np
 
+from gpe.field.solver import observables
+from thermo.quantities import QUANTITIES
+
 
 @dataclass(frozen=True)
 class FrameState:
@@ -127,8 +130,6 @@ _E = "mu n0 xi^2"
     "lz": ("hbar n0 xi^2", "angular momentum about the grid centre"),
 })
 def _energies(state: FrameState) -> dict:
-    from gpe.field.solver import observables
-
     return observables(state.psi, state.grid, state.v_static, state.v_beam, state.g)
 
 
@@ -138,11 +139,11 @@ def _atom_number(state: FrameState) -> float:
     return state.units.atom_number(norm)
 
 
-@diagnostic("n_plus", "1", "vortices of positive circulation found in the fluid")
+@diagnostic("n_plus", QUANTITIES["n_plus"].unit, QUANTITIES["n_plus"].description)
 def _n_plus(state: FrameState) -> float:
     return float(np.count_nonzero(state.vortices["sign"] > 0))
 
 
-@diagnostic("n_minus", "1", "vortices of negative circulation found in the fluid")
+@diagnostic("n_minus", QUANTITIES["n_minus"].unit, QUANTITIES["n_minus"].description)
 def _n_minus(state: FrameState) -> float:
     return float(np.count_nonzero(state.vortices["sign"] < 0))

@@ -30,7 +30,7 @@ def quantity_label(name: str, unit: str) -> str:
     """Axis label of a measured quantity, with its unit."""
     text = _PRETTY.get(name, name.replace("_", " "))
     unit = _PRETTY_UNIT.get(unit, unit)
-    return f"{text} [{unit}]" if unit and unit not in ("1", "count") else text
+    return f"{text} [{unit}]" if unit and unit != "1" else text
 
 
 def _edges(values: np.ndarray, log: bool) -> np.ndarray:

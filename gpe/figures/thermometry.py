@@ -11,6 +11,9 @@ from typing import Any
 
 import numpy as np
 
+from thermo.data.compare import ROWS, pooled_pair_correlation
+from thermo.quantities import QUANTITIES
+
 BAND = "#4a5d8f"
 WARM = "#f3d9c4"
 
@@ -104,17 +107,15 @@ def plot_comparison(comparison, path: str | Path | None = None, *,
     -------
     matplotlib.figure.Figure
 
-    Units: histogram axes as in ``QUANTITIES``; r and positions in units of the domain
+    Units: histogram axes as in thermo.quantities; r and positions in units of the domain
     size (or um with ``length_scale_um``).
     """
-    from thermo.data.compare import QUANTITIES, pooled_pair_correlation
-
     import matplotlib.pyplot as plt
 
     colours = ("#1b7837", "#762a83")  # simulation, measured
     fig, axes = plt.subplots(3, 5, figsize=(17, 10), constrained_layout=True)
     flat = axes.ravel()
-    for ax, name in zip(flat[:9], QUANTITIES):
+    for ax, name in zip(flat[:9], ROWS):
         a, b = comparison.per_shot[name]
         a, b = a[np.isfinite(a)], b[np.isfinite(b)]
         both = np.concatenate([a, b])
@@ -128,7 +129,7 @@ def plot_comparison(comparison, path: str | Path | None = None, *,
         row = next((r for r in comparison.rows if r.quantity == name), None)
         ptxt = f"p_KS={row.p_ks:.2g}, p_perm={row.p_permutation:.2g}" if row else ""
         ax.set_title(f"{name}\n{ptxt}", fontsize=9)
-        ax.set_xlabel(QUANTITIES[name][0], fontsize=8)
+        ax.set_xlabel(QUANTITIES[name].unit, fontsize=8)
     flat[0].legend(fontsize=8)
 
     scale = 1.0 if length_scale_um is None else float(length_scale_um)

@@ -27,16 +27,9 @@ from gpe.errors import VorthermError
 # Nothing numerical is imported here: a spawned sweep worker imports this module (through
 # gpe.sweep.execute) before its thread-count variables are set.
 
-#: Quantities a sweep may measure: name -> (unit, description).
-QUANTITIES: dict[str, tuple[str, str]] = {
-    "beta": ("1/E0", "inverse temperature of the vortex gas, E0 = rho kappa^2/(4 pi)"),
-    "n_plus": ("count", "number of positive vortices"),
-    "n_minus": ("count", "number of negative vortices"),
-    "dipole_fraction": ("1", "fraction of vortices bound in +- dipoles"),
-    "cluster_fraction": ("1", "fraction of vortices in like-sign clusters"),
-    "free_fraction": ("1", "fraction of free vortices"),
-    "energy_per_vortex": ("E0", "point-vortex energy per vortex"),
-}
+#: Quantities a sweep may measure (units and meanings in thermo.quantities.QUANTITIES).
+MEASURABLE = ("beta", "n_plus", "n_minus", "dipole_fraction", "cluster_fraction", "free_fraction",
+              "energy_per_vortex")
 
 SEED_KEY = "evolution.seed"
 
@@ -83,7 +76,7 @@ class Measure:
 
     at_time: float | None = None
     window: tuple[float, float] | None = None
-    quantities: tuple[str, ...] = tuple(QUANTITIES)
+    quantities: tuple[str, ...] = MEASURABLE
     time_unit: str = "protocol"
 
 
@@ -268,12 +261,12 @@ def _parse_measure(src: str, table: Any) -> Measure:
             window = (_number(f"{where}.{key}", w[0]), _number(f"{where}.{key}", w[1]))
             if not window[0] < window[1]:
                 raise SweepError(f"{where}.{key}: needs t0 < t1, got {w!r}")
-    quantities = table.get("quantities", list(QUANTITIES))
+    quantities = table.get("quantities", list(MEASURABLE))
     if not isinstance(quantities, list) or not quantities:
         raise SweepError(f"{where}.quantities: expected a non-empty list of names")
     for q in quantities:
-        if q not in QUANTITIES:
-            raise _unknown(f"{where}.quantities", str(q), tuple(QUANTITIES))
+        if q not in MEASURABLE:
+            raise _unknown(f"{where}.quantities", str(q), MEASURABLE)
     if "beta" not in quantities:
         quantities = ["beta", *quantities]  # the phase map and the negative-beta fraction need it
     return Measure(at_time, window, tuple(dict.fromkeys(quantities)), unit)

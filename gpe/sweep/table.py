@@ -21,7 +21,8 @@ from dataclasses import asdict, dataclass
 from pathlib import Path
 from typing import Any, Mapping
 
-from gpe.sweep.file import QUANTITIES, Axis, Point, Sweep, SweepError
+from gpe.sweep.file import Axis, Point, Sweep, SweepError
+from thermo.quantities import QUANTITIES
 
 # NumPy, SciPy and h5py are imported inside functions, as in gpe.sweep.execute: a spawned worker imports
 # this module (through gpe.sweep.execute) before its thread-count variables are set.
@@ -78,7 +79,7 @@ def _summarise(sweep: Sweep, out_dir: Path, points: list[Point], records: Mappin
 
     qs = sweep.measure.quantities
     units = {"point_id": "", "grid_id": "", "seed": "", "status": "", "error": "",
-             "n_seeds": "count", "n_ok": "count", "frac_beta_negative": "1"}
+             "n_seeds": "1", "n_ok": "1", "frac_beta_negative": "1"}
     units.update({a.key: a.unit for a in sweep.axes})
     runs = []
     for p in sorted(points, key=lambda p: p.point_id):
@@ -88,7 +89,7 @@ def _summarise(sweep: Sweep, out_dir: Path, points: list[Point], records: Mappin
         row.update(status=rec["status"], error=rec.get("error", ""))
         row.update({q: float(rec["values"].get(q, math.nan)) for q in qs})
         runs.append(row)
-    units.update({q: QUANTITIES[q][0] for q in qs})
+    units.update({q: QUANTITIES[q].unit for q in qs})
 
     agg = []
     for grid_id, group in itertools.groupby(runs, key=lambda r: r["grid_id"]):
@@ -106,7 +107,7 @@ def _summarise(sweep: Sweep, out_dir: Path, points: list[Point], records: Mappin
             row.update({f"{q}_mean": mean, f"{q}_std": std, f"{q}_lo95": mean - half,
                         f"{q}_hi95": mean + half})
             for suffix in ("_mean", "_std", "_lo95", "_hi95"):
-                units[q + suffix] = QUANTITIES[q][0]
+                units[q + suffix] = QUANTITIES[q].unit
         beta = np.array([r["beta"] for r in ok], dtype=float)
         row["frac_beta_negative"] = float(np.mean(beta < 0)) if beta.size else math.nan
         agg.append(row)

@@ -31,6 +31,7 @@ import numpy as np
 from scipy import stats
 
 from thermo.errors import ThermoError
+from thermo.quantities import QUANTITIES
 
 
 class CompareError(ThermoError, ValueError):
@@ -39,20 +40,11 @@ class CompareError(ThermoError, ValueError):
 
 Configuration = tuple[np.ndarray, np.ndarray]
 
-# name -> (unit, description); the order is the order of the table rows.
-QUANTITIES: dict[str, tuple[str, str]] = {
-    "n_plus": ("1", "number of positive vortices per shot"),
-    "n_minus": ("1", "number of negative vortices per shot"),
-    "energy_per_vortex": ("E0 = rho kappa^2/(4 pi)",
-                          "point-vortex energy per vortex (constant N ln(R/a) dropped)"),
-    "dipole_moment": ("domain size", "D = |sum s_i u_i| / N"),
-    "c1": ("1", "C1 = (1/N) sum_i s_i s_nn(i)"),
-    "dipole_fraction": ("1", "fraction of vortices in dipoles"),
-    "cluster_fraction": ("1", "fraction of vortices in like-sign clusters"),
-    "free_fraction": ("1", "fraction of free vortices"),
-    "mean_nn_distance": ("domain size", "mean nearest-neighbour distance"),
-}
-BETA_UNIT = "1/E0"
+#: The per-shot quantities compared, in the order of the table rows (units and meanings in
+#: thermo.quantities.QUANTITIES); beta follows them as an ensemble estimate.
+ROWS = ("n_plus", "n_minus", "energy_per_vortex", "dipole_moment", "c1", "dipole_fraction",
+        "cluster_fraction", "free_fraction", "mean_nn_distance")
+BETA_UNIT = QUANTITIES["beta"].unit
 _STRUCTURE_KEYS = ("dipole_moment", "c1", "dipole_fraction", "cluster_fraction",
                    "free_fraction", "mean_nn_distance")
 
@@ -63,7 +55,7 @@ class CompareRow:
 
     Attributes
     ----------
-    quantity, unit : name (see ``QUANTITIES``) and unit.
+    quantity, unit : name (see ``ROWS``) and unit.
     simulation, measured : ensemble means (beta: ensemble estimates).
     difference : simulation - measured.
     ci95_low, ci95_high : 95% interval of the difference.
@@ -107,7 +99,7 @@ class Comparison:
     labels : names of the two sides (for the figure and the writers).
     notes : remarks (e.g. why beta is missing).
 
-    Units: as in ``QUANTITIES``; positions in units of the domain size.
+    Units: as in thermo.quantities; positions in units of the domain size.
     """
 
     rows: tuple[CompareRow, ...]
@@ -156,19 +148,19 @@ def _groups(configs: Sequence[Configuration]) -> dict[tuple[int, ...], list[int]
 
 def shot_statistics(configurations: Sequence[Configuration], domain: Any
                     ) -> dict[str, np.ndarray]:
-    """Per-shot quantities of ``QUANTITIES`` for a list of configurations.
+    """Per-shot quantities of ``ROWS`` for a list of configurations.
 
     Returns
     -------
     dict name -> (S,) float array; NaN where a quantity is undefined for a shot.
 
-    Units: as in ``QUANTITIES``.
+    Units: as in thermo.quantities.
     """
     from thermo import classify, energy as energy_mod
 
     configs = _check_configs(configurations, "input")
     n_shots = len(configs)
-    out = {k: np.full(n_shots, np.nan) for k in QUANTITIES}
+    out = {k: np.full(n_shots, np.nan) for k in ROWS}
     for key, idx in _groups(configs).items():
         signs = np.array(key, dtype=np.int64)
         n = len(signs)
@@ -207,7 +199,7 @@ def _quantity_row(name: str, a: np.ndarray, b: np.ndarray, n_boot: int,
                   n_permutations: int, rng: np.random.Generator) -> CompareRow:
     a = a[np.isfinite(a)]
     b = b[np.isfinite(b)]
-    unit = QUANTITIES[name][0]
+    unit = QUANTITIES[name].unit
     if len(a) < 2 or len(b) < 2:
         nan = math.nan
         return CompareRow(name, unit, float(np.mean(a)) if len(a) else nan,
@@ -309,7 +301,7 @@ def compare_ensembles(simulation: Sequence[Configuration], measured: Sequence[Co
     -------
     Comparison
 
-    Units: positions in units of the domain size; see ``QUANTITIES`` for the rows.
+    Units: positions in units of the domain size; see ``ROWS`` for the rows.
     """
     if not (np.isfinite(core_radius) and core_radius > 0):
         raise CompareError(f"core_radius must be a positive number (domain units); "
@@ -323,14 +315,14 @@ def compare_ensembles(simulation: Sequence[Configuration], measured: Sequence[Co
     a = shot_statistics(sim, domain)
     b = shot_statistics(meas, domain)
     rows = [_quantity_row(name, a[name], b[name], n_boot, n_permutations, rng)
-            for name in QUANTITIES]
+            for name in ROWS]
     notes = []
     if include_beta:
         beta_row, beta_notes = _beta_row(sim, meas, domain, core_radius, beta_options or {})
         if beta_row is not None:
             rows.insert(3, beta_row)
         notes.extend(beta_notes)
-    return Comparison(rows=tuple(rows), per_shot={k: (a[k], b[k]) for k in QUANTITIES},
+    return Comparison(rows=tuple(rows), per_shot={k: (a[k], b[k]) for k in ROWS},
                       simulation=tuple(sim), measured=tuple(meas), domain=domain,
                       core_radius=float(core_radius), labels=tuple(labels), notes=tuple(notes))
 

@@ -14,6 +14,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from thermo.sampler import integrated_autocorr_time
+
 
 def logsumexp(a: np.ndarray, axis: int | None = None, keepdims: bool = False) -> np.ndarray:
     """ln sum exp(a) along an axis; plain numpy (scipy's version is ~3x slower here)."""
@@ -31,8 +33,6 @@ def tau_int(x: np.ndarray) -> float:
     Sokal's automatic window (``thermo.sampler.integrated_autocorr_time``); a series too short
     or constant counts as uncorrelated.
     """
-    from thermo.sampler import integrated_autocorr_time
-
     x = np.asarray(x, float)
     if x.size < 8:
         return 1.0

@@ -23,8 +23,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from gpe.errors import VorthermError
 from gpe.analysis.flow import spectral_gradient
+from gpe.errors import VorthermError
 
 __all__ = ["KineticSpectra", "density_weighted_velocity", "helmholtz_split",
            "shell_spectrum", "kinetic_energy_spectra"]

@@ -15,8 +15,8 @@ from __future__ import annotations
 import numpy as np
 from scipy.optimize import linear_sum_assignment
 
-from gpe.errors import VorthermError
 from gpe.analysis.vortices import _check_table
+from gpe.errors import VorthermError
 
 __all__ = [
     "EVENT_DTYPE",

@@ -10,7 +10,11 @@ from __future__ import annotations
 from pathlib import Path
 
 from gpe.cli.args import add_command, parse_frames, parse_seeds
-from gpe.cli.thermo_commands import register_compare, register_temperature, show_temperature
+from gpe.cli.thermo_commands import (
+    register_compare,
+    register_temperature,
+    show_temperature,
+)
 from gpe.errors import VorthermError
 
 

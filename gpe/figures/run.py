@@ -1,8 +1,8 @@
 """Figures of the field side: density/phase panels with vortices, vortex numbers, energies,
 kinetic-energy spectra, and animations.
 
-matplotlib is imported inside the functions, so ``import gpe`` stays fast; the backend is the
-caller's (a notebook keeps its own, the command line runs headless).
+Nothing outside the command line imports this module, so ``import gpe`` never loads matplotlib;
+the backend is the caller's (a notebook keeps its own, the command line runs headless).
 Functions take arrays and tables, never paths; each returns the matplotlib Figure (or the
 written path for animations). Lengths are shown in micrometres when ``length_um`` (the healing
 length in um) is given, else in xi; times in ms when ``time_ms`` (hbar/mu in ms) is given.
@@ -15,20 +15,17 @@ from __future__ import annotations
 import shutil
 from pathlib import Path
 
+import matplotlib.pyplot as plt
 import numpy as np
+from matplotlib import animation
 
+from gpe.analysis.tracking import ANNIHILATION
 from gpe.errors import VorthermError
 
 __all__ = ["density_phase_panels", "vortex_counts", "energies", "spectra", "write_animation"]
 
 PLUS_STYLE = dict(marker="o", s=28, facecolor="#e4572e", edgecolor="#5c1a0b", linewidth=0.6)
 MINUS_STYLE = dict(marker="^", s=30, facecolor="#17becf", edgecolor="#0b3c49", linewidth=0.6)
-
-
-def _pyplot():
-    import matplotlib.pyplot as plt
-
-    return plt
 
 
 def _scales(length_um, time_ms):
@@ -50,7 +47,6 @@ def density_phase_panels(psi_frames, x, y, times, vortex_table=None, frames=None
 
     Units: x, y in xi; times in hbar/mu; density shown in n0 (|psi|^2).
     """
-    plt = _pyplot()
     n_frames = len(psi_frames)
     if frames is None:
         frames = sorted({0, n_frames // 2, n_frames - 1})
@@ -94,7 +90,6 @@ def vortex_counts(vortex_table, frame_times, events=None, *, time_ms: float | No
 
     Units: times in hbar/mu (shown in ms when time_ms is given).
     """
-    plt = _pyplot()
     _, _, ts, tu = _scales(None, time_ms)
     frame_times = np.asarray(frame_times)
     frames = np.arange(frame_times.size)
@@ -106,7 +101,6 @@ def vortex_counts(vortex_table, frame_times, events=None, *, time_ms: float | No
     ax.plot(frame_times * ts, n_plus, color="#e4572e", marker="o", ms=3, label="N₊ (+ vortices)")
     ax.plot(frame_times * ts, n_minus, color="#17becf", marker="^", ms=3, label="N₋ (− vortices)")
     if events is not None and len(events):
-        from gpe.analysis.tracking import ANNIHILATION
         ann = events[events["kind"] == ANNIHILATION]
         cre = events[events["kind"] != ANNIHILATION]
         if ann.size:
@@ -128,7 +122,6 @@ def energies(times, observables: dict, keys=("e_kin", "e_int", "e_trap", "e_beam
 
     Units: energies in mu n0 xi^2 (as gpe.field.solver.observables); times in hbar/mu.
     """
-    plt = _pyplot()
     _, _, ts, tu = _scales(None, time_ms)
     fig, ax = plt.subplots(figsize=(7, 4), constrained_layout=True)
     labels = {"e_kin": "kinetic", "e_int": "interaction", "e_trap": "trap", "e_beam": "beams",
@@ -150,7 +143,6 @@ def spectra(spec, *, t: float | None = None, time_ms: float | None = None):
 
     Units: k in 1/xi; E(k) in mu n0 xi^3.
     """
-    plt = _pyplot()
     fig, ax = plt.subplots(figsize=(6, 4.5), constrained_layout=True)
     k = spec.k[1:]
     for data, name, colour in ((spec.incompressible, "incompressible", "#b5179e"),
@@ -183,9 +175,6 @@ def write_animation(psi_frames, x, y, times, path, vortex_table=None, *, fps: in
     The suffix of ``path`` is replaced by .mp4 or .gif accordingly; returns the written path.
     Units: as :func:`density_phase_panels`.
     """
-    plt = _pyplot()
-    from matplotlib import animation
-
     ls, lu, ts, tu = _scales(length_um, time_ms)
     extent = [x[0] * ls, x[-1] * ls, y[0] * ls, y[-1] * ls]
     n_frames = len(psi_frames)

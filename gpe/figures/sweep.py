@@ -13,6 +13,8 @@ from pathlib import Path
 from typing import Any, Mapping
 
 import numpy as np
+from matplotlib.colors import CenteredNorm, Normalize
+from matplotlib.figure import Figure
 
 from gpe.sweep.file import Axis, SweepError
 from gpe.sweep.table import SweepResult, read_summary
@@ -77,9 +79,6 @@ def plot_sweep(result: SweepResult | str | os.PathLike, quantity: str = "beta", 
     -----
     Axes in the protocol units of the swept keys (shown in the labels); beta in 1/E0.
     """
-    from matplotlib.colors import CenteredNorm, Normalize
-    from matplotlib.figure import Figure
-
     if not isinstance(result, SweepResult):
         result = read_summary(result)
     if quantity not in result.quantities:

@@ -1,4 +1,4 @@
-"""Figures of the thermometry back end (matplotlib, imported only when a figure is asked for).
+"""Figures of the thermometry back end: beta over time, and a simulated-vs-measured comparison.
 
 Palette of our own: beta band in slate blue, negative-temperature side shaded in a warm tint,
 thresholds as dashed grey lines labelled in place.
@@ -9,6 +9,7 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Any
 
+import matplotlib.pyplot as plt
 import numpy as np
 
 from thermo.data.compare import ROWS, pooled_pair_correlation
@@ -24,8 +25,6 @@ def plot_temperature_series(result: dict, path) -> Path:
     ``result`` is the dictionary built by ``vortherm temperature`` (records, ensemble, ...).
     Thresholds (clustering onset, like-sign collapse) are drawn where the records give them.
     """
-    import matplotlib.pyplot as plt
-
     recs = result["records"]
     tk = result["time_key"]
     x = np.array([r[tk] if tk == "t" else i for i, r in enumerate(recs)], dtype=float)
@@ -110,8 +109,6 @@ def plot_comparison(comparison, path: str | Path | None = None, *,
     Units: histogram axes as in thermo.quantities; r and positions in units of the domain
     size (or um with ``length_scale_um``).
     """
-    import matplotlib.pyplot as plt
-
     colours = ("#1b7837", "#762a83")  # simulation, measured
     fig, axes = plt.subplots(3, 5, figsize=(17, 10), constrained_layout=True)
     flat = axes.ravel()

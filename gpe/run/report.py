@@ -11,7 +11,6 @@ import csv
 import math
 from pathlib import Path
 
-
 CSV_COLUMNS = ("n_plus", "n_minus", "energy_per_vortex", "beta", "beta_ci68_lo", "beta_ci68_hi",
                "beta_ci95_lo", "beta_ci95_hi", "temperature_sign", "prob_negative",
                "dipole_moment", "c1", "dipole_fraction", "cluster_fraction", "free_fraction",

@@ -21,7 +21,6 @@ from thermo.data.measured import read_measured
 from thermo.dos.build import DosSettings
 from thermo.estimate import estimate_ensemble, estimate_single
 
-
 # ------------------------------------------------------------------------------------------
 # thermometry of configurations: one record per frame or shot, and one for an ensemble
 # ------------------------------------------------------------------------------------------

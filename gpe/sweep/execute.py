@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import concurrent.futures as cf
 import json
+import multiprocessing
 import os
 import time
 import traceback
@@ -25,7 +26,13 @@ from typing import Any, Callable, Mapping
 
 from gpe.errors import VorthermError
 from gpe.sweep.file import Measure, Point, Sweep, SweepError
-from gpe.sweep.table import SUMMARY_FORMAT_VERSION, SweepResult, _read_json, _summarise, _write_json
+from gpe.sweep.table import (
+    SUMMARY_FORMAT_VERSION,
+    SweepResult,
+    _read_json,
+    _summarise,
+    _write_json,
+)
 
 # NumPy, h5py and the pipeline are imported inside functions on purpose: a spawned worker imports
 # this module first, and the thread-count variables set by ``_init_worker`` only take effect if no
@@ -61,16 +68,13 @@ def run_point(task: PointTask) -> dict:
     A complete run file (verified by ``gpe.run.reading.is_complete``) is analysed without
     simulating again; an incomplete one is resumed from its checkpoint.
     """
+    from gpe.run import reading, simulate, thermometry  # numerics: see the note at the top
     from gpe.setup.protocol import load_protocol
 
     protocol = load_protocol(task.base, task.overrides)  # an invalid point fails here, cheaply
-    from gpe.run import simulate as pipeline
-    from gpe.run import reading
-    from gpe.run import thermometry
-
     run_path = Path(task.run_path)
     if not reading.is_complete(run_path):
-        pipeline.simulate(protocol, run_path, resume=run_path.exists(), threads=task.threads)
+        simulate.simulate(protocol, run_path, resume=run_path.exists(), threads=task.threads)
     scale = _time_to_simulation(protocol, task.measure.time_unit)
     m = task.measure
     at_time = None if m.at_time is None else m.at_time * scale
@@ -82,7 +86,7 @@ def _time_to_simulation(protocol: Any, time_unit: str) -> float:
     """Factor from a measurement time unit to hbar/mu (tau)."""
     if time_unit == "protocol":
         time_unit = "tau" if str(protocol.unit_system).lower() == "healing" else "ms"
-    return 1.0 if time_unit == "tau" else 1e-3 / protocol.units.time_s
+    return 1.0 if time_unit == "tau" else protocol.units.ms_to_time(1.0)
 
 
 _WORKER_INTERRUPTED = False
@@ -161,15 +165,13 @@ def _init_worker(threads: int) -> None:
 
 def local_executor(workers: int, threads: int) -> cf.ProcessPoolExecutor:
     """A process pool of ``workers`` spawned processes, each limited to ``threads`` threads."""
-    import multiprocessing
-
     return cf.ProcessPoolExecutor(max_workers=workers, mp_context=multiprocessing.get_context(
         "spawn"), initializer=_init_worker, initargs=(threads,))
 
 
 def connect_scheduler(address: str) -> Any:
     """A dask ``distributed.Client`` connected to the scheduler at ``address``."""
-    try:
+    try:  # imported here: dask.distributed is an optional extra (vortherm[cluster])
         from distributed import Client
     except ImportError:
         raise SweepError("running on a cluster needs dask.distributed, which is not installed; "

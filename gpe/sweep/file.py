@@ -18,11 +18,12 @@ import json
 import math
 import os
 import tomllib
+import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Mapping, Sequence
 
-from gpe.errors import VorthermError
+from gpe.errors import ProtocolError, VorthermError
 
 # Nothing numerical is imported here: a spawned sweep worker imports this module (through
 # gpe.sweep.execute) before its thread-count variables are set.
@@ -316,9 +317,7 @@ def load_sweep(path: str | os.PathLike, *, check_protocol: bool = True) -> Sweep
 
 
 def _check_axis_keys(sweep: Sweep) -> None:
-    import warnings
-
-    from gpe.errors import ProtocolError
+    # imported here: the protocol loads NumPy (see the note at the top of this module)
     from gpe.setup.protocol import load_protocol
 
     for axis in sweep.axes:

@@ -12,6 +12,7 @@ E0 = rho kappa^2 / (4 pi); axis values in the protocol's units.
 
 from __future__ import annotations
 
+import csv
 import itertools
 import json
 import math
@@ -131,8 +132,6 @@ def _cell(value: Any) -> str:
 
 
 def _write_csv(path: Path, rows: list[dict], units: Mapping[str, str]) -> None:
-    import csv
-
     names = list(rows[0]) if rows else []
     tmp = path.with_name(path.name + ".tmp")
     with tmp.open("w", newline="", encoding="utf-8") as fh:
@@ -172,8 +171,6 @@ def _write_hdf5(path: Path, sweep: Sweep, runs: list[dict], agg: list[dict],
 
 def read_table(path: str | os.PathLike) -> tuple[list[dict], dict[str, str]]:
     """Read a summary CSV back: rows keyed by bare column name, and the units of each column."""
-    import csv
-
     with Path(path).open(encoding="utf-8", newline="") as fh:
         reader = csv.reader(fh)
         header = next(reader)

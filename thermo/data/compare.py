@@ -30,7 +30,11 @@ from typing import Any, Sequence
 import numpy as np
 from scipy import stats
 
-from thermo.errors import ThermoError
+from thermo import classify
+from thermo import energy as energy_mod
+from thermo.energy import validate_configuration
+from thermo.errors import ConfigurationError, ThermoError
+from thermo.estimate import estimate_ensemble_beta
 from thermo.quantities import QUANTITIES
 
 
@@ -156,8 +160,6 @@ def shot_statistics(configurations: Sequence[Configuration], domain: Any
 
     Units: as in thermo.quantities.
     """
-    from thermo import classify, energy as energy_mod
-
     configs = _check_configs(configurations, "input")
     n_shots = len(configs)
     out = {k: np.full(n_shots, np.nan) for k in ROWS}
@@ -227,15 +229,8 @@ def _beta_row(sim: Sequence[Configuration], meas: Sequence[Configuration], domai
     hard-core model (a vortex within a of the wall, two within 2a) have no weight in it;
     both are left out of this row only, counted in a note. Returns (row or None, notes).
     """
-    try:
-        from thermo.estimate import estimate_ensemble_beta
-    except ImportError as exc:
-        return None, [f"beta left out: thermo.estimate is not available ({exc})"]
     notes = []
     results = []
-    from thermo.energy import validate_configuration
-    from thermo.errors import ConfigurationError
-
     def fits_hard_core(c: Configuration) -> bool:
         try:
             validate_configuration(c[0], c[1], domain, core_radius)
@@ -390,7 +385,6 @@ def pooled_pair_correlation(configurations: Sequence[Configuration], domain: Any
 
     Returns (r centres, g_like, g_opposite). Units: r in units of the domain size.
     """
-    from thermo import classify
     num_l = np.zeros(bins)
     den_l = np.zeros(bins)
     num_o = np.zeros(bins)

@@ -35,10 +35,16 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Iterable, Sequence
 
+import h5py
 import numpy as np
 
+from thermo.data.geometry import (
+    Geometry,
+    PixelCalibration,
+    pixels_to_um,
+    resolve_geometry,
+)
 from thermo.errors import MeasuredTableError
-from thermo.data.geometry import (Geometry, PixelCalibration, pixels_to_um, resolve_geometry)
 
 
 class MeasuredTableWarning(UserWarning):
@@ -180,7 +186,6 @@ def _hdf5_value(v: Any) -> str:
 def _read_hdf5_rows(path: Path, dataset: str | None
                     ) -> tuple[list[str], list[tuple[int, list[str]]]]:
     """Columns from a compound dataset, or from a group of equal-length 1D datasets."""
-    import h5py
     with h5py.File(path, "r") as f:
         name = dataset
         if name is None:

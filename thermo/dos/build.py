@@ -14,9 +14,10 @@ from typing import Any
 
 import numpy as np
 
+from thermo import sampler
+from thermo.classify import structure_observables
 from thermo.dos.model import _OBSERVED_PER_REPLICA, DensityOfStates
 from thermo.errors import SamplerError
-
 
 #: recorded samples per replica when DosSettings.thin is None (thinning chosen to match);
 #: MBAR, its bootstrap and the tables work on energy bins, so their cost hardly grows with it
@@ -61,8 +62,6 @@ def build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
 
     Units: core radius in the domain's length unit; betas in 1/E0.
     """
-    from thermo import sampler  # imported here: the sampler is only needed to build
-
     rng = np.random.default_rng() if rng is None else rng
     if settings.betas is not None:
         betas = np.asarray(settings.betas, float)
@@ -88,7 +87,6 @@ def build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
                                    core_radius, rng, position_stride=stride, **kw)
     observables = None
     if result.positions.shape[2] >= 2:
-        from thermo.classify import structure_observables
         k = betas.size
         sub = structure_observables(result.positions.reshape(-1, *result.positions.shape[2:]),
                                     result.signs)

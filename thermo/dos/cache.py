@@ -25,8 +25,8 @@ from typing import Any
 import numpy as np
 
 from thermo.dos import tables as dos_tables
-from thermo.dos.model import DensityOfStates
 from thermo.dos.build import DosSettings, build
+from thermo.dos.model import DensityOfStates
 from thermo.errors import SamplerError
 
 #: bump when the file layout changes: it is part of :func:`cache_key`, so files of another

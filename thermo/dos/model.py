@@ -32,7 +32,9 @@ from dataclasses import dataclass, field
 from typing import Any, Sequence
 
 import numpy as np
+from scipy.interpolate import CubicSpline
 
+from thermo.classify import structure_observables
 from thermo.dos import tables as dos_tables
 from thermo.errors import SamplerError
 from thermo.mbar import _ti_start, logsumexp, solve_mbar, tau_int
@@ -356,13 +358,11 @@ class DensityOfStates:
 
     def log_z_spline(self) -> Any:
         """Cubic spline of ln Z(beta) - ln Z(0) over the ladder (from :attr:`tables`)."""
-        from scipy.interpolate import CubicSpline
         t = self.tables
         return self._memo("lz", lambda: CubicSpline(t["beta"], t["log_z"]))
 
     def log_z_replicate_splines(self, max_replicates: int | None = None) -> list:
         """Cubic splines of the bootstrap replicates of ln Z(beta) - ln Z(0)."""
-        from scipy.interpolate import CubicSpline
         t = self.tables
         reps = self._memo("lz_reps", lambda: [CubicSpline(t["beta"], r)
                                               for r in t["log_z_reps"]])
@@ -443,7 +443,6 @@ class DensityOfStates:
             pos = getattr(result, "positions", None)
             signs = getattr(result, "signs", None)
             if pos is not None and signs is not None and np.shape(pos)[2] >= 2:
-                from thermo.classify import structure_observables
                 # the structure observables cost far more per sample than the energy, and
                 # their averages need less precision than beta(E): evaluate them on an
                 # evenly strided subset (NaN elsewhere) of _OBSERVED_PER_REPLICA per rung

@@ -24,6 +24,7 @@ from __future__ import annotations
 from typing import Any
 
 import numpy as np
+from scipy.interpolate import CubicHermiteSpline
 
 #: bump when the content or grids of the tables change (stored tables are then recomputed)
 TABLE_VERSION = 5
@@ -163,8 +164,6 @@ def beta_saddle_from_cumulants(e: np.ndarray, grid: np.ndarray, mean: np.ndarray
 
     Units: E in E0, beta in 1/E0.
     """
-    from scipy.interpolate import CubicHermiteSpline
-
     e = np.atleast_1d(np.asarray(e, float))
     order = np.argsort(mean)
     m, b, v = mean[order], grid[order], var[order]

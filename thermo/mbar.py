@@ -71,7 +71,7 @@ def solve_mbar(energies: np.ndarray, betas: np.ndarray, n_k: np.ndarray,
         means = np.array([np.average(e[offsets[i]:offsets[i + 1]],
                                      weights=c[offsets[i]:offsets[i + 1]] + 1e-300)
                           for i in range(k)])
-        f = _ti_start(b, means)
+        f = free_energies_by_integration(b, means)
     else:
         f = np.array(f_init, float)
     f -= f[0]
@@ -102,7 +102,7 @@ def solve_mbar(energies: np.ndarray, betas: np.ndarray, n_k: np.ndarray,
     return f, ld
 
 
-def _ti_start(betas: np.ndarray, means: np.ndarray) -> np.ndarray:
+def free_energies_by_integration(betas: np.ndarray, means: np.ndarray) -> np.ndarray:
     """Free energies from d f / d beta = <E> (trapezoid over the sorted ladder), f[0] = 0."""
     order = np.argsort(betas)
     f = np.zeros(betas.size)

@@ -15,7 +15,7 @@ from __future__ import annotations
 import numpy as np
 from scipy.optimize import linear_sum_assignment
 
-from gpe.analysis.vortices import _check_table
+from gpe.analysis.vortices import check_vortex_table
 from gpe.errors import VorthermError
 
 __all__ = [
@@ -91,7 +91,7 @@ def track_vortices(table: np.ndarray, frame_times=None, *, max_speed: float = 1.
     -----
     max_speed in c = xi mu / hbar; min_displacement in xi; times in hbar/mu.
     """
-    table = _check_table(table)
+    table = check_vortex_table(table)
     for name, val in (("max_speed", max_speed), ("safety", safety)):
         if not val > 0:
             raise VorthermError(f"track_vortices: {name} = {val!r} must be > 0")
@@ -170,7 +170,7 @@ def find_events(tracked: np.ndarray, frame_times=None, *, max_speed: float = 1.0
     -----
     xi, hbar/mu; max_speed in c.
     """
-    tracked = _check_table(tracked)
+    tracked = check_vortex_table(tracked)
     if tracked.size and tracked["track"].min() < 0:
         raise VorthermError("find_events: the table has untracked rows (track = -1); "
                             "run track_vortices first")

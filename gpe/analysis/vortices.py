@@ -423,7 +423,7 @@ def detect_frames(frames, x: np.ndarray, y: np.ndarray, times, **detect_options)
     return np.concatenate(tables) if tables else np.empty(0, dtype=VORTEX_DTYPE)
 
 
-def _check_table(table: np.ndarray) -> np.ndarray:
+def check_vortex_table(table: np.ndarray) -> np.ndarray:
     table = np.asarray(table)
     if table.dtype.names is None or any(k not in table.dtype.names for k in VORTEX_DTYPE.names):
         raise VorthermError("vortex table: expected a structured array with columns "
@@ -446,7 +446,7 @@ def frame_rows(table: np.ndarray, frame: int, n_frames: int | None = None) -> np
     -----
     As the table (xi, hbar/mu).
     """
-    table = _check_table(table)
+    table = check_vortex_table(table)
     if n_frames is None:
         n_frames = int(table["frame"].max()) + 1 if table.size else 0
     index = int(frame)

@@ -29,9 +29,9 @@ from gpe.sweep.file import Measure, Point, Sweep, SweepError
 from gpe.sweep.table import (
     SUMMARY_FORMAT_VERSION,
     SweepResult,
-    _read_json,
-    _summarise,
-    _write_json,
+    read_json,
+    summarise,
+    write_json,
 )
 
 # NumPy, h5py and the pipeline are imported inside functions on purpose: a spawned worker imports
@@ -68,7 +68,11 @@ def run_point(task: PointTask) -> dict:
     A complete run file (verified by ``gpe.run.reading.is_complete``) is analysed without
     simulating again; an incomplete one is resumed from its checkpoint.
     """
-    from gpe.run import reading, simulate, thermometry  # numerics: see the note at the top
+    from gpe.run import (  # numerics: see the note at the top
+        reading,
+        simulate,
+        thermometry,
+    )
     from gpe.setup.protocol import load_protocol
 
     protocol = load_protocol(task.base, task.overrides)  # an invalid point fails here, cheaply
@@ -217,7 +221,7 @@ def _prepare(sweep: Sweep, out_dir: Path) -> list[Point]:
     (out_dir / "runs").mkdir(parents=True, exist_ok=True)
     (out_dir / "points").mkdir(exist_ok=True)
     manifest = out_dir / "manifest.json"
-    old = _read_json(manifest) if manifest.exists() else None
+    old = read_json(manifest) if manifest.exists() else None
     new = {"format_version": SUMMARY_FORMAT_VERSION, "sweep_file": sweep.source,
            "base": str(sweep.base), "points": {p.point_id: list(p.overrides) for p in points}}
     if old is not None:
@@ -228,7 +232,7 @@ def _prepare(sweep: Sweep, out_dir: Path) -> list[Point]:
                     f"{overrides}, now {new['points'][pid]}; choose a new output folder (finished "
                     f"runs are never overwritten)")
         new["points"] = {**old.get("points", {}), **new["points"]}
-    _write_json(manifest, new)
+    write_json(manifest, new)
     (out_dir / "sweep.toml").write_text(sweep.text, encoding="utf-8")
     return points
 
@@ -273,7 +277,7 @@ def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
     records: dict[str, dict] = {}
     todo: list[Point] = []
     for p in points:
-        rec = _read_json(out_dir / "points" / f"{p.point_id}.json") or {}
+        rec = read_json(out_dir / "points" / f"{p.point_id}.json") or {}
         run_path = out_dir / "runs" / f"{p.point_id}.h5"
         if (rec.get("status") == "ok" and rec.get("measure") == json.loads(json.dumps(measure))
                 and _verified(is_complete, run_path)):
@@ -360,7 +364,7 @@ def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
             if (fut.done() and not fut.cancelled() and fut.exception() is None
                     and p.point_id not in records and fut.result()["status"] != "cancelled"):
                 records[p.point_id] = _save_record(out_dir, p, sweep, fut.result())
-    result = _summarise(sweep, out_dir, points, records, interrupted)
+    result = summarise(sweep, out_dir, points, records, interrupted)
     report(force=True)
     return result
 
@@ -379,5 +383,5 @@ def _save_record(out_dir: Path, point: Point, sweep: Sweep, outcome: Mapping) ->
            "overrides": list(point.overrides), "run_file": f"runs/{point.point_id}.h5",
            "measure": asdict(sweep.measure), **outcome}
     rec = json.loads(json.dumps(rec))  # tuples -> lists, so that reruns compare equal
-    _write_json(out_dir / "points" / f"{point.point_id}.json", rec)
+    write_json(out_dir / "points" / f"{point.point_id}.json", rec)
     return rec

@@ -1,6 +1,6 @@
 """Summary tables of a sweep: aggregation over seeds, CSV and HDF5 writers, and readers.
 
-:func:`gpe.sweep.execute.run_sweep` hands its per-point records to :func:`_summarise`, which writes
+:func:`gpe.sweep.execute.run_sweep` hands its per-point records to :func:`summarise`, which writes
 ``summary_runs.csv`` (one row per point and seed), ``summary_points.csv`` (one row per grid point,
 seeds aggregated), ``summary.h5`` (both tables with units and the sweep file) and ``state.json``;
 :func:`read_table` and :func:`read_summary` read them back. The formats are described in
@@ -55,13 +55,13 @@ class SweepResult:
         return not self.interrupted and all(r["status"] == "ok" for r in self.runs)
 
 
-def _write_json(path: Path, data: Any) -> None:
+def write_json(path: Path, data: Any) -> None:
     tmp = path.with_name(path.name + ".tmp")
     tmp.write_text(json.dumps(data, indent=1, sort_keys=True), encoding="utf-8")
     os.replace(tmp, path)  # atomic: a killed sweep never leaves half a record
 
 
-def _read_json(path: Path) -> dict | None:
+def read_json(path: Path) -> dict | None:
     try:
         return json.loads(path.read_text(encoding="utf-8"))
     except (OSError, ValueError):
@@ -73,7 +73,7 @@ def column_header(name: str, unit: str) -> str:
     return f"{name} [{unit}]" if unit else name
 
 
-def _summarise(sweep: Sweep, out_dir: Path, points: list[Point], records: Mapping[str, dict],
+def summarise(sweep: Sweep, out_dir: Path, points: list[Point], records: Mapping[str, dict],
                interrupted: bool) -> SweepResult:
     import numpy as np
     from scipy import stats
@@ -120,7 +120,7 @@ def _summarise(sweep: Sweep, out_dir: Path, points: list[Point], records: Mappin
     _write_hdf5(files["hdf5"], sweep, runs, agg, units)
     failed = {r["point_id"]: r["error"] for r in runs if r["status"] == "failed"}
     counts = {s: sum(r["status"] == s for r in runs) for s in ("ok", "failed", "pending")}
-    _write_json(files["state"], {"interrupted": interrupted, "counts": counts, "failed": failed,
+    write_json(files["state"], {"interrupted": interrupted, "counts": counts, "failed": failed,
                                  "time_unix": time.time()})
     return SweepResult(out_dir, sweep.axes, qs, runs, agg, units, interrupted, failed, files)
 
@@ -213,7 +213,7 @@ def read_summary(out_dir: str | os.PathLike) -> SweepResult:
             units.update({n: str(h5[group][n].attrs["units"]) for n in names})
             n_rows = len(next(iter(cols.values()))) if cols else 0
             tables[group] = [{n: _plain(cols[n][i]) for n in names} for i in range(n_rows)]
-    state = _read_json(out_dir / "state.json") or {}
+    state = read_json(out_dir / "state.json") or {}
     failed = {r["point_id"]: r["error"] for r in tables["runs"] if r["status"] == "failed"}
     files = {"runs_csv": out_dir / "summary_runs.csv", "points_csv": out_dir / "summary_points.csv",
              "hdf5": path, "state": out_dir / "state.json"}

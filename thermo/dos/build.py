@@ -16,7 +16,7 @@ import numpy as np
 
 from thermo import sampler
 from thermo.classify import structure_observables
-from thermo.dos.model import _OBSERVED_PER_REPLICA, DensityOfStates
+from thermo.dos.model import OBSERVED_PER_REPLICA, DensityOfStates
 from thermo.errors import SamplerError
 
 #: recorded samples per replica when DosSettings.thin is None (thinning chosen to match);
@@ -82,7 +82,7 @@ def build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
     # configurations only for the strided subset on which the structure observables are
     # evaluated (the same stride as from_tempering's), so many energies cost little memory
     s_rec = int(settings.n_sweeps) // int(kw["thin"])
-    stride = max(1, s_rec // _OBSERVED_PER_REPLICA)
+    stride = max(1, s_rec // OBSERVED_PER_REPLICA)
     result = sampler.run_tempering(domain, n_plus, n_minus, betas, settings.n_sweeps,
                                    core_radius, rng, position_stride=stride, **kw)
     observables = None

@@ -37,7 +37,7 @@ from scipy.interpolate import CubicSpline
 from thermo.classify import structure_observables
 from thermo.dos import tables as dos_tables
 from thermo.errors import SamplerError
-from thermo.mbar import _ti_start, logsumexp, solve_mbar, tau_int
+from thermo.mbar import free_energies_by_integration, logsumexp, solve_mbar, tau_int
 
 
 @dataclass(frozen=True)
@@ -415,7 +415,7 @@ class DensityOfStates:
         # thermo.dos.tables.energy_bins): the cost follows the bins, not the samples
         bin_of, e_bin = dos_tables.energy_bins(flat, betas)
         nb = e_bin.size
-        f0 = _ti_start(betas, en.mean(axis=1))
+        f0 = free_energies_by_integration(betas, en.mean(axis=1))
         f, _ = solve_mbar(e_bin, betas, n_k, counts=np.bincount(bin_of, minlength=nb),
                           f_init=f0)
         ld = logsumexp(-np.outer(betas, flat) + (f + np.log(n_k))[:, None], axis=0)
@@ -445,8 +445,8 @@ class DensityOfStates:
             if pos is not None and signs is not None and np.shape(pos)[2] >= 2:
                 # the structure observables cost far more per sample than the energy, and
                 # their averages need less precision than beta(E): evaluate them on an
-                # evenly strided subset (NaN elsewhere) of _OBSERVED_PER_REPLICA per rung
-                stride = max(1, s // _OBSERVED_PER_REPLICA)
+                # evenly strided subset (NaN elsewhere) of OBSERVED_PER_REPLICA per rung
+                stride = max(1, s // OBSERVED_PER_REPLICA)
                 p = np.asarray(pos, float)[:, ::stride]
                 sub = structure_observables(p.reshape(-1, *p.shape[2:]), signs)
                 observables = {}
@@ -467,4 +467,4 @@ class DensityOfStates:
 
 
 #: samples per replica on which the structure observables are evaluated (strided subset)
-_OBSERVED_PER_REPLICA = 1000
+OBSERVED_PER_REPLICA = 1000

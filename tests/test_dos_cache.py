@@ -100,3 +100,25 @@ def test_more_effort_rebuilds_and_then_covers_less(tmp_path):
         assert len(builds) == 2 and big.settings["n_sweeps"] == more.n_sweeps
         again = dos_cache.load_or_build(1, 1, Disk(), CORE, cache_dir=tmp_path, settings=SETTINGS)
     assert len(builds) == 2 and again is big
+
+
+@pytest.mark.parametrize("damage", ["truncated", "random bytes", "empty"])
+def test_a_damaged_entry_is_named_then_rebuilt_once(tmp_path, damage):
+    """A cache entry cut short by a killed writer (or overwritten) is reported by file name and
+    rebuilt in place; the next call reads the rebuilt file without building again."""
+    dos_cache.load_or_build(1, 1, Disk(), CORE, cache_dir=tmp_path, settings=SETTINGS)
+    path = dos_cache.cache_path(1, 1, Disk(), CORE, tmp_path)
+    data = path.read_bytes()
+    path.write_bytes({"truncated": data[: len(data) // 2], "random bytes": bytes(range(256)) * 40,
+                      "empty": b""}[damage])
+    dos_cache._LOADED.clear()           # as in a new process
+    with pytest.raises(SamplerError, match=path.name):
+        dos_cache.load(path)
+    with counting_builds() as builds, pytest.warns(dos_cache.CacheWarning, match=path.name):
+        rebuilt = dos_cache.load_or_build(1, 1, Disk(), CORE, cache_dir=tmp_path, settings=SETTINGS)
+    assert len(builds) == 1 and rebuilt.n_plus == 1
+    dos_cache._LOADED.clear()
+    with counting_builds() as builds:
+        again = dos_cache.load_or_build(1, 1, Disk(), CORE, cache_dir=tmp_path, settings=SETTINGS)
+    assert not builds
+    np.testing.assert_array_equal(again.energies, rebuilt.energies)

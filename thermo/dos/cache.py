@@ -19,6 +19,8 @@ import hashlib
 import json
 import os
 import tempfile
+import warnings
+import zipfile
 from pathlib import Path
 from typing import Any
 
@@ -82,9 +84,29 @@ def save(dos: DensityOfStates, path: Any, key: tuple) -> None:
             os.remove(tmp)
 
 
+class CacheWarning(UserWarning):
+    """A cached density of states was damaged and is being rebuilt; the message names the file."""
+
+
 def load(path: Any) -> tuple[DensityOfStates, dict]:
-    """Read a DensityOfStates written by :func:`save`; returns (dos, metadata)."""
-    with np.load(Path(path), allow_pickle=False) as z:
+    """Read a DensityOfStates written by :func:`save`; returns (dos, metadata).
+
+    Raises
+    ------
+    SamplerError
+        Naming the file, when it is of another format version, truncated or otherwise damaged.
+    """
+    try:
+        return _read(Path(path))
+    except SamplerError:
+        raise
+    except (OSError, EOFError, ValueError, KeyError, zipfile.BadZipFile) as exc:
+        raise SamplerError(f"{path}: damaged density-of-states cache entry ({type(exc).__name__}: "
+                           f"{exc}); it is rebuilt by the next estimate, or delete it") from None
+
+
+def _read(path: Path) -> tuple[DensityOfStates, dict]:
+    with np.load(path, allow_pickle=False) as z:
         meta = json.loads(str(z["meta"]))
         if meta.get("format_version") != FORMAT_VERSION:
             raise SamplerError(f"{path}: DOS cache format {meta.get('format_version')} != "
@@ -144,9 +166,10 @@ def load_or_build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
                 and _settings_cover(hit[2].settings, settings):
             return hit[2]
         try:
-            dos, meta = load(path)
-        except (OSError, ValueError, KeyError) as exc:  # unreadable file: rebuild it
-            dos, meta = None, {"error": str(exc)}
+            dos, _ = load(path)
+        except SamplerError as exc:     # damaged entry: say so, rebuild it in place
+            warnings.warn(CacheWarning(f"{exc}; rebuilding it now"), stacklevel=2)
+            dos = None
         if dos is not None and _settings_cover(dos.settings, settings):
             if not dos.has_tables():     # written before tables existed: add them once
                 _ = dos.tables

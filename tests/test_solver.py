@@ -198,3 +198,47 @@ def test_observables_of_analytic_oscillator_states():
     assert obs["e_kin"] == pytest.approx(1.0, rel=1e-10)
     assert obs["e_beam"] == pytest.approx(0.5, rel=1e-10)
     assert obs["e_int"] == pytest.approx(1.5 * np.sum(np.abs(vortex) ** 4) * GRID.cell_area)
+
+
+_RUN_IN_FRESH_PROCESS = r"""
+import sys
+import numpy as np
+from gpe.field.grid import Grid
+from gpe.field.solver import Solver, SolverSettings
+grid = Grid(96, 96, 48.0, 48.0)
+r2 = grid.X ** 2 + grid.Y ** 2
+v = np.where(r2 < 20.0 ** 2, 0.0, 5.0)
+# a vortex dipole in a disk: chaotic enough that any difference in the last bit grows
+psi = np.sqrt(np.clip(1.0 - v, 0.0, None)) * np.exp(
+    1j * (np.arctan2(grid.Y, grid.X - 4.0) - np.arctan2(grid.Y, grid.X + 4.0))) + 0j
+settings = SolverSettings(dt=0.02, gamma=0.003, threads=2, fft="pyfftw", fft_planning=sys.argv[2])
+solver = Solver(grid, v, None, settings, psi)
+for _ in range(300):
+    solver.step()
+np.save(sys.argv[1], solver.psi)
+"""
+
+
+def test_reproducible_planning_is_bitwise_equal_across_processes(tmp_path):
+    """Two processes, each with its own empty FFTW plan cache, evolve the same field to the
+    same bits in the reproducible planning mode (estimate-mode plans, no wisdom)."""
+    import os
+    import subprocess
+    import sys
+
+    pytest.importorskip("pyfftw")
+    outs = []
+    for k in range(2):
+        env = dict(os.environ, XDG_CACHE_HOME=str(tmp_path / f"cache{k}"))
+        out = tmp_path / f"psi{k}.npy"
+        subprocess.run([sys.executable, "-c", _RUN_IN_FRESH_PROCESS, str(out), "reproducible"],
+                       env=env, check=True, timeout=300)
+        outs.append(np.load(out))
+    assert np.isfinite(outs[0]).all() and np.abs(outs[0]).max() > 0.5
+    assert np.array_equal(outs[0], outs[1])
+    assert not list((tmp_path / "cache0").rglob("fftw-wisdom*"))  # no wisdom read or written
+
+
+def test_unknown_fft_planning_is_refused_by_name():
+    with pytest.raises(VorthermError, match='"reproducible", "measured"'):
+        SolverSettings(dt=0.01, fft_planning="fastest")

@@ -294,6 +294,23 @@ def pyfftw_available() -> bool:
     return True
 
 
+#: FFT planning modes. "reproducible": FFTW_ESTIMATE plans, chosen by FFTW's rules alone (no
+#: timing, no wisdom file), so two processes with the same shape, precision and thread count
+#: transform identically and a run resumed elsewhere continues bit for bit. "measured":
+#: FFTW_MEASURE plans timed on this machine and kept as wisdom: often faster, but the plan (and
+#: so the last bits of every transform) may differ between processes and machines.
+PLANNING = {"reproducible": {"planner": "FFTW_ESTIMATE", "wisdom": False},
+            "measured": {"planner": "FFTW_MEASURE", "wisdom": True}}
+
+
+def planning_options(planning: str) -> dict:
+    """The pyFFTW options of a planning mode (see :data:`PLANNING`)."""
+    if planning not in PLANNING:
+        raise VorthermError(f"FFT planning {planning!r}; accepted: "
+                            + ", ".join(f'"{k}"' for k in PLANNING))
+    return dict(PLANNING[planning])
+
+
 def make_fft(
     shape: tuple[int, int],
     dtype=np.complex128,

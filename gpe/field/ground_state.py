@@ -23,7 +23,7 @@ from numba import njit
 
 from gpe.field import kernels
 from gpe.errors import SimulationError, VorthermError
-from gpe.field.fft import auto_threads, make_fft
+from gpe.field.fft import auto_threads, make_fft, planning_options
 from gpe.field.grid import Grid
 from gpe.field.solver import BeamRows, SolverSettings, observables
 
@@ -80,6 +80,7 @@ def find_ground_state(
     noise: float = 0.0, rng: np.random.Generator | None = None,
     vortices: tuple[np.ndarray, np.ndarray] | None = None, core_size: float = 1.0,
     precision: str = "complex128", threads: int | None = None, fft: str = "auto",
+    fft_planning: str = "measured",
 ) -> GroundState:
     r"""Ground state by imaginary-time split-step (normalised gradient flow).
 
@@ -126,7 +127,8 @@ def find_ground_state(
     if not (dt > 0 and check_every >= 1 and max_steps >= 1 and tol > 0):
         raise VorthermError("find_ground_state: need dt > 0, tol > 0, check_every >= 1, "
                             "max_steps >= 1")
-    dtype = SolverSettings(dt=dt, precision=precision, threads=threads, fft=fft).dtype
+    dtype = SolverSettings(dt=dt, precision=precision, threads=threads, fft=fft,
+                           fft_planning=fft_planning).dtype
     v_trap = np.array(static_potential, dtype=np.float64, order="C")
     rows = BeamRows(None if isinstance(beams, np.ndarray) else beams, grid)
     rows.update(0.0)
@@ -147,7 +149,7 @@ def find_ground_state(
         phase_factor, hold = _vortex_holds(grid, vortices[0], vortices[1], core_size, dtype)
 
     threads = auto_threads(grid.shape) if threads is None else int(threads)
-    fftb = make_fft(grid.shape, dtype, fft, threads)
+    fftb = make_fft(grid.shape, dtype, fft, threads, **planning_options(fft_planning))
     psi = fftb.empty()
     psi[...] = guess
     shift = 0.0 if mu is None else float(mu)

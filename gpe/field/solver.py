@@ -32,7 +32,7 @@ import numpy as np
 
 from gpe.field import kernels
 from gpe.errors import SimulationError, VorthermError
-from gpe.field.fft import auto_threads, make_fft
+from gpe.field.fft import auto_threads, make_fft, planning_options
 from gpe.field.grid import Grid
 
 _PRECISIONS = {"complex128": np.complex128, "complex64": np.complex64}
@@ -57,6 +57,10 @@ class SolverSettings:
         Threads of the FFTs and compiled kernels; None = all available cores for grids of at
         least 2 x 65536 points, one thread for smaller grids (:func:`gpe.field.fft.auto_threads`).
     fft : {"auto", "pyfftw", "scipy"}
+    fft_planning : {"reproducible", "measured"}
+        How pyFFTW plans are chosen (:data:`gpe.field.fft.PLANNING`): "reproducible" gives
+        bit-identical transforms in every process with the same thread count; "measured" may be
+        faster but differs between processes and machines.
 
     Units: dt in hbar/mu; mu in mu; g in mu / n0.
     """
@@ -68,6 +72,7 @@ class SolverSettings:
     precision: str = "complex128"
     threads: int | None = None
     fft: str = "auto"
+    fft_planning: str = "measured"
 
     def __post_init__(self) -> None:
         if not math.isfinite(self.dt) or self.dt == 0:
@@ -77,6 +82,7 @@ class SolverSettings:
         if self.dt < 0 and self.gamma > 0:
             raise VorthermError("SolverSettings.dt < 0 (backward in time) needs gamma = 0: "
                                 "damped evolution cannot be run backwards")
+        planning_options(self.fft_planning)   # refuses an unknown mode by name
         for name in ("mu", "g"):
             if not math.isfinite(getattr(self, name)):
                 raise VorthermError(f"SolverSettings.{name} must be finite")
@@ -170,7 +176,8 @@ class Solver:
         self._beams = BeamRows(beams, grid)
         self._threads = (auto_threads(grid.shape) if settings.threads is None
                          else int(settings.threads))
-        self._fft = make_fft(grid.shape, settings.dtype, settings.fft, self._threads)
+        self._fft = make_fft(grid.shape, settings.dtype, settings.fft, self._threads,
+                             **planning_options(settings.fft_planning))
         self.psi = self._fft.empty()
         self.psi[...] = psi0
         self.step_count = operator.index(step0)

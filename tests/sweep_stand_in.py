@@ -8,6 +8,9 @@ with the real pipeline.
 
 from __future__ import annotations
 
+import hashlib
+import os
+import time
 from pathlib import Path
 
 from gpe.errors import ProtocolError
@@ -76,6 +79,24 @@ def write_sweep_file(folder: Path) -> Path:
     return path
 
 
+def stand_in_fingerprint(base: str, overrides: tuple) -> dict:
+    """The stand-in base is not a protocol: its text and the overrides are the fingerprint."""
+    text = Path(base).read_text()
+    settings = dict(line.split("=", 1) for line in text.splitlines() if "=" in line)
+    return {"digest": hashlib.sha256((text + repr(overrides)).encode()).hexdigest(),
+            "settings": {k.strip(): v.strip() for k, v in settings.items()}}
+
+
+def sleeping_point(task: PointTask) -> dict:
+    """Record this worker's pid, then compute for a long time (for kill tests)."""
+    run = Path(task.run_path)
+    (run.parent / f"{task.point_id}.pid").write_text(str(os.getpid()))
+    time.sleep(120)
+    return {"beta": 0.0, "n_plus": 0.0, "dipole_fraction": 0.0}
+
+
 def run_stand_in(sweep_file: Path, out: Path, **kw) -> SweepResult:
     sweep = load_sweep(sweep_file, check_protocol=False)
-    return run_sweep(sweep, out, point_fn=stand_in_point, is_complete=stand_in_is_complete, **kw)
+    kw.setdefault("fingerprint", stand_in_fingerprint)
+    kw.setdefault("point_fn", stand_in_point)
+    return run_sweep(sweep, out, is_complete=stand_in_is_complete, **kw)

@@ -255,3 +255,97 @@ def test_real_pipeline_local_and_dask_give_the_same_table(tmp_path, monkeypatch)
         b = (tmp_path / "dask" / name).read_text().splitlines()
         assert a[0] == b[0]
         assert a[1:] == b[1:]
+
+
+# -- integrity: edited protocols, killed coordinators ------------------------------------------
+def test_a_rerun_after_the_base_protocol_changed_is_refused_by_name(sweep_file, tmp_path):
+    """Resuming after the base was edited would join two protocols in one folder: refused,
+    naming the changed key; --restart-changed moves the old files aside (nothing deleted)."""
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "interrupt_p001_s0").touch()
+    first = run_stand_in(sweep_file, out, executor=cf.ThreadPoolExecutor(1))
+    assert first.interrupted
+    (tmp_path / "base.toml").write_text("damping = 0.03\n")
+    with pytest.raises(SweepError, match="another protocol") as err:
+        run_stand_in(sweep_file, out, executor=cf.ThreadPoolExecutor(1))
+    assert "damping" in str(err.value) and "--restart-changed" in str(err.value)
+    done_before = sorted(p.name for p in (out / "points").glob("*.json"))
+    assert done_before                  # the refused rerun touched nothing
+    (out / "interrupt_p001_s0").unlink()
+    again = run_stand_in(sweep_file, out, executor=cf.ThreadPoolExecutor(1), restart_changed=True)
+    assert again.complete
+    aside = list((out / "superseded").glob("*/*.json"))
+    assert sorted(p.name for p in aside) == done_before
+    # every point was recomputed with the new base: none was skipped as already done
+    assert all(calls(out, r["point_id"]) for r in again.runs)
+
+
+def test_an_unchanged_rerun_is_not_refused(sweep_file, tmp_path):
+    run_stand_in(sweep_file, tmp_path / "out", executor=cf.ThreadPoolExecutor(2))
+    again = run_stand_in(sweep_file, tmp_path / "out", executor=cf.ThreadPoolExecutor(2))
+    assert again.complete and not (tmp_path / "out" / "superseded").exists()
+
+
+_COORDINATOR = r"""
+import sys
+from pathlib import Path
+sys.path.insert(0, sys.argv[3])
+from sweep_stand_in import run_stand_in, sleeping_point
+run_stand_in(Path(sys.argv[1]), Path(sys.argv[2]), workers=2, threads=1, point_fn=sleeping_point)
+"""
+
+
+def _start_coordinator(sweep_file, out):
+    import subprocess
+    import sys
+    import time
+
+    proc = subprocess.Popen([sys.executable, "-c", _COORDINATOR, str(sweep_file), str(out),
+                             str(Path(__file__).parent)])
+    deadline = time.monotonic() + 120
+    while len(list((out / "runs").glob("*.pid"))) < 2:
+        assert proc.poll() is None, "the coordinator died before its workers started"
+        assert time.monotonic() < deadline, "workers did not start"
+        time.sleep(0.2)
+    pids = [int(p.read_text()) for p in (out / "runs").glob("*.pid")]
+    return proc, pids
+
+
+def _alive(pid: int) -> bool:
+    import os
+
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    with open(f"/proc/{pid}/stat") as fh:       # a zombie is dead
+        return fh.read().split(")")[-1].split()[0] != "Z"
+
+
+@pytest.mark.slow
+def test_workers_die_with_a_killed_coordinator(sweep_file, tmp_path):
+    import signal
+    import time
+
+    proc, pids = _start_coordinator(sweep_file, tmp_path / "out")
+    proc.send_signal(signal.SIGKILL)
+    proc.wait(timeout=30)
+    deadline = time.monotonic() + 20
+    while any(_alive(p) for p in pids) and time.monotonic() < deadline:
+        time.sleep(0.2)
+    assert not any(_alive(p) for p in pids)
+
+
+@pytest.mark.slow
+def test_sigterm_is_handled_like_ctrl_c(sweep_file, tmp_path):
+    """SIGTERM stops the running points and still writes the state and the summary."""
+    import signal
+
+    proc, pids = _start_coordinator(sweep_file, tmp_path / "out")
+    proc.send_signal(signal.SIGTERM)
+    assert proc.wait(timeout=60) == 0
+    out = tmp_path / "out"
+    assert (out / "summary_runs.csv").exists() and (out / "state.json").exists()
+    assert json.loads((out / "state.json").read_text())["interrupted"] is True
+    assert not any(_alive(p) for p in pids)

@@ -102,6 +102,10 @@ def _register_sweep(sub) -> None:
     p.add_argument("--scheduler", metavar="ADDRESS", help="Dask scheduler address, e.g. tcp://head:8786")
     p.add_argument("--workers", type=int, help="local worker processes (default: cores / threads)")
     p.add_argument("--threads", type=int, help="FFT threads per point")
+    p.add_argument("--restart-changed", action="store_true",
+                   help="when the base protocol (or a file it reads) changed since the output folder "
+                        "was started: move the changed points' files to OUTPUT/superseded/ and compute "
+                        "them again (without it such a rerun is refused)")
     p.set_defaults(handler=_cmd_sweep)
 
 
@@ -123,7 +127,8 @@ def _cmd_sweep(args) -> int:
                           extra=f"running {p.running} failed {p.failed} skipped {p.skipped} {eta}")
 
     result = sw.run_sweep(spec, out_dir, scheduler=args.scheduler, workers=args.workers,
-                          threads=args.threads, progress=progress)
+                          threads=args.threads, progress=progress,
+                          restart_changed=args.restart_changed)
     if "bar" in bar:
         bar["bar"].close()
     print(f"summary tables: {', '.join(str(v) for v in result.files.values())}")

@@ -15,9 +15,12 @@ protocol's time unit; beta in 1/E0 with E0 = rho kappa^2 / (4 pi); energies per 
 from __future__ import annotations
 
 import concurrent.futures as cf
+import contextlib
 import json
 import multiprocessing
 import os
+import signal
+import threading
 import time
 import traceback
 from dataclasses import asdict, dataclass
@@ -26,8 +29,8 @@ from typing import Any, Callable, Mapping
 
 from gpe.errors import VorthermError
 from gpe.sweep.file import Measure, Point, Sweep, SweepError
+from gpe.sweep.manifest import prepare_output, protocol_fingerprint
 from gpe.sweep.table import (
-    SUMMARY_FORMAT_VERSION,
     SweepResult,
     read_json,
     summarise,
@@ -77,8 +80,11 @@ def run_point(task: PointTask) -> dict:
 
     protocol = load_protocol(task.base, task.overrides)  # an invalid point fails here, cheaply
     run_path = Path(task.run_path)
-    if not reading.is_complete(run_path):
-        simulate.simulate(protocol, run_path, resume=run_path.exists(), threads=task.threads)
+    if run_path.exists() and not reading.is_complete(run_path):
+        # an interrupted run continues with the protocol stored in its own file
+        simulate.simulate_resume(run_path, threads=task.threads)
+    elif not run_path.exists():
+        simulate.simulate(protocol, run_path, threads=task.threads)
     scale = _time_to_simulation(protocol, task.measure.time_unit)
     m = task.measure
     at_time = None if m.at_time is None else m.at_time * scale
@@ -160,17 +166,31 @@ def plan_local(cores: int, workers: int | None = None, threads: int | None = Non
     return workers, threads
 
 
-def _init_worker(threads: int) -> None:
+def _init_worker(threads: int, coordinator_pid: int) -> None:
     # Set before numpy/numba/pyfftw are imported in this fresh (spawned) process.
     for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS",
                 "NUMBA_NUM_THREADS"):
         os.environ[var] = str(threads)
+    threading.Thread(target=_exit_with_coordinator, args=(coordinator_pid,), daemon=True,
+                     name="vortherm-coordinator-watch").start()
+
+
+def _exit_with_coordinator(coordinator_pid: int, every_s: float = 0.5) -> None:
+    """End this worker as soon as the coordinator is gone (killed by SIGKILL, say).
+
+    A worker whose coordinator died would compute on and then block forever holding its run
+    file; its checkpoint is already on disk, so the next sweep resumes the point.
+    """
+    while True:
+        time.sleep(every_s)
+        if os.getppid() != coordinator_pid:
+            os._exit(3)
 
 
 def local_executor(workers: int, threads: int) -> cf.ProcessPoolExecutor:
     """A process pool of ``workers`` spawned processes, each limited to ``threads`` threads."""
     return cf.ProcessPoolExecutor(max_workers=workers, mp_context=multiprocessing.get_context(
-        "spawn"), initializer=_init_worker, initargs=(threads,))
+        "spawn"), initializer=_init_worker, initargs=(threads, os.getpid()))
 
 
 def connect_scheduler(address: str) -> Any:
@@ -215,26 +235,12 @@ class Progress:
     eta_s: float | None
 
 
-def _prepare(sweep: Sweep, out_dir: Path) -> list[Point]:
-    """Create the output folder; refuse one that belongs to a different sweep."""
-    points = sweep.points()
-    (out_dir / "runs").mkdir(parents=True, exist_ok=True)
-    (out_dir / "points").mkdir(exist_ok=True)
-    manifest = out_dir / "manifest.json"
-    old = read_json(manifest) if manifest.exists() else None
-    new = {"format_version": SUMMARY_FORMAT_VERSION, "sweep_file": sweep.source,
-           "base": str(sweep.base), "points": {p.point_id: list(p.overrides) for p in points}}
-    if old is not None:
-        for pid, overrides in old.get("points", {}).items():
-            if pid in new["points"] and new["points"][pid] != overrides:
-                raise SweepError(
-                    f"output folder '{out_dir}' belongs to a different sweep: point {pid} was "
-                    f"{overrides}, now {new['points'][pid]}; choose a new output folder (finished "
-                    f"runs are never overwritten)")
-        new["points"] = {**old.get("points", {}), **new["points"]}
-    write_json(manifest, new)
-    (out_dir / "sweep.toml").write_text(sweep.text, encoding="utf-8")
-    return points
+class _Terminated(KeyboardInterrupt):
+    """SIGTERM, handled like Ctrl-C: the state and the summary are written before leaving."""
+
+
+def _raise_terminated(signum, frame) -> None:
+    raise _Terminated()
 
 
 def _default_is_complete(path: Path) -> bool:
@@ -247,7 +253,9 @@ def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
               scheduler: str | None = None, workers: int | None = None,
               threads: int | None = None, point_fn: Callable[[PointTask], Mapping] = run_point,
               is_complete: Callable[[Path], bool] | None = None,
-              progress: Callable[[Progress], None] | None = None) -> SweepResult:
+              progress: Callable[[Progress], None] | None = None,
+              fingerprint: Callable[[str, tuple], dict] = protocol_fingerprint,
+              restart_changed: bool = False) -> SweepResult:
     """Run (or resume) every point of ``sweep`` and write the summary tables into ``out_dir``.
 
     Parameters
@@ -260,6 +268,9 @@ def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
         quantities; :func:`run_point` runs the full pipeline.
     is_complete : verifies a finished run file; default ``gpe.run.reading.is_complete``.
     progress : called with a :class:`Progress` after each point and about once a second.
+    fingerprint : ``(base, overrides) -> {"digest", "settings"}`` of a point's protocol
+        (default :func:`protocol_fingerprint`); a rerun whose digests differ is refused.
+    restart_changed : move the changed points' files aside and compute them again instead.
 
     Returns
     -------
@@ -267,7 +278,7 @@ def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
     state kept; rerun to continue).
     """
     out_dir = Path(out_dir)
-    points = _prepare(sweep, out_dir)
+    points = prepare_output(sweep, out_dir, fingerprint, restart_changed)
     stop_path = out_dir / "STOP"
     stop_path.unlink(missing_ok=True)
     global _WORKER_INTERRUPTED
@@ -334,6 +345,9 @@ def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
         records[point.point_id] = _save_record(out_dir, point, sweep, outcome)
         n_done_here += 1
 
+    previous_term = None
+    if threading.current_thread() is threading.main_thread():
+        previous_term = signal.signal(signal.SIGTERM, _raise_terminated)
     try:
         for p in todo:
             task = PointTask(p.point_id, str(sweep.base), p.overrides,
@@ -347,14 +361,22 @@ def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
             for fut in sorted(finished, key=lambda f: futures[f].point_id):
                 finish(fut, futures[fut])
             report(force=bool(finished))
-    except KeyboardInterrupt:
+    except KeyboardInterrupt as exc:
         interrupted = True
         # Tasks already handed to a worker cannot be cancelled; the stop file tells them not to
         # start, so the pool shuts down as soon as the running points are interrupted.
         stop_path.touch()
+        if isinstance(exc, _Terminated) and own is not None:
+            # Ctrl-C reaches the whole process group; SIGTERM only us: pass it on as an
+            # interrupt, so running points stop at once with their checkpoints on disk
+            for proc in list(getattr(own, "_processes", {}).values()):
+                with contextlib.suppress(ProcessLookupError):
+                    os.kill(proc.pid, signal.SIGINT)
         for fut in futures:
             fut.cancel()
     finally:
+        if previous_term is not None:
+            signal.signal(signal.SIGTERM, previous_term)
         if own is not None:
             own.shutdown(wait=True, cancel_futures=True)
         if client is not None:

@@ -6,13 +6,16 @@ import numpy as np
 import pytest
 
 from gpe.errors import VorthermError
-from gpe.field.traps import TrapConfig
+from gpe.field.traps.annulus import AnnulusTrap
+from gpe.field.traps.box import BoxTrap
+from gpe.field.traps.disk import DiskTrap
+from gpe.field.traps.harmonic import HarmonicTrap
 from gpe.run.gas import CORE_RADIUS_XI, WALL_LAYER_XI, domain_for_trap, gas_configuration
 from gpe.run.thermometry import onset_verdict
 
 
 def test_disk_trap_maps_to_unit_disk_shrunk_by_the_wall_layer():
-    vd = domain_for_trap(TrapConfig(shape="disk", radius=50.0, wall_height=5.0))
+    vd = domain_for_trap(DiskTrap(radius=50.0, wall_height=5.0))
     assert vd.domain.kind == "disk"
     assert vd.scale == pytest.approx(50.0 - WALL_LAYER_XI)
     assert vd.core_radius == pytest.approx(CORE_RADIUS_XI / (50.0 - WALL_LAYER_XI))
@@ -22,7 +25,7 @@ def test_disk_trap_maps_to_unit_disk_shrunk_by_the_wall_layer():
 
 
 def test_box_trap_keeps_its_aspect_ratio():
-    vd = domain_for_trap(TrapConfig(shape="box", length_x=82.0, length_y=42.0, wall_height=5.0))
+    vd = domain_for_trap(BoxTrap(length_x=82.0, length_y=42.0, wall_height=5.0))
     assert vd.domain.kind == "box"
     assert vd.domain.aspect == pytest.approx(80.0 / 40.0)
     assert vd.scale == pytest.approx(40.0)
@@ -30,18 +33,18 @@ def test_box_trap_keeps_its_aspect_ratio():
 
 def test_harmonic_trap_is_flagged_as_approximation():
     # Thomas-Fermi radius at mu = 1: V(R) = omega^2 R^2 / 2 = 1 -> R = sqrt(2)/omega [exact]
-    vd = domain_for_trap(TrapConfig(shape="harmonic", omega_x=0.05, omega_y=0.05))
+    vd = domain_for_trap(HarmonicTrap(omega_x=0.05, omega_y=0.05))
     assert vd.scale == pytest.approx(math.sqrt(2) / 0.05)
     assert "approximation" in vd.approximate
 
 
 def test_annulus_has_no_point_vortex_domain():
     with pytest.raises(VorthermError, match="annulus"):
-        domain_for_trap(TrapConfig(shape="annulus", inner_radius=5, outer_radius=20, wall_height=5))
+        domain_for_trap(AnnulusTrap(inner_radius=5, outer_radius=20, wall_height=5))
 
 
 def test_wall_layer_vortices_and_close_pairs_are_left_out_and_counted():
-    vd = domain_for_trap(TrapConfig(shape="disk", radius=41.0, wall_height=5.0))  # scale 40 xi
+    vd = domain_for_trap(DiskTrap(radius=41.0, wall_height=5.0))  # scale 40 xi
     x = np.array([0.0, 10.0, 10.6, 39.9, -20.0])
     y = np.array([0.0, 0.0, 0.0, 0.0, 5.0])
     s = np.array([1, 1, -1, -1, -1])

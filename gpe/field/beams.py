@@ -3,8 +3,8 @@
 A beam is ``V0 exp(-2 r^2 / w^2)`` (``w`` the 1/e^2 intensity waist) with sin^2 switch-on/off
 ramps, moving on a path (static, line, circle, polyline); a rigid array of beams moves with its
 path point. :class:`BeamSet` expands every array into single beams and fills the solver's
-preallocated amplitude and centre arrays in place at each step. These names are re-exported by
-gpe/field/traps.py, so ``from gpe.field.traps import BeamSet`` keeps working.
+preallocated amplitude and centre arrays in place at each step. The static traps live in the
+gpe.field.traps package.
 
 Units: lengths in xi, times in hbar/mu, energies in mu, speeds in c, angles in rad.
 """

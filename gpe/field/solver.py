@@ -105,7 +105,7 @@ class BeamRows:
     """Moving Gaussian beams as separable 1D rows, refreshed per step without allocation.
 
     ``beams`` is anything with ``n_beams``, ``waists`` and ``evaluate(t, amp, cx, cy)`` (see
-    gpe.field.traps.BeamSet), or None.  Units: amp in mu; centres, waists in xi; t in hbar/mu.
+    gpe.field.beams.BeamSet), or None.  Units: amp in mu; centres, waists in xi; t in hbar/mu.
     """
 
     def __init__(self, beams, grid: Grid) -> None:

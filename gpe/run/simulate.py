@@ -44,11 +44,8 @@ class RunProgress:
 
 
 def detection_region(protocol, v_static: np.ndarray) -> np.ndarray:
-    """Where vortices may be reported: inside the trap walls (or below mu for a harmonic trap)."""
-    trap = protocol.trap
-    if trap.shape == "harmonic":
-        return v_static < 0.9
-    return v_static < 0.5 * trap.wall_height
+    """Where vortices may be reported, as the protocol's trap decides from its potential (mu)."""
+    return protocol.trap.detection_region(v_static)
 
 
 def _detect(psi: np.ndarray, grid, region: np.ndarray, frame: int, t: float) -> np.ndarray:

@@ -24,15 +24,13 @@ from typing import Any, Sequence
 import numpy as np
 import scipy.constants as const
 
-from gpe.field.beams import (Beam, BeamSet, CirclePath, LinePath, PolylinePath, Ramp, StaticPath, array_offsets,
-                       find_beam_excursion)
 from gpe.errors import ProtocolError, VorthermError
+from gpe.field.beams import (Beam, BeamSet, CirclePath, LinePath, PolylinePath, Ramp, StaticPath, array_offsets,
+                             find_beam_excursion)
 from gpe.field.grid import Grid
-from gpe.field.traps import TrapConfig, build_trap, load_mask
-from gpe.setup.schema import (_apply_overrides,
-                                 _Context, _describe, _describe_value, _Section)
-from gpe.setup.units import (BOHR_RADIUS_M, HealingUnits, get_species, quasi2d_coupling, tf_mu_flat,
-                       tf_mu_harmonic, tf_number_flat, tf_number_harmonic)
+from gpe.field.traps.base import Trap, trap_shapes
+from gpe.setup.schema import _apply_overrides, _Context, _describe, _describe_value, _Section
+from gpe.setup.units import BOHR_RADIUS_M, HealingUnits, get_species, quasi2d_coupling
 
 
 class ProtocolWarning(UserWarning):
@@ -117,7 +115,7 @@ class Protocol:
     unit_system: str
     units: HealingUnits
     atoms: AtomsConfig
-    trap: TrapConfig
+    trap: Trap
     grid: Grid
     ground_state: GroundStateConfig
     evolution: EvolutionConfig
@@ -133,12 +131,12 @@ class Protocol:
         return self.units.time_to_ms(t) if self.unit_system == "SI" else t
 
     def build_beams(self) -> BeamSet:
-        """The protocol's beams as a :class:`~gpe.field.traps.BeamSet` (may be empty)."""
+        """The protocol's beams as a :class:`~gpe.field.beams.BeamSet` (may be empty)."""
         return BeamSet(self.beams)
 
     def build_trap(self) -> np.ndarray:
         """Static trap on the grid, ``(ny, nx)``. Units: mu."""
-        return build_trap(self.trap, self.grid)
+        return self.trap.potential(self.grid)
 
     def to_dict(self) -> dict:
         """Fully resolved protocol: every dimensioned value in simulation units and in SI."""
@@ -150,7 +148,7 @@ class Protocol:
             "format": "vortherm-protocol/1", "name": self.name, "description": self.description,
             "source_name": self.source_name, "unit_system": self.unit_system,
             "overrides": list(self.overrides), "units": u.as_dict(),
-            "atoms": dataclasses.asdict(self.atoms), "trap": _describe(self.trap, u),
+            "atoms": dataclasses.asdict(self.atoms), "trap": {"shape": self.trap.shape, **_describe(self.trap, u)},
             "grid": {"nx": g.nx, "ny": g.ny, **_describe_value("length_x", g.length_x, "length", u),
                      **_describe_value("length_y", g.length_y, "length", u),
                      **_describe_value("dx", g.dx, "length", u), **_describe_value("dy", g.dy, "length", u)},
@@ -167,53 +165,12 @@ class Protocol:
 # ------------------------------------------------------------------------------------------
 # resolution: atoms and units, trap, grid, settings, beams
 # ------------------------------------------------------------------------------------------
-def _si_measure(sec: _Section, base: str) -> float:
-    """A trap size or frequency in SI (m, rad/s); healing-unit spellings are refused here."""
-    value, suffix = sec.raw(base)
-    if suffix not in ("um", "hz", "rad_per_ms"):
-        si_names = [n for n in sec.ctx.names(base, sec.specs[base]) if not n.endswith(("xi", "rad_per_tau"))]
-        sec.fail(base, "with atoms.number the trap must be given in SI units (a size in healing "
-                 "lengths depends on mu, which the atom number is meant to fix)", ", ".join(si_names))
-    return value * {"um": 1e-6, "hz": 2 * math.pi, "rad_per_ms": 1e3}[suffix]
+def _resolve_atoms(ctx: _Context, sec: _Section, trap: _Section, shape: type[Trap],
+                   base_dir: Path) -> tuple[Any, float, float, float, float]:
+    """Species, coupling and mu (J), the trap ``shape`` giving mu for an atom number in SI.
 
-
-def _pair(sec: _Section, both: str, x: str, y: str, si: bool = False):
-    """(x, y) from ``both`` or from ``x`` and ``y`` (e.g. size / size_x, size_y)."""
-    read = (lambda b: _si_measure(sec, b)) if si else sec.get
-    if sec.has(both):
-        if sec.has(x) or sec.has(y):
-            sec.fail(x if sec.has(x) else y, f"give either {sec.key(both)} or {x}/{y}, not both",
-                     f"{sec.key(both)}, or {sec.key(x)} with {sec.key(y)}")
-        return read(both), read(both)
-    for name in (x, y):
-        if not sec.has(name):
-            sec.fail(name, "missing required value", f"{sec.key(both)}, or {sec.key(x)} with {sec.key(y)}")
-    return read(x), read(y)
-
-
-def _mask_path(sec: _Section, base_dir: Path) -> Path:
-    path = Path(sec.get("file")).expanduser()
-    return path if path.is_absolute() else (base_dir / path)
-
-
-def _mask_pixels(sec: _Section, base_dir: Path) -> int:
-    try:
-        return int(load_mask(_mask_path(sec, base_dir), sec.get("invert")).sum())
-    except ProtocolError as exc:
-        sec.fail("file", str(exc).rstrip("."), "a path relative to the protocol file, of a PNG/BMP/TIFF "
-                 "image (allowed region bright) or a .npy 2D array")
-    raise AssertionError("unreachable")
-
-
-def _flat_area(trap: TrapConfig, pixels: int) -> float:
-    """Area of a flat-bottomed trap. Units: xi^2."""
-    return {"disk": math.pi * trap.radius**2, "box": trap.length_x * trap.length_y,
-            "annulus": math.pi * (trap.outer_radius**2 - trap.inner_radius**2),
-            "mask": pixels * trap.mask_pixel_size**2}[trap.shape]
-
-
-def _resolve_atoms(ctx: _Context, sec: _Section, trap: _Section, base_dir: Path) -> tuple[float, float, float, float, Any]:
-    """Species, coupling and mu (J). Returns (mass, a_s, omega_z, g2d, mu) and sets ctx.units."""
+    Returns (species, a_s, omega_z, g2d, mu) and sets ctx.units. Units: SI.
+    """
     try:
         species = get_species(sec.get("species"))
     except VorthermError as exc:
@@ -233,50 +190,13 @@ def _resolve_atoms(ctx: _Context, sec: _Section, trap: _Section, base_dir: Path)
     which = sec.one_of("number", "chemical_potential")
     if which == "chemical_potential":
         mu = sec.get("chemical_potential")
-    elif trap.get("shape") == "harmonic":
-        wx, wy = _pair(trap, "frequency", "frequency_x", "frequency_y", si=True)
-        mu = tf_mu_harmonic(g2d, sec.get("number"), species.mass_kg, wx, wy)
     else:
-        shape = trap.get("shape")
-        if shape == "disk":
-            area = math.pi * _si_measure(trap, "radius") ** 2
-        elif shape == "annulus":
-            area = math.pi * (_si_measure(trap, "outer_radius") ** 2 - _si_measure(trap, "inner_radius") ** 2)
-        elif shape == "box":
-            lx, ly = _pair(trap, "size", "size_x", "size_y", si=True)
-            area = lx * ly
-        else:
-            area = _mask_pixels(trap, base_dir) * _si_measure(trap, "pixel_size") ** 2
-        if area <= 0:
-            trap.fail("inner_radius", "must be smaller than outer_radius", "0 < inner_radius < outer_radius")
-        mu = tf_mu_flat(g2d, sec.get("number"), area)
+        mu = shape.chemical_potential_si(trap, base_dir, sec.get("number"), g2d, species.mass_kg)
     ctx.units = HealingUnits(species.mass_kg, mu, g2d)
     return species, a_s, omega_z, g2d, mu
 
 
-def _resolve_trap(sec: _Section, base_dir: Path) -> TrapConfig:
-    shape = sec.get("shape")
-    kw: dict[str, Any] = {"shape": shape, "wall_height": sec.get("wall_height", None if shape == "harmonic" else 5.0)}
-    if shape == "harmonic":
-        kw["omega_x"], kw["omega_y"] = _pair(sec, "frequency", "frequency_x", "frequency_y")
-        return TrapConfig(**kw)
-    kw["edge_width"] = sec.get("edge_width")
-    if shape == "disk":
-        kw["radius"] = sec.get("radius")
-    elif shape == "annulus":
-        kw["inner_radius"], kw["outer_radius"] = sec.get("inner_radius"), sec.get("outer_radius")
-        if kw["inner_radius"] >= kw["outer_radius"]:
-            sec.fail("inner_radius", "must be smaller than outer_radius", "0 < inner_radius < outer_radius")
-    elif shape == "box":
-        kw["length_x"], kw["length_y"] = _pair(sec, "size", "size_x", "size_y")
-    else:
-        _mask_pixels(sec, base_dir)
-        kw.update(mask_file=str(_mask_path(sec, base_dir).resolve()), mask_pixel_size=sec.get("pixel_size"),
-                  mask_invert=sec.get("invert"))
-    return TrapConfig(**kw)
-
-
-def _resolve_grid(sec: _Section, trap: TrapConfig) -> Grid:
+def _resolve_grid(sec: _Section, trap: Trap) -> Grid:
     nx = sec.get("nx")
     if nx < 8 or nx % 2:
         sec.fail("nx", f"{nx} is not an even number >= 8", "an even integer, e.g. 128, 192 or 256")
@@ -287,7 +207,7 @@ def _resolve_grid(sec: _Section, trap: TrapConfig) -> Grid:
     if sec.has("size") or sec.has("size_x") or sec.has("size_y"):
         if sec.has("spacing"):
             sec.fail("spacing", "give either the grid size or its spacing, not both", "size_* or spacing_*")
-        lx, ly = _pair(sec, "size", "size_x", "size_y")
+        lx, ly = sec.pair("size", "size_x", "size_y")
     elif sec.has("spacing"):
         lx = nx * sec.get("spacing")
         ny = ny or nx
@@ -297,7 +217,7 @@ def _resolve_grid(sec: _Section, trap: TrapConfig) -> Grid:
     if ny is None:   # keep square cells
         ny = nx if abs(lx - ly) < 1e-9 * lx else max(8, 2 * int(round(0.5 * nx * ly / lx)))
     grid = Grid(nx, ny, lx, ly)
-    if trap.shape != "mask" and (ext_x > lx or ext_y > ly):
+    if not trap.fits_in(lx, ly):
         where = "size_x" if ext_x > lx else "size_y"
         given = [k for k in (where, "size", "spacing") if sec.has(k)]
         sec.fail(given[0] if given else "nx",
@@ -478,17 +398,12 @@ def parse_protocol(text: str, source: str = "<protocol>", overrides: Sequence[st
         array = _Section(ctx, f"beams.{i}.array", "beams.array", b.get("array")) if b.has("array") else None
         beam_secs.append((b, path, array))
 
-    species, a_s, omega_z, g2d, mu = _resolve_atoms(ctx, atoms, trap_sec, base_dir)
+    shape = trap_shapes()[trap_sec.get("shape")]
+    species, a_s, omega_z, g2d, mu = _resolve_atoms(ctx, atoms, trap_sec, shape, base_dir)
     units = ctx.units
-    trap = _resolve_trap(trap_sec, base_dir)
-    if atoms.has("number"):
-        number = atoms.get("number")
-    elif trap.shape == "harmonic":
-        number = tf_number_harmonic(g2d, mu, species.mass_kg, units.rate_to_si(trap.omega_x),
-                                    units.rate_to_si(trap.omega_y))
-    else:
-        pixels = _mask_pixels(trap_sec, base_dir) if trap.shape == "mask" else 0
-        number = tf_number_flat(g2d, mu, _flat_area(trap, pixels) * units.length_m**2)
+    trap = shape.from_section(trap_sec, base_dir)
+    # the Thomas-Fermi norm (xi^2) holds norm / coupling atoms
+    number = atoms.get("number") if atoms.has("number") else trap.thomas_fermi_norm() / units.coupling
     atoms_cfg = AtomsConfig(species=species.name, mass_kg=species.mass_kg, scattering_length_m=a_s,
                             axial_frequency_hz=omega_z / (2 * math.pi),
                             axial_length_m=math.sqrt(const.hbar / (species.mass_kg * omega_z)),

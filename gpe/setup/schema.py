@@ -2,11 +2,12 @@
 
 ``SCHEMA`` lists the keys of each TOML table (:class:`Spec`: kind, dimension, default in simulation
 units, allowed choices, sign check); ``SELECTED`` narrows a table to the keys that mean something
-for one trap shape or path kind. :class:`_Section` reads one table against its schema and fails
-with a :class:`~gpe.errors.ProtocolError` naming the file, key and what would be accepted;
-``_apply_overrides`` applies ``--set`` strings before validation; ``_describe`` writes resolved
-dataclasses back out with every dimensioned value in simulation units and SI.
-Resolution into configuration objects lives in gpe/setup/protocol.py.
+for one trap shape or path kind. The [trap] keys come from the shape classes of gpe.field.traps,
+each naming the keys it reads, so a new shape brings its keys with it. :class:`_Section` reads
+one table against its schema and fails with a :class:`~gpe.errors.ProtocolError` naming the
+file, key and what would be accepted; ``_apply_overrides`` applies ``--set`` strings before
+validation; ``_describe`` writes resolved dataclasses back out with every dimensioned value in
+simulation units and SI. Resolution into configuration objects lives in gpe/setup/protocol.py.
 
 Units: values come out of :meth:`_Section.get` in simulation units (xi, hbar/mu, mu, c, rad per
 hbar/mu), except in the [atoms] table (SI).
@@ -21,12 +22,13 @@ import math
 import re
 import tomllib
 from dataclasses import dataclass
-from typing import Any, Sequence
+from typing import Any, NoReturn, Sequence
 
 import numpy as np
 import scipy.constants as const
 
 from gpe.errors import ProtocolError
+from gpe.field.traps.base import trap_shapes
 from gpe.setup.units import BOHR_RADIUS_M, HealingUnits
 
 # unit suffixes by dimension and unit system; the first one is used in messages and JSON
@@ -63,6 +65,29 @@ class Spec:
     check: str = ""           # positive | nonneg | nonzero
 
 
+def _trap_tables() -> tuple[dict[str, Spec], dict[tuple[str, str], set[str]]]:
+    """The [trap] table's keys and each shape's key set, from the shape classes in gpe.field.traps.
+
+    Raises
+    ------
+    TypeError
+        If two shapes describe the same key differently (one table has one spec per key).
+    """
+    shapes = trap_shapes()
+    specs = {"shape": Spec("str", required=True, choices=tuple(shapes))}
+    owner: dict[str, str] = {}
+    for name, shape in shapes.items():
+        for key, kwargs in shape.protocol_keys.items():
+            spec = Spec(**kwargs)
+            if specs.setdefault(key, spec) != spec:
+                raise TypeError(f"trap key {key!r} is described as {specs[key]} by the {owner[key]} shape and "
+                                f"as {spec} by the {name} shape; accepted: one description per key")
+            owner.setdefault(key, name)
+    selected = {("trap", name): {"shape", *shape.protocol_keys} for name, shape in shapes.items()}
+    return specs, selected
+
+
+_TRAP_SPECS, _TRAP_SELECTED = _trap_tables()
 F, I, S = "float", "int", "str"
 SCHEMA: dict[str, dict[str, Spec]] = {
     "": {"units": Spec(S, choices=("SI", "healing"), default="SI"), "name": Spec(S, default=""),
@@ -74,17 +99,7 @@ SCHEMA: dict[str, dict[str, Spec]] = {
               "chemical_potential": Spec(F, "chem_pot", check="positive"),
               "scattering_length": Spec(F, "scat", check="positive"),
               "axial_frequency": Spec(F, "axial", required=True, check="positive")},
-    "trap": {"shape": Spec(S, required=True, choices=("harmonic", "disk", "box", "annulus", "mask")),
-             "wall_height": Spec(F, "energy", check="positive"),
-             "edge_width": Spec(F, "length", default=1.0, check="nonneg"),
-             "radius": Spec(F, "length", True, check="positive"),
-             "inner_radius": Spec(F, "length", True, check="positive"),
-             "outer_radius": Spec(F, "length", True, check="positive"),
-             "size": Spec(F, "length", check="positive"), "size_x": Spec(F, "length", check="positive"),
-             "size_y": Spec(F, "length", check="positive"), "frequency": Spec(F, "rate", check="positive"),
-             "frequency_x": Spec(F, "rate", check="positive"), "frequency_y": Spec(F, "rate", check="positive"),
-             "file": Spec(S, required=True), "pixel_size": Spec(F, "length", True, check="positive"),
-             "invert": Spec("bool", default=False)},
+    "trap": _TRAP_SPECS,
     "grid": {"nx": Spec(I, required=True, check="positive"), "ny": Spec(I, check="positive"),
              "size": Spec(F, "length", check="positive"), "size_x": Spec(F, "length", check="positive"),
              "size_y": Spec(F, "length", check="positive"), "spacing": Spec(F, "length", check="positive"),
@@ -130,13 +145,9 @@ SCHEMA: dict[str, dict[str, Spec]] = {
                     "spacing": Spec(F, "length", check="positive"),
                     "spacing_y": Spec(F, "length", check="positive"), "angle": Spec(F, "angle", default=0.0)},
 }
-# keys that are meaningful only for one trap shape / path kind
+# keys that are meaningful only for one trap shape (from the shape classes) / path kind
 SELECTED = {
-    ("trap", "harmonic"): {"shape", "frequency", "frequency_x", "frequency_y", "wall_height"},
-    ("trap", "disk"): {"shape", "radius", "wall_height", "edge_width"},
-    ("trap", "box"): {"shape", "size", "size_x", "size_y", "wall_height", "edge_width"},
-    ("trap", "annulus"): {"shape", "inner_radius", "outer_radius", "wall_height", "edge_width"},
-    ("trap", "mask"): {"shape", "file", "pixel_size", "invert", "wall_height", "edge_width"},
+    **_TRAP_SELECTED,
     ("beams.path", "static"): {"kind", "position"},
     ("beams.path", "line"): {"kind", "start", "end", "speed", "mode", "start_time"},
     ("beams.path", "circle"): {"kind", "radius", "angular_speed", "speed", "centre", "start_angle",
@@ -154,7 +165,7 @@ class _Context:
         self.mode = "SI"
         self.units: HealingUnits | None = None
 
-    def fail(self, where: str, key: str, problem: str, accepted: str) -> None:
+    def fail(self, where: str, key: str, problem: str, accepted: str) -> NoReturn:
         path = f"{where}.{key}" if where else key
         note = f" (value set by --set {self.overridden[path]})" if path in self.overridden else ""
         raise ProtocolError(f"{self.source}: [{where or 'top level'}] {key}: {problem}{note}. "
@@ -292,7 +303,30 @@ class _Section:
             self.fail(first, "missing required value", names)
         return first if self.has(first) else second if self.has(second) else None
 
-    def fail(self, base_or_key: str, problem: str, accepted: str) -> None:
+    def pair(self, both: str, x: str, y: str, si: bool = False) -> tuple[Any, Any]:
+        """(x, y) from ``both`` or from ``x`` and ``y`` (e.g. size / size_x, size_y); in SI if ``si``."""
+        read = self.si_value if si else self.get
+        if self.has(both):
+            if self.has(x) or self.has(y):
+                self.fail(x if self.has(x) else y, f"give either {self.key(both)} or {x}/{y}, not both",
+                          f"{self.key(both)}, or {self.key(x)} with {self.key(y)}")
+            return read(both), read(both)
+        for name in (x, y):
+            if not self.has(name):
+                self.fail(name, "missing required value", f"{self.key(both)}, or {self.key(x)} with {self.key(y)}")
+        return read(x), read(y)
+
+    def si_value(self, base: str) -> float:
+        """A trap size or frequency in SI (m, rad/s), for use before the units are known (they
+        follow from atoms.number); healing-unit spellings are refused."""
+        value, suffix = self.raw(base)
+        if suffix not in ("um", "hz", "rad_per_ms"):
+            si_names = [n for n in self.ctx.names(base, self.specs[base]) if not n.endswith(("xi", "rad_per_tau"))]
+            self.fail(base, "with atoms.number the trap must be given in SI units (a size in healing "
+                      "lengths depends on mu, which the atom number is meant to fix)", ", ".join(si_names))
+        return value * {"um": 1e-6, "hz": 2 * math.pi, "rad_per_ms": 1e3}[suffix]
+
+    def fail(self, base_or_key: str, problem: str, accepted: str) -> NoReturn:
         key = self.key(base_or_key) if base_or_key in self.specs else base_or_key
         self.ctx.fail(self.where, key, problem, accepted)
 

@@ -107,7 +107,7 @@ def time_dos_build(n_plus: int = 20, n_minus: int = 20, core_radius: float = 0.0
     Returns a dict with the attempts (sweeps, wall times, precision report) and the
     cache-hit time. Units: seconds; beta in 1/E0.
     """
-    from thermo.domains import Disk
+    from thermo.domains.disk import Disk
     from thermo.dos import model as dosmod
     from thermo.dos import cache as dos_cache
 

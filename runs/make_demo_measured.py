@@ -21,7 +21,7 @@ from pathlib import Path
 import numpy as np
 
 from thermo.data.degrade import ImagingModel, degrade
-from thermo.domains import Disk
+from thermo.domains.disk import Disk
 from thermo.sampler import run_tempering
 
 RADIUS_UM = 40.0

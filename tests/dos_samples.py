@@ -42,7 +42,7 @@ def small_gas_dos() -> DensityOfStates:
 
     The same as ``load_or_build(..., seed=3, settings=SMALL_GAS_SETTINGS)`` would build.
     """
-    from thermo.domains import Disk
+    from thermo.domains.disk import Disk
 
     return build(SMALL_GAS["n_plus"], SMALL_GAS["n_minus"], Disk(), SMALL_GAS["core_radius"],
                  SMALL_GAS_SETTINGS, np.random.default_rng(3))

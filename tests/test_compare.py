@@ -13,7 +13,7 @@ from thermo.data.compare import (
     write_json,
 )
 from thermo.data.degrade import ImagingModel, degrade_many
-from thermo.domains import Disk
+from thermo.domains.disk import Disk
 
 
 def _uniform_shots(rng, n_shots, n_range=(10, 20)):

@@ -7,7 +7,8 @@ import pytest
 from scipy import stats
 
 from thermo.data.degrade import DegradeError, ImagingModel, degrade, degrade_many
-from thermo.domains import Box, Disk
+from thermo.domains.box import Box
+from thermo.domains.disk import Disk
 
 
 def test_zero_model_is_exactly_the_identity(rng):

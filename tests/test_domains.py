@@ -1,11 +1,21 @@
 """Tests of thermo.domains: containment, sampling, Green's functions and Robin functions."""
 
+import inspect
+import math
+
 import numpy as np
 import pytest
+from numba import njit
 from scipy.special import gamma
 
-from thermo.domains import Box, Disk
+from thermo.domains.base import (MOVE_SIGNATURE, PAIR_SIGNATURE, SELF_SIGNATURE, WALL_SIGNATURE,
+                                 Domain, DomainKernels, pair_sum_move_change)
+from thermo.domains.box import Box
+from thermo.domains.disk import Disk
+from thermo.domains.kinds import domain_class, domain_classes
+from thermo.energy import energy, energy_batch, energy_change
 from thermo.errors import ConfigurationError, DomainError
+from thermo.sampler import run_tempering
 
 
 def _wall_points(domain, n=9):
@@ -156,3 +166,119 @@ def test_keys_and_validation():
         Box(float("nan"))
     with pytest.raises(ConfigurationError, match="last axis"):
         Disk().contains(np.zeros((3, 3)))
+
+
+def test_the_domain_classes_are_found_by_kind():
+    # discovered from the package, sorted by kind name; an unknown kind is refused by name
+    assert domain_classes() == {"box": Box, "disk": Disk}
+    assert domain_class("disk") is Disk and domain_class("box") is Box
+    with pytest.raises(DomainError, match="'hexagon' is not known; accepted: 'box', 'disk'"):
+        domain_class("hexagon")
+
+
+@pytest.mark.parametrize("cls", list(domain_classes().values()), ids=lambda c: c.kind)
+def test_every_domain_implements_the_whole_interface(cls, rng):
+    # Nothing abstract is left, the kind names the class, and the sizes build a domain whose
+    # length unit is one of them (scaled positions stay O(1)).
+    assert issubclass(cls, Domain) and not inspect.isabstract(cls) and cls.kind
+    assert cls.size_names and all(isinstance(n, str) for n in cls.size_names)
+    sizes = {name: 30.0 + 10.0 * i for i, name in enumerate(cls.size_names)}
+    dom, unit = cls.from_sizes(sizes)
+    assert isinstance(dom, cls) and dom.kind == cls.kind and unit in sizes.values()
+    again, _ = cls.from_sizes(sizes)
+    assert dom == again and dom.key() == again.key() and dom.key()[0] == cls.kind
+    with pytest.raises(DomainError, match=cls.size_names[0]):
+        cls.from_sizes({**sizes, cls.size_names[0]: -1.0})
+    assert dom.area > 0 and dom.max_step > 0
+    # the kernels are compiled for the signatures the shared loops call them with
+    k = dom.kernels()
+    assert isinstance(k, DomainKernels) and k.params.dtype == np.float64
+    assert k.params.flags.c_contiguous and k.params.ndim == 1
+    for kernel, sig in ((k.self_energy, SELF_SIGNATURE), (k.pair_energy, PAIR_SIGNATURE),
+                        (k.wall_distance, WALL_SIGNATURE), (k.move_change, MOVE_SIGNATURE)):
+        assert sig.args in kernel.signatures
+    # uniform samples lie farther than the margin from the wall, and the compiled distance to
+    # the wall agrees with the array one
+    pts = dom.sample_uniform(rng, 500, margin=0.03)
+    assert pts.shape == (500, 2) and dom.contains(pts, margin=0.03).all()
+    wall = np.array([k.wall_distance(x, y, k.params) for x, y in pts])
+    np.testing.assert_allclose(wall, dom.distance_to_wall(pts), rtol=0, atol=1e-15)
+    assert np.all(wall > 0.03)
+    # G symmetric and positive inside [exact: Dirichlet Green's function, maximum principle];
+    # d <= r_c <= 4 d, d the distance to the wall [pub: Schwarz lemma (the disk of radius d
+    # lies inside) and Koebe's 1/4 theorem, for simply connected domains]
+    a, b = pts[:20], pts[20:40]
+    np.testing.assert_allclose(dom.green(a, b), dom.green(b, a), rtol=1e-12)
+    assert np.all(dom.green(a, b) > 0)
+    r_c, d = dom.conformal_radius(a), dom.distance_to_wall(a)
+    assert np.all(r_c >= d * (1 - 1e-12)) and np.all(r_c <= 4 * d * (1 + 1e-12))
+    # the move kernel is the energy difference of the whole configuration [exact]
+    conf = pts[40:48]
+    signs = np.array([1, -1, 1, 1, -1, -1, 1, -1])
+    moved = conf.copy()
+    moved[5] = pts[60]
+    ref = energy(moved, signs, dom) - energy(conf, signs, dom)
+    assert energy_change(conf, signs, dom, 5, pts[60]) == pytest.approx(ref, rel=1e-10, abs=1e-12)
+
+
+# A domain written only against the interface, as a new module would be: the unit disk again,
+# its pair term in complex form, the generic move kernel, nothing registered anywhere.
+@njit(SELF_SIGNATURE, error_model="numpy")
+def _plain_self(x, y, params):
+    return math.log(1.0 - (x * x + y * y))
+
+
+@njit(PAIR_SIGNATURE, error_model="numpy")
+def _plain_pair(x1, y1, x2, y2, params):
+    u, v = complex(x1, y1), complex(x2, y2)
+    return 2.0 * (math.log(abs(1.0 - u * v.conjugate())) - math.log(abs(u - v)))
+
+
+@njit(WALL_SIGNATURE, error_model="numpy")
+def _plain_wall(x, y, params):
+    return 1.0 - abs(complex(x, y))
+
+
+class _PlainDisk(Domain):
+    kind = "plain-disk"
+    size_names = ("radius",)
+
+    @classmethod
+    def from_sizes(cls, sizes):
+        return cls(), float(sizes["radius"])
+
+    def key(self):
+        return ("plain-disk",)
+
+    def kernels(self):
+        return DomainKernels(_plain_self, _plain_pair, _plain_wall, pair_sum_move_change,
+                             np.zeros(1))
+
+    area = math.pi
+    max_step = 2.0
+
+    def distance_to_wall(self, pos):
+        return 1.0 - np.abs(pos[..., 0] + 1j * pos[..., 1])
+
+    def sample_uniform(self, rng, n, margin=0.0):
+        return Disk().sample_uniform(rng, n, margin)
+
+
+def test_a_domain_needs_only_its_own_kernels(rng):
+    # The energy, the Green's function and the tempering loop take any domain's kernels: the
+    # plain disk reproduces the disk's energies [exact: same Kirchhoff-Routh function, Lin,
+    # PNAS 27, 570 (1941)] and, from the same seed, the same Markov chain.
+    plain = _PlainDisk()
+    conf = np.stack([Disk().sample_uniform(rng, 7, margin=0.01) for _ in range(20)])
+    signs = np.array([1, 1, -1, 1, -1, -1, 1])
+    np.testing.assert_allclose(energy_batch(conf, signs, plain), energy_batch(conf, signs, Disk()),
+                               rtol=1e-12, atol=1e-12)
+    np.testing.assert_allclose(plain.green(conf[0], conf[1]), Disk().green(conf[0], conf[1]),
+                               rtol=1e-12)
+    a = run_tempering(plain, 3, 2, [0.3, -0.2], 400, 0.01, np.random.default_rng(8))
+    b = run_tempering(Disk(), 3, 2, [0.3, -0.2], 400, 0.01, np.random.default_rng(8))
+    np.testing.assert_allclose(a.energies, b.energies, rtol=0, atol=1e-9)
+    assert a.acceptance.min() > 0.2 and np.isfinite(a.energies).all()
+    for k in range(2):
+        np.testing.assert_allclose(energy_batch(a.positions[k, ::50], a.signs, plain),
+                                   a.energies[k, ::50], rtol=1e-9, atol=1e-9)

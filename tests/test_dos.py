@@ -70,7 +70,7 @@ def test_reweighted_mean_energy_matches_direct_sampling_off_ladder(small_gas):
     """MBAR-reweighted <E>(beta) vs a direct single-temperature Metropolis run at betas
     between the rungs (both signs); |difference| < 4 combined standard errors, the direct
     error from the integrated autocorrelation time (Sokal's windowing, common practice)."""
-    from thermo.domains import Disk
+    from thermo.domains.disk import Disk
     from thermo.sampler import run_tempering
     d = small_gas
     ladder = np.sort(d.betas)

@@ -7,7 +7,7 @@ import pytest
 
 from dos_samples import one_vortex_dos
 from thermo.dos import cache as dos_cache
-from thermo.domains import Disk
+from thermo.domains.disk import Disk
 from thermo.dos.build import DosSettings
 from thermo.errors import SamplerError
 

@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from thermo.domains import Disk
+from thermo.domains.disk import Disk
 from thermo.dos.build import DosSettings
 from thermo.errors import ConfigurationError
 from thermo.estimate import estimate_ensemble, estimate_single, thresholds
@@ -127,7 +127,7 @@ def test_energy_beyond_the_ladder_is_flagged_not_silently_clipped(tmp_path):
     estimate must say that beta may be lower still (a clipped value is not a measurement)."""
     import numpy as np
 
-    from thermo.domains import Disk
+    from thermo.domains.disk import Disk
     from thermo.dos.build import DosSettings
     from thermo.estimate import estimate_single
 

@@ -5,8 +5,9 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from thermo.errors import MeasuredTableError
 from thermo.data.geometry import PixelCalibration, pixels_to_um, resolve_geometry, um_to_pixels
+from thermo.domains.box import Box
+from thermo.errors import MeasuredTableError
 
 
 def test_pixel_conversion_round_trips(rng):
@@ -32,3 +33,20 @@ def test_geometry_errors(tmp_path):
         resolve_geometry(p, radius_um=-3.0)
     with pytest.raises(MeasuredTableError, match="both pixel_um and center_px"):
         resolve_geometry(p, radius_um=40.0, pixel_um=0.5)
+
+
+def test_unknown_shape_in_a_geometry_file_is_refused_by_name(tmp_path):
+    # the shapes are the kind names of the thermo domain classes, and the message lists them
+    p = tmp_path / "table.csv"
+    p.write_text("shot,x,y,sign\n")
+    p.with_suffix(".toml").write_text('shape = "hexagon"\nradius_um = 40.0\n')
+    with pytest.raises(MeasuredTableError,
+                       match=r"geometry shape 'hexagon' is not known; accepted: 'box', 'disk'"):
+        resolve_geometry(p)
+    # a known shape builds the domain of that kind, with its size as the length unit
+    p.with_suffix(".toml").write_text('shape = "box"\nwidth_um = 80.0\nheight_um = 50.0\n')
+    geometry, _ = resolve_geometry(p)
+    assert geometry.domain() == Box(aspect=1.6) and geometry.length_scale_um == 50.0
+    assert geometry.domain().kind == geometry.shape == "box"
+    with pytest.raises(MeasuredTableError, match="a box needs a positive number height_um"):
+        resolve_geometry(p, height_um=-1.0)

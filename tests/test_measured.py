@@ -10,7 +10,8 @@ import h5py
 import numpy as np
 import pytest
 
-from thermo.domains import Box, Disk
+from thermo.domains.box import Box
+from thermo.domains.disk import Disk
 from thermo.data.measured import MeasuredTableError, MeasuredTableWarning, read_measured
 from thermo.data.geometry import PixelCalibration, um_to_pixels
 
@@ -57,7 +58,7 @@ def test_arguments_override_toml(tmp_path):
 
 
 def test_box_geometry_uses_height_as_unit(tmp_path):
-    """thermo.domains.Box is [-aspect/2, aspect/2] x [-1/2, 1/2]: unit = side along y."""
+    """thermo.domains.box.Box is [-aspect/2, aspect/2] x [-1/2, 1/2]: unit = side along y."""
     text = "shot,x,y,sign\n0, 35.0, -9.0, 1\n0, -10.0, 9.0, -1\n0, 45.0, 0.0, 1\n"
     p = _write(tmp_path, text)
     with pytest.warns(MeasuredTableWarning, match=r"line 4: position \(45, 0\) um is outside"):

@@ -4,7 +4,8 @@ import numpy as np
 import pytest
 from scipy import integrate
 
-from thermo.domains import Box, Disk
+from thermo.domains.box import Box
+from thermo.domains.disk import Disk
 from thermo.energy import energy_batch
 from thermo.errors import SamplerError
 from thermo.sampler import (adaptive_ladder, default_ladder, integrated_autocorr_time,
@@ -289,3 +290,14 @@ def test_tempering_agrees_with_plain_metropolis(rng):
     m1, s1 = _mean_and_se(pt.energies[2])
     m2, s2 = _mean_and_se(single.energies[0])
     assert abs(m1 - m2) < 4 * np.hypot(s1, s2)
+
+
+def test_read_only_ladder_and_start_are_accepted(rng):
+    # a read-only ladder and starting configuration run the same chain as writeable copies
+    betas = np.array([0.4, -0.2])
+    start = Disk().sample_uniform(rng, 3, margin=0.05)
+    ref = run_tempering(Disk(), 2, 1, betas, 50, 0.01, np.random.default_rng(3), initial=start)
+    betas.flags.writeable = False
+    start.flags.writeable = False
+    got = run_tempering(Disk(), 2, 1, betas, 50, 0.01, np.random.default_rng(3), initial=start)
+    np.testing.assert_array_equal(got.energies, ref.energies)

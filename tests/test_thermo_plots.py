@@ -49,7 +49,7 @@ def test_comparison_figure_draws_every_panel(tmp_path, rng):
     import numpy as np
 
     from thermo.data.compare import compare_ensembles
-    from thermo.domains import Disk
+    from thermo.domains.disk import Disk
     from gpe.figures.thermometry import plot_comparison
 
     def shots(n_shots):

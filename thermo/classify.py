@@ -278,7 +278,7 @@ def pair_correlation(positions: Any, signs: Any, domain: Any, bins: int = 30,
     Parameters
     ----------
     positions : (S, N, 2) scaled positions; signs : (N,) +-1.
-    domain : object with ``sample_uniform(rng, n) -> (n, 2)`` (thermo.domains).
+    domain : object with ``sample_uniform(rng, n) -> (n, 2)`` (a thermo.domains.base.Domain).
     bins : number of distance bins; r_max : largest distance (default: the largest
         reference distance); rng : generator for the reference sample.
     n_reference : number of uniform pairs for the reference histogram.

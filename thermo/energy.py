@@ -5,7 +5,7 @@
     E = \\sum_i \\ln r_c(z_i) + \\sum_{i<j} s_i s_j\\, 4\\pi G(z_i, z_j)
 
 in units of :math:`E_0 = \\rho\\kappa^2/(4\\pi)`, positions scaled by the domain's length unit,
-the constant :math:`N\\ln(L/a)` dropped (see :mod:`thermo.domains`). For the unit disk this is
+the constant :math:`N\\ln(L/a)` dropped (see :mod:`thermo.domains.base`). For the unit disk this is
 
 .. math::
 
@@ -19,112 +19,42 @@ Units: energies in E0; positions dimensionless; signs +1/-1.
 
 from __future__ import annotations
 
-import math
-
 import numpy as np
-from numba import njit
+from numba import njit, types
 
-from .domains import KIND_DISK, Domain, pair_kernel, self_kernel
-from .errors import ConfigurationError
+from thermo.domains.base import (PARAMS, POINTS, SIGNS, Domain, PairKernel, SelfKernel,
+                                 kernel_array)
+from thermo.errors import ConfigurationError
 
 __all__ = ["energy", "energy_batch", "energy_change", "validate_configuration",
-           "total_energy_kernel", "move_energy_change_kernel"]
+           "total_energy_kernel"]
 
 
 # fastmath off: the sums mix large positive and negative logarithms, and NaN/inf must
 # propagate so that invalid configurations are caught, not silently folded away.
-@njit(cache=True)
-def total_energy_kernel(pos: np.ndarray, signs: np.ndarray, kind: int, params: np.ndarray) -> float:
-    """Energy of one configuration, pos (N, 2), signs (N,) int64. O(N^2)."""
+@njit(types.float64(POINTS, SIGNS, SelfKernel, PairKernel, PARAMS), cache=True)
+def total_energy_kernel(pos, signs, self_fn, pair_fn, params):
+    """Energy of one configuration, pos (N, 2), signs (N,) int64. O(N^2).
+
+    ``self_fn`` and ``pair_fn`` are the domain's kernels and ``params`` their parameter vector
+    (:class:`~thermo.domains.base.DomainKernels`). Units: positions in the length unit, E0.
+    """
     n = pos.shape[0]
     e = 0.0
     for i in range(n):
         xi = pos[i, 0]
         yi = pos[i, 1]
-        e += self_kernel(kind, params, xi, yi)
+        e += self_fn(xi, yi, params)
         for j in range(i + 1, n):
-            e += signs[i] * signs[j] * pair_kernel(kind, params, xi, yi, pos[j, 0], pos[j, 1])
+            e += signs[i] * signs[j] * pair_fn(xi, yi, pos[j, 0], pos[j, 1], params)
     return e
 
 
-@njit(cache=True)
-def _batch_kernel(pos, signs, kind, params, out):
+@njit(types.void(types.float64[:, :, ::1], types.int64[:, ::1], SelfKernel, PairKernel, PARAMS,
+                 types.float64[::1]), cache=True)
+def _batch_kernel(pos, signs, self_fn, pair_fn, params, out):
     for s in range(pos.shape[0]):
-        out[s] = total_energy_kernel(pos[s], signs[s], kind, params)
-
-
-@njit(cache=True, error_model="numpy")
-def _disk_move_change(pos, signs, index, x_new, y_new, min_dist2):
-    """Disk specialisation of :func:`move_energy_change_kernel`.
-
-    The pair terms are ratios inside one logarithm, so they are multiplied together and a
-    log is taken only when the running product leaves [1e-100, 1e100]: about one log per
-    move instead of 2(N - 1). One factor is at most (4 / d_min^2)^2, far from overflow.
-    """
-    n = pos.shape[0]
-    x_old = pos[index, 0]
-    y_old = pos[index, 1]
-    s_k = signs[index]
-    r2_new = x_new * x_new + y_new * y_new
-    r2_old = x_old * x_old + y_old * y_old
-    d = math.log((1.0 - r2_new) / (1.0 - r2_old))
-    acc = 1.0
-    for j in range(n):
-        if j == index:
-            continue
-        xj = pos[j, 0]
-        yj = pos[j, 1]
-        rj2 = xj * xj + yj * yj
-        dxn = x_new - xj
-        dyn = y_new - yj
-        den_new = dxn * dxn + dyn * dyn
-        if den_new < min_dist2:
-            return np.inf
-        dxo = x_old - xj
-        dyo = y_old - yj
-        den_old = dxo * dxo + dyo * dyo
-        num_new = 1.0 - 2.0 * (x_new * xj + y_new * yj) + r2_new * rj2
-        num_old = 1.0 - 2.0 * (x_old * xj + y_old * yj) + r2_old * rj2
-        a = num_new * den_old
-        b = den_new * num_old
-        if s_k * signs[j] > 0:
-            acc *= a / b
-        else:
-            acc *= b / a
-        if acc > 1e100 or acc < 1e-100:
-            d += math.log(acc)
-            acc = 1.0
-    return d + math.log(acc)
-
-
-@njit(cache=True)
-def move_energy_change_kernel(pos: np.ndarray, signs: np.ndarray, index: int, x_new: float,
-                              y_new: float, kind: int, params: np.ndarray,
-                              min_dist2: float) -> float:
-    """E(after) - E(before) for moving vortex ``index`` to (x_new, y_new). O(N).
-
-    Returns +inf if the new position comes closer than sqrt(min_dist2) to another vortex
-    (hard core), so that a Metropolis test rejects the move at every beta.
-    """
-    if kind == KIND_DISK:
-        return _disk_move_change(pos, signs, index, x_new, y_new, min_dist2)
-    n = pos.shape[0]
-    x_old = pos[index, 0]
-    y_old = pos[index, 1]
-    s_k = signs[index]
-    d = self_kernel(kind, params, x_new, y_new) - self_kernel(kind, params, x_old, y_old)
-    for j in range(n):
-        if j == index:
-            continue
-        xj = pos[j, 0]
-        yj = pos[j, 1]
-        dx = x_new - xj
-        dy = y_new - yj
-        if dx * dx + dy * dy < min_dist2:
-            return np.inf
-        d += s_k * signs[j] * (pair_kernel(kind, params, x_new, y_new, xj, yj)
-                               - pair_kernel(kind, params, x_old, y_old, xj, yj))
-    return d
+        out[s] = total_energy_kernel(pos[s], signs[s], self_fn, pair_fn, params)
 
 
 def validate_configuration(pos, signs, domain: Domain, core_radius: float = 0.0,
@@ -137,7 +67,7 @@ def validate_configuration(pos, signs, domain: Domain, core_radius: float = 0.0,
         Scaled positions. Units: the domain's length unit.
     signs : array_like of int, shape (N,) (or (S, N) if ``batched``)
         +1 or -1 each.
-    domain : Disk or Box
+    domain : Domain (a Disk, a Box, ...)
     core_radius : float
         Hard-core radius a: every vortex must be farther than a from the wall and the centres
         at least 2a apart (checked only if a > 0). Units: length unit.
@@ -149,7 +79,7 @@ def validate_configuration(pos, signs, domain: Domain, core_radius: float = 0.0,
     pos : numpy.ndarray float64, C-contiguous
     signs : numpy.ndarray int64, shape (N,) or (S, N)
     """
-    p = np.ascontiguousarray(np.asarray(pos, dtype=np.float64))
+    p = kernel_array(np.asarray(pos, dtype=np.float64), np.float64)
     want = 3 if batched else 2
     shape_txt = "(S, N, 2)" if batched else "(N, 2)"
     if p.ndim != want or p.shape[-1] != 2:
@@ -166,7 +96,7 @@ def validate_configuration(pos, signs, domain: Domain, core_radius: float = 0.0,
         raise ConfigurationError(
             f"sign of vortex at index {tuple(int(i) for i in idx)} is {s_raw[tuple(idx)].item()!r}; "
             "only +1 and -1 are accepted (unknown signs must be resolved before thermometry)")
-    s = s_raw.astype(np.int64)
+    s = kernel_array(s_raw.astype(np.int64), np.int64)
     finite = np.isfinite(p).all(axis=-1)
     if not finite.all():
         idx = tuple(int(i) for i in np.argwhere(~finite)[0])
@@ -210,10 +140,10 @@ def energy(pos, signs, domain: Domain) -> float:
     Parameters
     ----------
     pos : array_like, shape (N, 2)
-        Scaled positions (disk: u = r/R; box: see :class:`thermo.domains.Box`).
+        Scaled positions (disk: u = r/R; box: see :class:`thermo.domains.box.Box`).
     signs : array_like of int, shape (N,)
         Circulation signs, +1 or -1.
-    domain : Disk or Box
+    domain : Domain (a Disk, a Box, ...)
 
     Returns
     -------
@@ -221,8 +151,8 @@ def energy(pos, signs, domain: Domain) -> float:
         Energy. Units: E0 = rho kappa^2 / (4 pi), constant N ln(L/a) dropped.
     """
     p, s = validate_configuration(pos, signs, domain)
-    code, params = domain.kernel_params()
-    e = total_energy_kernel(p, s, code, params)
+    k = domain.kernels()
+    e = total_energy_kernel(p, s, k.self_energy, k.pair_energy, k.params)
     if not np.isfinite(e):
         raise _coincidence_error(p)
     return float(e)
@@ -237,7 +167,7 @@ def energy_batch(pos, signs, domain: Domain) -> np.ndarray:
         Scaled positions.
     signs : array_like of int, shape (N,) or (S, N)
         Signs shared by all samples, or one row per sample.
-    domain : Disk or Box
+    domain : Domain (a Disk, a Box, ...)
 
     Returns
     -------
@@ -246,10 +176,10 @@ def energy_batch(pos, signs, domain: Domain) -> np.ndarray:
     """
     p, s = validate_configuration(pos, signs, domain, batched=True)
     if s.ndim == 1:
-        s = np.ascontiguousarray(np.broadcast_to(s, p.shape[:-1]))
-    code, params = domain.kernel_params()
+        s = kernel_array(np.broadcast_to(s, p.shape[:-1]), np.int64)
+    k = domain.kernels()
     out = np.empty(p.shape[0])
-    _batch_kernel(p, s, code, params, out)
+    _batch_kernel(p, s, k.self_energy, k.pair_energy, k.params, out)
     bad = ~np.isfinite(out)
     if bad.any():
         k = int(np.argmax(bad))
@@ -264,7 +194,7 @@ def energy_change(pos, signs, domain: Domain, index: int, new_position) -> float
     ----------
     pos : array_like, shape (N, 2)
     signs : array_like of int, shape (N,)
-    domain : Disk or Box
+    domain : Domain (a Disk, a Box, ...)
     index : int
         Row of the vortex that moves.
     new_position : array_like, shape (2,)
@@ -279,5 +209,6 @@ def energy_change(pos, signs, domain: Domain, index: int, new_position) -> float
         raise ConfigurationError(f"index {index} is out of range for {p.shape[0]} vortices")
     new = np.asarray(new_position, dtype=np.float64).reshape(2)
     validate_configuration(new[None, :], s[:1], domain)
-    code, params = domain.kernel_params()
-    return float(move_energy_change_kernel(p, s, int(index), new[0], new[1], code, params, 0.0))
+    k = domain.kernels()
+    return float(k.move_change(p, s, int(index), new[0], new[1], k.params, 0.0, k.self_energy,
+                               k.pair_energy))

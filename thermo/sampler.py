@@ -1,7 +1,7 @@
 """Canonical Monte Carlo of the point-vortex gas with parallel tempering, both signs of beta.
 
-N+ positive and N- negative vortices (neutral, non-neutral or single species) move in a
-:class:`~thermo.domains.Disk` or :class:`~thermo.domains.Box` with a hard core: every centre
+N+ positive and N- negative vortices (neutral, non-neutral or single species) move in a domain
+(:class:`~thermo.domains.base.Domain`: a disk, a box, ...) with a hard core: every centre
 stays farther than the core radius ``a`` from the wall and at least ``2a`` from every other
 centre (non-overlapping discs of radius a that cannot cross the wall -- equivalently, every
 vortex stays at least 2a from every image). The core makes the canonical ensemble exist at
@@ -24,11 +24,11 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from numba import njit
+from numba import njit, types
 
-from .domains import Domain, wall_distance_kernel
-from .energy import move_energy_change_kernel, total_energy_kernel, validate_configuration
-from .errors import SamplerError
+from thermo.domains.base import KERNEL_TYPES, SIGNS, Domain, kernel_array
+from thermo.energy import total_energy_kernel, validate_configuration
+from thermo.errors import SamplerError
 
 __all__ = ["TemperingResult", "run_tempering", "default_ladder", "adaptive_ladder",
            "swap_probability", "integrated_autocorr_time"]
@@ -52,10 +52,16 @@ def swap_probability(beta_i: float, beta_j: float, e_i: float, e_j: float) -> fl
     return math.exp(x)
 
 
-@njit(cache=True)
-def _tempering_kernel(pos, energies, signs, betas, steps, max_step, kind, params, core,
-                      n_total, burn_in, thin, adapt_every, target, out_e, out_pos,
-                      move_acc, move_att, swap_acc, swap_att, seed, pos_stride):
+_V, _I, _F = types.float64[::1], types.int64, types.float64
+
+
+# kernels as first-class functions (*domain.kernels()): compiled once for all domains, cached
+@njit(types.void(types.float64[:, :, ::1], _V, SIGNS, _V, _V, _F, *KERNEL_TYPES, _F, _I, _I, _I,
+                 _I, _F, types.float64[:, ::1], types.float64[:, :, :, ::1], _V, _V, _V, _V, _I,
+                 _I), cache=True)
+def _tempering_kernel(pos, energies, signs, betas, steps, max_step, self_fn, pair_fn, wall_fn,
+                      move_fn, params, core, n_total, burn_in, thin, adapt_every, target, out_e,
+                      out_pos, move_acc, move_att, swap_acc, swap_att, seed, pos_stride):
     np.random.seed(seed)
     n_rep = pos.shape[0]
     n = pos.shape[1]
@@ -74,9 +80,9 @@ def _tempering_kernel(pos, energies, signs, betas, steps, max_step, kind, params
                 i = np.random.randint(0, n)
                 xn = conf[i, 0] + h * (2.0 * np.random.random() - 1.0)
                 yn = conf[i, 1] + h * (2.0 * np.random.random() - 1.0)
-                if wall_distance_kernel(kind, params, xn, yn) <= core:
+                if wall_fn(xn, yn, params) <= core:
                     continue
-                de = move_energy_change_kernel(conf, signs, i, xn, yn, kind, params, min_d2)
+                de = move_fn(conf, signs, i, xn, yn, params, min_d2, self_fn, pair_fn)
                 if de == np.inf:
                     continue
                 bde = beta * de
@@ -92,7 +98,7 @@ def _tempering_kernel(pos, energies, signs, betas, steps, max_step, kind, params
                 block_acc[k] += acc
                 block_att[k] += n
             if (sweep + 1) % _ENERGY_REFRESH == 0:
-                energies[k] = total_energy_kernel(conf, signs, kind, params)
+                energies[k] = total_energy_kernel(conf, signs, self_fn, pair_fn, params)
         # neighbour swaps on alternating pairs (0-1, 2-3, ... then 1-2, 3-4, ...)
         for k in range(sweep % 2, n_rep - 1, 2):
             p = swap_probability(betas[k], betas[k + 1], energies[k], energies[k + 1])
@@ -191,7 +197,7 @@ class TemperingResult:
     n_plus, n_minus : int
     core_radius : float
         Hard-core radius a (length unit).
-    domain : Disk or Box
+    domain : Domain (a Disk, a Box, ...)
     step_sizes : ndarray (K,)
         Frozen move half-widths after burn-in (length unit).
     burn_in, thin : int
@@ -265,7 +271,7 @@ def run_tempering(domain: Domain, n_plus: int, n_minus: int, betas, n_sweeps: in
 
     Parameters
     ----------
-    domain : Disk or Box
+    domain : Domain (a Disk, a Box, ...)
     n_plus, n_minus : int
         Numbers of positive and negative vortices (fixed).
     betas : array_like (K,)
@@ -296,7 +302,7 @@ def run_tempering(domain: Domain, n_plus: int, n_minus: int, betas, n_sweeps: in
     """
     n_plus, n_minus = _check_counts(n_plus, n_minus)
     n = n_plus + n_minus
-    b = np.ascontiguousarray(np.asarray(betas, dtype=np.float64).ravel())
+    b = kernel_array(np.asarray(betas, dtype=np.float64).ravel(), np.float64)
     if b.size < 1 or not np.all(np.isfinite(b)):
         raise SamplerError(f"betas must be a non-empty list of finite numbers; got {betas!r}")
     if b.size > 1:
@@ -330,10 +336,11 @@ def run_tempering(domain: Domain, n_plus: int, n_minus: int, betas, n_sweeps: in
             raise SamplerError(f"initial must have shape ({n}, 2) or ({k_rep}, {n}, 2); got {init.shape}")
         validate_configuration(init, signs, domain, core_radius=core_radius, batched=True)
         pos = init.copy()
-    pos = np.ascontiguousarray(pos)
-    code, params = domain.kernel_params()
-    energies = np.array([total_energy_kernel(pos[k], signs, code, params) for k in range(k_rep)])
-    size = 2.0 if domain.kind == "disk" else max(domain.area, 1.0 / domain.area)
+    pos = kernel_array(pos, np.float64)
+    kern = domain.kernels()
+    energies = np.array([total_energy_kernel(pos[k], signs, kern.self_energy, kern.pair_energy,
+                                             kern.params) for k in range(k_rep)])
+    size = domain.max_step
     steps = np.full(k_rep, min(0.3, size / 4))
     s_rec = n_sweeps // thin
     out_e = np.empty((k_rep, s_rec))
@@ -344,7 +351,7 @@ def run_tempering(domain: Domain, n_plus: int, n_minus: int, betas, n_sweeps: in
     swap_att = np.zeros(max(k_rep - 1, 0))
     seed = int(rng.integers(0, 2**31 - 1))
     adapt_every = max(5, int(math.ceil(200 / n)))
-    _tempering_kernel(pos, energies, signs, b, steps, size, code, params, float(core_radius),
+    _tempering_kernel(pos, energies, signs, b, steps, size, *kern, float(core_radius),
                       int(burn + s_rec * thin), int(burn), int(thin), adapt_every,
                       float(target_acceptance), out_e, out_pos, move_acc, move_att,
                       swap_acc, swap_att, seed, int(position_stride))
@@ -385,7 +392,7 @@ def default_ladder(n_plus: int, n_minus: int, core_radius: float, domain: Domain
     n_plus, n_minus : int
     core_radius : float
         Core radius (validated; the ladder shape does not depend on it). Length unit.
-    domain : Disk or Box
+    domain : Domain (a Disk, a Box, ...)
         The domain (the thresholds are domain-independent power counting).
     n_temps : int
         Number of betas K >= 3 (0 is always included).
@@ -398,7 +405,7 @@ def default_ladder(n_plus: int, n_minus: int, core_radius: float, domain: Domain
     """
     n_plus, n_minus = _check_counts(n_plus, n_minus)
     if not isinstance(domain, Domain):
-        raise SamplerError(f"domain must be a Disk or Box; got {domain!r}")
+        raise SamplerError(f"domain must be a thermo domain (Disk, Box, ...); got {domain!r}")
     if not (math.isfinite(core_radius) and core_radius > 0):
         raise SamplerError(f"core_radius = {core_radius!r}: must be > 0")
     if not (isinstance(n_temps, (int, np.integer)) and n_temps >= 3):

@@ -5,7 +5,7 @@ The geometry (disk radius, or box width and height, and the vortex core radius) 
 keyword arguments or from a TOML file beside the table (same stem, ``.toml``); keyword
 arguments override the file key by key. Accepted TOML keys::
 
-    shape = "disk"          # or "box"
+    shape = "disk"          # or "box": the kind name of a thermo domain class
     radius_um = 40.0        # disk
     width_um = 80.0         # box (x extent)
     height_um = 60.0        # box (y extent)
@@ -13,7 +13,9 @@ arguments override the file key by key. Accepted TOML keys::
     pixel_um = 0.8          # only if the table is in pixels
     center_px = [256.0, 240.0]
 
-The public names are also importable from :mod:`thermo.data.measured`, which reads the tables.
+The shape names are the kind names of the domain classes found in :mod:`thermo.domains`
+(:func:`thermo.domains.kinds.domain_class`); each class names the sizes (``radius``, or
+``width`` and ``height``) that fix it, read here with the suffix ``_um``.
 
 Units: micrometres; pixel coordinates in pixels; thermo's scaled positions in units of the
 disk radius or of the box height.
@@ -29,7 +31,9 @@ from typing import Any, Sequence
 
 import numpy as np
 
-from thermo.errors import MeasuredTableError
+from thermo.domains.base import Domain
+from thermo.domains.kinds import domain_class, domain_classes
+from thermo.errors import DomainError, MeasuredTableError
 
 GEOMETRY_KEYS = ("shape", "radius_um", "width_um", "height_um", "core_um", "pixel_um",
                  "center_px")
@@ -41,7 +45,7 @@ class Geometry:
 
     Attributes
     ----------
-    shape : ``"disk"`` or ``"box"``.
+    shape : the kind name of a thermo domain, ``"disk"`` or ``"box"``.
     radius_um : disk radius; width_um, height_um : box sides (x and y).
     core_um : vortex core radius, ``None`` if not known.
 
@@ -55,30 +59,25 @@ class Geometry:
     core_um: float | None = None
 
     def __post_init__(self) -> None:
-        if self.shape == "disk":
-            _positive("radius_um", self.radius_um, "a disk")
-        elif self.shape == "box":
-            _positive("width_um", self.width_um, "a box")
-            _positive("height_um", self.height_um, "a box")
-        else:
-            raise MeasuredTableError(
-                f"geometry shape {self.shape!r} is not known; accepted: 'disk', 'box'")
+        for key in _size_keys(self.shape):
+            _positive(key, getattr(self, key), f"a {self.shape}")
         if self.core_um is not None and not (math.isfinite(self.core_um)
                                              and self.core_um > 0):
             raise MeasuredTableError(f"core_um must be a positive number; got {self.core_um}")
 
+    def _scaled_domain(self) -> tuple[Domain, float]:
+        cls = _shape_class(self.shape)
+        return cls.from_sizes({name: getattr(self, f"{name}_um") for name in cls.size_names})
+
     @property
     def length_scale_um(self) -> float:
         """Micrometres per scaled thermo unit: the disk radius, or the box side along y
-        (thermo.domains.Box is [-aspect/2, aspect/2] x [-1/2, 1/2])."""
-        return float(self.radius_um if self.shape == "disk" else self.height_um)
+        (thermo.domains.box.Box is [-aspect/2, aspect/2] x [-1/2, 1/2])."""
+        return float(self._scaled_domain()[1])
 
-    def domain(self) -> Any:
-        """The thermo domain object for this geometry (thermo.domains)."""
-        from thermo import domains
-        if self.shape == "disk":
-            return domains.Disk()
-        return domains.Box(float(self.width_um) / float(self.height_um))
+    def domain(self) -> Domain:
+        """The thermo domain object for this geometry, of the class whose kind is the shape."""
+        return self._scaled_domain()[0]
 
     def to_scaled(self, xy_um: Any) -> np.ndarray:
         """Positions about the trap centre in um -> thermo scaled positions.
@@ -90,6 +89,27 @@ class Geometry:
     def to_um(self, xy_scaled: Any) -> np.ndarray:
         """Inverse of :meth:`to_scaled`."""
         return np.asarray(xy_scaled, dtype=np.float64) * self.length_scale_um
+
+
+def _shape_class(shape: Any) -> type[Domain]:
+    """The domain class of a geometry shape; refuse an unknown shape, listing the known ones."""
+    try:
+        return domain_class(shape)
+    except DomainError:
+        accepted = ", ".join(repr(k) for k in domain_classes())
+        raise MeasuredTableError(
+            f"geometry shape {shape!r} is not known; accepted: {accepted}") from None
+
+
+def _size_keys(shape: Any) -> tuple[str, ...]:
+    """Geometry keys (micrometres) that fix a domain of this shape, e.g. ("radius_um",)."""
+    keys = tuple(f"{name}_um" for name in _shape_class(shape).size_names)
+    unknown = [k for k in keys if k not in GEOMETRY_KEYS]
+    if unknown:
+        raise MeasuredTableError(
+            f"geometry shape {shape!r} needs the size(s) {unknown}, which a geometry file "
+            f"cannot give; accepted keys: {list(GEOMETRY_KEYS)}")
+    return keys
 
 
 def _positive(key: str, value: Any, what: str) -> None:
@@ -196,10 +216,10 @@ def resolve_geometry(table_path: str | Path, *, shape: str | None = None,
             raise MeasuredTableError(
                 f"{table_path}: no geometry; give radius_um (disk) or width_um and "
                 f"height_um (box), as arguments or in {gfile.name} beside the table")
+    sizes = _size_keys(shp)
     geometry = Geometry(shape=str(shp),
-                        radius_um=_opt_float(merged.get("radius_um")) if shp == "disk" else None,
-                        width_um=_opt_float(merged.get("width_um")) if shp == "box" else None,
-                        height_um=_opt_float(merged.get("height_um")) if shp == "box" else None,
+                        **{k: _opt_float(merged.get(k)) if k in sizes else None
+                           for k in ("radius_um", "width_um", "height_um")},
                         core_um=_opt_float(merged.get("core_um")))
     calib = None
     if merged.get("pixel_um") is not None or merged.get("center_px") is not None:

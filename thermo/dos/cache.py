@@ -147,7 +147,7 @@ def load_or_build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
 
     Parameters
     ----------
-    n_plus, n_minus : vortex numbers; domain : thermo.domains.Disk or Box;
+    n_plus, n_minus : vortex numbers; domain : a thermo.domains.base.Domain;
     core_radius : hard-core radius a (domain length unit).
     cache_dir : directory; default ``$XDG_CACHE_HOME/vortherm/dos``.
     seed : int or Generator for a build (a cache hit ignores it).

@@ -1,0 +1,313 @@
+"""The interface of a thermometry domain and the compiled loops every domain shares.
+
+A domain is a bounded shape with lengths scaled by a size of its own, so that the statistics
+depend only on the shape. Each concrete class (one module per shape in this package) gives
+
+* its user-facing kind name (:attr:`Domain.kind`) and a stable cache key (:meth:`Domain.key`);
+* containment with a margin, through the distance to the wall (:meth:`Domain.distance_to_wall`);
+* uniform sampling (:meth:`Domain.sample_uniform`) and the sampling box of the Monte Carlo
+  moves (:attr:`Domain.max_step`);
+* its compiled energy kernels (:meth:`Domain.kernels`): the self (image) term, the pair
+  Green's function, the distance to the wall and the energy change of a single move.
+
+The compiled Monte Carlo and energy loops (:mod:`thermo.sampler`, :mod:`thermo.energy`) take
+those kernels as numba first-class function arguments typed by the signatures below, so they
+never know which shapes exist; this module builds :meth:`Domain.green` and
+:meth:`Domain.robin` for arrays on the same kernels.
+
+Green's function convention (the mathematician's one): :math:`-\\nabla^2 G(z, z_0) =
+\\delta(z - z_0)`, :math:`G = 0` on the wall, and
+
+.. math:: G(z, z_0) = -\\frac{1}{2\\pi}\\ln|z - z_0| + h(z, z_0),
+
+with the regular part ``h``; the Robin function is :math:`R(z) = h(z, z)` and the conformal
+radius is :math:`r_c(z) = \\exp(2\\pi R(z))`.
+
+In energy units :math:`E_0 = \\rho\\kappa^2/(4\\pi)` the pair energy of two vortices is
+:math:`s_i s_j\\,4\\pi G(z_i, z_j)` and the self (image) energy of one vortex is
+:math:`2\\pi R(z_i) = \\ln r_c(z_i)`, the constant :math:`N\\ln(L/a)` (L the length unit, a the
+core) being dropped. Every shape shares this convention, so a vortex at a distance d from a
+straight wall, far from all other walls, has :math:`r_c \\approx 2d` in any of them.
+
+Units: positions dimensionless (scaled by the domain's length unit); G and R dimensionless;
+energies in E0.
+"""
+
+from __future__ import annotations
+
+import math
+from abc import ABC, abstractmethod
+from collections.abc import Callable, Mapping
+from typing import ClassVar, NamedTuple
+
+import numpy as np
+from numba import njit, types
+
+from thermo.errors import ConfigurationError, DomainError
+
+# ---------------------------------------------------------------------------------------------
+# Kernel signatures.  The compiled loops are declared with these first-class function types:
+# a call through them is an indirect call, but the loops are compiled once for every domain and
+# cached on disk, which a specialisation on each kernel's own numba type would not allow (its
+# cache index never matches in a new process).
+# ---------------------------------------------------------------------------------------------
+PARAMS = types.float64[::1]
+POINTS = types.float64[:, ::1]
+SIGNS = types.int64[::1]
+
+#: (x, y, params) -> 2 pi R(z) = ln r_c(z), the self (image) energy. Units: E0.
+SELF_SIGNATURE = types.float64(types.float64, types.float64, PARAMS)
+#: (x1, y1, x2, y2, params) -> 4 pi G(z1, z2), the pair energy of like signs. Units: E0.
+PAIR_SIGNATURE = types.float64(types.float64, types.float64, types.float64, types.float64, PARAMS)
+#: (x, y, params) -> distance to the nearest wall, negative outside. Units: length unit.
+WALL_SIGNATURE = types.float64(types.float64, types.float64, PARAMS)
+
+SelfKernel = types.FunctionType(SELF_SIGNATURE)
+PairKernel = types.FunctionType(PAIR_SIGNATURE)
+WallKernel = types.FunctionType(WALL_SIGNATURE)
+
+#: (pos, signs, index, x_new, y_new, params, min_dist2, self_fn, pair_fn) -> E(after) -
+#: E(before) for moving one vortex, +inf when the new position is closer than sqrt(min_dist2)
+#: to another vortex. The domain's own self and pair kernels are handed in, so that one generic
+#: implementation (:func:`pair_sum_move_change`) serves every domain without a faster one of its
+#: own. Units: E0.
+MOVE_SIGNATURE = types.float64(POINTS, SIGNS, types.int64, types.float64, types.float64, PARAMS,
+                               types.float64, SelfKernel, PairKernel)
+MoveKernel = types.FunctionType(MOVE_SIGNATURE)
+
+
+class DomainKernels(NamedTuple):
+    """The compiled kernels of one domain and the parameter vector they all take.
+
+    Attributes
+    ----------
+    self_energy : numba dispatcher with :data:`SELF_SIGNATURE`
+    pair_energy : numba dispatcher with :data:`PAIR_SIGNATURE`
+    wall_distance : numba dispatcher with :data:`WALL_SIGNATURE`
+    move_change : numba dispatcher with :data:`MOVE_SIGNATURE`
+    params : numpy.ndarray float64, C-contiguous, shape (P,)
+        Shape parameters read by the kernels (never written).
+
+    Units: as in the signatures (E0, length unit).
+    """
+
+    self_energy: Callable[..., float]
+    pair_energy: Callable[..., float]
+    wall_distance: Callable[..., float]
+    move_change: Callable[..., float]
+    params: np.ndarray
+
+
+#: The numba types of the fields of :class:`DomainKernels`, in order: a compiled loop declared
+#: with them in its signature is called with ``*domain.kernels()``.
+KERNEL_TYPES = (SelfKernel, PairKernel, WallKernel, MoveKernel, PARAMS)
+
+
+@njit(MOVE_SIGNATURE, cache=True, error_model="numpy")
+def pair_sum_move_change(pos, signs, index, x_new, y_new, params, min_dist2, self_fn, pair_fn):
+    """E(after) - E(before) for moving vortex ``index``, from the self and pair kernels. O(N).
+
+    The generic :data:`MOVE_SIGNATURE` kernel: 2 self and 2(N - 1) pair evaluations per move.
+
+    Units: positions in the length unit, energies in E0; +inf inside the hard core.
+    """
+    n = pos.shape[0]
+    x_old = pos[index, 0]
+    y_old = pos[index, 1]
+    s_k = signs[index]
+    d = self_fn(x_new, y_new, params) - self_fn(x_old, y_old, params)
+    for j in range(n):
+        if j == index:
+            continue
+        xj = pos[j, 0]
+        yj = pos[j, 1]
+        dx = x_new - xj
+        dy = y_new - yj
+        if dx * dx + dy * dy < min_dist2:
+            return np.inf
+        d += s_k * signs[j] * (pair_fn(x_new, y_new, xj, yj, params)
+                               - pair_fn(x_old, y_old, xj, yj, params))
+    return d
+
+
+@njit(types.void(PairKernel, PARAMS, POINTS, POINTS, types.float64[::1]), cache=True)
+def _pair_many(pair_fn, params, p1, p2, out):
+    for i in range(p1.shape[0]):
+        out[i] = pair_fn(p1[i, 0], p1[i, 1], p2[i, 0], p2[i, 1], params)
+
+
+@njit(types.void(SelfKernel, PARAMS, POINTS, types.float64[::1]), cache=True)
+def _self_many(self_fn, params, p, out):
+    for i in range(p.shape[0]):
+        out[i] = self_fn(p[i, 0], p[i, 1], params)
+
+
+def kernel_array(a, dtype) -> np.ndarray:
+    """``a`` as a C-contiguous, writeable array of ``dtype``, copied only if needed.
+
+    The compiled loops are declared for such arrays (a read-only one has another numba type).
+    Units: unchanged.
+    """
+    return np.require(a, dtype=dtype, requirements=("C", "W"))
+
+
+def as_points(pos, name: str) -> np.ndarray:
+    """``pos`` as a float64 array of points (last axis x, y); raise naming ``name`` otherwise.
+
+    Units: unchanged.
+    """
+    arr = np.asarray(pos, dtype=np.float64)
+    if arr.ndim < 1 or arr.shape[-1] != 2:
+        raise ConfigurationError(
+            f"{name} must be an array of points with last axis of length 2 (x, y); got shape "
+            f"{arr.shape}")
+    return arr
+
+
+class Domain(ABC):
+    """A bounded domain of the point-vortex gas (see the module docstring).
+
+    Subclasses are frozen dataclasses in a module of their own in this package; they set
+    :attr:`kind` and :attr:`size_names` and implement every abstract member. Lengths are in the
+    domain's length unit throughout.
+    """
+
+    #: User-facing kind name ("disk", "box", ...), also the shape name of geometry files.
+    kind: ClassVar[str] = ""
+    #: Names of the physical sizes that fix the domain (e.g. ("radius",)), see
+    #: :meth:`from_sizes`.
+    size_names: ClassVar[tuple[str, ...]] = ()
+
+    # -- to be provided by every domain ----------------------------------------------------
+    @classmethod
+    @abstractmethod
+    def from_sizes(cls, sizes: Mapping[str, float]) -> tuple["Domain", float]:
+        """The domain of the given physical sizes and its length unit.
+
+        Parameters
+        ----------
+        sizes : mapping
+            One positive number for each name in :attr:`size_names`. Units: any length unit.
+
+        Returns
+        -------
+        domain : Domain
+        length_unit : float
+            The physical length that scaled positions are measured in. Units: those of
+            ``sizes``.
+        """
+
+    @abstractmethod
+    def key(self) -> tuple:
+        """Hashable identity for caches, stable across processes and versions. Units: none."""
+
+    @abstractmethod
+    def kernels(self) -> DomainKernels:
+        """The compiled kernels and their parameter vector. Units: see :class:`DomainKernels`."""
+
+    @property
+    @abstractmethod
+    def area(self) -> float:
+        """Area of the domain. Units: length unit squared."""
+
+    @property
+    @abstractmethod
+    def max_step(self) -> float:
+        """Largest half-width of the square in which a Monte Carlo move is proposed.
+
+        Units: length unit.
+        """
+
+    @abstractmethod
+    def distance_to_wall(self, pos) -> np.ndarray:
+        """Distance of each point to the nearest wall (negative outside).
+
+        Parameters
+        ----------
+        pos : array_like, shape (..., 2)
+            Scaled positions. Units: length unit.
+
+        Returns
+        -------
+        numpy.ndarray, shape (...)
+            Units: length unit.
+        """
+
+    @abstractmethod
+    def sample_uniform(self, rng: np.random.Generator, n: int, margin: float = 0.0) -> np.ndarray:
+        """n points uniform in the points farther than ``margin`` from the wall, shape (n, 2).
+
+        Units: length unit.
+        """
+
+    # -- shared ----------------------------------------------------------------------------
+    def contains(self, pos, margin: float = 0.0) -> np.ndarray:
+        """True where a point lies inside with its distance to the wall greater than ``margin``.
+
+        Parameters
+        ----------
+        pos : array_like, shape (..., 2)
+            Scaled positions.
+        margin : float
+            Hard-core distance to the wall (core radius). Units: length unit.
+
+        Returns
+        -------
+        numpy.ndarray of bool, shape (...)
+        """
+        p = as_points(pos, "pos")
+        with np.errstate(invalid="ignore"):
+            return np.isfinite(p).all(axis=-1) & (self.distance_to_wall(p) > margin)
+
+    def green(self, pos, pos0) -> np.ndarray:
+        """Dirichlet Green's function G(z, z0) (-lap G = delta, G = 0 on the wall).
+
+        Parameters
+        ----------
+        pos, pos0 : array_like, shape (..., 2), broadcastable
+            Field and source points. Units: length unit.
+
+        Returns
+        -------
+        numpy.ndarray, shape (...)
+            Dimensionless.
+        """
+        p, p0 = np.broadcast_arrays(as_points(pos, "pos"), as_points(pos0, "pos0"))
+        k = self.kernels()
+        a = kernel_array(p.reshape(-1, 2), np.float64)
+        b = kernel_array(p0.reshape(-1, 2), np.float64)
+        out = np.empty(a.shape[0])
+        _pair_many(k.pair_energy, k.params, a, b, out)
+        return (out / (4.0 * np.pi)).reshape(p.shape[:-1])
+
+    def robin(self, pos) -> np.ndarray:
+        """Robin function R(z) = h(z, z), the regular part of G on the diagonal.
+
+        ``2 pi R(z)`` is the log of the conformal radius and, in E0 units, the self energy of
+        one vortex at z (constant ln(L/a) dropped). Units: dimensionless.
+        """
+        p = as_points(pos, "pos")
+        k = self.kernels()
+        flat = kernel_array(p.reshape(-1, 2), np.float64)
+        out = np.empty(flat.shape[0])
+        _self_many(k.self_energy, k.params, flat, out)
+        return (out / (2.0 * np.pi)).reshape(p.shape[:-1])
+
+    def conformal_radius(self, pos) -> np.ndarray:
+        """Conformal radius exp(2 pi R(z)). Units: length unit."""
+        return np.exp(2.0 * np.pi * self.robin(pos))
+
+
+def check_sizes(cls: type[Domain], sizes: Mapping[str, float]) -> dict[str, float]:
+    """The sizes named by ``cls.size_names`` as floats; raise if one is missing or not > 0.
+
+    Units: unchanged.
+    """
+    out = {}
+    for name in cls.size_names:
+        v = sizes.get(name)
+        if v is None or isinstance(v, bool) or not isinstance(v, (int, float, np.floating)) \
+                or not math.isfinite(v) or v <= 0:
+            raise DomainError(f"a {cls.kind} needs a positive number {name}; got {v!r}")
+        out[name] = float(v)
+    return out

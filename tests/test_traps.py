@@ -1,5 +1,5 @@
-"""Tests of gpe.field.traps: shape discovery, trap shapes, signed distances, areas, smooth walls
-and mask images.
+"""Tests of gpe.field.traps: shape discovery, trap shapes, signed distances, areas, smooth walls,
+mask images and the point-vortex domains of the shapes.
 
 Ramps, beam paths and the BeamSet (gpe/field/beams.py) are tested in test_beams.py.
 """
@@ -10,7 +10,7 @@ import types
 import numpy as np
 import pytest
 
-from gpe.errors import ProtocolError
+from gpe.errors import ProtocolError, VorthermError
 from gpe.field.grid import Grid
 from gpe.field.traps.annulus import AnnulusTrap
 from gpe.field.traps.base import WalledTrap, shape_of_module, smooth_wall, trap_shapes
@@ -167,6 +167,21 @@ def test_uncapped_harmonic_grows_as_its_formula_far_outside():
     trap = HarmonicTrap(omega_x=0.2, omega_y=0.3)
     assert trap.potential(GRID)[0, 0] == pytest.approx(0.5 * (0.04 * 32.0**2 + 0.09 * 24.0**2), rel=1e-12)
     assert trap.extent() == pytest.approx((2 * math.sqrt(2) / 0.2, 2 * math.sqrt(2) / 0.3))
+
+
+def test_only_disk_box_and_harmonic_have_a_point_vortex_domain(tmp_path):
+    png, _ = _disk_png(tmp_path)
+    for trap in (AnnulusTrap(inner_radius=5.0, outer_radius=20.0), MaskTrap(file=str(png), pixel_size=0.5)):
+        with pytest.raises(VorthermError, match=f"trap shape '{trap.shape}' has no point-vortex domain"):
+            trap.vortex_domain(0.5, 1.0)
+    # [exact] R_eff = R - wall layer must exceed four cores; the box shrinks by the layer on each side
+    with pytest.raises(VorthermError, match="disk radius 3 xi is too small"):
+        DiskTrap(radius=3.0).vortex_domain(0.5, 1.0)
+    assert DiskTrap(radius=3.1).vortex_domain(0.5, 1.0).scale == pytest.approx(2.1)
+    with pytest.raises(VorthermError, match="box is too small"):
+        BoxTrap(length_x=40.0, length_y=4.0).vortex_domain(0.5, 1.0)
+    vd = BoxTrap(length_x=40.0, length_y=30.0).vortex_domain(0.5, 1.0)
+    assert vd.domain.aspect == pytest.approx(38.0 / 28.0) and vd.core_radius == pytest.approx(0.5 / 28.0)
 
 
 def test_sharp_wall_is_a_step_with_half_height_on_the_edge():

@@ -1,13 +1,14 @@
 """Bridge from the field side to the vortex gas: detected vortices -> thermo configurations.
 
 The thermometry back end (``thermo``) works with signed points in a unit domain and a hard core.
-This module decides, for a simulated trap, which domain stands in for it and how detected
-vortices map onto that domain:
+Each trap shape decides which domain stands in for it (``vortex_domain`` of the classes in
+gpe.field.traps), given the wall layer and core radius of this module; this module maps detected
+vortices onto that domain:
 
 * a flat-bottomed disk of radius R becomes the unit disk with R_eff = R - ``wall_layer`` (the
   density vanishes over about one healing length at a hard wall, so the superfluid edge sits
   inside the nominal radius: common practice);
-* a box becomes a ``thermo.domains.Box`` with the same aspect ratio, shrunk the same way;
+* a box becomes a ``thermo.domains.box.Box`` with the same aspect ratio, shrunk the same way;
 * a harmonic trap becomes the disk of the Thomas–Fermi radius, **flagged** as an approximation
   (the density is not uniform, so the uniform-domain point-vortex model is only indicative);
 * annulus and mask traps have no point-vortex domain here; thermometry refuses them clearly.
@@ -21,12 +22,11 @@ Units: inputs in xi (healing lengths); outputs in the domain's scaled length.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 import numpy as np
 
-from gpe.errors import VorthermError
+from gpe.field.traps.base import Trap, VortexDomain
 from thermo.domains.box import Box
 from thermo.domains.disk import Disk
 
@@ -36,63 +36,13 @@ WALL_LAYER_XI = 1.0
 CORE_RADIUS_XI = 0.5
 
 
-@dataclass(frozen=True)
-class VortexDomain:
-    """The point-vortex stand-in for a trap.
-
-    Attributes
-    ----------
-    domain : thermo.domains.Disk or Box
-    scale : float
-        Length of one domain unit in xi (disk: R_eff; box: the side along y).
-    center : (float, float)
-        Trap centre in xi.
-    core_radius : float
-        Hard core in domain units.
-    approximate : str
-        Empty for flat-bottomed traps; otherwise why the model is only an approximation.
-    """
-
-    domain: object
-    scale: float
-    center: tuple[float, float]
-    core_radius: float
-    approximate: str = ""
-
-    def to_domain(self, x: np.ndarray, y: np.ndarray) -> np.ndarray:
-        """Positions in xi -> (N, 2) positions in domain units."""
-        return np.column_stack(((np.asarray(x) - self.center[0]) / self.scale,
-                                (np.asarray(y) - self.center[1]) / self.scale))
-
-
-def domain_for_trap(trap, core_radius_xi: float = CORE_RADIUS_XI,
+def domain_for_trap(trap: Trap, core_radius_xi: float = CORE_RADIUS_XI,
                     wall_layer_xi: float = WALL_LAYER_XI) -> VortexDomain:
-    """Choose the point-vortex domain for a resolved trap (``gpe.field.traps.TrapConfig``).
+    """The point-vortex domain of a resolved trap, with this module's wall layer and core.
 
     Units: lengths in xi.
     """
-    shape = trap.shape
-    if shape == "disk":
-        r_eff = trap.radius - wall_layer_xi
-        if r_eff <= 4 * core_radius_xi:
-            raise VorthermError(f"thermometry: the disk radius {trap.radius:.3g} xi is too small "
-                                "for a vortex gas (need several healing lengths)")
-        return VortexDomain(Disk(), r_eff, (0.0, 0.0), core_radius_xi / r_eff)
-    if shape == "box":
-        lx = trap.length_x - 2 * wall_layer_xi
-        ly = trap.length_y - 2 * wall_layer_xi
-        if min(lx, ly) <= 4 * core_radius_xi:
-            raise VorthermError("thermometry: the box is too small for a vortex gas")
-        return VortexDomain(Box(aspect=lx / ly), ly, (0.0, 0.0), core_radius_xi / ly)
-    if shape == "harmonic":
-        # Thomas-Fermi radius at mu = 1: V(R) = 1 -> R = sqrt(2)/omega (geometric mean).
-        omega = math.sqrt(trap.omega_x * trap.omega_y)
-        r_tf = math.sqrt(2.0) / omega
-        return VortexDomain(Disk(), r_tf, (0.0, 0.0), core_radius_xi / r_tf,
-                            approximate=("harmonic trap: the uniform-disk point-vortex model of "
-                                         "radius R_TF is only an approximation"))
-    raise VorthermError(f"thermometry: trap shape {shape!r} has no point-vortex domain; accepted "
-                        "shapes: disk, box (harmonic as a flagged approximation)")
+    return trap.vortex_domain(core_radius_xi, wall_layer_xi)
 
 
 @dataclass(frozen=True)

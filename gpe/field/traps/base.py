@@ -7,8 +7,9 @@ subclass of :class:`Trap`; :func:`trap_shapes` finds them, so adding a shape is 
 A shape knows the keys of the protocol's [trap] table it uses and how to build itself from that
 checked table; its Thomas-Fermi chemical potential for an atom number, from the table's SI
 values (needed before the healing units exist, since mu fixes them); its extent, area and
-Thomas-Fermi norm; its potential and signed distance to the wall on a grid; and where vortices
-may be detected.
+Thomas-Fermi norm; its potential and signed distance to the wall on a grid; where vortices
+may be detected; and the point-vortex domain (:class:`VortexDomain`) that stands in for it in
+thermometry, if it has one.
 
 Hard-walled shapes derive from :class:`WalledTrap`: ``V = V_wall (1 + tanh(d / w_edge)) / 2``
 with ``d`` the signed distance outside the allowed region (negative inside), so the wall is at
@@ -32,7 +33,9 @@ from typing import Any, ClassVar, Mapping, NoReturn, Protocol as _TypingProtocol
 
 import numpy as np
 
+from gpe.errors import VorthermError
 from gpe.field.grid import Grid
+from thermo.domains.base import Domain
 
 #: Default wall height of hard-walled traps: five times mu keeps the density out of the wall.
 DEFAULT_WALL_HEIGHT = 5.0
@@ -42,6 +45,40 @@ WALL_HEIGHT_KEY = {"kind": "float", "dim": "energy", "check": "positive"}
 LENGTH_KEY = {"kind": "float", "dim": "length", "required": True, "check": "positive"}
 #: An optional positive length key (one of a pair such as size / size_x, size_y).
 OPTIONAL_LENGTH_KEY = {"kind": "float", "dim": "length", "check": "positive"}
+
+
+@dataclass(frozen=True)
+class VortexDomain:
+    """The point-vortex stand-in for a trap.
+
+    Attributes
+    ----------
+    domain : thermo.domains.base.Domain
+        The unit domain (a disk or a box).
+    scale : float
+        Length of one domain unit (disk: R_eff; box: the side along y).
+    center : (float, float)
+        Trap centre.
+    core_radius : float
+        Hard core in domain units.
+    approximate : str
+        Empty for flat-bottomed traps; otherwise why the model is only an approximation.
+
+    Units
+    -----
+    scale and centre in xi; core radius in domain units.
+    """
+
+    domain: Domain
+    scale: float
+    center: tuple[float, float]
+    core_radius: float
+    approximate: str = ""
+
+    def to_domain(self, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+        """Positions in xi -> (N, 2) positions in domain units."""
+        return np.column_stack(((np.asarray(x) - self.center[0]) / self.scale,
+                                (np.asarray(y) - self.center[1]) / self.scale))
 
 
 class TrapSection(_TypingProtocol):
@@ -133,6 +170,24 @@ class Trap(ABC):
         """Whether the trap fits into a periodic grid of this size. Units: xi."""
         ext_x, ext_y = self.extent()
         return ext_x <= length_x and ext_y <= length_y
+
+    def vortex_domain(self, core_radius_xi: float, wall_layer_xi: float) -> VortexDomain:
+        """The point-vortex domain standing in for this trap; this default refuses (no domain).
+
+        ``wall_layer_xi`` is the depleted layer at a hard wall, ``core_radius_xi`` the vortex hard
+        core.
+
+        Raises
+        ------
+        VorthermError
+            For a shape without a point-vortex domain.
+
+        Units
+        -----
+        lengths xi.
+        """
+        raise VorthermError(f"thermometry: trap shape {self.shape!r} has no point-vortex domain; accepted "
+                            "shapes: disk, box (harmonic as a flagged approximation)")
 
 
 @dataclass(frozen=True, kw_only=True)

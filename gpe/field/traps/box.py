@@ -10,8 +10,10 @@ from pathlib import Path
 
 import numpy as np
 
+from gpe.errors import VorthermError
 from gpe.field.grid import Grid
-from gpe.field.traps.base import OPTIONAL_LENGTH_KEY, TrapSection, WalledTrap
+from gpe.field.traps.base import OPTIONAL_LENGTH_KEY, TrapSection, VortexDomain, WalledTrap
+from thermo.domains.box import Box
 
 
 def signed_distance_box(X: np.ndarray, Y: np.ndarray, length_x: float, length_y: float) -> np.ndarray:
@@ -68,3 +70,22 @@ class BoxTrap(WalledTrap):
     def signed_distance(self, grid: Grid) -> np.ndarray:
         """Exact (Euclidean at the corners) signed distance to the sides. Units: xi."""
         return signed_distance_box(grid.X, grid.Y, self.length_x, self.length_y)
+
+    def vortex_domain(self, core_radius_xi: float, wall_layer_xi: float) -> VortexDomain:
+        """A box of the same aspect ratio, shrunk by ``wall_layer_xi`` on each side (the depleted
+        layer at the wall); its length unit is the shrunk side along y.
+
+        Raises
+        ------
+        VorthermError
+            If a shrunk side is not more than four core radii.
+
+        Units
+        -----
+        lengths xi.
+        """
+        lx = self.length_x - 2 * wall_layer_xi
+        ly = self.length_y - 2 * wall_layer_xi
+        if min(lx, ly) <= 4 * core_radius_xi:
+            raise VorthermError("thermometry: the box is too small for a vortex gas")
+        return VortexDomain(Box(aspect=lx / ly), ly, (0.0, 0.0), core_radius_xi / ly)

@@ -11,8 +11,10 @@ from pathlib import Path
 
 import numpy as np
 
+from gpe.errors import VorthermError
 from gpe.field.grid import Grid
-from gpe.field.traps.base import LENGTH_KEY, TrapSection, WalledTrap
+from gpe.field.traps.base import LENGTH_KEY, TrapSection, VortexDomain, WalledTrap
+from thermo.domains.disk import Disk
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -57,3 +59,24 @@ class DiskTrap(WalledTrap):
     def signed_distance(self, grid: Grid) -> np.ndarray:
         """``r - R`` (negative inside). Units: xi."""
         return np.hypot(grid.X, grid.Y) - self.radius
+
+    def vortex_domain(self, core_radius_xi: float, wall_layer_xi: float) -> VortexDomain:
+        """The unit disk of radius ``R_eff = R - wall_layer_xi``.
+
+        The density vanishes over about one healing length at a hard wall, so the superfluid edge
+        sits inside the nominal radius (common practice).
+
+        Raises
+        ------
+        VorthermError
+            If R_eff is not more than four core radii.
+
+        Units
+        -----
+        lengths xi.
+        """
+        r_eff = self.radius - wall_layer_xi
+        if r_eff <= 4 * core_radius_xi:
+            raise VorthermError(f"thermometry: the disk radius {self.radius:.3g} xi is too small "
+                                "for a vortex gas (need several healing lengths)")
+        return VortexDomain(Disk(), r_eff, (0.0, 0.0), core_radius_xi / r_eff)

@@ -15,7 +15,8 @@ from pathlib import Path
 import numpy as np
 
 from gpe.field.grid import Grid
-from gpe.field.traps.base import WALL_HEIGHT_KEY, Trap, TrapSection
+from gpe.field.traps.base import WALL_HEIGHT_KEY, Trap, TrapSection, VortexDomain
+from thermo.domains.disk import Disk
 
 _RATE_KEY = {"kind": "float", "dim": "rate", "check": "positive"}
 #: Vortices are reported where V < 0.9 mu: the edge of the cloud, where the density fades, is left out.
@@ -131,3 +132,20 @@ class HarmonicTrap(Trap):
     def detection_region(self, v_static: np.ndarray) -> np.ndarray:
         """Below 0.9 mu: inside the cloud, away from its fading edge. Units: ``v_static`` in mu."""
         return v_static < _DETECTION_LEVEL
+
+    def vortex_domain(self, core_radius_xi: float, wall_layer_xi: float) -> VortexDomain:
+        """The disk of the Thomas-Fermi radius, flagged as an approximation.
+
+        At mu = 1, ``V(R) = 1`` gives ``R = sqrt(2) / omega`` with omega the geometric mean. The
+        density is not uniform, so the uniform-domain point-vortex model is only indicative; there
+        is no hard wall, so ``wall_layer_xi`` is not used.
+
+        Units
+        -----
+        lengths xi.
+        """
+        omega = math.sqrt(self.omega_x * self.omega_y)
+        r_tf = math.sqrt(2.0) / omega
+        return VortexDomain(Disk(), r_tf, (0.0, 0.0), core_radius_xi / r_tf,
+                            approximate=("harmonic trap: the uniform-disk point-vortex model of "
+                                         "radius R_TF is only an approximation"))

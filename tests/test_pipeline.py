@@ -7,11 +7,9 @@ every test to a few seconds.
 import numpy as np
 import pytest
 
+from gpe.errors import RunFileError
+from gpe.run import reading, thermometry
 from gpe.run import simulate as pipeline
-
-from gpe.run import reading
-
-from gpe.run import thermometry
 from gpe.run.runfile import RunFile
 from gpe.setup.protocol import parse_protocol
 from tiny_protocol import healing_header, tiny_protocol_text
@@ -65,6 +63,25 @@ def test_interrupted_run_resumes_to_the_same_file(tmp_path):
         for i in range(len(a.frame_times())):
             np.testing.assert_array_equal(a.psi(i), b.psi(i))
         np.testing.assert_array_equal(a.read_vortices(), b.read_vortices())
+
+
+def test_resuming_with_another_protocol_is_refused(tmp_path):
+    """A run file keeps the protocol it was started with; continuing it with an edited one would
+    join two runs in one file (frame k old, frame k+1 new)."""
+    part = tmp_path / "part.h5"
+
+    def stop_after_frame_3(progress):
+        if progress.steps >= 3 * 20:
+            raise _Stop
+
+    with pytest.raises(_Stop):
+        pipeline.simulate(_protocol(tmp_path), part, progress=stop_after_frame_3)
+    edited = _protocol(tmp_path, ["evolution.damping=0.03"])
+    with pytest.raises(RunFileError, match="another protocol"):
+        pipeline.simulate(edited, part, resume=True)
+    assert not reading.is_complete(part)   # left as it was: resumable with its own protocol
+    pipeline.simulate_resume(part)
+    assert reading.is_complete(part)
 
 
 def test_seeds_change_the_noise_and_nothing_else(tmp_path):

@@ -27,8 +27,6 @@ from dataclasses import dataclass
 import numpy as np
 
 from gpe.field.traps.base import Trap, VortexDomain
-from thermo.domains.box import Box
-from thermo.domains.disk import Disk
 
 #: Thickness of the depleted layer at a hard wall, in healing lengths (common practice: ~1 xi).
 WALL_LAYER_XI = 1.0

@@ -119,6 +119,14 @@ def simulate(protocol, out_path, *, resume: bool = False,
         if run.is_complete():
             run.close()
             return out_path
+        if (run.protocol_text(), tuple(run.protocol_overrides())) != (protocol.source_text,
+                                                                     tuple(protocol.overrides)):
+            run.close()
+            raise RunFileError(
+                f"{out_path}: the run was started with another protocol (its stored text or "
+                "overrides differ from the one given now); resuming would join two runs. Continue "
+                f"it with its own protocol (`vortherm run --resume {out_path}`), or start again "
+                "with --force")
         ck = run.read_checkpoint()
         psi0, t0, step0, frame0 = ck.psi, ck.t, ck.step, ck.frame
         mu_run = run.attrs_float("mu_run")

@@ -75,7 +75,7 @@ def _initial_state(protocol, v_static, beams, threads):
     gs = find_ground_state(
         protocol.grid, v_static, g=1.0, beams=beams, dt=gs_cfg.dt,
         tol=min(gs_cfg.mu_tolerance, gs_cfg.energy_tolerance), max_steps=gs_cfg.max_steps,
-        vortices=vortices, threads=threads, **kwargs)
+        vortices=vortices, threads=threads, fft_planning=protocol.evolution.fft_planning, **kwargs)
     psi = gs.psi.copy()
     if gs_cfg.noise_amplitude > 0:
         # Relative complex noise, only where there is fluid, drawn from the protocol's seed:
@@ -186,7 +186,7 @@ def simulate(protocol, out_path, *, resume: bool = False,
 def _make_solver(protocol, v_static, beams, mu_run, psi0, t0, step0, threads):
     ev = protocol.evolution
     settings = SolverSettings(dt=ev.dt, gamma=ev.gamma, mu=mu_run, g=1.0,
-                              precision=ev.precision, threads=threads)
+                              precision=ev.precision, threads=threads, fft_planning=ev.fft_planning)
     return Solver(protocol.grid, v_static, beams, settings, psi0, t0=t0, step0=step0)
 
 

@@ -85,6 +85,7 @@ class EvolutionConfig:
     seed: int
     checkpoint_every_outputs: int
     checkpoint_every_s: float
+    fft_planning: str = "reproducible"
 
     @property
     def steps_per_output(self) -> int:
@@ -247,7 +248,8 @@ def _resolve_settings(gs: _Section, imprints: list[_Section], ev: _Section) -> t
     evolution = EvolutionConfig(
         duration=duration, dt=dt, output_interval=interval, gamma=ev.get("damping"),
         precision=ev.get("precision"), seed=ev.get("seed"),
-        checkpoint_every_outputs=ev.get("checkpoint_every_outputs"), checkpoint_every_s=ev.get("checkpoint_every_s"))
+        checkpoint_every_outputs=ev.get("checkpoint_every_outputs"), checkpoint_every_s=ev.get("checkpoint_every_s"),
+        fft_planning=ev.get("fft_planning"))
     return ground, evolution
 
 

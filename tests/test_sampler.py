@@ -1,4 +1,4 @@
-"""Tests of thermo.sampler: Metropolis moves, parallel tempering, autocorrelation estimates."""
+"""Tests of thermo.sampler: Metropolis moves, parallel tempering."""
 
 import numpy as np
 import pytest
@@ -8,8 +8,8 @@ from thermo.domains.box import Box
 from thermo.domains.disk import Disk
 from thermo.energy import energy_batch
 from thermo.errors import SamplerError
-from thermo.sampler import (adaptive_ladder, default_ladder, integrated_autocorr_time,
-                            run_tempering, swap_probability)
+from thermo.autocorr import integrated_autocorr_time
+from thermo.sampler import adaptive_ladder, default_ladder, run_tempering, swap_probability
 
 
 def _mean_and_se(x):
@@ -29,20 +29,6 @@ def test_swap_probability_is_the_tempering_rule():
         fwd = np.exp(-bi * ea - bj * eb) * swap_probability(bi, bj, ea, eb)
         bwd = np.exp(-bi * eb - bj * ea) * swap_probability(bi, bj, eb, ea)
         assert fwd == pytest.approx(bwd, rel=1e-12)
-
-
-def test_autocorrelation_time_of_ar1(rng):
-    # AR(1) x_t = phi x_{t-1} + noise has rho(t) = phi^t, so tau_int = (1 + phi)/(1 - phi)
-    # [exact]. Sokal's error estimate var(tau)/tau^2 ~ 2(2M+1)/n gives ~3 %; allow 12 %.
-    phi, n = 0.8, 200_000
-    noise = rng.normal(size=n)
-    x = np.empty(n)
-    x[0] = noise[0] / np.sqrt(1 - phi**2)
-    for t in range(1, n):
-        x[t] = phi * x[t - 1] + noise[t]
-    assert integrated_autocorr_time(x) == pytest.approx((1 + phi) / (1 - phi), rel=0.12)
-    assert integrated_autocorr_time(noise) == pytest.approx(1.0, abs=0.1)
-    assert np.isnan(integrated_autocorr_time(np.ones(100)))
 
 
 def _one_vortex_mean_energy(beta, core):

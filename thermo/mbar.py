@@ -14,7 +14,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from thermo.sampler import integrated_autocorr_time
+from thermo.autocorr import integrated_autocorr_time
 
 
 def logsumexp(a: np.ndarray, axis: int | None = None, keepdims: bool = False) -> np.ndarray:

@@ -26,12 +26,13 @@ from dataclasses import dataclass
 import numpy as np
 from numba import njit, types
 
+from thermo.autocorr import integrated_autocorr_time
 from thermo.domains.base import KERNEL_TYPES, SIGNS, Domain, kernel_array
 from thermo.energy import total_energy_kernel, validate_configuration
 from thermo.errors import SamplerError
 
 __all__ = ["TemperingResult", "run_tempering", "default_ladder", "adaptive_ladder",
-           "swap_probability", "integrated_autocorr_time"]
+           "swap_probability"]
 
 # Step-size bounds and adaptation block (common practice: aim at ~40 % acceptance).
 _MIN_STEP = 1e-5
@@ -130,45 +131,6 @@ def _tempering_kernel(pos, energies, signs, betas, steps, max_step, self_fn, pai
                         out_pos[k, rec // pos_stride, i, 0] = pos[k, i, 0]
                         out_pos[k, rec // pos_stride, i, 1] = pos[k, i, 1]
             rec += 1
-
-
-def integrated_autocorr_time(x: np.ndarray, c: float = 5.0) -> float:
-    """Integrated autocorrelation time with Sokal's automatic window.
-
-    .. math:: \\tau_{int}(M) = 1 + 2\\sum_{t=1}^{M} \\rho(t),
-
-    taking the smallest window M with M >= c tau_int(M) [A. D. Sokal, "Monte Carlo Methods in
-    Statistical Mechanics: Foundations and New Algorithms" (1996); c = 5 is common practice]. With this
-    definition the variance of the mean is tau_int Var(x) / n and the effective sample size
-    n / tau_int.
-
-    Parameters
-    ----------
-    x : array_like, shape (n,)
-        A stationary time series.
-    c : float
-        Window factor.
-
-    Returns
-    -------
-    float
-        tau_int in units of the sampling interval (>= 0); NaN for a constant series.
-    """
-    y = np.asarray(x, dtype=np.float64)
-    n = y.size
-    if n < 2:
-        return float("nan")
-    y = y - y.mean()
-    f = np.fft.rfft(y, 2 * n)
-    acf = np.fft.irfft(f * np.conj(f))[:n]
-    if acf[0] <= 0.0:
-        return float("nan")
-    rho = acf / acf[0]
-    taus = 2.0 * np.cumsum(rho) - 1.0
-    m = np.arange(n)
-    ok = m >= c * taus
-    window = int(np.argmax(ok)) if ok.any() else n - 1
-    return float(taus[window])
 
 
 @dataclass(frozen=True)

@@ -60,7 +60,7 @@ def make_figures(run_path, out_dir, *, frames=None, movie: bool = False) -> list
         obs = run.read_observables()
         lazy = _LazyFrames(run)
         length_um = protocol.units.length_m * 1e6
-        time_ms = protocol.units.time_s * 1e3
+        time_ms = protocol.units.time_to_ms(1.0)
         grid = protocol.grid
         save(plots.density_phase_panels(lazy, grid.x, grid.y, times, vortex_table=table,
                                         frames=chosen,

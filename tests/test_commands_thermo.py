@@ -85,3 +85,12 @@ def test_strict_stops_at_the_first_bad_row(tmp_path, capsys, rng):
     assert main(["temperature", str(table), "--disk-radius-um", "30", "--strict"]) == 2
     err = capsys.readouterr().err
     assert "shots.csv" in err and "line" in err and "sign" in err
+
+
+def test_a_latin1_table_is_refused_by_line_and_byte(tmp_path, capsys):
+    table = tmp_path / "labo.csv"
+    table.write_bytes("# mesur\u00e9 le 3 mai\nshot,x,y,sign\n0,1.0,2.0,+1\n".encode("latin-1"))
+    assert main(["temperature", str(table), "--disk-radius-um", "30"]) == 2
+    err = capsys.readouterr().err
+    assert "labo.csv, line 1" in err and "byte 7" in err and "save it as UTF-8" in err
+

@@ -50,3 +50,17 @@ def test_unknown_shape_in_a_geometry_file_is_refused_by_name(tmp_path):
     assert geometry.domain().kind == geometry.shape == "box"
     with pytest.raises(MeasuredTableError, match="a box needs a positive number height_um"):
         resolve_geometry(p, height_um=-1.0)
+
+
+def test_geometry_files_are_utf8_with_or_without_a_byte_order_mark(tmp_path):
+    p = tmp_path / "table.csv"
+    p.write_text("shot,x,y,sign\n")
+    toml = '# cloud of 3 May\nshape = "disk"\nradius_um = 40.0\n'
+    p.with_suffix(".toml").write_bytes(b"\xef\xbb\xbf" + toml.encode("utf-8"))
+    geometry, _ = resolve_geometry(p)
+    assert geometry.shape == "disk" and geometry.radius_um == 40.0
+    # the same file written in Latin-1 with a 'micro' sign: refused by line and byte
+    p.with_suffix(".toml").write_bytes(('# sizes in \u00b5m\n' + toml).encode("latin-1"))
+    with pytest.raises(MeasuredTableError,
+                       match=r"table\.toml, line 1: byte 11 \(0xb5.*save it as UTF-8"):
+        resolve_geometry(p)

@@ -210,3 +210,44 @@ def test_hard_core_rows_are_reported_when_the_core_is_known(tmp_path):
     with warnings.catch_warnings():
         warnings.simplefilter("error")   # without a core the same rows are all usable
         assert read_measured(p, radius_um=40.0).n_vortices[0] == 4
+
+
+def test_a_utf8_table_with_a_byte_order_mark_reads_like_one_without(tmp_path):
+    # spreadsheets' "CSV UTF-8" starts the file with a BOM, which must not stick to 'shot'
+    toml = 'shape = "disk"\nradius_um = 40.0\n'
+    plain = read_measured(_write(tmp_path, GOOD, toml=toml))
+    bom = tmp_path / "bom.csv"
+    bom.write_bytes(b"\xef\xbb\xbf" + GOOD.encode("utf-8"))
+    bom.with_suffix(".toml").write_text(toml)
+    ens = read_measured(bom)
+    assert ens.shot_ids == plain.shot_ids == ["a", "b"]
+    for a, b in zip(ens.shots, plain.shots):
+        np.testing.assert_array_equal(a.positions, b.positions)
+        np.testing.assert_array_equal(a.rows, b.rows)           # lines counted the same
+
+
+def test_other_encodings_are_refused_by_name(tmp_path):
+    # a Latin-1 'micro' sign (0xb5) in the second comment line, at byte 12 of the file
+    text = "# lab table\n# x, y in \u00b5m\n" + GOOD
+    p = tmp_path / "latin.csv"
+    p.write_bytes(text.encode("latin-1"))
+    with pytest.raises(MeasuredTableError) as info:
+        read_measured(p, radius_um=40.0)
+    msg = str(info.value)
+    assert "latin.csv, line 2" in msg and "byte 22 (0xb5" in msg and "save it as UTF-8" in msg
+    p16 = tmp_path / "wide.csv"
+    p16.write_bytes(GOOD.encode("utf-16"))                      # with its byte-order mark
+    with pytest.raises(MeasuredTableError, match=r"wide\.csv: the file is UTF-16 text.*UTF-8"):
+        read_measured(p16, radius_um=40.0)
+    p16le = tmp_path / "wide_nobom.csv"
+    p16le.write_bytes(GOOD.encode("utf-16-le"))                 # no mark: NUL bytes tell
+    with pytest.raises(MeasuredTableError, match=r"wide_nobom\.csv, line 1: byte 1 is a NUL"):
+        read_measured(p16le, radius_um=40.0)
+
+
+def test_an_hdf5_file_with_a_text_name_is_refused_as_such(tmp_path):
+    p = tmp_path / "table.csv"
+    with h5py.File(p, "w") as f:
+        f["vortices"] = np.zeros(2)
+    with pytest.raises(MeasuredTableError, match=r"table\.csv: an HDF5 file, not a CSV.*\.h5"):
+        read_measured(p, radius_um=40.0)

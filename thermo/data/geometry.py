@@ -13,6 +13,9 @@ arguments override the file key by key. Accepted TOML keys::
     pixel_um = 0.8          # only if the table is in pixels
     center_px = [256.0, 240.0]
 
+Tables and geometry files are UTF-8 text, with or without a byte-order mark; other encodings
+are refused by file, line and byte (:func:`read_utf8_text`), never guessed.
+
 The shape names are the kind names of the domain classes found in :mod:`thermo.domains`
 (:func:`thermo.domains.kinds.domain_class`); each class names the sizes (``radius``, or
 ``width`` and ``height``) that fix it, read here with the suffix ``_um``.
@@ -23,6 +26,7 @@ disk radius or of the box height.
 
 from __future__ import annotations
 
+import codecs
 import math
 import tomllib
 from dataclasses import dataclass
@@ -37,6 +41,51 @@ from thermo.errors import DomainError, MeasuredTableError
 
 GEOMETRY_KEYS = ("shape", "radius_um", "width_um", "height_um", "core_um", "pixel_um",
                  "center_px")
+# Byte-order marks of encodings other than UTF-8 (UTF-32 LE first: it begins with UTF-16 LE's).
+_OTHER_BOMS = ((codecs.BOM_UTF32_LE, "UTF-32"), (codecs.BOM_UTF32_BE, "UTF-32"),
+               (codecs.BOM_UTF16_LE, "UTF-16"), (codecs.BOM_UTF16_BE, "UTF-16"))
+_SAVE_AS = ("accepted: UTF-8 text, with or without a byte-order mark (BOM): save it as UTF-8 "
+            "(in a spreadsheet: 'CSV UTF-8')")
+
+
+def read_utf8_text(path: str | Path) -> str:
+    """The text of a table or geometry file, decoded as UTF-8 (a leading BOM is dropped).
+
+    Any other encoding is refused by name: a UTF-16/UTF-32 byte-order mark or NUL bytes say so,
+    and a byte that is not UTF-8 (Latin-1 or Windows-1252 text, say) is named by its line and
+    byte offset. Nothing is guessed, so a position is never read from mis-decoded text.
+
+    Raises
+    ------
+    MeasuredTableError
+        naming the file, where decoding failed and what is accepted.
+
+    Units: none (offsets in bytes from the start of the file, lines from 1).
+    """
+    path = Path(path)
+    data = path.read_bytes()
+    for bom, name in _OTHER_BOMS:
+        if data.startswith(bom):
+            raise MeasuredTableError(f"{path}: the file is {name} text (it starts with a {name} "
+                                     f"byte-order mark); {_SAVE_AS}")
+    skip = len(codecs.BOM_UTF8) if data.startswith(codecs.BOM_UTF8) else 0
+    try:
+        text = data[skip:].decode("utf-8")
+    except UnicodeDecodeError as exc:
+        at = skip + exc.start
+        line = data.count(b"\n", 0, at) + 1
+        column = at - (data.rfind(b"\n", 0, at) + 1) + 1
+        raise MeasuredTableError(
+            f"{path}, line {line}: byte {at} (0x{data[at]:02x}, column {column} of the line) "
+            "is not UTF-8; the file is in another encoding (Latin-1 or Windows-1252, say); "
+            f"{_SAVE_AS}") from None
+    if "\x00" in text:
+        at = data.index(b"\x00")
+        line = data.count(b"\n", 0, at) + 1
+        raise MeasuredTableError(
+            f"{path}, line {line}: byte {at} is a NUL byte, which UTF-8 "
+            f"text does not hold (UTF-16 text without a byte-order mark, or not text); {_SAVE_AS}")
+    return text
 
 
 @dataclass(frozen=True)
@@ -162,7 +211,7 @@ def read_geometry_file(path: str | Path) -> dict[str, Any]:
     """Read and check a geometry TOML (keys listed in the module docstring)."""
     path = Path(path)
     try:
-        data = tomllib.loads(path.read_text(encoding="utf-8"))
+        data = tomllib.loads(read_utf8_text(path))
     except tomllib.TOMLDecodeError as exc:
         raise MeasuredTableError(f"{path}: not valid TOML ({exc})") from exc
     unknown = sorted(set(data) - set(GEOMETRY_KEYS))

@@ -29,6 +29,7 @@ signs were assigned in the same frame as the positions.
 from __future__ import annotations
 
 import csv
+import io
 import math
 import warnings
 from dataclasses import dataclass, field
@@ -42,6 +43,7 @@ from thermo.data.geometry import (
     Geometry,
     PixelCalibration,
     pixels_to_um,
+    read_utf8_text,
     resolve_geometry,
 )
 from thermo.errors import MeasuredTableError
@@ -154,11 +156,23 @@ class MeasuredEnsemble:
 
 # ---------------------------------------------------------------- table input
 
+_HDF5_SIGNATURE = b"\x89HDF\r\n\x1a\n"
+
+
 def _read_csv_rows(path: Path) -> tuple[list[str], list[tuple[int, list[str]]]]:
-    """Header and (line number, fields) of every data line; # comments and blanks skipped."""
+    """Header and (line number, fields) of every data line; # comments and blanks skipped.
+
+    The file is UTF-8, with or without a byte-order mark (:func:`read_utf8_text` refuses
+    other encodings by line and byte); an HDF5 file given a text name is refused as such.
+    """
+    with path.open("rb") as fh:
+        if fh.read(len(_HDF5_SIGNATURE)) == _HDF5_SIGNATURE:
+            raise MeasuredTableError(
+                f"{path}: an HDF5 file, not a CSV text table; name it .h5 (or .hdf5) to read "
+                "it as an HDF5 vortex table")
     header: list[str] | None = None
     rows: list[tuple[int, list[str]]] = []
-    with path.open(encoding="utf-8", newline="") as fh:
+    with io.StringIO(read_utf8_text(path), newline="") as fh:
         for lineno, line in enumerate(fh, start=1):
             stripped = line.strip()
             if not stripped or stripped.startswith("#"):
@@ -234,7 +248,8 @@ def read_measured(path: str | Path, *, shape: str | None = None,
     Parameters
     ----------
     path : the table. CSV: header ``shot, x, y, sign`` (+ optional ``t``, ``weight``),
-        ``#`` comment lines allowed. HDF5: a compound dataset, or a group of 1D datasets,
+        ``#`` comment lines allowed; UTF-8 text, with or without a byte-order mark (other
+        encodings are refused by line and byte). HDF5: a compound dataset, or a group of 1D datasets,
         with the same columns (``dataset`` names it; default ``vortices``, ``measured``,
         ``table`` or the root group).
     shape, radius_um, width_um, height_um, core_um : geometry (override the TOML beside

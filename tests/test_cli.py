@@ -134,3 +134,15 @@ def test_demo_runs_end_to_end(tmp_path, capsys, monkeypatch):
     from gpe.run import reading
 
     assert reading.is_complete(out / "demo.h5")
+
+
+def test_sweep_with_a_bad_scheduler_address_writes_nothing(tmp_path, capsys):
+    (tmp_path / "base.toml").write_text(TINY)
+    sweep = tmp_path / "s.toml"
+    sweep.write_text('base = "base.toml"\nseeds = 1\n[[axes]]\nkey = "beams.0.path.speed_c"\n'
+                     'values = [0.3, 0.7]\n[measure]\nquantities = ["beta"]\n')
+    out = tmp_path / "out"
+    assert main(["sweep", str(sweep), "-o", str(out), "--scheduler", "head-node:87x6"]) == 2
+    err = capsys.readouterr().err
+    assert "head-node:87x6" in err and "tcp://HOST:PORT" in err and "Traceback" not in err
+    assert not out.exists()

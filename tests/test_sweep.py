@@ -349,3 +349,47 @@ def test_sigterm_is_handled_like_ctrl_c(sweep_file, tmp_path):
     assert (out / "summary_runs.csv").exists() and (out / "state.json").exists()
     assert json.loads((out / "state.json").read_text())["interrupted"] is True
     assert not any(_alive(p) for p in pids)
+
+
+# -- scheduler addresses: checked and connected before the output folder exists ---------------
+import functools
+import socket
+
+from gpe.sweep import execute
+
+
+def _free_local_port() -> int:
+    """A local TCP port nobody listens on (bound once to find it, then released)."""
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+@pytest.mark.parametrize("address, problem", [
+    ("http://head:8786", "unknown scheme 'http://'"), ("head", "no ':PORT'"),
+    ("tcp://head:port", "port 'port' is not a number"), ("tcp://:8786", "no host name"),
+    ("tcp://head:8786/status", "a path"), ("", "empty"), ("head:70000", "not a number 1..65535"),
+])
+def test_a_malformed_scheduler_address_is_refused_before_the_folder(sweep_file, tmp_path,
+                                                                    address, problem):
+    out = tmp_path / "out"
+    with pytest.raises(SweepError) as info:
+        run_stand_in(sweep_file, out, scheduler=address)
+    text = str(info.value)
+    assert repr(address) in text and problem in text and "tcp://HOST:PORT" in text
+    assert not out.exists()
+
+
+def test_an_unreachable_scheduler_is_a_sweep_error_and_leaves_no_folder(sweep_file, tmp_path,
+                                                                        monkeypatch):
+    pytest.importorskip("distributed")
+    address = f"tcp://127.0.0.1:{_free_local_port()}"
+    with pytest.raises(SweepError, match="cannot connect.*" + address.replace(".", r"\.")):
+        execute.connect_scheduler(address, timeout=0.5)
+    # run_sweep connects through the same function; a short timeout keeps the test quick
+    monkeypatch.setattr(execute, "connect_scheduler",
+                        functools.partial(execute.connect_scheduler, timeout=0.5))
+    out = tmp_path / "out"
+    with pytest.raises(SweepError, match=address.replace(".", r"\.")):
+        run_stand_in(sweep_file, out, scheduler=address)
+    assert not out.exists()

@@ -193,17 +193,57 @@ def local_executor(workers: int, threads: int) -> cf.ProcessPoolExecutor:
         "spawn"), initializer=_init_worker, initargs=(threads, os.getpid()))
 
 
-def connect_scheduler(address: str) -> Any:
-    """A dask ``distributed.Client`` connected to the scheduler at ``address``."""
+def connect_scheduler(address: str, timeout: float = 20.0) -> Any:
+    """A dask ``distributed.Client`` connected to the scheduler at ``address``.
+
+    The address is checked for its form first (``tcp://HOST:PORT``, ``tls://HOST:PORT``, also
+    ``ws://``, ``wss://``, ``ucx://``, or a bare ``HOST:PORT`` meaning tcp; an IPv6 host in
+    brackets), then connected within ``timeout``. Every failure -- a malformed address, no
+    scheduler listening, a refused TLS handshake -- is a :class:`SweepError` naming the address.
+
+    Units: timeout in seconds.
+    """
+    schemes = ("tcp", "tls", "ws", "wss", "ucx")
+    accepted = ("accepted: tcp://HOST:PORT or tls://HOST:PORT (also ws://, wss://, ucx://), "
+                "or HOST:PORT for tcp, e.g. tcp://head:8786")
+    text = address.strip() if isinstance(address, str) else ""
+    scheme, sep, rest = text.partition("://")
+    if not sep:
+        scheme, rest = "tcp", text
+    if rest.startswith("["):  # [IPv6]:port
+        host, _, port = rest[1:].partition("]")
+        colon, port = port[:1], port[1:]
+    else:
+        host, colon, port = rest.rpartition(":")
+    problem = None
+    if not text:
+        problem = "it is empty"
+    elif scheme.lower() not in schemes:
+        problem = f"unknown scheme '{scheme}://'"
+    elif "/" in rest or any(c.isspace() for c in rest):
+        problem = "a path or a space after the scheme"
+    elif not colon:
+        problem = "no ':PORT' after the host"
+    elif not host:
+        problem = "no host name"
+    elif not (port.isdigit() and 0 < int(port) < 65536):
+        problem = f"port {port!r} is not a number 1..65535"
+    if problem is not None:
+        raise SweepError(f"scheduler address {address!r} (--scheduler) is not a Dask scheduler "
+                         f"address: {problem}; {accepted}")
     try:  # imported here: dask.distributed is an optional extra (vortherm[cluster])
         from distributed import Client
     except ImportError:
         raise SweepError("running on a cluster needs dask.distributed, which is not installed; "
                          "install it with `pip install vortherm[cluster]`") from None
+    target = f"{scheme.lower()}://{rest}"
     try:
-        return Client(address, timeout="20s")
-    except OSError as exc:
-        raise SweepError(f"cannot reach the dask scheduler at '{address}': {exc}") from None
+        return Client(target, timeout=f"{float(timeout)}s")
+    except Exception as exc:  # noqa: BLE001 -- dask raises OSError, TimeoutError, ValueError, ...
+        raise SweepError(f"cannot connect to the dask scheduler at '{address}' within "
+                         f"{float(timeout):g} s ({type(exc).__name__}: {exc}); check that a "
+                         "scheduler runs there (`dask scheduler` on the head node) and that "
+                         "the address and port are the ones it printed") from None
 
 
 def _as_executor(executor: Any) -> Any:
@@ -278,7 +318,18 @@ def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
     state kept; rerun to continue).
     """
     out_dir = Path(out_dir)
-    points = prepare_output(sweep, out_dir, fingerprint, restart_changed)
+    own, client, capacity = None, None, None
+    if executor is None and scheduler is not None:
+        # connect before anything is written: a wrong or unreachable address leaves no folder
+        executor = client = connect_scheduler(scheduler)
+    elif executor is None:
+        plan_local(usable_cores(), workers, threads)  # refuse bad counts before writing, too
+    try:
+        points = prepare_output(sweep, out_dir, fingerprint, restart_changed)
+    except BaseException:
+        if client is not None:
+            client.close()
+        raise
     stop_path = out_dir / "STOP"
     stop_path.unlink(missing_ok=True)
     global _WORKER_INTERRUPTED
@@ -297,9 +348,6 @@ def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
             todo.append(p)
     n_skipped = len(points) - len(todo)
 
-    own, client, capacity = None, None, None
-    if executor is None and scheduler is not None:
-        executor = client = connect_scheduler(scheduler)
     if executor is None:
         capacity, threads = plan_local(usable_cores(), workers, threads, max(1, len(todo)))
         executor = own = local_executor(capacity, threads)

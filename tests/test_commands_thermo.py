@@ -2,9 +2,13 @@
 ``vortherm compare``, end to end through the command line."""
 
 import json
+import subprocess
+import sys
 
 import numpy as np
+import pytest
 
+from conftest import TINY
 from gpe.cli.main import main
 
 
@@ -94,3 +98,44 @@ def test_a_latin1_table_is_refused_by_line_and_byte(tmp_path, capsys):
     err = capsys.readouterr().err
     assert "labo.csv, line 1" in err and "byte 7" in err and "save it as UTF-8" in err
 
+
+# -- run files by content, incomplete runs, conflicting options, outputs kept -----------------
+@pytest.fixture(scope="module")
+def one_run(tmp_path_factory):
+    """The tiny protocol simulated once for this module's tests (they work on copies)."""
+    folder = tmp_path_factory.mktemp("one_run")
+    (folder / "tiny.toml").write_text(TINY)
+    assert main(["run", str(folder / "tiny.toml"), "-o", str(folder / "tiny.h5")]) == 0
+    return folder / "tiny.h5"
+
+
+def test_a_truncated_run_file_is_named_not_read_as_a_table(one_run, tmp_path, capsys):
+    data = one_run.read_bytes()
+    cut = tmp_path / "cut.h5"
+    cut.write_bytes(data[:len(data) // 3])
+    capsys.readouterr()
+    assert main(["temperature", str(cut)]) == 2
+    err = capsys.readouterr().err
+    assert "cut.h5" in err and "truncated" in err and "no geometry" not in err
+    assert list(tmp_path.iterdir()) == [cut]                 # nothing written
+
+
+def test_a_run_file_still_being_written_is_named_as_locked(one_run, tmp_path, capsys,
+                                                           monkeypatch):
+    monkeypatch.delenv("HDF5_USE_FILE_LOCKING", raising=False)
+    run = tmp_path / "busy.h5"
+    run.write_bytes(one_run.read_bytes())
+    hold = ("import sys, h5py\nf = h5py.File(sys.argv[1], 'r+')\nprint('open', flush=True)\n"
+            "sys.stdin.read()\n")
+    writer = subprocess.Popen([sys.executable, "-c", hold, str(run)], text=True,
+                              stdin=subprocess.PIPE, stdout=subprocess.PIPE)
+    try:
+        assert writer.stdout.readline().strip() == "open"
+        capsys.readouterr()
+        assert main(["temperature", str(run)]) == 2
+        err = capsys.readouterr().err
+    finally:
+        writer.stdin.close()
+        writer.wait(timeout=30)
+    assert "busy.h5" in err and "locked by another process" in err and "no geometry" not in err
+    assert not (tmp_path / "busy_temperature.csv").exists()

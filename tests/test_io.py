@@ -159,3 +159,60 @@ def test_errors_name_the_file_and_the_expectation(tmp_path):
             run.read_checkpoint()
     with pytest.raises(RunFileError, match="exists already"):
         _create(tmp_path / "empty.h5")
+
+
+# -- what a file is: decided by content; truncated and locked files are named as such ---------
+import subprocess
+import sys
+
+from gpe.run.reading import is_run_file
+
+_HOLD_OPEN = ("import sys, h5py\n"
+              "f = h5py.File(sys.argv[1], 'r+')\n"
+              "print('open', flush=True)\n"
+              "sys.stdin.read()\n")
+
+
+def _whole_run(path):
+    with _create(path) as run:
+        run.append_frame(0.0, _psi0(), {"energy": 1.0}, vortices=_rows(0, 0.0, 2))
+    return path
+
+
+def test_run_files_are_recognised_by_content_not_by_name(tmp_path):
+    run = _whole_run(tmp_path / "run.h5")
+    renamed = tmp_path / "run.data"
+    renamed.write_bytes(run.read_bytes())
+    assert is_run_file(run) and is_run_file(renamed)
+    (tmp_path / "table.h5").write_text("shot,x,y,sign\n0,1.0,2.0,+1\n")  # text, misnamed
+    with h5py.File(tmp_path / "measured.h5", "w") as f:                 # HDF5, not a run
+        f["vortices"] = np.zeros(3)
+    assert not is_run_file(tmp_path / "table.h5")
+    assert not is_run_file(tmp_path / "measured.h5")
+
+
+def test_a_truncated_run_file_is_named_as_truncated(tmp_path):
+    whole = _whole_run(tmp_path / "run.h5").read_bytes()
+    cut = tmp_path / "cut.h5"
+    cut.write_bytes(whole[:len(whole) // 2])
+    with pytest.raises(RunFileError, match=r"cut\.h5.*truncated"):
+        is_run_file(cut)
+    with pytest.raises(RunFileError, match=r"cut\.h5.*truncated"):
+        RunFile.open(cut)
+
+
+def test_a_run_file_open_for_writing_elsewhere_is_named_as_locked(tmp_path, monkeypatch):
+    monkeypatch.delenv("HDF5_USE_FILE_LOCKING", raising=False)  # HDF5's default: files locked
+    run = _whole_run(tmp_path / "run.h5")
+    writer = subprocess.Popen([sys.executable, "-c", _HOLD_OPEN, str(run)], text=True,
+                              stdin=subprocess.PIPE, stdout=subprocess.PIPE)
+    try:
+        assert writer.stdout.readline().strip() == "open"
+        with pytest.raises(RunFileError, match=r"run\.h5.*locked by another process"):
+            is_run_file(run)
+        with pytest.raises(RunFileError, match=r"run\.h5.*locked by another process"):
+            RunFile.open(run)
+    finally:
+        writer.stdin.close()
+        writer.wait(timeout=30)
+    assert is_run_file(run)           # readable again once the writer has closed it

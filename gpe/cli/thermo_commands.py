@@ -40,25 +40,13 @@ def register_temperature(sub) -> None:
     p.set_defaults(handler=_cmd_temperature)
 
 
-def _is_run_file(path: Path) -> bool:
-    import h5py
-
-    if path.suffix.lower() not in (".h5", ".hdf5"):
-        return False
-    try:
-        with h5py.File(path, "r") as f:
-            return "format_version" in f.attrs and "snapshots" in f
-    except OSError:
-        return False
-
-
 def _cmd_temperature(args) -> int:
-    from gpe.run import thermometry
+    from gpe.run import reading, thermometry
 
-    if not args.source.exists():
+    if not args.source.is_file():
         raise VorthermError(f"{args.source}: no such file; give a run file (.h5) or a measured "
                             "table (.csv)")
-    if _is_run_file(args.source):
+    if reading.is_run_file(args.source):   # by content; refuses a locked/truncated HDF5
         result = thermometry.temperature_of_run(args.source, frames=parse_frames(args.frames),
                                                 effort=args.effort)
     else:

@@ -1,4 +1,5 @@
-"""Reading a run file back: its stored protocol, whether it is complete, a summary, frame choice.
+"""Reading a run file back: what a file is, its stored protocol, whether it is complete, a
+summary, frame choice.
 
 Every reader goes through here, so that what a run file means is decided in one place.
 
@@ -11,11 +12,79 @@ import math
 import warnings
 from pathlib import Path
 
+import h5py
 import numpy as np
 
 from gpe.errors import RunFileError, VorthermError
-from gpe.run.runfile import RunFile
+from gpe.run.runfile import FORMAT_NAME, RunFile
 from gpe.setup.protocol import ProtocolWarning, parse_protocol
+
+
+# ------------------------------------------------------------------------------------------
+# what a file is: a run file is recognised by its content, never by a failed read
+# ------------------------------------------------------------------------------------------
+#: The eight bytes every HDF5 file starts with (at offset 0, or 512, 1024, ... after a user block).
+HDF5_SIGNATURE = b"\x89HDF\r\n\x1a\n"
+
+
+def has_hdf5_signature(path) -> bool:
+    """True when the file carries the HDF5 signature at the start or after a user block.
+
+    Units: none (offsets in bytes: 0, 512, 1024, 2048, ...).
+    """
+    path = Path(path)
+    size = path.stat().st_size
+    with path.open("rb") as fh:
+        offset = 0
+        while offset + len(HDF5_SIGNATURE) <= size:
+            fh.seek(offset)
+            if fh.read(len(HDF5_SIGNATURE)) == HDF5_SIGNATURE:
+                return True
+            offset = 512 if offset == 0 else 2 * offset
+    return False
+
+
+def is_run_file(path) -> bool:
+    """Whether ``path`` is a vortherm run file, decided by its content.
+
+    A file without the HDF5 signature is not a run file (a text table, say). A file with it is
+    opened and is a run file when its root attribute ``format`` names the run-file format;
+    other HDF5 files (a measured vortex table, say) are not.
+
+    Raises
+    ------
+    RunFileError
+        The file has the HDF5 signature but cannot be opened: it is truncated (copied or
+        written only in part) or locked by another process that has it open for writing (a
+        run still going). The message names the file and says which, when HDF5 tells.
+
+    Units: none.
+    """
+    path = Path(path)
+    if not path.is_file():
+        raise RunFileError(f"{path}: no such file; expected a run file (.h5 from `vortherm run`)")
+    if not has_hdf5_signature(path):
+        return False
+    try:
+        with h5py.File(path, "r") as f:
+            return f.attrs.get("format") == FORMAT_NAME
+    except OSError as exc:
+        raise RunFileError(_unopenable_message(path, exc)) from None
+
+
+def _unopenable_message(path: Path, exc: OSError) -> str:
+    said = str(exc)
+    if "lock" in said.lower():
+        why = ("it is locked by another process that has it open for writing (a run still "
+               "going?): wait until that process has finished, then try again")
+    elif "truncated" in said.lower():
+        why = ("it is truncated (shorter than its own header says: a copy or download cut "
+               "short, or a write that never finished): copy it again, or continue the run "
+               "from a whole file")
+    else:
+        why = ("it is truncated or damaged, or locked by another process that has it open "
+               "for writing (a run still going?): wait for that process, or copy it again")
+    return (f"{path}: an HDF5 file that cannot be opened; {why}. HDF5 said: {said}")
 
 
 # ------------------------------------------------------------------------------------------

@@ -144,8 +144,11 @@ class RunFile:
         try:
             f = h5py.File(path, "r" if mode == "r" else "r+")
         except OSError as exc:
-            raise RunFileError(f"{path}: cannot be opened as HDF5 ({exc}); expected a vortherm "
-                               "run file") from exc
+            raise RunFileError(f"{path}: cannot be opened as HDF5: it is not an HDF5 file, or it "
+                               "is truncated (a copy or write cut short), or it is locked by "
+                               "another process that has it open for writing (a run still "
+                               "going: wait until it has finished); expected a vortherm run "
+                               f"file. HDF5 said: {exc}") from exc
         run = cls(f, path)
         try:
             run._check_format()

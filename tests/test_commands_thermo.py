@@ -10,6 +10,7 @@ import pytest
 
 from conftest import TINY
 from gpe.cli.main import main
+from gpe.run.runfile import RunFile
 
 
 def test_temperature_json_has_the_promised_fields(tiny_run, tmp_path, capsys, monkeypatch):
@@ -139,3 +140,36 @@ def test_a_run_file_still_being_written_is_named_as_locked(one_run, tmp_path, ca
         writer.wait(timeout=30)
     assert "busy.h5" in err and "locked by another process" in err and "no geometry" not in err
     assert not (tmp_path / "busy_temperature.csv").exists()
+
+
+@pytest.fixture
+def dos_cache(tmp_path_factory, monkeypatch):
+    """One density-of-states cache for the module, so each vortex number is built once."""
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path_factory.getbasetemp() / "dos_cache"))
+
+
+def test_an_incomplete_run_says_how_many_frames_exist(one_run, tmp_path, capsys, dos_cache):
+    # a copy under another name: a run file is known by its content, not by its suffix
+    killed = tmp_path / "killed.run"
+    killed.write_bytes(one_run.read_bytes())
+    with RunFile.open(killed, "r+") as run:
+        run.truncate_to_frame(2)       # as a run killed after its second output is left
+    capsys.readouterr()
+    assert main(["temperature", str(killed), "--json", "--csv", str(tmp_path / "j.csv")]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    # [exact] the tiny protocol: duration 10, output interval 2 -> outputs t = 0, 2, ..., 10
+    assert (doc["run_complete"], doc["frames_stored"], doc["frames_planned"]) == (False, 2, 6)
+    assert "only 2 of 6 planned frames" in doc["incomplete"] and len(doc["frames"]) == 2
+    assert main(["temperature", str(killed), "--csv", str(tmp_path / "t.csv")]) == 0
+    text = capsys.readouterr().out
+    notes = [line for line in text.splitlines() if line.startswith("note: incomplete run")]
+    assert len(notes) == 1 and "only 2 of 6 planned frames" in notes[0]
+    assert text.index(notes[0]) < text.index("verdict:")
+
+
+def test_a_complete_run_carries_no_incomplete_note(one_run, tmp_path, capsys, dos_cache):
+    capsys.readouterr()
+    assert main(["temperature", str(one_run), "--json", "--csv", str(tmp_path / "c.csv")]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["run_complete"] is True and doc["frames_stored"] == doc["frames_planned"] == 6
+    assert "incomplete" not in doc

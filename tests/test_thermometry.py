@@ -6,12 +6,16 @@ import numpy as np
 import pytest
 
 from gpe.errors import VorthermError
+from gpe.run import report
+from gpe.run.runfile import VORTEX_ROW, RunFile
+from gpe.setup.protocol import parse_protocol
 from gpe.field.traps.annulus import AnnulusTrap
 from gpe.field.traps.box import BoxTrap
 from gpe.field.traps.disk import DiskTrap
 from gpe.field.traps.harmonic import HarmonicTrap
 from gpe.run.gas import CORE_RADIUS_XI, WALL_LAYER_XI, domain_for_trap, gas_configuration
-from gpe.run.thermometry import onset_verdict
+from gpe.run.thermometry import onset_verdict, temperature_of_run
+from tiny_protocol import tiny_protocol_text
 
 
 def test_disk_trap_maps_to_unit_disk_shrunk_by_the_wall_layer():
@@ -74,3 +78,45 @@ def test_onset_verdict_positive_and_undefined():
     assert onset_verdict(np.arange(4.0), recs, "ms").startswith("Positive temperature")
     nan = float("nan")
     assert "No frame" in onset_verdict(np.arange(2.0), [_rec(nan, nan, nan)] * 2, "ms")
+
+
+def _hand_written_run(path, n_frames: int, complete: bool):
+    """A run file of the tiny protocol (duration 10, outputs every 2 hbar/mu) holding
+    ``n_frames`` frames, each with the same two vortex dipoles, written without simulating."""
+    protocol = parse_protocol(tiny_protocol_text(duration=10.0, output_interval=2.0),
+                              source=str(path.with_suffix(".toml")))
+    grid = protocol.grid
+    with RunFile.create(path, protocol=protocol) as run:
+        for f in range(n_frames):
+            rows = np.zeros(4, VORTEX_ROW)
+            rows["frame"], rows["t"], rows["track"] = f, 2.0 * f, -1
+            rows["x"], rows["y"] = [-6.0, 6.0, 0.0, 3.0], [0.0, 0.0, 7.0, -8.0]
+            rows["sign"] = [1, -1, 1, -1]
+            run.append_frame(2.0 * f, np.ones((grid.ny, grid.nx), complex), vortices=rows)
+        if complete:
+            run.mark_complete()
+    return path
+
+
+def test_an_incomplete_run_is_reported_as_such_in_every_report(tmp_path):
+    path = _hand_written_run(tmp_path / "killed.h5", n_frames=3, complete=False)
+    result = temperature_of_run(path, cache_dir=tmp_path / "dos")
+    # [exact] duration 10 / interval 2 -> outputs at t = 0, 2, 4, 6, 8, 10: six planned
+    assert (result["run_complete"], result["frames_stored"], result["frames_planned"]) == \
+        (False, 3, 6)
+    assert "only 3 of 6 planned frames" in result["incomplete"]
+    assert "t = 4 of 10 hbar/mu" in result["incomplete"]
+    assert len(result["records"]) == 3
+    doc = report.json_report(result)
+    assert doc["incomplete"] == result["incomplete"] and doc["frames_planned"] == 6
+    text = report.text_report(result)
+    assert f"note: {result['incomplete']}" in text
+
+
+def test_a_complete_run_has_no_incomplete_note(tmp_path):
+    path = _hand_written_run(tmp_path / "whole.h5", n_frames=6, complete=True)
+    result = temperature_of_run(path, per_frame=False, cache_dir=tmp_path / "dos")
+    assert result["run_complete"] and result["frames_stored"] == result["frames_planned"] == 6
+    assert result["incomplete"] == ""
+    assert "incomplete" not in report.json_report(result)
+    assert "incomplete" not in report.text_report({**result, "records": []})

@@ -43,7 +43,14 @@ def write_records_csv(path, records: list[dict], time_key: str, time_unit: str =
 
 
 def json_report(result: dict) -> dict:
-    """The JSON document of ``vortherm temperature --json``: frames or shots, and ensemble."""
+    """The JSON document of ``vortherm temperature --json``: frames or shots, and ensemble.
+
+    For a run it says whether the run is complete (``run_complete``), how many frames exist of
+    how many the protocol plans (``frames_stored``, ``frames_planned``) and, for an incomplete
+    run, carries the note ``incomplete``.
+
+    Units: beta in 1/E0 (``beta_unit``); times in ``time_unit``.
+    """
     key = "frames" if result["kind"] == "run" else "shots"
     out = {key: result["records"], "ensemble": result["ensemble"],
            "verdict": result["onset"], "beta_unit": "1/E0, E0 = rho kappa^2/(4 pi)",
@@ -54,6 +61,12 @@ def json_report(result: dict) -> dict:
         out["approximation"] = result["approximation"]
     if result.get("problems"):
         out["problems"] = result["problems"]
+    if result["kind"] == "run" and "run_complete" in result:
+        out["run_complete"] = result["run_complete"]
+        out["frames_stored"] = result["frames_stored"]
+        out["frames_planned"] = result["frames_planned"]
+        if result.get("incomplete"):
+            out["incomplete"] = result["incomplete"]
     return out
 
 
@@ -62,7 +75,13 @@ def _fmt(v: float, width: int = 8) -> str:
 
 
 def text_report(result: dict) -> str:
-    """A table a person reads in a terminal, then the ensemble estimate and the verdict."""
+    """A table a person reads in a terminal, then the ensemble estimate and the verdict.
+
+    The notes above the verdict say when the run is incomplete (frames that exist of those
+    planned), when the domain is an approximation and when table rows were left out.
+
+    Units: beta in 1/E0, E/N in E0, times in the result's ``time_unit``.
+    """
     tk = result["time_key"]
     unit = f" [{result['time_unit']}]" if result.get("time_unit") else ""
     head = (f"{tk + unit:>12} {'N+':>4} {'N-':>4} {'E/N':>8} {'beta~':>8} {'95% interval':>19} "
@@ -83,6 +102,8 @@ def text_report(result: dict) -> str:
     where = (f" (frames in {ens['window'][0]:.4g}..{ens['window'][1]:.4g}{unit})"
              if "window" in ens else "")
     lines.append(f"ensemble{where}: {ens['verdict']}")
+    if result.get("incomplete"):
+        lines.append(f"note: {result['incomplete']}")
     if result.get("approximation"):
         lines.append(f"note: {result['approximation']}")
     if result.get("problems"):

@@ -225,12 +225,23 @@ def temperature_of_run(run_path, *, frames=None, at_time: float | None = None,
     -------
     dict with ``records`` (one per frame, times in the protocol's display unit), ``ensemble``
     (with its ``window`` in that unit), ``onset`` (plain-language verdict), ``time_unit``,
-    ``approximation`` and ``domain``: the input of gpe/run/report.py.
+    ``approximation``, ``domain``, and the run's state: ``run_complete``, ``frames_stored``,
+    ``frames_planned`` (the protocol's outputs, t = 0 included) and ``incomplete`` (a note
+    saying how many frames exist of how many are planned; empty for a complete run): the input
+    of gpe/run/report.py.
+
+    Units: times in hbar/mu in, the protocol's display unit out; beta in 1/E0.
     """
     with RunFile.open(run_path, "r") as run:
         protocol = protocol_of(run)
         times = np.asarray(run.frame_times())
         table = run.read_vortices()
+        complete = run.is_complete()
+    planned = protocol.evolution.n_outputs + 1
+    note = "" if complete else incomplete_note(
+        len(times), planned, protocol.display_time(times[-1]) if len(times) else 0.0,
+        protocol.display_time(protocol.evolution.n_outputs * protocol.evolution.output_interval),
+        protocol.time_unit)
     vd = domain_for_trap(protocol.trap)
     unit = protocol.time_unit
     chosen = select_frames(run_path, frames, len(times)) if per_frame else []
@@ -253,7 +264,28 @@ def temperature_of_run(run_path, *, frames=None, at_time: float | None = None,
     onset = onset_verdict(t_user[chosen], records, unit) if per_frame else ensemble["verdict"]
     return {"kind": "run", "source": str(run_path), "time_key": "t", "time_unit": unit,
             "records": records, "ensemble": ensemble, "onset": onset,
-            "approximation": vd.approximate, "domain": vd.domain.kind}
+            "approximation": vd.approximate, "domain": vd.domain.kind,
+            "run_complete": complete, "frames_stored": len(times), "frames_planned": planned,
+            "incomplete": note}
+
+
+def incomplete_note(n_stored: int, n_planned: int, t_last: float, t_end: float,
+                    time_unit: str) -> str:
+    """The note every report of an incomplete run carries: how much of the run exists.
+
+    Parameters
+    ----------
+    n_stored, n_planned : frames in the run file, and frames the protocol plans (its
+        ``evolution.n_outputs`` after t = 0, plus the initial frame).
+    t_last, t_end : time of the last stored frame and the planned final time.
+    time_unit : the unit of both times (the protocol's display unit).
+
+    Units: times in ``time_unit`` (ms for SI protocols, hbar/mu for healing-unit ones).
+    """
+    return (f"incomplete run: only {n_stored} of {n_planned} planned frames exist (up to t = "
+            f"{t_last:.4g} of {t_end:.4g} {time_unit}); the run stopped early or is still being "
+            "written, and beta and the verdict describe only the frames that exist "
+            "(`vortherm run --resume RUN.h5` continues a stopped run)")
 
 
 def temperature_of_table(path, *, shape: str | None = None, radius_um: float | None = None,

@@ -173,3 +173,17 @@ def test_a_complete_run_carries_no_incomplete_note(one_run, tmp_path, capsys, do
     doc = json.loads(capsys.readouterr().out)
     assert doc["run_complete"] is True and doc["frames_stored"] == doc["frames_planned"] == 6
     assert "incomplete" not in doc
+
+
+def test_conflicting_geometry_options_are_refused_naming_both(one_run, tmp_path, capsys, rng):
+    table = tmp_path / "shots.csv"
+    _write_table(table, rng)
+    assert main(["temperature", str(table), "--disk-radius-um", "30", "--box-um", "60", "40"]) == 2
+    err = capsys.readouterr().err
+    assert "--disk-radius-um" in err and "--box-um" in err
+    assert main(["temperature", str(one_run), "--disk-radius-um", "30"]) == 2
+    err = capsys.readouterr().err
+    assert "tiny.h5" in err and "--disk-radius-um" in err and "measured tables" in err
+    assert main(["temperature", str(table), "--disk-radius-um", "30", "--frames", "1:3"]) == 2
+    assert "--frames" in capsys.readouterr().err
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["shots.csv"]   # nothing written

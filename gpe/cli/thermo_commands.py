@@ -13,6 +13,11 @@ from pathlib import Path
 from gpe.cli.args import add_command, parse_frames
 from gpe.errors import VorthermError
 
+#: Options of ``temperature`` that only a measured table uses (a run file knows its own trap).
+TABLE_OPTIONS = (("disk_radius_um", "--disk-radius-um"), ("box_um", "--box-um"),
+                 ("core_um", "--core-um"), ("pixel_um", "--pixel-um"), ("center", "--center"),
+                 ("strict", "--strict"))
+
 
 # --------------------------------------------------------------------------- temperature
 def register_temperature(sub) -> None:
@@ -46,7 +51,23 @@ def _cmd_temperature(args) -> int:
     if not args.source.is_file():
         raise VorthermError(f"{args.source}: no such file; give a run file (.h5) or a measured "
                             "table (.csv)")
-    if reading.is_run_file(args.source):   # by content; refuses a locked/truncated HDF5
+    if args.disk_radius_um is not None and args.box_um is not None:
+        raise VorthermError(f"--disk-radius-um {args.disk_radius_um:g} and --box-um "
+                            f"{args.box_um[0]:g} {args.box_um[1]:g} both given: a measured table "
+                            "has one geometry; give --disk-radius-um R for a disk or --box-um LX "
+                            "LY for a box, not both")
+    run_file = reading.is_run_file(args.source)   # by content; refuses a locked/truncated HDF5
+    if run_file:
+        given = [flag for name, flag in TABLE_OPTIONS
+                 if getattr(args, name) is not None and getattr(args, name) is not False]
+        if given:
+            raise VorthermError(f"{args.source} is a run file, whose trap fixes the geometry; "
+                                f"{', '.join(given)} apply only to measured tables: leave "
+                                f"{'them' if len(given) > 1 else 'it'} out")
+    elif args.frames is not None:
+        raise VorthermError(f"--frames {args.frames}: {args.source} is a measured table (not a "
+                            "run file), whose shots are all used; leave out --frames")
+    if run_file:
         result = thermometry.temperature_of_run(args.source, frames=parse_frames(args.frames),
                                                 effort=args.effort)
     else:

@@ -115,6 +115,13 @@ def test_beamset_evaluate_in_place_and_positions():
     assert bs.max_height() == 2.0 and BeamSet().n_beams == 0 and BeamSet().max_height() == 0.0
 
 
+def test_max_height_is_the_largest_magnitude_attractive_beams_included():
+    # [exact] a beam turns the phase by |V0| dt per step whatever its sign: a well counts too
+    mixed = BeamSet([Beam(waist=2.0, height=1.0), Beam(waist=2.0, height=-5.0)])
+    assert mixed.max_height() == 5.0
+    assert BeamSet([Beam(waist=2.0, height=-1e6)]).max_height() == 1e6
+
+
 def test_separable_factors_equal_direct_gaussian():
     # [exact] exp(-2 r^2/w^2) = exp(-2 (x-x0)^2/w^2) exp(-2 (y-y0)^2/w^2)
     bs = _beamset()

@@ -7,11 +7,11 @@ every test to a few seconds.
 import numpy as np
 import pytest
 
-from gpe.errors import RunFileError
+from gpe.errors import RunFileError, SimulationError
 from gpe.run import reading, thermometry
 from gpe.run import simulate as pipeline
 from gpe.run.runfile import RunFile
-from gpe.setup.protocol import parse_protocol
+from gpe.setup.protocol import ProtocolWarning, parse_protocol
 from tiny_protocol import healing_header, tiny_protocol_text
 
 TINY = tiny_protocol_text()
@@ -172,3 +172,16 @@ def test_time_step_too_large_for_the_beam_fails_before_any_file(tmp_path):
     with pytest.raises(SimulationError, match="too large"):
         pipeline.simulate(protocol, tmp_path / "steep.h5")
     assert not list(tmp_path.glob("steep.h5*"))
+
+
+def test_attractive_beam_too_deep_for_the_time_step_fails_before_any_file(tmp_path):
+    """A well of 1e6 mu turns the phase by 5e4 rad per step at dt = 0.05: refused like a barrier
+    (it used to pass every check and the atom number grew by four orders of magnitude)."""
+    with pytest.warns(ProtocolWarning) as record:
+        protocol = _protocol(tmp_path, ["beams.0.height_mu=-1e6"])
+    texts = [str(w.message) for w in record]
+    assert any("rad per step" in t for t in texts) and any("attractive well" in t for t in texts)
+    with pytest.raises(SimulationError, match="too large"):
+        pipeline.simulate(protocol, tmp_path / "well.h5")
+    assert not list(tmp_path.glob("well.h5*"))
+

@@ -294,6 +294,23 @@ def test_large_dt_warns_with_phase_per_step():
         parse_protocol(BASE.replace("wall_height_mu = 5.0", "wall_height_mu = 80.0"), "stir.toml")
 
 
+def test_attractive_beam_warns_with_its_depth_and_the_thomas_fermi_density():
+    with pytest.warns(ProtocolWarning) as record:
+        p = parse_protocol(BASE.replace("height_mu = 2.0", "height_mu = -2.0"), "stir.toml")
+    texts = [str(w.message) for w in record]
+    assert len(texts) == 1                       # allowed, and nothing else against practice
+    # [exact] Thomas-Fermi: n = (mu - V) / g, so n/n0 = 1 + |V0|/mu at the bottom of a well in the bulk
+    assert "[beams.0] height_mu" in texts[0] and "attractive well 2 mu" in texts[0]
+    assert f"{2 * p.units.temperature_K * 1e9:.4g} nK deep" in texts[0]
+    assert "n/n0 ~ 1 + |V0|/mu = 3 " in texts[0] and "an estimate" in texts[0]
+    with pytest.warns(ProtocolWarning) as record:
+        parse_protocol(BASE.replace("height_mu = 2.0", "height_mu = -1e6"), "stir.toml")
+    texts = [str(w.message) for w in record]
+    assert any("n/n0 ~ 1 + |V0|/mu = 1e+06" in t for t in texts)
+    # the time-step check sees the depth |V0|: dt * (5 + 1e6 + 1) mu per step
+    assert any(re.search(r"dt \* max\(V \+ g\|psi\|\^2\) = .* \* 1e\+06 ", t) for t in texts)
+
+
 # -- overrides -------------------------------------------------------------------------------------
 def test_overrides_set_values_by_section_and_index():
     p = parse(overrides=["evolution.damping=0.02", "beams.0.path.speed_c=0.4", "grid.nx=144",

@@ -6,6 +6,7 @@ import numpy as np
 import pytest
 
 from gpe.errors import SimulationError, VorthermError
+from gpe.field.beams import Beam, BeamSet
 from gpe.field.grid import Grid
 from gpe.field.solver import Solver, SolverSettings, observables
 
@@ -181,6 +182,15 @@ def test_too_large_time_step_is_refused():
         _solver(dt=2.0, beams=CircularBeam(height=5.0))
     with pytest.raises(VorthermError, match="backwards"):
         SolverSettings(dt=-0.1, gamma=0.1)
+
+
+def test_attractive_beam_too_deep_for_the_time_step_is_refused():
+    # a well of depth |V0| turns the phase by |V0| dt per step, like a barrier: 1e6 mu at dt = 0.05
+    # is 5e4 rad (the atom number grew 1e4-fold when this passed the check)
+    for beams in (BeamSet([Beam(waist=1.5, height=-1e6)]), CircularBeam(height=-1e6)):
+        with pytest.raises(SimulationError, match="too large"):
+            _solver(dt=0.05, beams=beams)
+    assert _solver(dt=0.05, beams=BeamSet([Beam(waist=1.5, height=-2.0)])).step_count == 0
 
 
 # -- observables ------------------------------------------------------------------------------------

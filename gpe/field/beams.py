@@ -277,8 +277,14 @@ class BeamSet:
         return V
 
     def max_height(self) -> float:
-        """Largest peak height of a single beam (0 without beams). Units: mu."""
-        return max((b.height for b in self.beams), default=0.0)
+        """Largest |peak height| of a single beam (0 without beams).
+
+        The magnitude, so that an attractive beam (negative height, a well) counts as much as a
+        repulsive one in the time-step checks: the phase a beam turns per step is |V0| dt.
+
+        Units: mu.
+        """
+        return max((abs(b.height) for b in self.beams), default=0.0)
 
     def max_speed(self) -> float:
         """Largest path speed of any beam. Units: c."""

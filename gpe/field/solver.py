@@ -144,7 +144,8 @@ class Solver:
     static_potential : (ny, nx) array
         Trap potential, time independent.
     beams : BeamSet-like or None
-        Time-dependent Gaussian beams (duck-typed, see :class:`BeamRows`).
+        Time-dependent Gaussian beams (duck-typed, see :class:`BeamRows`); an optional
+        ``max_height()`` gives the largest |height| for the time-step check.
     settings : SolverSettings
     psi0 : (ny, nx) array
         Initial wavefunction (copied).
@@ -207,11 +208,12 @@ class Solver:
         return self._t_origin + step * self.settings.dt
 
     def _max_beam_height(self) -> float:
+        """Largest |height| of any beam (attractive wells turn the phase as fast as barriers)."""
         beams = self._beams.beams
         if beams is None:
             return 0.0
         if hasattr(beams, "max_height"):
-            return float(beams.max_height())
+            return abs(float(beams.max_height()))
         self._beams.update(self.t)
         return float(np.max(np.abs(self._beams.amp), initial=0.0))
 

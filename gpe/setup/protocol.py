@@ -322,6 +322,14 @@ def _check_practice(ctx: _Context, p: Protocol, grid_sec: _Section, ev: _Section
         if beam.waist < 2 * spacing:
             warn(f"[beams.{i}] waist {beam.waist:.3g} xi is under 2 grid spacings ({spacing:.3g} xi); the "
                  "beam is poorly resolved (common practice: waist >= 2 dx).")
+        if beam.height < 0:
+            depth = -beam.height
+            warn(f"[beams.{i}] {beam_secs[i][0].key('height')}: height {beam.height:.4g} mu is negative, an "
+                 f"attractive well {depth:.4g} mu = {depth * u.temperature_K * 1e9:.4g} nK deep. Atoms gather "
+                 f"in it: in the Thomas-Fermi picture the density at the beam centre grows to n/n0 ~ "
+                 f"1 + |V0|/mu = {1.0 + depth:.4g} for a well in the bulk (an estimate: it neglects the "
+                 "kinetic energy, which lowers the peak of a narrow well). Use a positive height for a "
+                 "repulsive stirring beam.")
     hit = find_beam_excursion(beams, g, p.evolution.duration)
     if hit is not None:
         sec = beam_secs[hit.beam_index][1]
@@ -331,7 +339,8 @@ def _check_practice(ctx: _Context, p: Protocol, grid_sec: _Section, ev: _Section
                  f"to the edge of the grid", f"a path with |x| <= {hit.limit_x:.4g} xi and |y| <= "
                  f"{hit.limit_y:.4g} xi while the beam is on (or a larger [grid])")
     dt = p.evolution.dt
-    v_max = float(p.build_trap().max()) + max(beams.max_height(), 0.0) + 1.0
+    # |V0| of the strongest beam: a well turns the phase as fast as a barrier of the same height
+    v_max = float(p.build_trap().max()) + beams.max_height() + 1.0
     k2_max = (math.pi / g.dx) ** 2 + (math.pi / g.dy) ** 2
     if dt * v_max > 1.0:   # common practice: at most ~1 rad of potential phase per step
         warn(f"[evolution] {ev.key('dt')}: dt * max(V + g|psi|^2) = {dt:.3g} * {v_max:.3g} = {dt * v_max:.3g} rad "

@@ -3,6 +3,7 @@
 import json
 import math
 import re
+import tracemalloc
 import warnings
 from pathlib import Path
 
@@ -309,6 +310,20 @@ def test_attractive_beam_warns_with_its_depth_and_the_thomas_fermi_density():
     assert any("n/n0 ~ 1 + |V0|/mu = 1e+06" in t for t in texts)
     # the time-step check sees the depth |V0|: dt * (5 + 1e6 + 1) mu per step
     assert any(re.search(r"dt \* max\(V \+ g\|psi\|\^2\) = .* \* 1e\+06 ", t) for t in texts)
+
+
+def test_reading_a_large_grid_allocates_nothing_of_its_size():
+    # the time-step warning samples the trap on a coarser grid; the run's arrays are counted and
+    # checked against the free memory before they are allocated (gpe.run.memory)
+    tracemalloc.start()
+    try:
+        with pytest.warns(ProtocolWarning, match="k_max"):   # dx = 0.02 xi asks for a tiny dt
+            p = parse_protocol(BASE.replace("nx = 128", "nx = 4096"), "stir.toml")
+        _, peak = tracemalloc.get_traced_memory()
+    finally:
+        tracemalloc.stop()
+    float_array = 8 * p.grid.nx * p.grid.ny       # 134 MB
+    assert peak < float_array / 4
 
 
 # -- overrides -------------------------------------------------------------------------------------

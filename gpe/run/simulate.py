@@ -23,7 +23,8 @@ from gpe.analysis.vortices import VORTEX_DTYPE, find_vortices
 from gpe.errors import RunFileError
 from gpe.field.ground_state import find_ground_state
 from gpe.field.solver import Solver, SolverSettings
-from gpe.run.reading import protocol_of
+from gpe.run.memory import check_memory
+from gpe.run.reading import is_complete, protocol_of
 from gpe.run.runfile import RunFile
 
 #: Density threshold of the detector relative to the peak background (common practice: 0.1-0.3).
@@ -103,8 +104,18 @@ def simulate(protocol, out_path, *, resume: bool = False,
     Returns
     -------
     pathlib.Path of the run file.
+
+    Raises
+    ------
+    SimulationError
+        Before anything of the grid's size is allocated and before a file is written, when the
+        run's estimated peak memory exceeds the memory available (gpe.run.memory).
     """
     out_path = Path(out_path)
+    resuming = resume and out_path.exists()
+    if resuming and is_complete(out_path):
+        return out_path
+    check_memory(protocol, resume=resuming)
     grid = protocol.grid
     ev = protocol.evolution
     v_static = protocol.build_trap()
@@ -114,7 +125,7 @@ def simulate(protocol, out_path, *, resume: bool = False,
     time_unit = "ms" if protocol.unit_system == "SI" else "hbar/mu"
     to_user = protocol.units.time_s * 1e3 if time_unit == "ms" else 1.0
 
-    if resume and out_path.exists():
+    if resuming:
         run = RunFile.open(out_path, "r+")
         if run.is_complete():
             run.close()

@@ -340,7 +340,7 @@ def _check_practice(ctx: _Context, p: Protocol, grid_sec: _Section, ev: _Section
                  f"{hit.limit_y:.4g} xi while the beam is on (or a larger [grid])")
     dt = p.evolution.dt
     # |V0| of the strongest beam: a well turns the phase as fast as a barrier of the same height
-    v_max = float(p.build_trap().max()) + beams.max_height() + 1.0
+    v_max = _trap_maximum(p.trap, g) + beams.max_height() + 1.0
     k2_max = (math.pi / g.dx) ** 2 + (math.pi / g.dy) ** 2
     if dt * v_max > 1.0:   # common practice: at most ~1 rad of potential phase per step
         warn(f"[evolution] {ev.key('dt')}: dt * max(V + g|psi|^2) = {dt:.3g} * {v_max:.3g} = {dt * v_max:.3g} rad "
@@ -354,6 +354,28 @@ def _check_practice(ctx: _Context, p: Protocol, grid_sec: _Section, ev: _Section
     if ratio > 1.0:
         warn(f"[atoms] mu / (hbar omega_z) = {ratio:.3g}: the gas is not quasi-2D (needs mu << hbar "
              "omega_z); the quasi-2D coupling is then inaccurate.")
+
+
+#: Most grid points on which :func:`_trap_maximum` evaluates a trap (2 MB per float64 array).
+_PRACTICE_POINTS = 1 << 18
+
+
+def _trap_maximum(trap: Trap, grid: Grid) -> float:
+    """Largest value of the static trap over the grid's box, for the time-step warning.
+
+    Grids of more than :data:`_PRACTICE_POINTS` points are sampled on a coarser grid over the
+    same box, so that reading a protocol never allocates arrays of the size of its grid (those
+    are counted and checked against the free memory before a run, gpe.run.memory). Walls and
+    caps are flat far from the edge and the corners are sampled either way, so the coarse
+    maximum is the same to within the wall's smoothing.
+
+    Units: mu.
+    """
+    stride = max(1, math.ceil(math.sqrt(grid.nx * grid.ny / _PRACTICE_POINTS)))
+    if stride > 1:
+        grid = Grid(max(8, 2 * (grid.nx // (2 * stride))), max(8, 2 * (grid.ny // (2 * stride))),
+                    grid.length_x, grid.length_y)
+    return float(trap.potential(grid).max())
 
 
 def parse_protocol(text: str, source: str = "<protocol>", overrides: Sequence[str] = (),

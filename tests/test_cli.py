@@ -146,3 +146,16 @@ def test_sweep_with_a_bad_scheduler_address_writes_nothing(tmp_path, capsys):
     err = capsys.readouterr().err
     assert "head-node:87x6" in err and "tcp://HOST:PORT" in err and "Traceback" not in err
     assert not out.exists()
+
+
+def test_vortices_keeps_an_existing_csv_unless_forced(tiny_run, tmp_path, capsys):
+    default = tmp_path / "tiny_vortices.csv"             # RUN_vortices.csv beside the run
+    assert main(["vortices", str(tiny_run)]) == 0
+    first = default.read_text()
+    default.write_text("kept\n")
+    assert main(["vortices", str(tiny_run)]) == 2
+    err = capsys.readouterr().err
+    assert str(default) in err and "--force" in err and "--csv" in err
+    assert default.read_text() == "kept\n"
+    assert main(["vortices", str(tiny_run), "--force"]) == 0
+    assert default.read_text() == first

@@ -187,3 +187,40 @@ def test_conflicting_geometry_options_are_refused_naming_both(one_run, tmp_path,
     assert main(["temperature", str(table), "--disk-radius-um", "30", "--frames", "1:3"]) == 2
     assert "--frames" in capsys.readouterr().err
     assert sorted(p.name for p in tmp_path.iterdir()) == ["shots.csv"]   # nothing written
+
+
+def test_temperature_outputs_are_kept_unless_forced(tmp_path, capsys, rng, dos_cache):
+    table = tmp_path / "shots.csv"
+    _write_table(table, rng, shots=3, n=4)
+    assert main(["temperature", str(table), "--disk-radius-um", "30"]) == 0
+    out_csv = tmp_path / "shots_temperature.csv"
+    first = out_csv.read_text()
+    out_csv.write_text("kept\n")
+    capsys.readouterr()
+    assert main(["temperature", str(table), "--disk-radius-um", "30"]) == 2
+    err = capsys.readouterr().err
+    assert str(out_csv) in err and "--force" in err and "--csv" in err
+    assert out_csv.read_text() == "kept\n"
+    assert main(["temperature", str(table), "--disk-radius-um", "30", "--force"]) == 0
+    assert out_csv.read_text() == first
+    # the source is never an output, not even with --force
+    before = table.read_bytes()
+    assert main(["temperature", str(table), "--disk-radius-um", "30", "--csv", str(table),
+                 "--force"]) == 2
+    assert "input" in capsys.readouterr().err and table.read_bytes() == before
+
+
+def test_compare_keeps_earlier_outputs_unless_forced(one_run, tmp_path, capsys, rng):
+    table = tmp_path / "shots.csv"
+    _write_table(table, rng, radius_um=10.0)
+    stem = tmp_path / "cmp"
+    stem.with_suffix(".json").write_text("{}")
+    assert main(["compare", str(one_run), "--measured", str(table), "-o", str(stem)]) == 2
+    err = capsys.readouterr().err
+    assert "cmp.json" in err and "--force" in err and "-o/--output" in err
+    assert stem.with_suffix(".json").read_text() == "{}"
+    assert not stem.with_suffix(".csv").exists() and not stem.with_suffix(".png").exists()
+    # -o naming the measured table itself would overwrite it: refused even with --force
+    assert main(["compare", str(one_run), "--measured", str(table), "-o",
+                 str(tmp_path / "shots"), "--force"]) == 2
+    assert "input" in capsys.readouterr().err

@@ -44,3 +44,22 @@ def test_figures_are_written_for_the_chosen_frames(tiny_run, tmp_path):
     assert {"tiny_density_phase.png", "tiny_vortex_counts.png", "tiny_energies.png",
             "tiny_spectra_frame0.png", "tiny_spectra_frame5.png"} <= names
     assert all(p.stat().st_size > 5000 for p in written)
+
+
+def test_an_existing_csv_is_refused_before_anything_is_read_or_stored(tiny_run, tmp_path):
+    csv_path = tmp_path / "v.csv"
+    csv_path.write_text("kept\n")
+    with RunFile.open(tiny_run) as run:
+        stored = run.read_vortices()
+    with pytest.raises(VorthermError, match=r"v\.csv exists already.*--force"):
+        products.redetect(tiny_run, threshold=0.9, store=True, csv_path=csv_path)
+    assert csv_path.read_text() == "kept\n"
+    with RunFile.open(tiny_run) as run:                 # the stored table is untouched too
+        np.testing.assert_array_equal(run.read_vortices(), stored)
+    table, _, _ = products.redetect(tiny_run, csv_path=csv_path, overwrite=True)
+    assert csv_path.read_text().count("\n") == table.size + 2   # comment, header, rows
+    # the run file itself is never the CSV, with or without overwrite
+    with pytest.raises(VorthermError, match="the run file itself"):
+        products.redetect(tiny_run, csv_path=tiny_run, overwrite=True)
+    with RunFile.open(tiny_run) as run:
+        np.testing.assert_array_equal(run.read_vortices(), stored)

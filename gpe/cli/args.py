@@ -42,3 +42,34 @@ def parse_frames(text: str | None):
     except ValueError:
         raise VorthermError(f"--frames {text!r}: expected a range like 10:40 or a list like "
                             "5,9,-1 of frame indices") from None
+
+
+def refuse_to_overwrite(outputs, *, inputs=(), force: bool = False) -> None:
+    """Stop before any work when an output file would overwrite something.
+
+    Parameters
+    ----------
+    outputs : (path, how) pairs: a file the command would write and how to give it another
+        name (e.g. ``"choose another file with --csv"``), said in the message.
+    inputs : files the command reads; never overwritten, not even with ``--force``.
+    force : ``--force`` was given: existing outputs may be replaced.
+
+    Units: none.
+    """
+    read = {_same_file_key(p) for p in inputs}
+    for path, how in outputs:
+        if _same_file_key(path) in read:
+            raise VorthermError(f"{path} is an input of this command and would be overwritten "
+                                f"by its output (even --force does not allow that); {how}")
+        if path.is_dir():
+            raise VorthermError(f"{path} is a folder, where this command writes a file; {how}")
+    if force:
+        return
+    for path, how in outputs:
+        if path.exists():
+            raise VorthermError(f"{path} exists already; pass --force to overwrite it, or {how}")
+
+
+def _same_file_key(path):
+    # resolve() follows symlinks, so two names of one file compare equal
+    return path.expanduser().resolve()

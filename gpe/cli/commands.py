@@ -166,6 +166,7 @@ def _register_vortices(sub) -> None:
     p.add_argument("--csv", type=Path, help="CSV to write (default: RUN_vortices.csv)")
     p.add_argument("--store", action="store_true",
                    help="replace the vortex table of the run file with the new detection")
+    p.add_argument("--force", action="store_true", help="overwrite an existing CSV")
     p.set_defaults(handler=_cmd_vortices)
 
 
@@ -175,7 +176,8 @@ def _cmd_vortices(args) -> int:
     frames = parse_frames(args.frames)
     table, events, csv_path = products.redetect(args.run, threshold=args.threshold,
                                                 region=args.region, frames=frames,
-                                                csv_path=args.csv, store=args.store)
+                                                csv_path=args.csv, store=args.store,
+                                                overwrite=args.force)
     n_frames = len(set(table["frame"].tolist())) if table.size else 0
     print(f"{table.size} vortices in {n_frames} frames with vortices; "
           f"{len(events)} annihilation/creation events")
@@ -247,11 +249,14 @@ def _cmd_demo(args) -> int:
     for path in standard.make_figures(run_path, out / "figures", frames=[0, -1], movie=False):
         print(f"  {path}")
     print("3/4 vortex table")
-    _, _, csv_path = products.redetect(run_path, csv_path=out / "demo_vortices.csv")
+    # the demo folder is the demo's own: a second demo replaces its outputs
+    _, _, csv_path = products.redetect(run_path, csv_path=out / "demo_vortices.csv",
+                                       overwrite=True)
     print(f"  {csv_path}")
     print("4/4 temperature of the vortex gas")
     result = thermometry.temperature_of_run(run_path, effort="quick")
-    show_temperature(result, run_path, csv_path=out / "demo_temperature.csv", plot=True)
+    show_temperature(result, run_path, csv_path=out / "demo_temperature.csv", plot=True,
+                     force=True)
     print(f"\nall demo outputs are in {out.resolve()}")
     return 0
 

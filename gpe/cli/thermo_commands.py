@@ -10,7 +10,7 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
-from gpe.cli.args import add_command, parse_frames
+from gpe.cli.args import add_command, parse_frames, refuse_to_overwrite
 from gpe.errors import VorthermError
 
 #: Options of ``temperature`` that only a measured table uses (a run file knows its own trap).
@@ -42,6 +42,8 @@ def register_temperature(sub) -> None:
     p.add_argument("--csv", type=Path, help="where to write the table (default: beside the source)")
     p.add_argument("--json", action="store_true", help="print the results as JSON on stdout")
     p.add_argument("--plot", action="store_true", help="draw beta(t) and clustering observables")
+    p.add_argument("--force", action="store_true",
+                   help="overwrite an existing table (and figure) of an earlier call")
     p.set_defaults(handler=_cmd_temperature)
 
 
@@ -67,6 +69,8 @@ def _cmd_temperature(args) -> int:
     elif args.frames is not None:
         raise VorthermError(f"--frames {args.frames}: {args.source} is a measured table (not a "
                             "run file), whose shots are all used; leave out --frames")
+    refuse_to_overwrite(temperature_outputs(args.source, args.csv, args.plot),
+                        inputs=[args.source], force=args.force)
     if run_file:
         result = thermometry.temperature_of_run(args.source, frames=parse_frames(args.frames),
                                                 effort=args.effort)
@@ -79,17 +83,38 @@ def _cmd_temperature(args) -> int:
         result = thermometry.temperature_of_table(
             args.source, shape=shape, core_um=args.core_um, pixel_um=args.pixel_um,
             center_px=args.center, strict=args.strict, effort=args.effort, **kw)
-    show_temperature(result, args.source, csv_path=args.csv, as_json=args.json, plot=args.plot)
+    show_temperature(result, args.source, csv_path=args.csv, as_json=args.json, plot=args.plot,
+                     force=args.force)
     return 0
 
 
+def temperature_outputs(source: Path, csv_path: Path | None, plot: bool) -> list[tuple[Path, str]]:
+    """The files ``temperature`` writes for ``source``, each with how to name it otherwise.
+
+    Units: none.
+    """
+    outputs = [(csv_path or source.with_name(source.stem + "_temperature.csv"),
+                "choose another table name with --csv")]
+    if plot:
+        outputs.append((source.with_name(source.stem + "_temperature.png"),
+                        "leave out --plot (the figure is named after the source)"))
+    return outputs
+
+
 def show_temperature(result: dict, source: Path, *, csv_path: Path | None = None,
-                     as_json: bool = False, plot: bool = False) -> None:
-    """Write the table (and figure) of a thermometry result and print it (text or JSON)."""
+                     as_json: bool = False, plot: bool = False, force: bool = False) -> None:
+    """Write the table (and figure) of a thermometry result and print it (text or JSON).
+
+    Existing outputs are refused unless ``force`` (see :func:`temperature_outputs`).
+
+    Units: as in the result (beta in 1/E0, times in the protocol's display unit).
+    """
     from gpe.figures import thermometry as thermo_figures
     from gpe.run import report
 
-    csv_path = csv_path or source.with_name(source.stem + "_temperature.csv")
+    outputs = temperature_outputs(source, csv_path, plot)
+    refuse_to_overwrite(outputs, inputs=[source], force=force)
+    csv_path = outputs[0][0]
     report.write_records_csv(csv_path, result["records"], result["time_key"])
     if as_json:
         print(json.dumps(report.json_report(result), indent=1, allow_nan=True))
@@ -97,7 +122,7 @@ def show_temperature(result: dict, source: Path, *, csv_path: Path | None = None
         print(report.text_report(result))
         print(f"table written to {csv_path}")
     if plot:
-        fig_path = source.with_name(source.stem + "_temperature.png")
+        fig_path = outputs[1][0]
         thermo_figures.plot_temperature_series(result, fig_path)
         print(f"figure written to {fig_path}")
 
@@ -132,6 +157,8 @@ def register_compare(sub) -> None:
     p.add_argument("--effort", choices=("quick", "standard", "thorough"), default="quick")
     p.add_argument("-o", "--output", type=Path, help="stem of the CSV/JSON/PNG outputs")
     p.add_argument("--json", action="store_true", help="print the table as JSON on stdout")
+    p.add_argument("--force", action="store_true",
+                   help="overwrite existing CSV/JSON/PNG outputs of an earlier comparison")
     p.set_defaults(handler=_cmd_compare)
 
 
@@ -145,6 +172,10 @@ def _cmd_compare(args) -> int:
     from thermo.data.degrade import ImagingModel, degrade_many
     from thermo.data.measured import read_measured
 
+    stem = args.output or args.measured.with_name(args.measured.stem + "_vs_simulation")
+    how = "choose another stem with -o/--output"
+    refuse_to_overwrite([(stem.with_suffix(s), how) for s in (".csv", ".json", ".png")],
+                        inputs=[*args.runs, args.measured], force=args.force)
     sim_configs, vd, protocol = [], None, None
     for run_path in args.runs:
         with RunFile.open(run_path, "r") as run:
@@ -181,7 +212,6 @@ def _cmd_compare(args) -> int:
     comparison = cmp.compare_ensembles(sim_configs, measured.configurations, vd.domain,
                                        core, seed=args.seed,
                                        beta_options={"settings": thermometry.dos_settings(args.effort)})
-    stem = args.output or args.measured.with_name(args.measured.stem + "_vs_simulation")
     csv_path = cmp.write_csv(comparison, stem.with_suffix(".csv"))
     json_path = cmp.write_json(comparison, stem.with_suffix(".json"))
     fig_path = stem.with_suffix(".png")

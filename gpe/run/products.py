@@ -21,19 +21,42 @@ from gpe.run.runfile import RunFile
 from gpe.run.simulate import DETECT_THRESHOLD, detection_region
 
 
+def vortex_csv_path(run_path, csv_path=None) -> Path:
+    """Where :func:`redetect` writes its table: ``csv_path``, or ``RUN_vortices.csv`` beside the run.
+
+    Units: none.
+    """
+    if csv_path:
+        return Path(csv_path)
+    return Path(run_path).with_name(Path(run_path).stem + "_vortices.csv")
+
+
 def redetect(run_path, *, threshold: float = DETECT_THRESHOLD, region: str = "trap",
-             frames=None, csv_path=None, store: bool = False):
+             frames=None, csv_path=None, store: bool = False, overwrite: bool = False):
     """Detect vortices again in stored frames; export CSV in micrometres; optionally store.
 
     Returns (table, events, csv_path). The run file is changed only with ``store=True``, and
     then the old vortex table is replaced in one step (only when every frame was re-detected,
-    so the stored table never mixes two detections).
+    so the stored table never mixes two detections). An existing CSV is refused before anything
+    is read or stored unless ``overwrite`` (``--force``); the CSV is never the run file itself.
+
+    Units: threshold as a fraction of the peak background density; CSV in um and ms.
     """
     if not 0.0 < threshold < 1.0:
         raise VorthermError(f"--threshold {threshold}: the density threshold is a fraction of "
                             "the peak background density; accepted: 0 < threshold < 1")
     if region not in ("trap", "all"):
         raise VorthermError(f"region {region!r}; accepted: 'trap', 'all'")
+    csv_path = vortex_csv_path(run_path, csv_path)
+    if csv_path.resolve() == Path(run_path).resolve():
+        raise VorthermError(f"--csv {csv_path} is the run file itself; the vortex table needs "
+                            "another name (default: RUN_vortices.csv)")
+    if csv_path.is_dir():
+        raise VorthermError(f"--csv {csv_path} is a folder; give the name of the CSV file to "
+                            "write, e.g. --csv run_vortices.csv")
+    if csv_path.exists() and not overwrite:
+        raise VorthermError(f"{csv_path} exists already; pass --force (overwrite=True) to "
+                            "overwrite it, or choose another file with --csv")
     with RunFile.open(run_path, "r") as run:
         protocol = protocol_of(run)
         times = np.asarray(run.frame_times())
@@ -59,8 +82,6 @@ def redetect(run_path, *, threshold: float = DETECT_THRESHOLD, region: str = "tr
                                 "frame: leave out --frames")
         with RunFile.open(run_path, "r+") as run:
             run.replace_vortices(table)
-    csv_path = Path(csv_path) if csv_path else Path(run_path).with_name(
-        Path(run_path).stem + "_vortices.csv")
     _write_vortex_csv(csv_path, table, protocol)
     return table, events, csv_path
 

@@ -138,6 +138,30 @@ def test_metadata_snapshots_and_vortex_replacement(tmp_path):
         assert [i for i, _, _ in run.frames()] == [0]
 
 
+def test_trap_arrays_are_kept_and_read_back(tmp_path):
+    mask = np.zeros((5, 7), bool)
+    mask[1:4, 2:5] = True
+    _create(tmp_path / "m.h5", trap_arrays={"mask": mask}).close()
+    with RunFile.open(tmp_path / "m.h5") as run:
+        back = run.trap_arrays()
+        assert list(back) == ["mask"] and back["mask"].dtype == bool
+        np.testing.assert_array_equal(back["mask"], mask)
+        np.testing.assert_array_equal(run.static_potential(), TRAP)     # beside it, unchanged
+    with h5py.File(tmp_path / "m.h5") as f:
+        assert f["potential/mask"].dtype == np.uint8                   # 0/1, readable anywhere
+    _create(tmp_path / "none.h5").close()
+    with RunFile.open(tmp_path / "none.h5") as run:
+        assert run.trap_arrays() == {}
+    with pytest.raises(RunFileError, match=r"'trap'.*potential/<name>"):
+        _create(tmp_path / "clash.h5", trap_arrays={"trap": mask})
+    assert not (tmp_path / "clash.h5").exists()
+    with h5py.File(tmp_path / "m.h5", "r+") as f:
+        f["potential"].create_group("odd")
+    with RunFile.open(tmp_path / "m.h5") as run:
+        with pytest.raises(RunFileError, match=r"m\.h5.*'potential/odd' is not a dataset"):
+            run.trap_arrays()
+
+
 def test_errors_name_the_file_and_the_expectation(tmp_path):
     with pytest.raises(RunFileError, match="no such run file"):
         RunFile.open(tmp_path / "missing.h5")

@@ -7,14 +7,17 @@ every test to a few seconds.
 import numpy as np
 import pytest
 
-from gpe.errors import RunFileError, SimulationError
-from gpe.run import reading, thermometry
+from gpe.errors import RunFileError, SimulationError, VorthermError
+from gpe.figures import standard
+from gpe.run import products, reading, thermometry
 from gpe.run import simulate as pipeline
 from gpe.run.runfile import RunFile
-from gpe.setup.protocol import ProtocolWarning, parse_protocol
+from gpe.setup.protocol import ProtocolWarning, load_protocol, parse_protocol
 from tiny_protocol import healing_header, tiny_protocol_text
 
 TINY = tiny_protocol_text()
+#: The tiny protocol in a trap drawn in a mask file beside it (81 x 81 pixels of 0.5 xi).
+MASK = TINY.replace('shape = "disk"\nradius_xi = 20.0', 'shape = "mask"\nfile = "disk.npy"\npixel_size_xi = 0.5')
 
 
 def _protocol(tmp_path, overrides=()):
@@ -185,3 +188,71 @@ def test_attractive_beam_too_deep_for_the_time_step_fails_before_any_file(tmp_pa
         pipeline.simulate(protocol, tmp_path / "well.h5")
     assert not list(tmp_path.glob("well.h5*"))
 
+
+# -- a run file is self-contained: its stored trap, not the files beside its protocol --------------
+def _disk_mask(path, radius_px):
+    """An 81 x 81 pixel .npy mask of a disk of ``radius_px`` pixels; returns its allowed pixels."""
+    c = np.arange(81) - 40
+    inside = np.hypot(*np.meshgrid(c, c)) <= radius_px
+    np.save(path, inside.astype(float))
+    return inside
+
+
+def test_a_mask_run_is_read_from_another_folder_after_its_mask_was_deleted(tmp_path, monkeypatch):
+    start, elsewhere = tmp_path / "start", tmp_path / "elsewhere"
+    start.mkdir()
+    elsewhere.mkdir()
+    inside = _disk_mask(start / "disk.npy", 38)
+    (start / "mask.toml").write_text(MASK)
+    monkeypatch.chdir(start)                     # names relative to where the run was started
+    pipeline.simulate(load_protocol("mask.toml"), "mask.h5")
+    (start / "disk.npy").unlink()
+    monkeypatch.chdir(elsewhere)
+    run_path = start / "mask.h5"
+    # what `plot`, `vortices` and `temperature` do with it
+    assert "vortices at the end" in reading.summary_text(run_path)
+    with RunFile.open(run_path) as run:
+        protocol = reading.protocol_of(run)
+        stored = run.static_potential()
+        np.testing.assert_array_equal(run.trap_arrays()["mask"], inside)
+    np.testing.assert_array_equal(protocol.build_trap(), stored)
+    table, _, _ = products.redetect(run_path)
+    with RunFile.open(run_path) as run:
+        assert len(table) == len(run.read_vortices())
+    assert standard.make_figures(run_path, elsewhere / "figures", frames=[-1])
+    with pytest.raises(VorthermError, match="no point-vortex domain"):   # the shape's own answer
+        thermometry.temperature_of_run(run_path, cache_dir=tmp_path / "dos")
+    assert not (elsewhere / "disk.npy").exists()
+
+
+def test_a_resume_after_the_mask_was_edited_continues_with_the_stored_trap(tmp_path):
+    """N+M steps == N steps, edit the mask, M steps (bitwise): the trap is the stored one."""
+    _disk_mask(tmp_path / "disk.npy", 38)
+    toml = tmp_path / "mask.toml"
+    toml.write_text(MASK)
+    whole = pipeline.simulate(load_protocol(toml), tmp_path / "whole.h5")
+
+    def stop_after_frame_5(progress):
+        if progress.steps >= 5 * 20:
+            raise _Stop
+
+    parts = tmp_path / "part.h5", tmp_path / "part_given.h5"
+    for part in parts:
+        with pytest.raises(_Stop):
+            pipeline.simulate(load_protocol(toml), part, progress=stop_after_frame_5)
+    _disk_mask(tmp_path / "disk.npy", 30)       # a smaller disk: another trap for the same text
+
+    def same_as_whole(part):
+        with RunFile.open(whole) as a, RunFile.open(part) as b:
+            assert b.is_complete()
+            np.testing.assert_array_equal(a.static_potential(), b.static_potential())
+            # the trap energy goes on smoothly through the resume frame, as uninterrupted
+            np.testing.assert_array_equal(b.read_observables()["e_trap"], a.read_observables()["e_trap"])
+            for i in range(a.n_frames):
+                np.testing.assert_array_equal(a.psi(i), b.psi(i))
+
+    pipeline.simulate_resume(parts[0])          # the protocol stored in the run file
+    same_as_whole(parts[0])
+    with pytest.warns(UserWarning, match="differs from the one stored"):
+        pipeline.simulate(load_protocol(toml), parts[1], resume=True)   # the edited one given
+    same_as_whole(parts[1])

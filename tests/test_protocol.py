@@ -276,6 +276,23 @@ def test_mask_protocol_resolves_relative_to_file(tmp_path):
     assert V[p.grid.ny // 2, p.grid.nx // 2] < 1e-3 and V.max() > 4.9
 
 
+def test_a_mask_kept_by_a_run_file_is_used_instead_of_the_file(tmp_path):
+    c = np.arange(80) - 39.5
+    pixels = np.hypot(*np.meshgrid(c, c)) < 30
+    text = BASE.replace('shape = "disk"\nradius_um = 30.0', 'shape = "mask"\nfile = "gone.png"\npixel_size_um = 1.0')
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", ProtocolWarning)
+        p = parse_protocol(text, "m.toml", ["grid.nx=160", "evolution.dt_ms=0.01"], base_dir=tmp_path,
+                           stored_arrays={"mask": pixels})
+    # [exact] flat-trap TF: mu = g2D N / A with A = kept pixels * (1 um)^2
+    assert p.units.mu_J == pytest.approx(p.atoms.g2d_Jm2 * 1e5 / (int(pixels.sum()) * 1e-12), rel=1e-12)
+    np.testing.assert_array_equal(p.trap.allowed, pixels)
+    with pytest.raises(ProtocolError) as info:
+        parse_protocol(text, "m.toml", stored_arrays={"mask": np.ones((3, 3), bool)})
+    msg = str(info.value)
+    assert "[trap] file" in msg and "no wall pixel" in msg and "potential/mask" in msg
+
+
 # -- warnings of common practice -------------------------------------------------------------------
 def test_coarse_grid_warns_with_dx_over_xi():
     with pytest.warns(ProtocolWarning) as record:

@@ -222,6 +222,27 @@ def test_mask_orientation_row0_is_top(tmp_path):
     assert _value_at(V, GRID, 0, -5.0) > 3.9
 
 
+def test_a_mask_keeps_its_pixels_and_is_rebuilt_from_them_without_its_file(tmp_path):
+    path, _ = _disk_png(tmp_path)
+    trap = MaskTrap(file=str(path), pixel_size=0.5)
+    before = trap.potential(GRID)
+    _write_png(path, np.pad(np.full((11, 11), 255), 15))     # the file edited: a square now
+    np.testing.assert_array_equal(trap.potential(GRID), before)
+    kept = trap.stored_arrays()["mask"]
+    assert kept.dtype == bool and not kept.flags.writeable
+    path.unlink()
+    again = MaskTrap(file=str(path), pixel_size=0.5, pixels=kept)   # the file is not read
+    np.testing.assert_array_equal(again.potential(GRID), before)
+    assert again == trap
+    other = kept.copy()
+    other[20, 20] = False
+    assert MaskTrap(file=str(path), pixel_size=0.5, pixels=other) != trap
+    with pytest.raises(ProtocolError, match="no wall pixel"):
+        MaskTrap(file="m.png", pixel_size=0.5, pixels=np.ones((4, 4), bool))
+    with pytest.raises(ProtocolError, match=r"shape \(16,\).*2D array"):
+        MaskTrap(file="m.png", pixel_size=0.5, pixels=np.ones(16, bool))
+
+
 def test_bad_masks_raise_protocol_error_naming_file(tmp_path):
     empty = tmp_path / "empty.png"
     _write_png(empty, np.zeros((10, 10)))

@@ -91,12 +91,21 @@ def _unopenable_message(path: Path, exc: OSError) -> str:
 # reading a run back: stored protocol, completeness, summary, frames
 # ------------------------------------------------------------------------------------------
 def protocol_of(run) -> object:
-    """Rebuild the :class:`~gpe.setup.protocol.Protocol` stored verbatim in an open run file."""
+    """Rebuild the :class:`~gpe.setup.protocol.Protocol` stored verbatim in an open run file.
+
+    The run file alone is enough: what its trap read from files (a mask image) is taken from
+    the file (``RunFile.trap_arrays``), not from beside the original protocol, so the protocol
+    is the same from any working directory, after the mask was edited or deleted. Only files
+    written before the arrays were kept fall back on reading the mask relative to the protocol.
+
+    Units: the Protocol's (simulation units).
+    """
     with warnings.catch_warnings():  # its warnings were shown when the run was started
         warnings.simplefilter("ignore", ProtocolWarning)
         return parse_protocol(run.protocol_text(), source=run.protocol_source(),
                               overrides=run.protocol_overrides(),
-                              base_dir=Path(run.protocol_source()).parent)
+                              base_dir=Path(run.protocol_source()).parent,
+                              stored_arrays=run.trap_arrays())
 
 
 def is_complete(run_path) -> bool:

@@ -69,11 +69,15 @@ class RunFile:
                static_potential: np.ndarray | None = None,
                ground_state_psi: np.ndarray | None = None, snapshot_dtype="complex64",
                compression: str | None = "gzip", extra_attrs: Mapping | None = None,
-               overwrite: bool = False) -> "RunFile":
+               overwrite: bool = False,
+               trap_arrays: Mapping[str, np.ndarray] | None = None) -> "RunFile":
         """Create a new run file (refuses to overwrite unless ``overwrite``).
 
         ``protocol`` (a gpe.setup.protocol.Protocol) supplies grid, protocol text/JSON/source/
-        overrides and units at once; the explicit arguments serve callers without one.
+        overrides, units and the arrays its trap read from files (``trap_arrays``, e.g. a mask's
+        allowed pixels, stored as ``potential/<name>``) at once; the explicit arguments serve
+        callers without one. With the static potential and those arrays the file is
+        self-contained: its protocol is rebuilt without the files beside the original one.
         """
         path = Path(path)
         if protocol is not None:
@@ -81,8 +85,14 @@ class RunFile:
             protocol_text, protocol_json = protocol.source_text, protocol.to_json()
             protocol_source, protocol_overrides = protocol.source_name, protocol.overrides
             units = protocol.units.as_dict()
+            trap_arrays = protocol.trap.stored_arrays()
         if grid is None:
             raise RunFileError(f"{path}: RunFile.create needs grid= or protocol=")
+        trap_arrays = dict(trap_arrays or {})
+        for name in trap_arrays:
+            if name == "trap" or not name.isidentifier():
+                raise RunFileError(f"{path}: trap array name {name!r} cannot be stored as "
+                                   "potential/<name>; accepted: an identifier other than 'trap'")
         if path.exists() and not overwrite:
             raise RunFileError(f"{path}: exists already; pass overwrite=True or choose another name")
         snapshot_dtype = np.dtype(snapshot_dtype)
@@ -110,6 +120,11 @@ class RunFile:
         pot = f.create_group("potential")
         if static_potential is not None:
             _dataset(pot, "trap", np.asarray(static_potential, np.float64), "mu")
+        for name, array in trap_arrays.items():
+            array = np.asarray(array)
+            # booleans as 0/1 bytes (readable everywhere), marked so that they come back as bool
+            ds = _dataset(pot, name, array.astype(np.uint8) if array.dtype == bool else array, "1")
+            ds.attrs["boolean"] = array.dtype == bool
         if ground_state_psi is not None:
             _dataset(f.create_group("ground_state"), "psi", np.asarray(ground_state_psi),
                      "sqrt(n0)")
@@ -241,6 +256,25 @@ class RunFile:
         if "potential/trap" not in self._f:
             raise RunFileError(f"{self.path}: no static potential stored ('potential/trap')")
         return self._f["potential/trap"][...]
+
+    def trap_arrays(self) -> dict[str, np.ndarray]:
+        """The arrays the trap was read from files (``potential/<name>``, e.g. ``mask``), by name.
+
+        Empty for traps given by numbers alone and for files written before they were kept.
+        Units: as the trap shape defines each (the mask: booleans, True = allowed).
+        """
+        if "potential" not in self._f:
+            return {}
+        arrays = {}
+        for name, ds in self._f["potential"].items():
+            if name == "trap":
+                continue
+            if not isinstance(ds, h5py.Dataset):
+                raise RunFileError(f"{self.path}: damaged run file, 'potential/{name}' is not a "
+                                   "dataset; expected the arrays of the trap (e.g. potential/mask)")
+            data = ds[...]
+            arrays[name] = data.astype(bool) if ds.attrs.get("boolean", False) else data
+        return arrays
 
     def ground_state_psi(self) -> np.ndarray:
         """The ground state the run started from. Units: sqrt(n0)."""

@@ -110,6 +110,11 @@ def simulate(protocol, out_path, *, resume: bool = False,
     SimulationError
         Before anything of the grid's size is allocated and before a file is written, when the
         run's estimated peak memory exceeds the memory available (gpe.run.memory).
+
+    Notes
+    -----
+    A resumed run continues with the static potential stored in its run file, not with the
+    protocol's trap rebuilt now: an edited mask image cannot change a run half way.
     """
     out_path = Path(out_path)
     resuming = resume and out_path.exists()
@@ -118,9 +123,7 @@ def simulate(protocol, out_path, *, resume: bool = False,
     check_memory(protocol, resume=resuming)
     grid = protocol.grid
     ev = protocol.evolution
-    v_static = protocol.build_trap()
     beams = protocol.build_beams()
-    region = detection_region(protocol, v_static)
     t_end = ev.n_outputs * ev.output_interval
     time_unit = "ms" if protocol.unit_system == "SI" else "hbar/mu"
     to_user = protocol.units.time_s * 1e3 if time_unit == "ms" else 1.0
@@ -138,12 +141,20 @@ def simulate(protocol, out_path, *, resume: bool = False,
                 "overrides differ from the one given now); resuming would join two runs. Continue "
                 f"it with its own protocol (`vortherm run --resume {out_path}`), or start again "
                 "with --force")
-        ck = run.read_checkpoint()
+        try:
+            v_static = _stored_trap(run, protocol)
+            ck = run.read_checkpoint()
+        except BaseException:
+            run.close()
+            raise
+        region = detection_region(protocol, v_static)
         psi0, t0, step0, frame0 = ck.psi, ck.t, ck.step, ck.frame
         mu_run = run.attrs_float("mu_run")
         run.truncate_to_frame(frame0)
         solver = _make_solver(protocol, v_static, beams, mu_run, psi0, t0, step0, threads)
     else:
+        v_static = protocol.build_trap()
+        region = detection_region(protocol, v_static)
         gs, psi0 = _initial_state(protocol, v_static, beams, threads)
         if not gs.converged:
             warnings.warn(f"{protocol.source_name}: ground state not converged to the tolerance "
@@ -192,6 +203,26 @@ def simulate(protocol, out_path, *, resume: bool = False,
     finally:
         run.close()
     return out_path
+
+
+def _stored_trap(run, protocol) -> np.ndarray:
+    """The static potential a run file was started with, the one its resumed run must use.
+
+    Warns when the protocol's trap read its files (a mask image) differently now: the file was
+    edited since the run started, and the run continues with what it started with.
+    """
+    v_static = run.static_potential()
+    if v_static.shape != protocol.grid.shape:
+        raise RunFileError(f"{run.path}: 'potential/trap' has shape {v_static.shape}, the grid of its "
+                           f"protocol is (ny, nx) = {protocol.grid.shape}; the run file is damaged "
+                           "and must be started again")
+    kept = run.trap_arrays()
+    for name, array in protocol.trap.stored_arrays().items():
+        if name in kept and not np.array_equal(kept[name], array):
+            warnings.warn(f"{run.path}: the trap's {name} read now differs from the one stored in "
+                          "the run file (the file was edited after the run started); the run "
+                          "continues with the stored trap", stacklevel=3)
+    return v_static
 
 
 def _make_solver(protocol, v_static, beams, mu_run, psi0, t0, step0, threads):

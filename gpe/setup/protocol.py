@@ -19,7 +19,7 @@ import warnings
 from dataclasses import dataclass, field
 from importlib import resources
 from pathlib import Path
-from typing import Any, Sequence
+from typing import Any, Mapping, Sequence
 
 import numpy as np
 import scipy.constants as const
@@ -166,6 +166,23 @@ class Protocol:
 # ------------------------------------------------------------------------------------------
 # resolution: atoms and units, trap, grid, settings, beams
 # ------------------------------------------------------------------------------------------
+class _TrapTable(_Section):
+    """The checked [trap] table, with the arrays a run file kept of the files it names.
+
+    It is the :class:`~gpe.field.traps.base.TrapSection` the shapes read; ``stored`` is empty for
+    a new run (the shapes read their files) and holds a run file's ``potential/<name>`` arrays
+    when its protocol is read back (the shapes take those instead).
+    """
+
+    def __init__(self, ctx: _Context, table: Any, stored: Mapping[str, np.ndarray]) -> None:
+        super().__init__(ctx, "trap", "trap", table, selector="shape")
+        self._stored = dict(stored)
+
+    def stored(self, name: str) -> np.ndarray | None:
+        """The kept array ``name``, or None for a new run. Units: as the shape defines it."""
+        return self._stored.get(name)
+
+
 def _resolve_atoms(ctx: _Context, sec: _Section, trap: _Section, shape: type[Trap],
                    base_dir: Path) -> tuple[Any, float, float, float, float]:
     """Species, coupling and mu (J), the trap ``shape`` giving mu for an atom number in SI.
@@ -379,7 +396,8 @@ def _trap_maximum(trap: Trap, grid: Grid) -> float:
 
 
 def parse_protocol(text: str, source: str = "<protocol>", overrides: Sequence[str] = (),
-                   base_dir: str | Path | None = None) -> Protocol:
+                   base_dir: str | Path | None = None,
+                   stored_arrays: Mapping[str, np.ndarray] | None = None) -> Protocol:
     """Parse, override, validate and resolve a protocol given as TOML text.
 
     Parameters
@@ -392,6 +410,10 @@ def parse_protocol(text: str, source: str = "<protocol>", overrides: Sequence[st
         ``section.key=value`` strings applied before validation (``beams.0.path.speed_c=0.5``).
     base_dir : path, optional
         Directory against which relative mask paths are resolved (default: working directory).
+    stored_arrays : mapping of str to array, optional
+        What a run file kept of the files the trap was read from (``Trap.stored_arrays``, e.g.
+        the mask's allowed pixels). The trap is rebuilt from them and those files are not read,
+        so a run file's protocol needs nothing beside it.
 
     Returns
     -------
@@ -418,7 +440,7 @@ def parse_protocol(text: str, source: str = "<protocol>", overrides: Sequence[st
     top = _Section(ctx, "", "", data)
     ctx.mode = top.get("units")
     atoms = _Section(ctx, "atoms", "atoms", top.get("atoms"))
-    trap_sec = _Section(ctx, "trap", "trap", top.get("trap"), selector="shape")
+    trap_sec = _TrapTable(ctx, top.get("trap"), stored_arrays or {})
     grid_sec = _Section(ctx, "grid", "grid", top.get("grid"))
     gs = _Section(ctx, "ground_state", "ground_state", top.get("ground_state"))
     imprints = [_Section(ctx, f"ground_state.imprint.{i}", "ground_state.imprint", t)

@@ -9,7 +9,9 @@ checked table; its Thomas-Fermi chemical potential for an atom number, from the 
 values (needed before the healing units exist, since mu fixes them); its extent, area and
 Thomas-Fermi norm; its potential and signed distance to the wall on a grid; where vortices
 may be detected; and the point-vortex domain (:class:`VortexDomain`) that stands in for it in
-thermometry, if it has one.
+thermometry, if it has one. A shape read from a file (a mask image) keeps what it read
+(:meth:`Trap.stored_arrays`), so that a run file can hold it and the trap can be rebuilt from the
+run file alone.
 
 Hard-walled shapes derive from :class:`WalledTrap`: ``V = V_wall (1 + tanh(d / w_edge)) / 2``
 with ``d`` the signed distance outside the allowed region (negative inside), so the wall is at
@@ -97,6 +99,12 @@ class TrapSection(_TypingProtocol):
 
     def fail(self, base_or_key: str, problem: str, accepted: str) -> NoReturn: ...
 
+    def stored(self, name: str) -> np.ndarray | None:
+        """The array ``name`` a run file kept of a file this table names (:meth:`Trap.stored_arrays`).
+
+        None when the table is read for a new run: the shape then reads its files from disk.
+        """
+
 
 class Trap(ABC):
     """A static trap in simulation units; each shape is a frozen, keyword-only dataclass.
@@ -165,6 +173,16 @@ class Trap(ABC):
 
         Units: ``v_static`` in mu.
         """
+
+    def stored_arrays(self) -> dict[str, np.ndarray]:
+        """The arrays this trap read from files, by name; none for shapes given by numbers alone.
+
+        A run file keeps them (``potential/<name>``), and a protocol read back from a run file
+        finds them in :meth:`TrapSection.stored`, so the trap is rebuilt without its files.
+
+        Units: as the shape defines each array.
+        """
+        return {}
 
     def fits_in(self, length_x: float, length_y: float) -> bool:
         """Whether the trap fits into a periodic grid of this size. Units: xi."""

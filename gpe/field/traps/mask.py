@@ -1,15 +1,17 @@
 """The mask trap: a flat-bottomed region drawn in an image (or a 2D NumPy array), inside a smooth wall.
 
 The image is centred on the grid with its row 0 at the top (largest y); bright pixels are the
-allowed region unless ``invert`` is set.
+allowed region unless ``invert`` is set. The trap reads its image once, when it is built, and
+keeps the allowed pixels: editing or deleting the file later changes nothing, and a run file
+stores the pixels (:meth:`MaskTrap.stored_arrays`) so that the trap is rebuilt from the run file
+alone.
 
 Units: lengths in xi, energies in mu.
 """
 
 from __future__ import annotations
 
-import functools
-from dataclasses import dataclass, field
+from dataclasses import InitVar, dataclass, field, fields
 from pathlib import Path
 
 import numpy as np
@@ -23,6 +25,10 @@ from gpe.field.traps.base import LENGTH_KEY, TrapSection, WalledTrap
 MASK_FORMATS = "a PNG/greyscale image readable by Pillow (.png, .bmp, .tif) or a 2D NumPy array (.npy)"
 _FILE_ACCEPTED = ("a path relative to the protocol file, of a PNG/BMP/TIFF image (allowed region bright) "
                   "or a .npy 2D array")
+#: Name of the allowed pixels among :meth:`MaskTrap.stored_arrays` (the run file's ``potential/mask``).
+MASK_ARRAY = "mask"
+_STORED_ACCEPTED = ("a run file whose potential/mask holds the allowed pixels (a 2D boolean array with "
+                    "both allowed and wall pixels), as vortherm writes it")
 
 
 def load_mask(path: str | Path, invert: bool = False) -> np.ndarray:
@@ -72,12 +78,48 @@ def load_mask(path: str | Path, invert: bool = False) -> np.ndarray:
     return inside
 
 
+def allowed_pixels(pixels: np.ndarray, what: str) -> np.ndarray:
+    """Allowed pixels kept from an earlier reading (a run file's), checked, as a read-only copy.
+
+    ``what`` names where they come from in the error message.
+
+    Raises
+    ------
+    ProtocolError
+        If ``pixels`` is not a 2D boolean (or 0/1) array of at least 2 x 2 with both allowed and
+        wall pixels.
+
+    Units: none (pixels).
+    """
+    data = np.asarray(pixels)
+    if data.ndim != 2 or min(data.shape) < 2 or not (data.dtype == bool or np.all((data == 0) | (data == 1))):
+        raise ProtocolError(f"{what} has shape {data.shape} and dtype {data.dtype}; accepted: a 2D array "
+                            "of at least 2 x 2 booleans (True = allowed).")
+    allowed = np.array(data, dtype=bool)
+    if not allowed.any() or allowed.all():
+        raise ProtocolError(f"{what} has {'no allowed pixel' if not allowed.any() else 'no wall pixel'}; "
+                            "accepted: both an allowed region and a wall.")
+    allowed.setflags(write=False)
+    return allowed
+
+
 def _mask_of_section(sec: TrapSection, base_dir: Path) -> tuple[Path, np.ndarray]:
-    """The mask file named by ``trap.file`` (relative to ``base_dir``) and its allowed pixels."""
+    """The mask file named by ``trap.file`` and its allowed pixels.
+
+    For a new run the file is read, relative to ``base_dir``. For a table read back from a run
+    file the pixels it kept are taken instead and the file is not looked at (it may have been
+    edited or deleted since); the path is then the one the protocol names.
+    """
+    stored = sec.stored(MASK_ARRAY)
+    if stored is not None:
+        try:
+            return Path(sec.get("file")), allowed_pixels(stored, "the trap mask kept in the run file")
+        except ProtocolError as exc:
+            sec.fail("file", str(exc).rstrip("."), _STORED_ACCEPTED)
     path = Path(sec.get("file")).expanduser()
     path = path if path.is_absolute() else base_dir / path
     try:
-        return path, load_mask(path, sec.get("invert"))
+        return path.resolve(), load_mask(path, sec.get("invert"))
     except ProtocolError as exc:
         sec.fail("file", str(exc).rstrip("."), _FILE_ACCEPTED)
 
@@ -89,13 +131,18 @@ class MaskTrap(WalledTrap):
     Parameters
     ----------
     file : str
-        Path of the mask image (absolute, or relative to the working directory).
+        Path of the mask image (absolute, or relative to the working directory). It is read once,
+        when the trap is built, unless ``pixels`` are given.
     pixel_size : float
         Size of one mask pixel.
     invert : bool
         If true, dark pixels are the allowed region.
     wall_height, edge_width : float
         As in :class:`WalledTrap`.
+    pixels : (rows, columns) bool array, optional
+        The allowed pixels (``invert`` already applied), e.g. as a run file kept them; ``file``
+        is then only a record and is not read. (``dataclasses.replace`` reads the file again
+        unless it is given ``pixels=trap.allowed``.)
 
     Units
     -----
@@ -109,13 +156,30 @@ class MaskTrap(WalledTrap):
     file: str
     pixel_size: float = field(metadata={"dim": "length"})
     invert: bool = False
+    pixels: InitVar[np.ndarray | None] = None
+
+    def __post_init__(self, pixels: np.ndarray | None) -> None:
+        # the trap's own array either way (allowed_pixels copies), read-only
+        allowed = (load_mask(self.file, self.invert) if pixels is None
+                   else allowed_pixels(pixels, f"the allowed pixels given for trap mask '{self.file}'"))
+        allowed.setflags(write=False)
+        object.__setattr__(self, "_allowed", allowed)
+
+    def __eq__(self, other: object) -> bool:
+        if other.__class__ is not self.__class__:
+            return NotImplemented
+        return (all(getattr(self, f.name) == getattr(other, f.name) for f in fields(self))
+                and np.array_equal(self._allowed, other._allowed))
 
     @classmethod
     def from_section(cls, sec: TrapSection, base_dir: Path) -> MaskTrap:
-        """The mask from ``file`` (checked readable), ``pixel_size_*`` and ``invert``. Units: xi, mu."""
-        path, _ = _mask_of_section(sec, base_dir)
-        return cls(file=str(path.resolve()), pixel_size=sec.get("pixel_size"), invert=sec.get("invert"),
-                   **cls.wall_from_section(sec))
+        """The mask from ``file`` (or the pixels a run file kept), ``pixel_size_*`` and ``invert``.
+
+        Units: xi, mu.
+        """
+        path, allowed = _mask_of_section(sec, base_dir)
+        return cls(file=str(path), pixel_size=sec.get("pixel_size"), invert=sec.get("invert"),
+                   pixels=allowed, **cls.wall_from_section(sec))
 
     @classmethod
     def area_si(cls, sec: TrapSection, base_dir: Path) -> float:
@@ -123,10 +187,14 @@ class MaskTrap(WalledTrap):
         _, allowed = _mask_of_section(sec, base_dir)
         return int(allowed.sum()) * sec.si_value("pixel_size") ** 2
 
-    @functools.cached_property
+    @property
     def allowed(self) -> np.ndarray:
-        """The allowed pixels, ``(rows, columns)`` booleans, row 0 at the top. Units: none."""
-        return load_mask(self.file, self.invert)
+        """The allowed pixels, ``(rows, columns)`` read-only booleans, row 0 at the top. Units: none."""
+        return self._allowed
+
+    def stored_arrays(self) -> dict[str, np.ndarray]:
+        """The allowed pixels under :data:`MASK_ARRAY`, for the run file. Units: none (booleans)."""
+        return {MASK_ARRAY: self._allowed}
 
     def extent(self) -> tuple[float, float]:
         """The whole image (allowed region and wall) along x and y. Units: xi."""

@@ -3,7 +3,7 @@
 Rules (DEVELOPERS.md, "Layout"): no import loops; ``thermo`` never imports ``gpe``; only
 ``gpe.cli`` imports ``gpe.figures`` and nothing imports ``gpe.cli``; matplotlib only in
 ``gpe.figures``; no forwarding shims (a name is imported from the module that defines it, and
-no module forwards names through a module-level ``__getattr__``); numerics never print.
+no module forwards names through a module-level ``__getattr__``); numerics never print; no private name is imported across modules.
 """
 
 from __future__ import annotations
@@ -154,6 +154,15 @@ def test_names_are_imported_from_where_they_are_defined():
             if name not in _defined_names(target):
                 bad.append(f"{m}:{line} imports {name} from {target}, which does not define it")
     assert bad == [] and checked > 100
+
+
+def test_no_private_name_crosses_modules():
+    """A name another module needs is public where it is defined (``_x`` stays in its module)."""
+    bad = [f"{m}:{line} takes {name} from {target}" for m in MODULES
+           for target, name, line in _imports(m)
+           if target in MODULES and name is not None and name.startswith("_")
+           and not name.startswith("__")]
+    assert bad == []
 
 
 def test_no_module_forwards_names_lazily():

@@ -15,7 +15,7 @@ import pytest
 from gpe.sweep.file import MEASURABLE, SweepError, load_sweep, parse_sweep
 from sweep_stand_in import write_sweep_file
 
-DEMO = Path(__file__).resolve().parents[1] / "runs" / "demo.toml"
+DEMO = Path(__file__).resolve().parents[3] / "runs" / "demo.toml"
 
 
 @pytest.fixture

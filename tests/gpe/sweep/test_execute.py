@@ -120,7 +120,7 @@ def test_output_folder_of_another_sweep_is_refused(sweep_file, tmp_path):
 
 
 # -- with the real protocol parser -------------------------------------------------------------
-DEMO = Path(__file__).resolve().parents[1] / "runs" / "demo.toml"
+DEMO = Path(__file__).resolve().parents[3] / "runs" / "demo.toml"
 
 
 def protocol_checked_point(task: PointTask) -> dict:
@@ -302,7 +302,7 @@ def _start_coordinator(sweep_file, out):
     import time
 
     proc = subprocess.Popen([sys.executable, "-c", _COORDINATOR, str(sweep_file), str(out),
-                             str(Path(__file__).parent)])
+                             str(Path(__file__).resolve().parents[2] / "helpers")])
     deadline = time.monotonic() + 120
     while len(list((out / "runs").glob("*.pid"))) < 2:
         assert proc.poll() is None, "the coordinator died before its workers started"

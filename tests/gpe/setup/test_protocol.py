@@ -14,7 +14,7 @@ import scipy.constants as sc
 from gpe.errors import ProtocolError
 from gpe.setup.protocol import ProtocolWarning, example_protocol_text, load_protocol, parse_protocol
 
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[3]
 A0 = sc.physical_constants["Bohr radius"][0]
 M_RB87 = 86.90918053 * sc.physical_constants["atomic mass constant"][0]   # CIAAW / AME2020
 

@@ -47,3 +47,7 @@ start_xi = [-12.0, 1.0]
 end_xi = [12.0, 1.0]
 speed_c = {speed}
 {array}"""
+
+
+#: The tiny protocol of the command-line tests: a row of three beams crossing a 20 xi disk.
+TINY = tiny_protocol_text(duration=10.0, output_interval=2.0, rows=3, speed=0.6)

@@ -10,7 +10,7 @@ import h5py
 import numpy as np
 import pytest
 
-from conftest import TINY
+from tiny_protocol import TINY
 from gpe.cli.main import main
 
 

@@ -185,7 +185,7 @@ def test_hdf5_bad_row_reported_by_index(tmp_path):
 def test_demo_table_reports_exactly_its_three_planted_rows():
     """runs/demo_measured.csv (synthetic, see its header) has three planted bad rows."""
     from pathlib import Path
-    demo = Path(__file__).resolve().parents[1] / "runs" / "demo_measured.csv"
+    demo = Path(__file__).resolve().parents[3] / "runs" / "demo_measured.csv"
     with pytest.warns(MeasuredTableWarning):
         ens = read_measured(demo)
     lines = demo.read_text().splitlines()

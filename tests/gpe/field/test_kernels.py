@@ -1,5 +1,7 @@
 """Compiled kernels against closed forms, numpy and scipy's ODE integrator."""
 
+from pathlib import Path
+
 import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
@@ -150,7 +152,7 @@ def test_openmp_wait_policy_defaults_to_passive_but_keeps_a_user_setting(preset)
         env["OMP_WAIT_POLICY"] = preset
     code = "import os, gpe.field.kernels; print(os.environ['OMP_WAIT_POLICY'])"
     out = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True,
-                         check=True, cwd=os.path.dirname(os.path.dirname(__file__)))
+                         check=True, cwd=str(Path(__file__).resolve().parents[3]))
     assert out.stdout.strip() == (preset or "PASSIVE")
 
 

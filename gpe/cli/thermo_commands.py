@@ -181,7 +181,7 @@ def _cmd_compare(args) -> int:
         with RunFile.open(run_path, "r") as run:
             times = np.asarray(run.frame_times())
         _, _, _, _, protocol = thermometry.run_configurations(run_path, [len(times) - 1])
-        ms = times * protocol.units.time_s * 1e3
+        ms = protocol.units.time_to_ms(times)
         if args.window_ms:
             frames = [i for i, t in enumerate(ms) if args.window_ms[0] <= t <= args.window_ms[1]]
         elif args.time_ms is not None:

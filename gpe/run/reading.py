@@ -138,9 +138,9 @@ def summary_text(run_path) -> str:
         f"  chemical potential mu = {u.energy_J / 1.380649e-23 * 1e9:.4g} nK "
         f"(= 1 mu; solved ground state {mu_solved:.5g} mu)",
         f"  healing length xi = {u.length_m * 1e6:.4g} um (= 1 xi); time unit hbar/mu = "
-        f"{u.time_s * 1e3:.4g} ms",
+        f"{u.time_to_ms(1.0):.4g} ms",
         f"  sound speed c = {u.speed_m_s * 1e3:.4g} mm/s (= 1 c)",
-        f"  simulated {times[-1] * u.time_s * 1e3 if len(times) else 0:.4g} ms = "
+        f"  simulated {u.time_to_ms(times[-1]) if len(times) else 0:.4g} ms = "
         f"{times[-1] if len(times) else 0:.4g} hbar/mu in {len(times)} frames",
         f"  vortices at the end: N+ = {n_plus}, N- = {n_minus}",
     ]

@@ -125,8 +125,7 @@ def simulate(protocol, out_path, *, resume: bool = False,
     ev = protocol.evolution
     beams = protocol.build_beams()
     t_end = ev.n_outputs * ev.output_interval
-    time_unit = "ms" if protocol.unit_system == "SI" else "hbar/mu"
-    to_user = protocol.units.time_s * 1e3 if time_unit == "ms" else 1.0
+    time_unit = protocol.time_unit
 
     if resuming:
         run = RunFile.open(out_path, "r+")
@@ -195,7 +194,7 @@ def simulate(protocol, out_path, *, resume: bool = False,
             if progress is not None:
                 elapsed = time.perf_counter() - start_wall
                 rate = (solver.step_count - start_steps) / elapsed if elapsed > 0 else 0.0
-                progress(RunProgress(solver.t * to_user, t_end * to_user, solver.step_count,
+                progress(RunProgress(protocol.display_time(solver.t), protocol.display_time(t_end), solver.step_count,
                                      rate, int(np.count_nonzero(rows["sign"] > 0)),
                                      int(np.count_nonzero(rows["sign"] < 0)), time_unit))
         _finish_tracks(run)

@@ -25,11 +25,26 @@ import numpy as np
 import scipy.constants as const
 
 from gpe.errors import ProtocolError, VorthermError
-from gpe.field.beams import (Beam, BeamSet, CirclePath, LinePath, PolylinePath, Ramp, StaticPath, array_offsets,
-                             find_beam_excursion)
+from gpe.field.beams import (
+    Beam,
+    BeamSet,
+    CirclePath,
+    LinePath,
+    PolylinePath,
+    Ramp,
+    StaticPath,
+    array_offsets,
+    find_beam_excursion,
+)
 from gpe.field.grid import Grid
 from gpe.field.traps.base import Trap, trap_shapes
-from gpe.setup.schema import _apply_overrides, _Context, _describe, _describe_value, _Section
+from gpe.setup.schema import (
+    ReadingContext,
+    Section,
+    apply_overrides,
+    describe,
+    describe_value,
+)
 from gpe.setup.units import BOHR_RADIUS_M, HealingUnits, get_species, quasi2d_coupling
 
 
@@ -142,19 +157,19 @@ class Protocol:
     def to_dict(self) -> dict:
         """Fully resolved protocol: every dimensioned value in simulation units and in SI."""
         u, g = self.units, self.grid
-        evo = _describe(self.evolution, u)
+        evo = describe(self.evolution, u)
         evo.update(steps_per_output=self.evolution.steps_per_output, n_outputs=self.evolution.n_outputs,
                    n_steps=self.evolution.n_steps)
         return {
             "format": "vortherm-protocol/1", "name": self.name, "description": self.description,
             "source_name": self.source_name, "unit_system": self.unit_system,
             "overrides": list(self.overrides), "units": u.as_dict(),
-            "atoms": dataclasses.asdict(self.atoms), "trap": {"shape": self.trap.shape, **_describe(self.trap, u)},
-            "grid": {"nx": g.nx, "ny": g.ny, **_describe_value("length_x", g.length_x, "length", u),
-                     **_describe_value("length_y", g.length_y, "length", u),
-                     **_describe_value("dx", g.dx, "length", u), **_describe_value("dy", g.dy, "length", u)},
-            "ground_state": _describe(self.ground_state, u), "evolution": evo,
-            "beams": [_describe(b, u) for b in self.beams],
+            "atoms": dataclasses.asdict(self.atoms), "trap": {"shape": self.trap.shape, **describe(self.trap, u)},
+            "grid": {"nx": g.nx, "ny": g.ny, **describe_value("length_x", g.length_x, "length", u),
+                     **describe_value("length_y", g.length_y, "length", u),
+                     **describe_value("dx", g.dx, "length", u), **describe_value("dy", g.dy, "length", u)},
+            "ground_state": describe(self.ground_state, u), "evolution": evo,
+            "beams": [describe(b, u) for b in self.beams],
         }
 
     def to_json(self) -> str:
@@ -166,7 +181,7 @@ class Protocol:
 # ------------------------------------------------------------------------------------------
 # resolution: atoms and units, trap, grid, settings, beams
 # ------------------------------------------------------------------------------------------
-class _TrapTable(_Section):
+class _TrapTable(Section):
     """The checked [trap] table, with the arrays a run file kept of the files it names.
 
     It is the :class:`~gpe.field.traps.base.TrapSection` the shapes read; ``stored`` is empty for
@@ -174,7 +189,7 @@ class _TrapTable(_Section):
     when its protocol is read back (the shapes take those instead).
     """
 
-    def __init__(self, ctx: _Context, table: Any, stored: Mapping[str, np.ndarray]) -> None:
+    def __init__(self, ctx: ReadingContext, table: Any, stored: Mapping[str, np.ndarray]) -> None:
         super().__init__(ctx, "trap", "trap", table, selector="shape")
         self._stored = dict(stored)
 
@@ -183,7 +198,7 @@ class _TrapTable(_Section):
         return self._stored.get(name)
 
 
-def _resolve_atoms(ctx: _Context, sec: _Section, trap: _Section, shape: type[Trap],
+def _resolve_atoms(ctx: ReadingContext, sec: Section, trap: Section, shape: type[Trap],
                    base_dir: Path) -> tuple[Any, float, float, float, float]:
     """Species, coupling and mu (J), the trap ``shape`` giving mu for an atom number in SI.
 
@@ -214,7 +229,7 @@ def _resolve_atoms(ctx: _Context, sec: _Section, trap: _Section, shape: type[Tra
     return species, a_s, omega_z, g2d, mu
 
 
-def _resolve_grid(sec: _Section, trap: Trap) -> Grid:
+def _resolve_grid(sec: Section, trap: Trap) -> Grid:
     nx = sec.get("nx")
     if nx < 8 or nx % 2:
         sec.fail("nx", f"{nx} is not an even number >= 8", "an even integer, e.g. 128, 192 or 256")
@@ -245,7 +260,7 @@ def _resolve_grid(sec: _Section, trap: Trap) -> Grid:
     return grid
 
 
-def _resolve_settings(gs: _Section, imprints: list[_Section], ev: _Section) -> tuple:
+def _resolve_settings(gs: Section, imprints: list[Section], ev: Section) -> tuple:
     ground = GroundStateConfig(
         dt=gs.get("dt"), mu_tolerance=gs.get("mu_tolerance"), energy_tolerance=gs.get("energy_tolerance"),
         max_steps=gs.get("max_steps"), fixed=gs.get("fixed"), noise_amplitude=gs.get("noise_amplitude"),
@@ -270,7 +285,7 @@ def _resolve_settings(gs: _Section, imprints: list[_Section], ev: _Section) -> t
     return ground, evolution
 
 
-def _resolve_path(sec: _Section):
+def _resolve_path(sec: Section):
     kind, start_time = sec.get("kind"), sec.get("start_time")
     mode_ok = {"line": ("once", "back_and_forth"), "polyline": ("once", "back_and_forth", "loop")}
     if kind in mode_ok and sec.get("mode") not in mode_ok[kind]:
@@ -307,7 +322,7 @@ def _resolve_path(sec: _Section):
     return PolylinePath(points=points, speeds=speeds, mode=sec.get("mode"), start_time=start_time)
 
 
-def _resolve_beam(beam: _Section, path: _Section, array: _Section | None) -> Beam:
+def _resolve_beam(beam: Section, path: Section, array: Section | None) -> Beam:
     ramp = Ramp(on_time=beam.get("switch_on_time"), on_duration=beam.get("switch_on_duration"),
                 off_time=beam.get("switch_off_time"), off_duration=beam.get("switch_off_duration"))
     if ramp.off_time is not None and ramp.off_time < ramp.on_time + ramp.on_duration:
@@ -325,7 +340,7 @@ def _resolve_beam(beam: _Section, path: _Section, array: _Section | None) -> Bea
 # ------------------------------------------------------------------------------------------
 # checks of common practice, entry points
 # ------------------------------------------------------------------------------------------
-def _check_practice(ctx: _Context, p: Protocol, grid_sec: _Section, ev: _Section, beam_secs: list) -> None:
+def _check_practice(ctx: ReadingContext, p: Protocol, grid_sec: Section, ev: Section, beam_secs: list) -> None:
     """Errors for beams leaving the grid; ProtocolWarnings for choices against common practice."""
     g, u, src = p.grid, p.units, ctx.source
     warn = lambda msg: warnings.warn(ProtocolWarning(f"{src}: {msg}"), stacklevel=4)
@@ -433,24 +448,24 @@ def parse_protocol(text: str, source: str = "<protocol>", overrides: Sequence[st
     except tomllib.TOMLDecodeError as exc:
         raise ProtocolError(f"{source}: not valid TOML ({exc}). Accepted: TOML syntax, e.g. "
                             "radius_um = 30.0 under a [trap] header; see docs/protocol.md.") from None
-    ctx = _Context(source, _apply_overrides(data, overrides, source))
+    ctx = ReadingContext(source, apply_overrides(data, overrides, source))
     base_dir = Path(base_dir) if base_dir is not None else Path.cwd()
     if isinstance(data.get("units"), str) and data["units"].lower() in ("si", "healing"):
         data["units"] = "SI" if data["units"].lower() == "si" else "healing"   # spelling is not physics
-    top = _Section(ctx, "", "", data)
+    top = Section(ctx, "", "", data)
     ctx.mode = top.get("units")
-    atoms = _Section(ctx, "atoms", "atoms", top.get("atoms"))
+    atoms = Section(ctx, "atoms", "atoms", top.get("atoms"))
     trap_sec = _TrapTable(ctx, top.get("trap"), stored_arrays or {})
-    grid_sec = _Section(ctx, "grid", "grid", top.get("grid"))
-    gs = _Section(ctx, "ground_state", "ground_state", top.get("ground_state"))
-    imprints = [_Section(ctx, f"ground_state.imprint.{i}", "ground_state.imprint", t)
+    grid_sec = Section(ctx, "grid", "grid", top.get("grid"))
+    gs = Section(ctx, "ground_state", "ground_state", top.get("ground_state"))
+    imprints = [Section(ctx, f"ground_state.imprint.{i}", "ground_state.imprint", t)
                 for i, t in enumerate(gs.get("imprint"))]
-    ev = _Section(ctx, "evolution", "evolution", top.get("evolution"))
+    ev = Section(ctx, "evolution", "evolution", top.get("evolution"))
     beam_secs = []
     for i, table in enumerate(top.get("beams")):
-        b = _Section(ctx, f"beams.{i}", "beams", table)
-        path = _Section(ctx, f"beams.{i}.path", "beams.path", b.get("path"), selector="kind")
-        array = _Section(ctx, f"beams.{i}.array", "beams.array", b.get("array")) if b.has("array") else None
+        b = Section(ctx, f"beams.{i}", "beams", table)
+        path = Section(ctx, f"beams.{i}.path", "beams.path", b.get("path"), selector="kind")
+        array = Section(ctx, f"beams.{i}.array", "beams.array", b.get("array")) if b.has("array") else None
         beam_secs.append((b, path, array))
 
     shape = trap_shapes()[trap_sec.get("shape")]

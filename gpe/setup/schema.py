@@ -3,13 +3,13 @@
 ``SCHEMA`` lists the keys of each TOML table (:class:`Spec`: kind, dimension, default in simulation
 units, allowed choices, sign check); ``SELECTED`` narrows a table to the keys that mean something
 for one trap shape or path kind. The [trap] keys come from the shape classes of gpe.field.traps,
-each naming the keys it reads, so a new shape brings its keys with it. :class:`_Section` reads
+each naming the keys it reads, so a new shape brings its keys with it. :class:`Section` reads
 one table against its schema and fails with a :class:`~gpe.errors.ProtocolError` naming the
-file, key and what would be accepted; ``_apply_overrides`` applies ``--set`` strings before
-validation; ``_describe`` writes resolved dataclasses back out with every dimensioned value in
+file, key and what would be accepted; ``apply_overrides`` applies ``--set`` strings before
+validation; ``describe`` writes resolved dataclasses back out with every dimensioned value in
 simulation units and SI. Resolution into configuration objects lives in gpe/setup/protocol.py.
 
-Units: values come out of :meth:`_Section.get` in simulation units (xi, hbar/mu, mu, c, rad per
+Units: values come out of :meth:`Section.get` in simulation units (xi, hbar/mu, mu, c, rad per
 hbar/mu), except in the [atoms] table (SI).
 """
 
@@ -158,7 +158,7 @@ SELECTED = {
 _MISSING = object()
 
 
-class _Context:
+class ReadingContext:
     """What every error message needs: the file, the unit system and the overrides."""
 
     def __init__(self, source: str, overridden: dict[str, str]) -> None:
@@ -195,10 +195,10 @@ class _Context:
         return tuple(tuple(row) for row in out) if v.ndim == 2 else tuple(out) if v.ndim == 1 else out
 
 
-class _Section:
+class Section:
     """The keys of one TOML table, checked against the schema, with unit-aware access."""
 
-    def __init__(self, ctx: _Context, where: str, schema: str, table: Any, selector: str = "") -> None:
+    def __init__(self, ctx: ReadingContext, where: str, schema: str, table: Any, selector: str = "") -> None:
         self.ctx, self.where, self.specs = ctx, where, SCHEMA[schema]
         self.values: dict[str, tuple[Any, str, str]] = {}
         allowed, self.selected = set(self.specs), ""
@@ -353,7 +353,7 @@ def unit_of_key(key: str) -> str:
     return ""
 
 
-def _describe_value(name: str, value: Any, dim: str, u: HealingUnits) -> dict:
+def describe_value(name: str, value: Any, dim: str, u: HealingUnits) -> dict:
     si = {"length": u.length_m * 1e6, "time": u.time_s * 1e3, "energy": u.temperature_K * 1e9,
           "speed": u.speed_m_s * 1e3, "rate": 1.0 / (2 * math.pi * u.time_s)}[dim]
     if value is None:
@@ -362,14 +362,14 @@ def _describe_value(name: str, value: Any, dim: str, u: HealingUnits) -> dict:
             f"{name}_{SI_OUT[dim]}": (np.asarray(value, dtype=float) * si).tolist()}
 
 
-def _describe(obj: Any, u: HealingUnits) -> dict:
+def describe(obj: Any, u: HealingUnits) -> dict:
     out: dict[str, Any] = {"type": type(obj).__name__}
     for f in dataclasses.fields(obj):
         value = getattr(obj, f.name)
         if dataclasses.is_dataclass(value):
-            out[f.name] = _describe(value, u)
+            out[f.name] = describe(value, u)
         elif f.metadata.get("dim"):
-            out.update(_describe_value(f.name, value, f.metadata["dim"], u))
+            out.update(describe_value(f.name, value, f.metadata["dim"], u))
         else:
             out[f.name] = list(value) if isinstance(value, tuple) else value
     return out
@@ -395,7 +395,7 @@ def _parse_override_value(text: str, source: str, override: str) -> Any:
                             f"Accepted: {_OVERRIDE_HELP}.") from None
 
 
-def _apply_overrides(data: dict, overrides: Sequence[str], source: str) -> dict[str, str]:
+def apply_overrides(data: dict, overrides: Sequence[str], source: str) -> dict[str, str]:
     """Apply ``--set a.b.c=value`` overrides to the parsed TOML in place; returns path -> text."""
     done: dict[str, str] = {}
     for text in overrides:

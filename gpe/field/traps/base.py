@@ -84,7 +84,7 @@ class VortexDomain:
 
 
 class TrapSection(_TypingProtocol):
-    """The checked [trap] table of a protocol, as a shape reads it (gpe.setup.schema._Section).
+    """The checked [trap] table of a protocol, as a shape reads it (gpe.setup.schema.Section).
 
     Units: :meth:`get` and :meth:`pair` give simulation units; :meth:`si_value` gives m or rad/s.
     """

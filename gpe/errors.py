@@ -19,3 +19,7 @@ class RunFileError(VorthermError):
 
 class SimulationError(VorthermError):
     """The simulation cannot continue (non-finite field, diverging step)."""
+
+
+class ProtocolWarning(UserWarning):
+    """A protocol is valid but one of its numbers goes against common practice."""

@@ -1,8 +1,8 @@
 import numpy as np
 import pytest
+from tiny_protocol import TINY
 
 from gpe.cli.main import main
-from tiny_protocol import TINY
 
 
 @pytest.fixture

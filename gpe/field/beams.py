@@ -13,11 +13,13 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Protocol as _TypingProtocol, Sequence
+from typing import Protocol as _TypingProtocol
+from typing import Sequence
 
 import numpy as np
 
 from gpe.field.grid import Grid
+
 
 # ------------------------------------------------------------------------------------------
 # ramps and paths

@@ -21,8 +21,8 @@ from dataclasses import dataclass, field
 import numpy as np
 from numba import njit
 
-from gpe.field import kernels
 from gpe.errors import SimulationError, VorthermError
+from gpe.field import kernels
 from gpe.field.fft import auto_threads, make_fft, planning_options
 from gpe.field.grid import Grid
 from gpe.field.solver import BeamRows, SolverSettings, observables

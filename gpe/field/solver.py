@@ -30,8 +30,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from gpe.field import kernels
 from gpe.errors import SimulationError, VorthermError
+from gpe.field import kernels
 from gpe.field.fft import auto_threads, make_fft, planning_options
 from gpe.field.grid import Grid
 

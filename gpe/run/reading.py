@@ -15,10 +15,9 @@ from pathlib import Path
 import h5py
 import numpy as np
 
-from gpe.errors import RunFileError, VorthermError
+from gpe.errors import ProtocolWarning, RunFileError, VorthermError
 from gpe.run.runfile import FORMAT_NAME, RunFile
-from gpe.setup.protocol import ProtocolWarning, parse_protocol
-
+from gpe.setup.protocol import parse_protocol
 
 # ------------------------------------------------------------------------------------------
 # what a file is: a run file is recognised by its content, never by a failed read

@@ -37,7 +37,8 @@ def protocol_fingerprint(base: str, overrides: tuple[str, ...]) -> dict:
 
     import numpy as np  # imported here: see the note at the top of this module
 
-    from gpe.setup.protocol import ProtocolWarning, load_protocol
+    from gpe.errors import ProtocolWarning
+    from gpe.setup.protocol import load_protocol
 
     try:
         with warnings.catch_warnings():   # shown once when the sweep file was checked

@@ -8,8 +8,8 @@ from types import SimpleNamespace
 
 import numpy as np
 
-from thermo.dos.model import DensityOfStates
 from thermo.dos.build import DosSettings, build
+from thermo.dos.model import DensityOfStates
 
 #: the 2+2 neutral gas in the unit disk with core 0.01 at modest effort
 SMALL_GAS = dict(n_plus=2, n_minus=2, core_radius=0.01)

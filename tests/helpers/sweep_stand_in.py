@@ -15,8 +15,8 @@ from pathlib import Path
 
 from gpe.errors import ProtocolError
 from gpe.sweep.execute import PointTask, run_sweep
-from gpe.sweep.table import SweepResult
 from gpe.sweep.file import load_sweep
+from gpe.sweep.table import SweepResult
 
 SWEEP_TEXT = """
 base = "base.toml"

@@ -3,8 +3,8 @@ samples and on the energy bins the builds use; the autocorrelation time on a kno
 
 import numpy as np
 import pytest
-
 from dos_samples import one_vortex_result
+
 from thermo.mbar import solve_mbar, tau_int
 
 

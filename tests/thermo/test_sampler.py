@@ -4,12 +4,17 @@ import numpy as np
 import pytest
 from scipy import integrate
 
+from thermo.autocorr import integrated_autocorr_time
 from thermo.domains.box import Box
 from thermo.domains.disk import Disk
 from thermo.energy import energy_batch
 from thermo.errors import SamplerError
-from thermo.autocorr import integrated_autocorr_time
-from thermo.sampler import adaptive_ladder, default_ladder, run_tempering, swap_probability
+from thermo.sampler import (
+    adaptive_ladder,
+    default_ladder,
+    run_tempering,
+    swap_probability,
+)
 
 
 def _mean_and_se(x):

@@ -31,7 +31,8 @@ import types
 from abc import ABC, abstractmethod
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, ClassVar, Mapping, NoReturn, Protocol as _TypingProtocol
+from typing import Any, ClassVar, Mapping, NoReturn
+from typing import Protocol as _TypingProtocol
 
 import numpy as np
 

@@ -12,7 +12,12 @@ import numpy as np
 
 from gpe.errors import VorthermError
 from gpe.field.grid import Grid
-from gpe.field.traps.base import OPTIONAL_LENGTH_KEY, TrapSection, VortexDomain, WalledTrap
+from gpe.field.traps.base import (
+    OPTIONAL_LENGTH_KEY,
+    TrapSection,
+    VortexDomain,
+    WalledTrap,
+)
 from thermo.domains.box import Box
 
 

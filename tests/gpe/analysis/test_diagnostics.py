@@ -5,10 +5,10 @@ import numpy as np
 import pytest
 
 from gpe.analysis import diagnostics
+from gpe.analysis.vortices import VORTEX_DTYPE
 from gpe.field.grid import Grid
 from gpe.field.solver import observables
-from gpe.setup.units import HealingUnits, SPECIES
-from gpe.analysis.vortices import VORTEX_DTYPE
+from gpe.setup.units import SPECIES, HealingUnits
 
 
 @pytest.fixture

@@ -3,7 +3,6 @@
 import numpy as np
 import pytest
 
-from gpe.errors import VorthermError
 from gpe.analysis.flow import (
     current_density,
     point_vortex_velocity,
@@ -11,6 +10,7 @@ from gpe.analysis.flow import (
     superfluid_velocity,
     vorticity,
 )
+from gpe.errors import VorthermError
 from gpe.field.grid import Grid
 
 

@@ -4,13 +4,13 @@ import numpy as np
 import pytest
 from scipy.special import j1
 
-from gpe.errors import VorthermError
-from gpe.field.grid import Grid
 from gpe.analysis.spectra import (
     density_weighted_velocity,
     helmholtz_split,
     kinetic_energy_spectra,
 )
+from gpe.errors import VorthermError
+from gpe.field.grid import Grid
 
 
 def smooth_periodic(rng, grid, n_modes=6, amplitude=1.0):

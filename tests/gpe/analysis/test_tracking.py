@@ -6,11 +6,11 @@ centres, moved along known paths, so every true identity and event time is known
 
 import numpy as np
 import pytest
+from vortex_fields import axis, imprint, random_configuration
 
-from gpe.errors import VorthermError
 from gpe.analysis.tracking import ANNIHILATION, CREATION, find_events, track_vortices
 from gpe.analysis.vortices import VORTEX_DTYPE, detect_frames
-from vortex_fields import axis, imprint, random_configuration
+from gpe.errors import VorthermError
 
 
 def moving_frames(X, Y, times, centres_fn, signs):

@@ -6,10 +6,10 @@ true positions are known exactly. Tracking and events are tested in test_trackin
 
 import numpy as np
 import pytest
-
-from gpe.errors import VorthermError
-from gpe.analysis.vortices import VORTEX_DTYPE, find_vortices, frame_rows
 from vortex_fields import axis, imprint, random_configuration
+
+from gpe.analysis.vortices import VORTEX_DTYPE, find_vortices, frame_rows
+from gpe.errors import VorthermError
 
 
 def match(det, positions, signs):

@@ -9,8 +9,8 @@ import json
 import h5py
 import numpy as np
 import pytest
-
 from tiny_protocol import TINY
+
 from gpe.cli.main import main
 
 

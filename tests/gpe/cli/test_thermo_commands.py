@@ -7,8 +7,8 @@ import sys
 
 import numpy as np
 import pytest
-
 from tiny_protocol import TINY
+
 from gpe.cli.main import main
 from gpe.run.runfile import RunFile
 

@@ -9,10 +9,10 @@ import numpy as np
 import pytest
 from scipy.integrate import solve_bvp
 
-from gpe.field.grid import Grid
-from gpe.field.solver import Solver, SolverSettings
-from gpe.field.ground_state import find_ground_state
 from gpe.analysis.vortices import find_vortices
+from gpe.field.grid import Grid
+from gpe.field.ground_state import find_ground_state
+from gpe.field.solver import Solver, SolverSettings
 
 
 def hard_wall_disk(grid, radius, height=20.0, width=0.4):
@@ -135,9 +135,10 @@ def _obstacle_run(tmp_path, speed_c):
     """A nearly impenetrable Gaussian obstacle (V0 = 100 mu, waist 6 xi: radius ~9 xi where
     V = mu) dragged along a wide box (110 x 120 xi) at constant speed; returns the largest
     number of vortices seen in any frame and their signs in that frame."""
+    from gpe.errors import ProtocolWarning
     from gpe.run import simulate as pipeline
     from gpe.run.runfile import RunFile
-    from gpe.setup.protocol import ProtocolWarning, parse_protocol
+    from gpe.setup.protocol import parse_protocol
 
     duration = 2 * round((56.0 / speed_c + 20.0) / 2)
     text = f"""

@@ -4,7 +4,13 @@ import numpy as np
 import pytest
 
 from gpe.errors import VorthermError
-from gpe.field.fft import PyFFTWBackend, ScipyBackend, load_wisdom, make_fft, save_wisdom
+from gpe.field.fft import (
+    PyFFTWBackend,
+    ScipyBackend,
+    load_wisdom,
+    make_fft,
+    save_wisdom,
+)
 
 SHAPE = (24, 32)
 TOL = {np.complex128: 1e-12, np.complex64: 2e-5}

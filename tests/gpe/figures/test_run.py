@@ -4,9 +4,9 @@ what and when; the animation writer produces a readable file."""
 import numpy as np
 import pytest
 
-from gpe.figures import run as plots
-from gpe.errors import VorthermError
 from gpe.analysis.vortices import VORTEX_DTYPE
+from gpe.errors import VorthermError
+from gpe.figures import run as plots
 
 
 @pytest.fixture

@@ -6,9 +6,9 @@ import concurrent.futures as cf
 
 import numpy as np
 import pytest
+from sweep_stand_in import run_stand_in, write_sweep_file
 
 from gpe.sweep.file import SweepError
-from sweep_stand_in import run_stand_in, write_sweep_file
 
 
 @pytest.fixture

@@ -6,8 +6,8 @@ import matplotlib
 
 matplotlib.use("Agg")
 
-from thermo.estimate import thresholds  # noqa: E402
 from gpe.figures.thermometry import plot_temperature_series  # noqa: E402
+from thermo.estimate import thresholds  # noqa: E402
 
 
 def _record(t, beta):
@@ -48,9 +48,9 @@ def test_temperature_figure_is_labelled_and_marks_thresholds(tmp_path):
 def test_comparison_figure_draws_every_panel(tmp_path, rng):
     import numpy as np
 
+    from gpe.figures.thermometry import plot_comparison
     from thermo.data.compare import compare_ensembles
     from thermo.domains.disk import Disk
-    from gpe.figures.thermometry import plot_comparison
 
     def shots(n_shots):
         out = []

@@ -7,13 +7,13 @@ import tracemalloc
 
 import numpy as np
 import pytest
+from tiny_protocol import tiny_protocol_text
 
-from gpe.errors import SimulationError
+from gpe.errors import ProtocolWarning, SimulationError
 from gpe.field.solver import Solver, SolverSettings
 from gpe.run import memory
 from gpe.run import simulate as pipeline
-from gpe.setup.protocol import ProtocolWarning, parse_protocol
-from tiny_protocol import tiny_protocol_text
+from gpe.setup.protocol import parse_protocol
 
 #: How far the estimate may be from the bytes numpy allocates (tracemalloc): the solver's arrays
 #: are counted one by one (5%); a run's peak also has temporaries of numpy expressions (25%).

@@ -6,9 +6,9 @@ import h5py
 import numpy as np
 import pytest
 
+from gpe.errors import VorthermError
 from gpe.figures import standard
 from gpe.run import products
-from gpe.errors import VorthermError
 from gpe.run.runfile import RunFile
 
 

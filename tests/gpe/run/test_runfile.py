@@ -6,8 +6,8 @@ import pytest
 
 from gpe.errors import RunFileError
 from gpe.field.grid import Grid
-from gpe.run.runfile import FORMAT_VERSION, VORTEX_ROW, RunFile
 from gpe.field.solver import Solver, SolverSettings
+from gpe.run.runfile import FORMAT_VERSION, VORTEX_ROW, RunFile
 
 GRID = Grid(32, 32, 16.0, 16.0)
 TRAP = 0.05 * (GRID.X**2 + GRID.Y**2)

@@ -6,14 +6,14 @@ every test to a few seconds.
 
 import numpy as np
 import pytest
+from tiny_protocol import healing_header, tiny_protocol_text
 
-from gpe.errors import RunFileError, SimulationError, VorthermError
+from gpe.errors import ProtocolWarning, RunFileError, SimulationError, VorthermError
 from gpe.figures import standard
 from gpe.run import products, reading, thermometry
 from gpe.run import simulate as pipeline
 from gpe.run.runfile import RunFile
-from gpe.setup.protocol import ProtocolWarning, load_protocol, parse_protocol
-from tiny_protocol import healing_header, tiny_protocol_text
+from gpe.setup.protocol import load_protocol, parse_protocol
 
 TINY = tiny_protocol_text()
 #: The tiny protocol in a trap drawn in a mask file beside it (81 x 81 pixels of 0.5 xi).
@@ -165,9 +165,7 @@ def test_imprinted_clusters_read_negative_and_pairs_positive(tmp_path):
 
 
 def test_time_step_too_large_for_the_beam_fails_before_any_file(tmp_path):
-    from gpe.errors import SimulationError
-
-    from gpe.setup.protocol import ProtocolWarning
+    from gpe.errors import ProtocolWarning, SimulationError
 
     with pytest.warns(ProtocolWarning, match="rad per step"):   # the file check warns first
         protocol = _protocol(tmp_path, ["beams.0.height_mu=200.0", "evolution.dt_tau=0.1",

@@ -4,18 +4,23 @@ import math
 
 import numpy as np
 import pytest
+from tiny_protocol import tiny_protocol_text
 
 from gpe.errors import VorthermError
-from gpe.run import report
-from gpe.run.runfile import VORTEX_ROW, RunFile
-from gpe.setup.protocol import parse_protocol
 from gpe.field.traps.annulus import AnnulusTrap
 from gpe.field.traps.box import BoxTrap
 from gpe.field.traps.disk import DiskTrap
 from gpe.field.traps.harmonic import HarmonicTrap
-from gpe.run.gas import CORE_RADIUS_XI, WALL_LAYER_XI, domain_for_trap, gas_configuration
+from gpe.run import report
+from gpe.run.gas import (
+    CORE_RADIUS_XI,
+    WALL_LAYER_XI,
+    domain_for_trap,
+    gas_configuration,
+)
+from gpe.run.runfile import VORTEX_ROW, RunFile
 from gpe.run.thermometry import onset_verdict, temperature_of_run
-from tiny_protocol import tiny_protocol_text
+from gpe.setup.protocol import parse_protocol
 
 
 def test_disk_trap_maps_to_unit_disk_shrunk_by_the_wall_layer():

@@ -11,8 +11,8 @@ import numpy as np
 import pytest
 import scipy.constants as sc
 
-from gpe.errors import ProtocolError
-from gpe.setup.protocol import ProtocolWarning, example_protocol_text, load_protocol, parse_protocol
+from gpe.errors import ProtocolError, ProtocolWarning
+from gpe.setup.protocol import example_protocol_text, load_protocol, parse_protocol
 
 ROOT = Path(__file__).resolve().parents[3]
 A0 = sc.physical_constants["Bohr radius"][0]
@@ -207,7 +207,7 @@ def test_zero_negative_or_odd_sizes(old, new, key):
 
 
 def test_healing_units_refuse_atom_number():
-    text = f"""
+    text = """
 units = "healing"
 [atoms]
 species = "87Rb"

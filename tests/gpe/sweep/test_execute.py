@@ -14,11 +14,17 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from sweep_stand_in import (
+    SWEEP_TEXT,
+    calls,
+    overrides_of,
+    run_stand_in,
+    stand_in_is_complete,
+    write_sweep_file,
+)
 
 from gpe.sweep.execute import PointTask, plan_local, run_sweep
 from gpe.sweep.file import SweepError, load_sweep
-from sweep_stand_in import (SWEEP_TEXT, calls, overrides_of, run_stand_in, stand_in_is_complete,
-                            write_sweep_file)
 
 
 @pytest.fixture
@@ -196,8 +202,7 @@ speed_c = 0.6
 @pytest.mark.slow
 def test_end_to_end_with_the_real_pipeline(tmp_path):
     """Two points of a tiny protocol through simulate + analyse, then a rerun that skips both."""
-    from gpe.run import reading
-    from gpe.run import thermometry
+    from gpe.run import reading, thermometry
 
     (tmp_path / "tiny.toml").write_text(TINY_PROTOCOL)
     src = tmp_path / "s.toml"

@@ -11,9 +11,9 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from sweep_stand_in import write_sweep_file
 
 from gpe.sweep.file import MEASURABLE, SweepError, load_sweep, parse_sweep
-from sweep_stand_in import write_sweep_file
 
 DEMO = Path(__file__).resolve().parents[3] / "runs" / "demo.toml"
 

@@ -9,7 +9,11 @@ import numpy as np
 import pytest
 
 from thermo.data.compare import (
-    ROWS, CompareError, compare_ensembles, shot_statistics, write_csv,
+    ROWS,
+    CompareError,
+    compare_ensembles,
+    shot_statistics,
+    write_csv,
     write_json,
 )
 from thermo.data.degrade import ImagingModel, degrade_many

@@ -5,7 +5,12 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from thermo.data.geometry import PixelCalibration, pixels_to_um, resolve_geometry, um_to_pixels
+from thermo.data.geometry import (
+    PixelCalibration,
+    pixels_to_um,
+    resolve_geometry,
+    um_to_pixels,
+)
 from thermo.domains.box import Box
 from thermo.errors import MeasuredTableError
 

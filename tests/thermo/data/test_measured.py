@@ -10,10 +10,10 @@ import h5py
 import numpy as np
 import pytest
 
+from thermo.data.geometry import PixelCalibration, um_to_pixels
+from thermo.data.measured import MeasuredTableError, MeasuredTableWarning, read_measured
 from thermo.domains.box import Box
 from thermo.domains.disk import Disk
-from thermo.data.measured import MeasuredTableError, MeasuredTableWarning, read_measured
-from thermo.data.geometry import PixelCalibration, um_to_pixels
 
 GOOD = """# a comment line
 shot, x, y, sign

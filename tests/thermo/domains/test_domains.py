@@ -8,8 +8,15 @@ import pytest
 from numba import njit
 from scipy.special import gamma
 
-from thermo.domains.base import (MOVE_SIGNATURE, PAIR_SIGNATURE, SELF_SIGNATURE, WALL_SIGNATURE,
-                                 Domain, DomainKernels, pair_sum_move_change)
+from thermo.domains.base import (
+    MOVE_SIGNATURE,
+    PAIR_SIGNATURE,
+    SELF_SIGNATURE,
+    WALL_SIGNATURE,
+    Domain,
+    DomainKernels,
+    pair_sum_move_change,
+)
 from thermo.domains.box import Box
 from thermo.domains.disk import Disk
 from thermo.domains.kinds import domain_class, domain_classes

@@ -2,8 +2,8 @@
 
 import numpy as np
 import pytest
-
 from dos_samples import small_gas_dos
+
 from thermo.dos.build import DosSettings
 
 

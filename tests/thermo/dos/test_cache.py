@@ -4,12 +4,13 @@ import contextlib
 
 import numpy as np
 import pytest
-
 from dos_samples import one_vortex_dos
-from thermo.dos import cache as dos_cache
+
 from thermo.domains.disk import Disk
+from thermo.dos import cache as dos_cache
 from thermo.dos.build import DosSettings
 from thermo.errors import SamplerError
+
 
 @contextlib.contextmanager
 def counting_builds():

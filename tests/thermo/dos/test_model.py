@@ -5,7 +5,6 @@ The disk cache is tested in test_dos_cache.py, the tabulated curves in test_dos_
 
 import numpy as np
 import pytest
-
 from dos_samples import one_vortex_dos as _one_vortex_dos
 from dos_samples import small_gas_dos
 

@@ -2,7 +2,6 @@
 
 import numpy as np
 import pytest
-
 from dos_samples import small_gas_dos
 
 

@@ -201,9 +201,12 @@ def _cmd_compare(args) -> int:
     if measured.domain.kind != vd.domain.kind:
         raise VorthermError(f"{args.measured}: the measured domain is a {measured.domain.kind}, "
                             f"the simulation's a {vd.domain.kind}; compare needs the same shape")
-    if vd.domain.kind == "box" and abs(measured.domain.aspect - vd.domain.aspect) > 0.02 * vd.domain.aspect:
-        raise VorthermError(f"{args.measured}: box aspect {measured.domain.aspect:.3g} differs "
-                            f"from the simulation's {vd.domain.aspect:.3g}")
+    # the same shape must also have the same proportions (a box's aspect), within 2%
+    sizes = [(a, b) for a, b in zip(measured.domain.key()[1:], vd.domain.key()[1:])]
+    if any(abs(a - b) > 0.02 * abs(b) for a, b in sizes):
+        raise VorthermError(f"{args.measured}: the measured {measured.domain.kind} "
+                            f"{measured.domain.key()[1:]} differs from the simulation's "
+                            f"{vd.domain.key()[1:]} by more than 2%; compare needs the same shape")
     core = min(vd.core_radius, measured.core_radius or vd.core_radius)
     model = ImagingModel(blur=args.blur_um / scale_um, resolution=args.resolution_um / scale_um,
                          edge_loss=args.edge_loss_um / scale_um, sign_flip=args.sign_error)

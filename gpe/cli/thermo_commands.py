@@ -167,7 +167,6 @@ def _cmd_compare(args) -> int:
 
     from gpe.figures import thermometry as thermo_figures
     from gpe.run import thermometry
-    from gpe.run.runfile import RunFile
     from thermo.data import compare as cmp
     from thermo.data.degrade import ImagingModel, degrade_many
     from thermo.data.measured import read_measured
@@ -178,20 +177,8 @@ def _cmd_compare(args) -> int:
                         inputs=[*args.runs, args.measured], force=args.force)
     sim_configs, vd, protocol = [], None, None
     for run_path in args.runs:
-        with RunFile.open(run_path, "r") as run:
-            times = np.asarray(run.frame_times())
-        _, _, _, _, protocol = thermometry.run_configurations(run_path, [len(times) - 1])
-        ms = protocol.units.time_to_ms(times)
-        if args.window_ms:
-            frames = [i for i, t in enumerate(ms) if args.window_ms[0] <= t <= args.window_ms[1]]
-        elif args.time_ms is not None:
-            frames = [int(np.argmin(np.abs(ms - args.time_ms)))]
-        else:
-            frames = [len(ms) - 1]
-        if not frames:
-            raise VorthermError(f"{run_path}: no frame in --window-ms {args.window_ms}; frames "
-                                f"span {ms[0]:.4g}..{ms[-1]:.4g} ms")
-        vd, _, configs, _, _ = thermometry.run_configurations(run_path, frames)
+        vd, configs, protocol = thermometry.run_ensemble(
+            run_path, at_time=args.time_ms, window=args.window_ms, default="last", time_unit="ms")
         sim_configs.extend(configs)
     scale_um = vd.scale * protocol.units.length_m * 1e6
     # The measured table keeps its own geometry (TOML beside it, or its options): both sides

@@ -136,38 +136,48 @@ def onset_verdict(times: np.ndarray, records: list[dict], time_unit: str) -> str
 # ------------------------------------------------------------------------------------------
 # a run's frames
 # ------------------------------------------------------------------------------------------
-def run_configurations(run_path, frames=None):
-    """Vortex configurations of a run on its point-vortex domain, one per frame.
+def _gas_by_frame(table: np.ndarray, frames, vd) -> dict:
+    """Each frame's detected vortices mapped onto the point-vortex domain (gas.py's rules)."""
+    out = {}
+    for f in sorted(set(frames)):
+        rows = table[table["frame"] == f]
+        out[f] = gas_configuration(rows["x"], rows["y"], rows["sign"], vd)
+    return out
 
-    ``frames`` as for :func:`select_frames` (default: all, in order). Returns (vortex_domain,
-    times, configurations, left_out, protocol) where configurations are (positions, signs)
-    pairs in domain units and left_out counts (wall, pairs) per frame.
+
+def run_ensemble(run_path, *, at_time: float | None = None,
+                 window: tuple[float, float] | None = None, default: str = "last",
+                 time_unit: str = "tau"):
+    """The vortex configurations of a run's ensemble (:func:`ensemble_frames`), read once.
+
+    ``at_time`` and ``window`` are in ``time_unit``: "tau" (hbar/mu) or "ms". Returns
+    (vortex_domain, configurations, protocol); configurations are (positions, signs) pairs in
+    domain units.
     """
     with RunFile.open(run_path, "r") as run:
         protocol = protocol_of(run)
         times = np.asarray(run.frame_times())
         table = run.read_vortices()
+    if time_unit not in ("tau", "ms"):
+        raise VorthermError(f"time unit {time_unit!r}; accepted: 'tau', 'ms'")
+    shown = protocol.units.time_to_ms(times) if time_unit == "ms" else times
+    frames = ensemble_frames(shown, at_time=at_time, window=window, default=default,
+                             source=str(run_path), unit="ms" if time_unit == "ms" else "hbar/mu")
     vd = domain_for_trap(protocol.trap)
-    configs, left_out, sel_times = [], [], []
-    for f in select_frames(run_path, frames, len(times)):
-        rows = table[table["frame"] == f]
-        gas = gas_configuration(rows["x"], rows["y"], rows["sign"], vd)
-        configs.append((gas.positions, gas.signs))
-        left_out.append((gas.left_out_wall, gas.left_out_pairs))
-        sel_times.append(times[f])
-    return vd, np.asarray(sel_times), configs, left_out, protocol
+    gas = _gas_by_frame(table, frames, vd)
+    return vd, [(gas[f].positions, gas[f].signs) for f in frames], protocol
 
 
 def ensemble_frames(times: np.ndarray, *, at_time: float | None = None,
                     window: tuple[float, float] | None = None, default: str = "last_third",
-                    source: str = "run") -> list[int]:
+                    source: str = "run", unit: str = "hbar/mu") -> list[int]:
     """The frames that form a run's ensemble.
 
     Parameters
     ----------
-    times : output times of the run (hbar/mu).
-    at_time : the one frame nearest to this time (hbar/mu).
-    window : every frame with ``t0 <= t <= t1`` (hbar/mu).
+    times : output times of the run, in ``unit`` (hbar/mu unless said otherwise).
+    at_time : the one frame nearest to this time.
+    window : every frame with ``t0 <= t <= t1``.
     default : what neither means: ``"last_third"`` (the last third of the frames, where a
         stirred gas has settled, if ever) or ``"last"`` (the final frame).
 
@@ -181,7 +191,7 @@ def ensemble_frames(times: np.ndarray, *, at_time: float | None = None,
         frames = [i for i, t in enumerate(times) if window[0] - 1e-9 <= t <= window[1] + 1e-9]
         if not frames:
             raise VorthermError(f"{source}: no frame in the window {window[0]:.4g}..{window[1]:.4g} "
-                                f"hbar/mu (frames span {times[0]:.4g}..{times[-1]:.4g})")
+                                f"{unit} (frames span {times[0]:.4g}..{times[-1]:.4g} {unit})")
         return frames
     if at_time is not None:
         return [int(np.argmin(np.abs(times - at_time)))]
@@ -247,10 +257,7 @@ def temperature_of_run(run_path, *, frames=None, at_time: float | None = None,
     chosen = select_frames(run_path, frames, len(times)) if per_frame else []
     ens_frames = ensemble_frames(times, at_time=at_time, window=window, default=ensemble_default,
                                  source=str(run_path))
-    gas = {}
-    for f in sorted(set(chosen) | set(ens_frames)):
-        rows = table[table["frame"] == f]
-        gas[f] = gas_configuration(rows["x"], rows["y"], rows["sign"], vd)
+    gas = _gas_by_frame(table, set(chosen) | set(ens_frames), vd)
     records = configuration_records([(gas[f].positions, gas[f].signs) for f in chosen],
                                     vd.domain, vd.core_radius, effort=effort, cache_dir=cache_dir)
     t_user = protocol.display_time(times)

@@ -125,3 +125,26 @@ def test_a_complete_run_has_no_incomplete_note(tmp_path):
     assert result["incomplete"] == ""
     assert "incomplete" not in report.json_report(result)
     assert "incomplete" not in report.text_report({**result, "records": []})
+
+
+def test_run_ensemble_picks_the_frames_of_a_window_in_either_time_unit(tiny_run):
+    """The ensemble of a run in a window: the same frames whether the window is given in hbar/mu
+    or in ms (converted with the run's own units), and an empty window is named in its unit."""
+    from gpe.run.thermometry import run_ensemble
+
+    with RunFile.open(tiny_run, "r") as run:
+        times = np.asarray(run.frame_times())
+        table = run.read_vortices()
+    _, tau_configs, protocol = run_ensemble(tiny_run, window=(4.0, 8.0))
+    inside = [f for f, t in enumerate(times) if 4.0 <= t <= 8.0]
+    assert len(tau_configs) == len(inside) >= 2
+    # each configuration holds that frame's vortices that fit the gas (never more)
+    for (pos, signs), f in zip(tau_configs, inside):
+        assert len(signs) <= int(np.count_nonzero(table["frame"] == f))
+    ms = protocol.units.time_to_ms(np.array([4.0, 8.0]))
+    _, ms_configs, _ = run_ensemble(tiny_run, window=(float(ms[0]), float(ms[1])), time_unit="ms")
+    assert [len(s) for _, s in ms_configs] == [len(s) for _, s in tau_configs]
+    _, last, _ = run_ensemble(tiny_run)          # neither given: the final frame
+    assert len(last) == 1
+    with pytest.raises(VorthermError, match=r"no frame in the window .* ms"):
+        run_ensemble(tiny_run, window=(1e6, 2e6), time_unit="ms")

@@ -18,7 +18,7 @@ from gpe.analysis.vortices import VORTEX_DTYPE, find_vortices
 from gpe.errors import VorthermError
 from gpe.run.reading import protocol_of, select_frames
 from gpe.run.runfile import RunFile
-from gpe.run.simulate import DETECT_THRESHOLD, detection_region
+from gpe.run.simulate import DETECT_THRESHOLD
 
 
 def vortex_csv_path(run_path, csv_path=None) -> Path:
@@ -64,7 +64,7 @@ def redetect(run_path, *, threshold: float = DETECT_THRESHOLD, region: str = "tr
         chosen = select_frames(run_path, frames, n_frames)
         grid = protocol.grid
         v_static = protocol.build_trap()
-        mask = detection_region(protocol, v_static) if region == "trap" else None
+        mask = protocol.trap.detection_region(v_static) if region == "trap" else None
         tables = []
         for f in chosen:
             det = find_vortices(np.asarray(run.psi(f)), grid.x, grid.y, threshold=threshold,

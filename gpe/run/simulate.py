@@ -44,10 +44,6 @@ class RunProgress:
     time_unit: str
 
 
-def detection_region(protocol, v_static: np.ndarray) -> np.ndarray:
-    """Where vortices may be reported, as the protocol's trap decides from its potential (mu)."""
-    return protocol.trap.detection_region(v_static)
-
 
 def _detect(psi: np.ndarray, grid, region: np.ndarray, frame: int, t: float) -> np.ndarray:
     det = find_vortices(psi, grid.x, grid.y, threshold=DETECT_THRESHOLD, region=region)
@@ -146,14 +142,14 @@ def simulate(protocol, out_path, *, resume: bool = False,
         except BaseException:
             run.close()
             raise
-        region = detection_region(protocol, v_static)
+        region = protocol.trap.detection_region(v_static)
         psi0, t0, step0, frame0 = ck.psi, ck.t, ck.step, ck.frame
         mu_run = run.attrs_float("mu_run")
         run.truncate_to_frame(frame0)
         solver = _make_solver(protocol, v_static, beams, mu_run, psi0, t0, step0, threads)
     else:
         v_static = protocol.build_trap()
-        region = detection_region(protocol, v_static)
+        region = protocol.trap.detection_region(v_static)
         gs, psi0 = _initial_state(protocol, v_static, beams, threads)
         if not gs.converged:
             warnings.warn(f"{protocol.source_name}: ground state not converged to the tolerance "

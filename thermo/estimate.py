@@ -1,51 +1,71 @@
-"""Inverse temperature beta of vortex configurations, with intervals and a verdict.
+"""Inverse temperature beta of vortex configurations: estimates that state their range.
 
-* Ensemble of shots: maximum likelihood in the canonical ensemble. The Boltzmann
-  distribution is an exponential family in beta with sufficient statistic E, so the
-  estimate solves  <E>_beta = mean(E)  (any statistics text; reference-values.md). Shots
-  with different (N+, N-) are grouped; each group has its own density of states and the
-  log-likelihoods add:  l(beta) = sum_g [-beta sum_{i in g} E_i - n_g ln Z_g(beta)].
-  Intervals: profile likelihood (2 [l_max - l(beta)] <= chi2_1 quantile, 68.27% and 95%),
-  widened in quadrature by the spread of the estimate over the density-of-states bootstrap.
-* One shot: the microcanonical beta(E) = dS/dE at its energy. Its interval is the set of
-  canonical betas under which one draw of the energy is typical (the one-shot likelihood
-  interval: the finite-N energy fluctuation), again widened by the density-of-states error.
-  So the interval answers "which bath temperatures could have produced this snapshot".
-* Cross-check: D, C1 and the cluster fraction averaged over the shots are inverted through
-  their canonical curves; disagreement with the energy estimate by more than
-  ``equilibrium_z`` combined standard errors is flagged as "not in equilibrium".
+* **Ensemble of shots** (:func:`estimate_ensemble`). The Boltzmann distribution is an
+  exponential family in beta with sufficient statistic E, so the maximum-likelihood estimate
+  solves  sum_i [E_i - <E>_beta] = 0  (any statistics text; reference-values.md). Shots are
+  grouped by (N+, N-); each group has its own density of states, and the groups share one
+  parameter theta: beta~ N (``common="beta_n"``, the default: gases of different vortex number
+  drawn at one beta~ N, e.g. one stirring protocol with shot-to-shot number fluctuations) or
+  beta~ itself (``common="beta"``). With beta_g = c_g theta (c_g = 1/N_g or 1) the score is
 
-"Confidence" of the sign: the flat-prior posterior probability P(beta < 0), i.e. the
-normalised likelihood integrated over beta < 0 within the sampled ladder, averaged over the
-density-of-states bootstrap replicates.
+      U(theta) = sum_g c_g [S_g - W_g m_g(c_g theta)],   V(theta) = sum_g c_g^2 W_g v_g(c_g theta),
 
-Units: energies in E0 = rho kappa^2/(4 pi); beta in 1/E0 (beta~); positions scaled by the
-domain size.
+  where S_g is the (weighted) sum of the group's statistic, W_g its weight, m_g and v_g the
+  canonical mean and variance of the statistic. The estimate is the root of U, the interval
+  the set {theta: U^2 <= z^2 V} (Rao's score interval; C. R. Rao, Proc. Camb. Phil. Soc. 44, 50
+  (1948)), and P(beta < 0) the confidence distribution Phi(U(0)/sqrt V(0)).
+* **Weights.** Shots carry weights w_i <= 1: frames of one simulated run are correlated, and a
+  series of n frames with integrated autocorrelation time tau is worth n/tau independent shots;
+  each of its frames gets w = 1/tau (gpe/run/thermometry.py), so W_g counts effectively
+  independent shots and ``n_effective`` reports their number.
+* **Imaging.** With an imaging model (thermo.imaged) the statistic is the energy of the
+  configuration *as imaged* and m_g, v_g are those of the reference ensembles pushed through
+  the same model, so theta refers to the gas before imaging. Without one (the default) the
+  statistic is the energy and m_g, v_g come from the density of states: then U is exactly the
+  likelihood score.
+* **One shot** (:func:`estimate_single`): the microcanonical beta(E) = dS/dE at its energy; its
+  interval is the set of canonical betas under which one draw of the energy is typical (the
+  one-shot likelihood interval).
+
+**Ranges, not clipping.** A density of states covers a ladder of betas. When an estimate or its
+95% interval reaches the end of the ladder, the ladder is widened (``DosSettings.reach``, up to
+``MAX_REACH``; cached like every build) and the estimate redone; if it still reaches the end the
+result is a one-sided **bound**: ``bound="upper"`` means beta~ N < ``beta_n`` (the interval's open
+side is -inf), ``"lower"`` the mirror.
+
+**The density of states' own error.** Every bootstrap replicate of the density of states gives
+its own root; their spread widens the intervals in quadrature and is reported as
+``dos_error``.
+
+Units: energies in E0 = rho kappa^2/(4 pi); beta in 1/E0 (beta~); beta~ N dimensionless;
+positions scaled by the domain size.
 """
 
 from __future__ import annotations
 
 from collections import Counter
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any, Callable, Sequence
 
 import numpy as np
-from scipy.optimize import brentq
-from scipy.special import jn_zeros
+from scipy.special import jn_zeros, ndtr
 from scipy.stats import chi2
 
 from thermo.classify import structure_observables
-from thermo.dos.model import DensityOfStates
-from thermo.dos.build import DosSettings
+from thermo.curves import Curves
+from thermo.dos.build import MAX_REACH, DosSettings
 from thermo.dos.cache import load_or_build
+from thermo.dos.model import DensityOfStates
 from thermo.energy import energy_batch, validate_configuration
 from thermo.errors import ConfigurationError
+from thermo.imaged import imaged_curves, reference_groups
 
 STRUCTURE_OBSERVABLES = ("dipole_moment", "c1", "cluster_fraction")
-_Q68 = float(chi2.ppf(0.682689492, 1))   # = 1: one-sigma profile-likelihood level
+#: what the groups of an ensemble share: beta~ N or beta~
+COMMON = ("beta_n", "beta")
+_Q68 = float(chi2.ppf(0.682689492, 1))   # = 1: one-sigma level
 _Q95 = float(chi2.ppf(0.95, 1))
-# bootstrap replicates used at estimate time (cost ~ replicates x grid x samples)
-_MAX_REPS = 20
+_Z95 = float(np.sqrt(_Q95))
 
 
 @dataclass(frozen=True)
@@ -54,27 +74,36 @@ class BetaEstimate:
 
     Attributes
     ----------
-    beta : estimate (NaN when undefined, see ``verdict``).
-    beta_ci68, beta_ci95 : (low, high) intervals.
-    stderr : Fisher standard error [sum_g n_g Var_g(E)]^(-1/2) at beta, combined in
-        quadrature with the density-of-states bootstrap error.
-    method : "ensemble maximum likelihood", "microcanonical" or "undefined".
-    n_shots : number of configurations; n_plus, n_minus : vortex numbers of the largest
-        group; groups : tuple of (n_plus, n_minus, n_shots) for every group.
+    beta : beta~ of the largest group (for ``common="beta_n"``: beta_n / N of that group).
+    beta_ci68, beta_ci95 : (low, high) intervals of beta~ (one side infinite for a bound).
+    beta_n, beta_n_ci68, beta_n_ci95 : the same for beta~ N (the fitted common value for
+        ``common="beta_n"``; beta~ times N of the largest group otherwise).
+    bound : None, "upper" (beta~ N < beta_n: the data lie beyond the widest ladder on the
+        negative side) or "lower" (beta~ N > beta_n). With a bound, beta/beta_n hold the
+        limit's value.
+    stderr : standard error of beta~ (Fisher information and density-of-states error in
+        quadrature; NaN for a bound).
+    dos_error : the density of states' contribution to the error of beta~ N.
+    method : "ensemble maximum likelihood", "ensemble, imaging model", "microcanonical" or
+        "undefined".
+    n_shots : configurations; n_effective : effectively independent ones (sum of weights).
+    n_plus, n_minus : vortex numbers of the largest group; groups : ((n_plus, n_minus,
+        n_shots), ...) of every group (for imaging: the reference gases).
+    common : "beta_n" or "beta".
+    reach : the ladder reach the estimate needed (thermo.dos.build.DosSettings.reach).
     energy_per_vortex : mean energy / N (E0 per vortex).
     temperature_sign : "negative", "positive" or "undetermined" (95% interval contains 0).
-    prob_negative : flat-prior posterior probability that beta < 0.
+    prob_negative : probability that beta < 0 (confidence distribution), NaN only when beta
+        is undefined.
     clustering : mean over shots of D, C1, dipole/cluster/free fractions, nn distance.
     structure_betas : name -> (beta, standard error) from inverting canonical curves.
     not_in_equilibrium : True when a structure estimate disagrees with the energy one.
     thresholds : name -> beta value (collapse bounds, clustering onset) for the largest group.
     regime : where beta sits relative to the thresholds, in words.
+    imaging : description of the imaging model the estimate allowed for ("" for none).
     verdict : one plain-language sentence.
-    range_limited : "low" or "high" when the estimate or its 95% interval reaches the end of
-        the beta ladder the density of states was built on (the true value may lie beyond it;
-        the interval is then one-sided in truth), else "".
 
-    Units: beta in 1/E0; energy_per_vortex in E0; D and distances in the domain size.
+    Units: beta in 1/E0; beta_n dimensionless; energy_per_vortex in E0; D in the domain size.
     """
 
     beta: float
@@ -89,13 +118,21 @@ class BetaEstimate:
     energy_per_vortex: float
     temperature_sign: str
     prob_negative: float
+    beta_n: float = float("nan")
+    beta_n_ci68: tuple[float, float] = (float("nan"), float("nan"))
+    beta_n_ci95: tuple[float, float] = (float("nan"), float("nan"))
+    bound: str | None = None
+    dos_error: float = float("nan")
+    n_effective: float = float("nan")
+    common: str = "beta_n"
+    reach: int = 0
+    imaging: str = ""
     clustering: dict = field(default_factory=dict)
     structure_betas: dict = field(default_factory=dict)
     not_in_equilibrium: bool = False
     thresholds: dict = field(default_factory=dict)
     regime: str = ""
     verdict: str = ""
-    range_limited: str = ""
 
 
 def thresholds(n_plus: int, n_minus: int, domain: Any = None) -> dict[str, float]:
@@ -122,18 +159,20 @@ def thresholds(n_plus: int, n_minus: int, domain: Any = None) -> dict[str, float
     return out
 
 
-def _regime(beta: float, th: dict[str, float], n: int) -> str:
+def _regime(beta: float, th: dict[str, float], n: int, bound: str | None) -> str:
     if not np.isfinite(beta):
         return "undefined"
-    parts = [f"beta~ N = {beta * n:.3g}"]
+    rel = {"upper": "<", "lower": ">"}.get(bound, "=")
+    parts = [f"beta~ N {rel} {beta * n:.3g}"]
     if "clustering_onset" in th:
         onset = th["clustering_onset"]
-        parts.append("beyond the mean-field clustering onset (beta~ N = "
-                     f"{onset * n:.4g})" if beta < onset else
-                     f"above the clustering onset (beta~ N = {onset * n:.4g})")
-    if "like_sign_collapse" in th and beta < th["like_sign_collapse"]:
+        if beta < onset and bound != "lower":
+            parts.append(f"beyond the mean-field clustering onset (beta~ N = {onset * n:.4g})")
+        elif beta > onset and bound != "upper":
+            parts.append(f"above the clustering onset (beta~ N = {onset * n:.4g})")
+    if "like_sign_collapse" in th and beta < th["like_sign_collapse"] and bound != "lower":
         parts.append("past the like-sign collapse bound (held up only by the core)")
-    if beta > th["pair_collapse"]:
+    if beta > th["pair_collapse"] and bound != "upper":
         parts.append("past the pair-collapse bound beta~ = 1 (held up only by the core)")
     return "; ".join(parts)
 
@@ -148,8 +187,11 @@ def _undefined(n_shots: int, n_plus: int, n_minus: int, why: str) -> BetaEstimat
 
 
 def _normalise(configs: Sequence, domain: Any, core_radius: float):
-    """Validate shots and group them by (N+, N-), positive vortices first."""
-    groups: dict[tuple[int, int], list[np.ndarray]] = {}
+    """Validate shots and group them by (N+, N-), positive vortices first.
+
+    Returns key -> (positions (S, N, 2), shot indices (S,)).
+    """
+    groups: dict[tuple[int, int], tuple[list, list]] = {}
     for k, item in enumerate(configs):
         try:
             pos, signs = item
@@ -162,51 +204,128 @@ def _normalise(configs: Sequence, domain: Any, core_radius: float):
             raise ConfigurationError(f"shot {k}: {exc}") from exc
         order = np.argsort(-s, kind="stable")
         key = (int(np.sum(s > 0)), int(np.sum(s < 0)))
-        groups.setdefault(key, []).append(p[order])
-    return {k: np.stack(v) for k, v in groups.items()}
+        bucket = groups.setdefault(key, ([], []))
+        bucket[0].append(p[order])
+        bucket[1].append(k)
+    return {k: (np.stack(v[0]), np.array(v[1])) for k, v in groups.items()}
 
 
-def _signs(n_plus: int, n_minus: int) -> np.ndarray:
+def signs_of(n_plus: int, n_minus: int) -> np.ndarray:
+    """The signs of an (N+, N-) configuration, positive vortices first."""
     return np.concatenate([np.ones(n_plus, int), -np.ones(n_minus, int)])
 
 
-class _Group:
-    """One (N+, N-) group: its shots, energies and ln Z(beta) (splines of the DOS tables)."""
+@dataclass(frozen=True)
+class Part:
+    """One group of an ensemble fit: c = d beta / d theta, weight W, statistic sum S."""
 
-    def __init__(self, key, pos, domain, dos: DensityOfStates):
-        self.n_plus, self.n_minus = key
-        self.pos = pos
-        self.dos = dos
-        self.energies = energy_batch(pos, _signs(*key), domain)
-        self.lz = dos.log_z_spline()
-
-    @property
-    def lz_reps(self) -> list:
-        return self.dos.log_z_replicate_splines(max_replicates=_MAX_REPS)
-
-    def mean_energy(self, beta: float) -> float:
-        d = self.dos
-        return float(d._moments(np.array([beta]), d.energies, d.log_denom, None)[0][0])
-
-    def var_energy(self, beta: float) -> float:
-        d = self.dos
-        return float(d._moments(np.array([beta]), d.energies, d.log_denom, None)[1][0])
+    key: tuple[int, int]
+    c: float
+    weight: float
+    total: float
+    curves: Curves
 
 
-def _interval(beta_grid, ll, level, b_hat):
-    """Profile-likelihood interval {beta: 2 (l_max - l) <= level} around b_hat."""
-    drop = 2.0 * (ll.max() - ll)
-    inside = drop <= level
-    idx = np.flatnonzero(inside)
-    lo_i, hi_i = idx.min(), idx.max()
+@dataclass(frozen=True)
+class Solution:
+    """The fit of theta (beta~ N or beta~): estimate, intervals and how they end."""
+
+    theta: float
+    ci68: tuple[float, float]
+    ci95: tuple[float, float]
+    limit: str          # "", "low" or "high": which end of the ladder the result reaches
+    both_ends: bool     # the interval spans the whole common ladder
+    dos_error: float
+    fisher: float
+    prob_negative: float
+    span: tuple[float, float]
+
+
+def _interp(x, grid, values):
+    return np.interp(x, grid, values)
+
+
+def _connected(inside: np.ndarray, i0: int) -> tuple[int, int]:
+    lo = hi = i0
+    while lo > 0 and inside[lo - 1]:
+        lo -= 1
+    while hi < len(inside) - 1 and inside[hi + 1]:
+        hi += 1
+    return lo, hi
+
+
+def _root(theta, u) -> tuple[float, str]:
+    """Root of an increasing u on the grid: (theta, "") or (edge, "low"/"high")."""
+    if u[0] > 0:
+        return float(theta[0]), "low"
+    if u[-1] < 0:
+        return float(theta[-1]), "high"
+    i = int(np.flatnonzero(u <= 0)[-1]) if np.any(u <= 0) else 0
+    i = min(i, len(u) - 2)
+    du = u[i + 1] - u[i]
+    frac = 0.0 if du == 0 else float(-u[i] / du)
+    return float(theta[i] + min(max(frac, 0.0), 1.0) * (theta[i + 1] - theta[i])), ""
+
+
+def _edges(theta, stat, level, t_hat) -> tuple[float, float, bool, bool]:
+    """The connected set {stat <= level} around t_hat, edges interpolated, and whether it
+    reaches the low / high end of the grid."""
+    inside = stat <= level
+    i0 = int(np.clip(np.searchsorted(theta, t_hat), 0, len(theta) - 1))
+    if not inside[i0]:
+        near = np.flatnonzero(inside)
+        if near.size == 0:
+            return t_hat, t_hat, bool(i0 == 0), bool(i0 == len(theta) - 1)
+        i0 = int(near[np.argmin(np.abs(near - i0))])
+    lo_i, hi_i = _connected(inside, i0)
 
     def edge(i_in, i_out):
-        if i_out < 0 or i_out >= len(beta_grid):
-            return float(beta_grid[i_in])
-        x0, x1, y0, y1 = beta_grid[i_in], beta_grid[i_out], drop[i_in], drop[i_out]
-        return float(x0 + (level - y0) * (x1 - x0) / (y1 - y0))
+        x0, x1, y0, y1 = theta[i_in], theta[i_out], stat[i_in], stat[i_out]
+        return float(x0 + (level - y0) * (x1 - x0) / (y1 - y0)) if y1 != y0 else float(x0)
 
-    return edge(lo_i, lo_i - 1), edge(hi_i, hi_i + 1)
+    lo = float(theta[0]) if lo_i == 0 else edge(lo_i, lo_i - 1)
+    hi = float(theta[-1]) if hi_i == len(theta) - 1 else edge(hi_i, hi_i + 1)
+    return lo, hi, lo_i == 0, hi_i == len(theta) - 1
+
+
+def solve(parts: Sequence[Part], n_grid: int = 2001) -> Solution:
+    """Root of the score U(theta) and the score intervals, over the ladder every group covers.
+
+    Units: theta in the parts' parameter (beta~ N for c = 1/N, beta~ for c = 1).
+    """
+    lo = max(p.curves.beta[0] / p.c for p in parts)
+    hi = min(p.curves.beta[-1] / p.c for p in parts)
+    theta = np.linspace(lo, hi, n_grid)
+
+    def score(mean_of):
+        return sum(p.c * (p.total - p.weight * _interp(p.c * theta, p.curves.beta, mean_of(p)))
+                   for p in parts)
+
+    u = score(lambda p: p.curves.mean)
+    v = sum(p.c ** 2 * p.weight * _interp(p.c * theta, p.curves.beta, p.curves.var)
+            for p in parts)
+    v = np.maximum(v, 1e-300)
+    t_hat, side = _root(theta, u)
+    stat = u * u / v
+    lo68, hi68, _, _ = _edges(theta, stat, _Q68, t_hat)
+    lo95, hi95, at_lo, at_hi = _edges(theta, stat, _Q95, t_hat)
+    limit = side or ("low" if at_lo and not at_hi else "high" if at_hi and not at_lo else "")
+    both = at_lo and at_hi
+    n_rep = min(p.curves.mean_reps.shape[0] for p in parts)
+    i0 = int(np.argmin(np.abs(theta)))
+    roots, pneg = [], []
+    for r in range(n_rep):
+        ur = score(lambda p: p.curves.mean_reps[r])
+        tr, sr = _root(theta, ur)
+        if not sr:
+            roots.append(tr)
+        pneg.append(float(ndtr(ur[i0] / np.sqrt(v[i0]))))
+    dos_err = float(np.std(roots, ddof=1)) if len(roots) > 1 else 0.0
+    prob_neg = float(np.mean(pneg)) if pneg else float(ndtr(u[i0] / np.sqrt(v[i0])))
+    fisher = 1.0 / float(np.sqrt(np.interp(t_hat, theta, v)))
+    return Solution(theta=t_hat, ci68=(lo68, hi68), ci95=(lo95, hi95), limit=limit,
+                    both_ends=both, dos_error=dos_err, fisher=fisher,
+                    prob_negative=prob_neg, span=(float(lo), float(hi)))
 
 
 def _widen(ci, b_hat, extra, z):
@@ -215,23 +334,19 @@ def _widen(ci, b_hat, extra, z):
             b_hat + float(np.hypot(hi - b_hat, z * extra)))
 
 
-def _structure(group: _Group, beta_grid, b_hat, se_hat, z_max):
+def _structure(pos, key, dos, beta_lo, beta_hi, b_hat, se_hat, z_max):
     """Invert the canonical curves of the structure observables at the shots' means."""
-    obs = structure_observables(group.pos, _signs(group.n_plus, group.n_minus))
+    obs = structure_observables(pos, signs_of(*key))
     means = {k: float(np.mean(v)) for k, v in obs.items()}
     found, flag = {}, False
-    n = len(group.pos)
-    if n < 2 or not group.dos.observables:
+    n = len(pos)
+    if n < 2 or not dos.observables or not np.isfinite(se_hat):
         return means, found, flag
-    names = [k for k in STRUCTURE_OBSERVABLES if k in group.dos.observables]
-    curves = {}
+    names = [k for k in STRUCTURE_OBSERVABLES if k in dos.observables]
     for name in names:
-        grid, mean, err = group.dos.canonical_curve(name)
-        inside = (grid >= beta_grid[0]) & (grid <= beta_grid[-1])
-        curves[name] = (mean[inside], err[inside])
-    coarse = grid[inside]
-    for name in names:
-        curve, curve_err = curves[name]
+        grid, mean, err = dos.canonical_curve(name)
+        inside = (grid >= beta_lo) & (grid <= beta_hi)
+        coarse, curve, curve_err = grid[inside], mean[inside], err[inside]
         target = means[name]
         se_obs = float(np.std(obs[name], ddof=1) / np.sqrt(n))
         diff = curve - target
@@ -247,14 +362,14 @@ def _structure(group: _Group, beta_grid, b_hat, se_hat, z_max):
         j = int(np.argmin(np.abs(np.array(cands) - b_hat)))
         i = cross[j]
         slope = (curve[i + 1] - curve[i]) / (coarse[i + 1] - coarse[i])
-        err = float(np.hypot(se_obs, curve_err[i]) / max(abs(slope), 1e-300))
-        found[name] = (float(cands[j]), err)
-        if abs(cands[j] - b_hat) > z_max * np.hypot(err, se_hat):
+        err_b = float(np.hypot(se_obs, curve_err[i]) / max(abs(slope), 1e-300))
+        found[name] = (float(cands[j]), err_b)
+        if abs(cands[j] - b_hat) > z_max * np.hypot(err_b, se_hat):
             flag = True
     return means, found, flag
 
 
-def _sign_words(prob_neg: float, ci95) -> tuple[str, str]:
+def _sign(ci95) -> tuple[str, str]:
     if ci95[1] < 0:
         return "negative", "negative temperature (clustered side)"
     if ci95[0] > 0:
@@ -262,146 +377,194 @@ def _sign_words(prob_neg: float, ci95) -> tuple[str, str]:
     return "undetermined", "temperature sign not resolved"
 
 
-def _range_limit(b_hat, ci95, beta_range) -> str:
-    """"low"/"high" when the estimate or its 95% interval runs into the end of the ladder."""
-    lo, hi = beta_range
-    tol = 1e-6 * max(1.0, hi - lo)
-    if min(b_hat, ci95[0]) <= lo + tol:
-        return "low"
-    if max(b_hat, ci95[1]) >= hi - tol:
-        return "high"
-    return ""
+def _bounded(sol_ci68, sol_ci95, limit: str):
+    """(value, ci68, ci95, bound) of a result that reaches a ladder end: a one-sided limit."""
+    inf = float("inf")
+    if limit == "low":
+        return sol_ci95[1], (-inf, sol_ci68[1]), (-inf, sol_ci95[1]), "upper"
+    return sol_ci95[0], (sol_ci68[0], inf), (sol_ci95[0], inf), "lower"
 
 
-def _finish(b_hat, ci68, ci95, se, prob_neg, method, groups, n_shots, e_mean, n_main,
-            key_main, domain, clustering, structure_betas, flag, beta_range):
-    th = thresholds(*key_main, domain)
-    limit = _range_limit(b_hat, ci95, beta_range)
-    sign, words = _sign_words(prob_neg, ci95)
+def _verdict(words, sign, prob_neg, value, ci95, bound, n, th, regime, extra=()) -> str:
     conf = prob_neg if sign != "positive" else 1.0 - prob_neg
-    verdict = (f"{words} with {100 * conf:.0f}% confidence (flat-prior probability of that "
-               f"sign): beta~ = {b_hat:.4g} (95%: {ci95[0]:.4g} .. {ci95[1]:.4g}), "
-               f"{_regime(b_hat, th, n_main)}")
+    if bound:
+        rel = "<" if bound == "upper" else ">"
+        core = (f"beta~ N {rel} {value * n:.3g} at 95% (a bound: the configurations lie beyond "
+                f"the widest ladder the density of states was built on, so only this side is "
+                f"known)")
+    else:
+        core = (f"beta~ N = {value * n:.3g} (95%: {ci95[0] * n:.3g} .. {ci95[1] * n:.3g})")
     if sign == "undetermined":
-        verdict = (f"{words}: P(beta~ < 0) = {100 * prob_neg:.0f}%, beta~ = {b_hat:.4g} "
-                   f"(95%: {ci95[0]:.4g} .. {ci95[1]:.4g}), {_regime(b_hat, th, n_main)}")
-    if limit:
-        edge = beta_range[0] if limit == "low" else beta_range[1]
-        verdict += (f"; the {'low' if limit == 'low' else 'high'} end of the 95% interval is the "
-                    f"end of the sampled ladder (beta~ N = {edge * n_main:.3g}): the energy lies "
-                    f"at or beyond what the density of states covers, so beta~ may be "
-                    f"{'lower' if limit == 'low' else 'higher'} still")
-    if flag:
-        verdict += "; structure and energy disagree: not in equilibrium"
-    return BetaEstimate(
-        beta=float(b_hat), beta_ci68=ci68, beta_ci95=ci95, stderr=float(se), method=method,
-        n_shots=n_shots, n_plus=key_main[0], n_minus=key_main[1], groups=groups,
-        energy_per_vortex=float(e_mean), temperature_sign=sign, prob_negative=float(prob_neg),
-        clustering=clustering, structure_betas=structure_betas, not_in_equilibrium=flag,
-        thresholds=th, regime=_regime(b_hat, th, n_main), verdict=verdict,
-        range_limited=limit)
+        text = f"{words}: P(beta~ < 0) = {100 * prob_neg:.0f}%, {core}"
+    else:
+        text = f"{words}, P = {100 * conf:.0f}% for this sign: {core}"
+    return "; ".join([text, regime.split("; ", 1)[1]] if "; " in regime else [text]) + \
+        "".join(f"; {e}" for e in extra)
 
 
-def _prepare(configs, domain, core_radius, dos_provider, cache_dir, settings, seed):
-    grouped = _normalise(configs, domain, core_radius)
-    if not grouped:
-        raise ConfigurationError("no configurations given; pass a list of (positions, signs)")
-    counts = Counter({k: len(v) for k, v in grouped.items()})
-    key_main = counts.most_common(1)[0][0]
-    provider = dos_provider or (lambda npl, nmi: load_or_build(
-        npl, nmi, domain, core_radius, cache_dir=cache_dir, seed=seed, settings=settings))
-    return grouped, counts, key_main, provider
+def default_provider(domain, core_radius, cache_dir, settings, seed
+                     ) -> Callable[[int, int, int], DensityOfStates]:
+    """(n_plus, n_minus, reach) -> the cached density of states (thermo.dos.cache)."""
+    def provide(npl: int, nmi: int, reach: int = 0) -> DensityOfStates:
+        return load_or_build(npl, nmi, domain, core_radius, cache_dir=cache_dir, seed=seed,
+                             settings=replace(settings, reach=max(reach, settings.reach)))
+    return provide
 
 
 def estimate_ensemble(configs: Sequence, domain: Any, core_radius: float, *,
+                      weights: Sequence[float] | None = None, common: str = "beta_n",
+                      imaging: Any = None, imaging_seed: int = 0,
                       cache_dir: Any = None, settings: DosSettings = DosSettings(),
-                      seed: int = 0, rng: np.random.Generator | None = None,
+                      seed: int | None = None,
                       dos_provider: Callable[[int, int], DensityOfStates] | None = None,
                       equilibrium_z: float = 3.0, n_grid: int = 2001) -> BetaEstimate:
-    """Maximum-likelihood beta of an ensemble of shots (see the module docstring).
+    """beta~ N (or beta~) shared by an ensemble of shots (see the module docstring).
 
     Parameters
     ----------
     configs : sequence of (positions (N, 2), signs (N,)) pairs; N+ / N- may differ per shot.
-    domain : thermo.domains.Disk or Box; core_radius : hard-core radius a (length unit).
-    cache_dir, settings, seed : passed to :func:`thermo.dos.cache.load_or_build`.
-    rng : if given, its first draw seeds a density-of-states build (instead of ``seed``).
-    dos_provider : callable (n_plus, n_minus) -> DensityOfStates, replacing the cache.
+    domain : a thermo domain; core_radius : hard-core radius a (length unit).
+    weights : per-shot weights in (0, 1] (1/tau for frames of a correlated series); default 1.
+    common : "beta_n" (groups share beta~ N) or "beta" (they share beta~).
+    imaging : a thermo.data.degrade.ImagingModel the configurations went through, or None;
+        imaging_seed seeds the draws of the reference ensembles through it.
+    cache_dir, settings, seed : passed to :func:`thermo.dos.cache.load_or_build` (seed None:
+        derived from each cache key).
+    dos_provider : callable (n_plus, n_minus) -> DensityOfStates, replacing the cache (the
+        ladder is then not widened).
     equilibrium_z : disagreement (in combined standard errors) that sets
         ``not_in_equilibrium``.
-    n_grid : points of the beta grid for the likelihood.
-
-    Returns
-    -------
-    BetaEstimate
+    n_grid : points of the theta grid.
 
     Units: beta in 1/E0; positions in the domain size.
     """
-    if rng is not None:
-        seed = int(rng.integers(2 ** 31))
-    grouped, counts, key_main, provider = _prepare(configs, domain, core_radius, dos_provider,
-                                                   cache_dir, settings, seed)
-    n_shots = sum(counts.values())
+    if common not in COMMON:
+        raise ConfigurationError(f"common = {common!r}; accepted: {', '.join(COMMON)}")
+    grouped = _normalise(configs, domain, core_radius)
+    if not grouped:
+        raise ConfigurationError("no configurations given; pass a list of (positions, signs)")
+    n_shots = sum(len(v[1]) for v in grouped.values())
+    w = np.ones(n_shots) if weights is None else np.asarray(weights, float)
+    if w.shape != (n_shots,) or np.any(~np.isfinite(w)) or np.any(w <= 0) or np.any(w > 1):
+        raise ConfigurationError(f"weights: need {n_shots} numbers in (0, 1], one per shot; "
+                                 f"got shape {w.shape}")
+    counts = Counter({k: len(v[1]) for k, v in grouped.items()})
     groups_t = tuple((k[0], k[1], counts[k]) for k in sorted(counts))
-    if sum(key_main) < 2:
-        return _undefined(n_shots, *key_main, "beta undefined for one vortex: a lone vortex "
-                          "has no partner to exchange energy with, so there is no vortex-gas "
-                          "temperature to measure (need at least two vortices per shot)")
     if any(sum(k) < 2 for k in counts):
+        if all(sum(k) < 2 for k in counts):
+            key = counts.most_common(1)[0][0]
+            return _undefined(n_shots, *key, "beta undefined for one vortex: a lone vortex "
+                              "has no partner to exchange energy with, so there is no vortex-gas "
+                              "temperature to measure (need at least two vortices per shot)")
         raise ConfigurationError(f"shots with fewer than two vortices mixed with others: "
                                  f"groups {groups_t}; drop them (beta undefined for one vortex)")
-    doses = {k: provider(*k) for k in grouped}
-    lo = max(d.beta_range[0] for d in doses.values())
-    hi = min(d.beta_range[1] for d in doses.values())
-    gs = [_Group(k, grouped[k], domain, doses[k]) for k in grouped]
-
-    def score(b):
-        return sum(len(g.energies) * g.mean_energy(b) - g.energies.sum() for g in gs)
-
-    fine = np.linspace(lo, hi, n_grid)
-    ll = sum(-fine * g.energies.sum() - len(g.energies) * g.lz(fine) for g in gs)
-    s_lo, s_hi = score(lo), score(hi)
-    if s_lo * s_hi < 0:
-        b_hat = brentq(score, lo, hi, xtol=1e-10)
+    # the statistic of every shot: its energy (as imaged, when there is an imaging model)
+    stat = np.empty(n_shots)
+    for key, (pos, idx) in grouped.items():
+        stat[idx] = energy_batch(pos, signs_of(*key), domain)
+    n_of = np.empty(n_shots)
+    for key, (_, idx) in grouped.items():
+        n_of[idx] = sum(key)
+    if imaging is not None:
+        ref_of = reference_groups(grouped, imaging, domain, core_radius)
     else:
-        b_hat = float(fine[np.argmax(ll)])   # mean energy beyond the ladder: edge estimate
-    ll_b = sum(-b_hat * g.energies.sum() - len(g.energies) * g.lz(b_hat) for g in gs)
-    ll = np.maximum(ll, -np.inf)
-    ll_full = np.append(ll, ll_b)
-    order = np.argsort(np.append(fine, b_hat))
-    bg, llg = np.append(fine, b_hat)[order], ll_full[order]
-    ci68, ci95 = _interval(bg, llg, _Q68, b_hat), _interval(bg, llg, _Q95, b_hat)
+        ref_of = {k: k for k in grouped}
+    members: dict[tuple[int, int], list[int]] = {}
+    for key, (_, idx) in grouped.items():
+        members.setdefault(ref_of[key], []).extend(int(i) for i in idx)
+    if any(sum(k) < 2 for k in members):
+        raise ConfigurationError(f"imaging model: reference gases {sorted(members)} include "
+                                 "fewer than two vortices; beta is undefined for them")
+    ref_counts = {k: len(v) for k, v in members.items()}
+    key_main = max(ref_counts, key=lambda k: (ref_counts[k], -abs(k[0] - k[1])))
+    n_main = sum(key_main)
+    provider = (default_provider(domain, core_radius, cache_dir, settings, seed)
+                if dos_provider is None else (lambda a, b, reach=0: dos_provider(a, b)))
+    can_widen = dos_provider is None
+    reach = settings.reach
+    while True:
+        doses = {k: provider(*k, reach) for k in members}
+        parts = []
+        for k, idx in members.items():
+            curves = (Curves.of_energy(doses[k]) if imaging is None else
+                      imaged_curves(doses[k], domain, core_radius, imaging, imaging_seed))
+            c = 1.0 / sum(k) if common == "beta_n" else 1.0
+            parts.append(Part(k, c, float(w[idx].sum()), float((w[idx] * stat[idx]).sum()),
+                              curves))
+        sol = solve(parts, n_grid)
+        if sol.limit and can_widen and reach < MAX_REACH:
+            reach += 1
+            continue
+        break
+    # theta -> beta~ N and beta~ of the largest group
+    to_n = 1.0 if common == "beta_n" else float(n_main)
+    dos_err = sol.dos_error
+    bound = None
+    if sol.limit:
+        t_val, t68, t95, bound = _bounded(sol.ci68, sol.ci95, sol.limit)
+        se_t = float("nan")
+    else:
+        t_val = sol.theta
+        t68 = _widen(sol.ci68, t_val, dos_err, 1.0)
+        t95 = _widen(sol.ci95, t_val, dos_err, _Z95)
+        se_t = float(np.hypot(sol.fisher, dos_err))
+    b_n = t_val * to_n
+    bn68, bn95 = (t68[0] * to_n, t68[1] * to_n), (t95[0] * to_n, t95[1] * to_n)
+    beta = b_n / n_main
+    b68, b95 = (bn68[0] / n_main, bn68[1] / n_main), (bn95[0] / n_main, bn95[1] / n_main)
+    th = thresholds(*key_main, domain)
+    sign, words = _sign(b95)
+    se = se_t if common == "beta" else se_t / n_main      # of beta~ of the largest group
+    extra = []
+    clustering, structure_betas, flag = {}, {}, False
+    if key_main in grouped:
+        pos_main = grouped[key_main][0]
+        dos_main = doses[key_main]
+        c_main = 1.0 / n_main if common == "beta_n" else 1.0
+        lo_b, hi_b = sol.span[0] * c_main, sol.span[1] * c_main
+        if imaging is None and not bound:
+            clustering, structure_betas, flag = _structure(
+                pos_main, key_main, dos_main, lo_b, hi_b, beta, se, equilibrium_z)
+        else:
+            clustering = {k: float(np.mean(v)) for k, v in
+                          structure_observables(pos_main, signs_of(*key_main)).items()}
+    if sol.both_ends and not bound:
+        extra.append("the 95% interval spans the whole ladder: these shots hardly constrain beta")
+    if flag:
+        extra.append("structure and energy disagree: not in equilibrium")
+    if imaging is not None:
+        extra.append("beta refers to the gas before imaging (reference ensembles pushed "
+                     "through the imaging model)")
+    regime = _regime(beta, th, n_main, bound)
+    verdict = _verdict(words, sign, sol.prob_negative, beta, b95, bound, n_main, th, regime,
+                       extra)
+    return BetaEstimate(
+        beta=float(beta), beta_ci68=b68, beta_ci95=b95, stderr=float(se),
+        method="ensemble maximum likelihood" if imaging is None else "ensemble, imaging model",
+        n_shots=n_shots, n_plus=key_main[0], n_minus=key_main[1],
+        groups=tuple((k[0], k[1], ref_counts[k]) for k in sorted(ref_counts)),
+        energy_per_vortex=float(np.mean(stat / n_of)), temperature_sign=sign,
+        prob_negative=float(sol.prob_negative), beta_n=float(b_n), beta_n_ci68=bn68,
+        beta_n_ci95=bn95, bound=bound,
+        dos_error=float(dos_err * to_n) if not bound else float("nan"),
+        n_effective=float(w.sum()), common=common,
+        reach=max(int(d.settings.get("reach", 0)) for d in doses.values()),
+        imaging="" if imaging is None else repr(imaging), clustering=clustering,
+        structure_betas=structure_betas, not_in_equilibrium=flag, thresholds=th,
+        regime=regime, verdict=verdict)
 
-    # density-of-states uncertainty: re-maximise with every bootstrap replicate
-    n_rep = min(len(g.lz_reps) for g in gs)
-    reps, post_neg = [], []
-    for r in range(n_rep):
-        llr = sum(-fine * g.energies.sum() - len(g.energies) * g.lz_reps[r](fine) for g in gs)
-        reps.append(fine[np.argmax(llr)])
-        w = np.exp(llr - llr.max())
-        post_neg.append(w[fine < 0].sum() / w.sum())
-    dos_err = float(np.std(reps, ddof=1)) if n_rep > 1 else 0.0
-    ci68, ci95 = _widen(ci68, b_hat, dos_err, 1.0), _widen(ci95, b_hat, dos_err, 1.96)
-    fisher = 1.0 / np.sqrt(sum(len(g.energies) * g.var_energy(b_hat) for g in gs))
-    se = float(np.hypot(fisher, dos_err))
-    w = np.exp(ll - ll.max())
-    prob_neg = float(np.mean(post_neg)) if post_neg else float(w[fine < 0].sum() / w.sum())
 
-    main = next(g for g in gs if (g.n_plus, g.n_minus) == key_main)
-    clustering, structure_betas, flag = _structure(main, fine, b_hat, se, equilibrium_z)
-    e_mean = float(np.mean(np.concatenate([g.energies / (g.n_plus + g.n_minus) for g in gs])))
-    return _finish(b_hat, ci68, ci95, se, prob_neg, "ensemble maximum likelihood", groups_t,
-                   n_shots, e_mean, sum(key_main), key_main, domain, clustering,
-                   structure_betas, flag, (lo, hi))
-
-
-#: the name thermo.data.compare looks for
-estimate_ensemble_beta = estimate_ensemble
+def _interval(beta_grid, ll, level):
+    """Profile-likelihood interval {beta: 2 (l_max - l) <= level}, and whether it reaches the
+    low / high end of the grid."""
+    drop = 2.0 * (ll.max() - ll)
+    lo, hi, at_lo, at_hi = _edges(beta_grid, drop, level, float(beta_grid[np.argmax(ll)]))
+    return (lo, hi), at_lo, at_hi
 
 
 def estimate_single(positions: Any, signs: Any, domain: Any, core_radius: float, *,
                     cache_dir: Any = None, settings: DosSettings = DosSettings(),
-                    seed: int = 0,
+                    seed: int | None = None,
                     dos_provider: Callable[[int, int], DensityOfStates] | None = None
                     ) -> BetaEstimate:
     """beta of one configuration: microcanonical beta(E) at its energy.
@@ -409,46 +572,74 @@ def estimate_single(positions: Any, signs: Any, domain: Any, core_radius: float,
     ``beta`` is dS/dE at the shot's energy (the temperature of an isolated gas with that
     energy). ``beta_ci68``/``beta_ci95`` are the one-shot likelihood intervals (canonical
     betas under which this energy is typical, i.e. the finite-N energy fluctuation),
-    extended to contain ``beta`` and widened by the density-of-states bootstrap error.
-
-    Parameters
-    ----------
-    positions : (N, 2); signs : (N,) +-1; domain, core_radius : as for estimate_ensemble.
-
-    Returns
-    -------
-    BetaEstimate (method "microcanonical").
+    extended to contain ``beta`` and widened by the density-of-states bootstrap error. When
+    the energy or the interval reaches the end of the ladder, the ladder is widened; if that
+    does not suffice the result is a bound (see the module docstring).
 
     Units: beta in 1/E0.
     """
-    grouped, counts, key_main, provider = _prepare([(positions, signs)], domain, core_radius,
-                                                   dos_provider, cache_dir, settings, seed)
-    if sum(key_main) < 2:
-        return _undefined(1, *key_main, "beta undefined for one vortex: a lone vortex has "
+    grouped = _normalise([(positions, signs)], domain, core_radius)
+    key = next(iter(grouped))
+    if sum(key) < 2:
+        return _undefined(1, *key, "beta undefined for one vortex: a lone vortex has "
                           "no partner to exchange energy with, so there is no vortex-gas "
-                          "temperature to measure (need at least two vortices)")
-    dos = provider(*key_main)
-    lo, hi = dos.beta_range
-    g = _Group(key_main, grouped[key_main], domain, dos)
-    e = float(g.energies[0])
-    b_mic, b_err = (float(x[0]) for x in dos.beta_micro([e]))
-    fine = np.linspace(lo, hi, 2001)
-    lz_fine = dos._memo("lz_fine", lambda: g.lz(fine))
-    ll = -fine * e - lz_fine
-    b_can = float(fine[np.argmax(ll)])
-    if not np.isfinite(b_mic):
-        b_mic, b_err = b_can, 0.0    # energy outside the range where dS/dE is resolved
-    ci68 = _interval(fine, ll, _Q68, b_can)
-    ci95 = _interval(fine, ll, _Q95, b_can)
-    ci68 = (min(ci68[0], b_mic), max(ci68[1], b_mic))
-    ci95 = (min(ci95[0], b_mic), max(ci95[1], b_mic))
-    ci68, ci95 = _widen(ci68, b_mic, b_err, 1.0), _widen(ci95, b_mic, b_err, 1.96)
-    grid, var_e, _ = dos.canonical_curve("energy_variance")
-    fisher = 1.0 / np.sqrt(float(np.interp(b_mic, grid, var_e)))
+                          "temperature to measure (need at least two vortices)"
+                          if sum(key) == 1 else "no vortex: no vortex-gas temperature")
+    pos = grouped[key][0]
+    e = float(energy_batch(pos, signs_of(*key), domain)[0])
+    provider = (default_provider(domain, core_radius, cache_dir, settings, seed)
+                if dos_provider is None else (lambda a, b, reach=0: dos_provider(a, b)))
+    reach = settings.reach
+    while True:
+        dos = provider(*key, reach)
+        lo, hi = dos.beta_range
+        fine = np.linspace(lo, hi, 2001)
+        lz = dos.log_z_spline()
+        lz_fine = dos._memo("lz_fine", lambda: lz(fine))
+        ll = -fine * e - lz_fine
+        ci68, _, _ = _interval(fine, ll, _Q68)
+        ci95, at_lo, at_hi = _interval(fine, ll, _Q95)
+        b_mic, b_err = (float(x[0]) for x in dos.beta_micro([e]))
+        limit = "low" if at_lo and not at_hi else "high" if at_hi and not at_lo else ""
+        if not np.isfinite(b_mic) and not limit:
+            limit = "low" if e > dos.energy_range()[1] else "high"
+        if limit and dos_provider is None and reach < MAX_REACH:
+            reach += 1
+            continue
+        break
+    n = sum(key)
     w = np.exp(ll - ll.max())
     prob_neg = float(w[fine < 0].sum() / w.sum())
-    clustering = {k: float(v[0]) for k, v in
-                  structure_observables(g.pos, _signs(*key_main)).items()}
-    return _finish(b_mic, ci68, ci95, float(np.hypot(fisher, b_err)), prob_neg,
-                   "microcanonical", ((*key_main, 1),), 1, e / sum(key_main), sum(key_main),
-                   key_main, domain, clustering, {}, False, (lo, hi))
+    bound = None
+    if limit:
+        if not np.isfinite(b_mic):
+            b_mic = float(np.clip(fine[np.argmax(ll)], lo, hi))
+        value, ci68, ci95, bound = _bounded(ci68, ci95, limit)
+        if limit == "low":
+            value = max(value, b_mic)
+            ci68, ci95 = (ci68[0], max(ci68[1], b_mic)), (ci95[0], value)
+        else:
+            value = min(value, b_mic)
+            ci68, ci95 = (min(ci68[0], b_mic), ci68[1]), (value, ci95[1])
+        se = float("nan")
+    else:
+        value = b_mic
+        ci68 = (min(ci68[0], b_mic), max(ci68[1], b_mic))
+        ci95 = (min(ci95[0], b_mic), max(ci95[1], b_mic))
+        ci68, ci95 = _widen(ci68, b_mic, b_err, 1.0), _widen(ci95, b_mic, b_err, _Z95)
+        grid, var_e, _ = dos.canonical_curve("energy_variance")
+        se = float(np.hypot(1.0 / np.sqrt(float(np.interp(b_mic, grid, var_e))), b_err))
+    th = thresholds(*key, domain)
+    sign, words = _sign(ci95)
+    regime = _regime(value, th, n, bound)
+    clustering = {k: float(v[0]) for k, v in structure_observables(pos, signs_of(*key)).items()}
+    return BetaEstimate(
+        beta=float(value), beta_ci68=ci68, beta_ci95=ci95, stderr=se, method="microcanonical",
+        n_shots=1, n_plus=key[0], n_minus=key[1], groups=((*key, 1),),
+        energy_per_vortex=e / n, temperature_sign=sign, prob_negative=prob_neg,
+        beta_n=float(value * n), beta_n_ci68=(ci68[0] * n, ci68[1] * n),
+        beta_n_ci95=(ci95[0] * n, ci95[1] * n), bound=bound,
+        dos_error=float(b_err * n) if not bound else float("nan"), n_effective=1.0,
+        common="beta_n", reach=int(dos.settings.get("reach", 0)), clustering=clustering, thresholds=th,
+        regime=regime, verdict=_verdict(words, sign, prob_neg, value, ci95, bound, n, th,
+                                        regime))

@@ -47,9 +47,11 @@ def test_beta_recovered_inside_its_95_interval(cache, n_plus, n_minus, beta):
 
 
 def test_mixed_groups_and_single_shot(cache):
-    """Shots with different (N+, N-) share one beta: likelihoods add over groups."""
+    """Shots with different (N+, N-) drawn at one beta~, fitted with ``common="beta"``: the
+    scores of the groups add."""
     configs = _draw(2, 2, -0.4, 40, seed=5) + _draw(3, 0, -0.4, 40, seed=6)
-    res = estimate_ensemble(configs, Disk(), CORE, cache_dir=cache, settings=SETTINGS)
+    res = estimate_ensemble(configs, Disk(), CORE, cache_dir=cache, settings=SETTINGS,
+                            common="beta")
     assert len(res.groups) == 2 and res.n_shots == 80
     assert res.beta_ci95[0] <= -0.4 <= res.beta_ci95[1]
     one = estimate_single(*configs[0], Disk(), CORE, cache_dir=cache, settings=SETTINGS)
@@ -122,9 +124,10 @@ def test_95_interval_coverage_is_nominal(cache):
     assert hits <= n_rep   # over-coverage is not an error, but report it in the message
 
 
-def test_energy_beyond_the_ladder_is_flagged_not_silently_clipped(tmp_path):
-    """Two tight like-sign rings far apart have an energy beyond what the ladder samples: the
-    estimate must say that beta may be lower still (a clipped value is not a measurement)."""
+def test_energy_beyond_the_ladder_widens_it_or_is_a_bound(tmp_path):
+    """Tight like-sign rings far apart have an energy beyond what the first ladder samples: the
+    ladder is widened, and what lies beyond the widest one is reported as a bound (a clipped
+    value is not a measurement)."""
     import numpy as np
 
     from thermo.domains.disk import Disk
@@ -132,11 +135,26 @@ def test_energy_beyond_the_ladder_is_flagged_not_silently_clipped(tmp_path):
     from thermo.estimate import estimate_single
 
     ang = np.linspace(0, 2 * np.pi, 3, endpoint=False)
-    ring = 0.03 * np.column_stack([np.cos(ang), np.sin(ang)])
-    pos = np.vstack([[0.5, 0.0] + ring, [-0.5, 0.0] + ring])
     signs = np.array([1, 1, 1, -1, -1, -1])
-    est = estimate_single(pos, signs, Disk(), 0.01, cache_dir=tmp_path,
-                          settings=DosSettings(n_sweeps=400, n_boot=6))
-    assert est.range_limited == "low"
-    assert "may be lower" in est.verdict
-    assert est.temperature_sign == "negative"
+
+    def triangles(r, x):
+        ring = r * np.column_stack([np.cos(ang), np.sin(ang)])
+        return np.vstack([[x, 0.0] + ring, [-x, 0.0] + ring])
+
+    settings = DosSettings(n_sweeps=400, n_boot=6)
+    # beyond the first ladder (beta~ N >= -4.6 for 3+3): the ladder is widened until the
+    # energy is inside, and the interval is closed and finite
+    est = estimate_single(triangles(0.03, 0.5), signs, Disk(), 0.01, cache_dir=tmp_path,
+                          settings=settings)
+    assert est.reach >= 1 and est.bound is None
+    assert np.isfinite(est.beta_n_ci95).all() and est.beta_n < -4.6
+    assert est.beta_n_ci95[0] <= est.beta_n <= est.beta_n_ci95[1]
+    # two triangles as tight as the core allows: beyond even the widest ladder, so the answer
+    # is an upper bound, never a clipped number with a closed interval
+    est = estimate_single(triangles(0.012, 0.6), signs, Disk(), 0.01, cache_dir=tmp_path,
+                          settings=settings)
+    assert est.reach == 2
+    assert est.bound == "upper" and est.beta_ci95[0] == -np.inf
+    assert est.beta_n == pytest.approx(6 * est.beta) and est.beta_n == est.beta_n_ci95[1]
+    assert "beta~ N <" in est.verdict and "bound" in est.verdict
+    assert est.temperature_sign == "negative" and est.prob_negative > 0.99

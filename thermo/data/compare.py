@@ -34,7 +34,7 @@ from thermo import classify
 from thermo import energy as energy_mod
 from thermo.energy import validate_configuration
 from thermo.errors import ConfigurationError, ThermoError
-from thermo.estimate import estimate_ensemble_beta
+from thermo.estimate import estimate_ensemble
 from thermo.quantities import QUANTITIES
 
 
@@ -223,7 +223,7 @@ def _quantity_row(name: str, a: np.ndarray, b: np.ndarray, n_boot: int,
 def _beta_row(sim: Sequence[Configuration], meas: Sequence[Configuration], domain: Any,
               core_radius: float, beta_options: dict[str, Any]
               ) -> tuple[CompareRow | None, list[str]]:
-    """beta of each side from thermo.estimate.estimate_ensemble_beta.
+    """beta of each side from thermo.estimate.estimate_ensemble.
 
     Shots with fewer than two vortices carry no temperature, and shots that break the
     hard-core model (a vortex within a of the wall, two within 2a) have no weight in it;
@@ -252,7 +252,7 @@ def _beta_row(sim: Sequence[Configuration], meas: Sequence[Configuration], domai
                          f"and thermo.data.measured with core_um avoid this")
         if not usable:
             return None, notes + [f"beta left out: no {side} shot has two vortices"]
-        results.append((len(usable), estimate_ensemble_beta(usable, domain, core_radius,
+        results.append((len(usable), estimate_ensemble(usable, domain, core_radius,
                                                             **beta_options)))
     (n_a, res_a), (n_b, res_b) = results
     ba, bb = float(res_a.beta), float(res_b.beta)
@@ -287,7 +287,7 @@ def compare_ensembles(simulation: Sequence[Configuration], measured: Sequence[Co
     n_boot : bootstrap resamples for the 95% intervals.
     n_permutations : resamples of the permutation test.
     seed : seed or generator; the whole table is reproducible from it.
-    include_beta : add the beta row (thermo.estimate.estimate_ensemble_beta; builds or
+    include_beta : add the beta row (thermo.estimate.estimate_ensemble; builds or
         loads a density of states for every (N+, N-) present, which can take minutes).
     beta_options : keywords for that estimate (e.g. ``cache_dir``, ``settings``, ``seed``).
     labels : names of the two sides.

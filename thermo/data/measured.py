@@ -9,13 +9,18 @@ size and the pixel coordinates of the centre.
 The geometry (disk radius, or box width and height, and the vortex core radius) comes
 from keyword arguments or from a small TOML file beside the table (same stem,
 ``.toml``); keyword arguments override the file key by key. The geometry, the pixel
-calibration and that file are handled by :mod:`thermo.data.geometry`.
+calibration and that file are handled by :mod:`thermo.data.geometry`. Without a core radius
+the table gets ``DEFAULT_CORE`` (2% of the domain size).
+
+The usable vortices of every shot then pass the one admission rule of the thermometry
+(:func:`thermo.admission.admit`, the same as for simulated frames): vortices within one core
+radius of the wall are left out, and both vortices of any pair closer than two core radii
+(the minimum separation of the hard-core model is 2a). The counts are kept per shot
+(``MeasuredEnsemble.admitted``) and reported beside every estimate.
 
 A row is unusable if a field is missing or not a finite number, the sign is not +-1,
-the position lies outside the domain, it repeats a position of its shot, or (when the
-core radius is known) it lies within one core radius of the wall or within two core
-radii of an earlier vortex of its shot: the hard-core point-vortex model used for beta
-cannot hold such a vortex. Rows that cannot be used are never dropped silently: every one is listed with its
+the position lies outside the domain or it repeats a position of its shot. Rows that cannot
+be used are never dropped silently: every one is listed with its
 file line (CSV) or table index (HDF5) and the reason, in a :class:`MeasuredTableWarning`
 and in ``MeasuredEnsemble.problems``; with ``strict=True`` the first one raises
 :class:`MeasuredTableError` instead.
@@ -46,7 +51,11 @@ from thermo.data.geometry import (
     read_utf8_text,
     resolve_geometry,
 )
+from thermo.admission import Admitted, admit
 from thermo.errors import MeasuredTableError
+
+#: core radius of a table that gives none, in units of the domain size (disk radius, box height)
+DEFAULT_CORE = 0.02
 
 
 class MeasuredTableWarning(UserWarning):
@@ -122,7 +131,8 @@ class MeasuredEnsemble:
     shots : one :class:`MeasuredShot` per shot id, in order of first appearance (shots
         whose rows were all unusable are kept, with zero vortices).
     geometry : the :class:`Geometry` used; domain : the thermo domain object.
-    core_radius : core radius in scaled units (``core_um / length_scale_um``) or None.
+    core_radius : core radius in scaled units (``core_um / length_scale_um``, or
+        ``DEFAULT_CORE`` when the table gives none: ``core_given`` says which).
     length_scale_um : micrometres per scaled unit (disk radius or box height).
     problems : every unusable row (and other notes on the table), see :class:`RowProblem`.
     n_rows : data rows read (usable or not).
@@ -134,15 +144,41 @@ class MeasuredEnsemble:
     shots: tuple[MeasuredShot, ...]
     geometry: Geometry
     domain: Any
-    core_radius: float | None
+    core_radius: float
     length_scale_um: float
     problems: tuple[RowProblem, ...] = field(default=())
     n_rows: int = 0
+    core_given: bool = True
+
+    @property
+    def raw_configurations(self) -> list[tuple[np.ndarray, np.ndarray]]:
+        """``[(positions (N, 2), signs (N,)), ...]`` one per shot: every usable row."""
+        return [(s.positions, s.signs) for s in self.shots]
+
+    def admitted_with(self, core_radius: float | None = None, wall_cut: float = 1.0,
+                      scale: float = 1.0) -> list[Admitted]:
+        """Every shot through :func:`thermo.admission.admit` (default: the table's core).
+
+        ``scale`` multiplies the positions first (an effective domain radius R_eff = R /
+        scale: used to measure how the result depends on where the wall is taken to be).
+        """
+        core = self.core_radius if core_radius is None else core_radius
+        return [admit(np.asarray(p) * scale, s, self.domain, core, wall_cut=wall_cut)
+                for p, s in self.raw_configurations]
+
+    @property
+    def admitted(self) -> list[Admitted]:
+        """The shots as the thermometry holds them, with what was left out (cached)."""
+        got = self.__dict__.get("_admitted")
+        if got is None:
+            got = self.admitted_with()
+            object.__setattr__(self, "_admitted", got)
+        return got
 
     @property
     def configurations(self) -> list[tuple[np.ndarray, np.ndarray]]:
-        """``[(positions (N, 2), signs (N,)), ...]`` one per shot."""
-        return [(s.positions, s.signs) for s in self.shots]
+        """``[(positions (N, 2), signs (N,)), ...]`` one per shot, after the admission rule."""
+        return [(a.positions, a.signs) for a in self.admitted]
 
     @property
     def shot_ids(self) -> list[str]:
@@ -289,8 +325,6 @@ def read_measured(path: str | Path, *, shape: str | None = None,
                                    f"ignored; known: {list(REQUIRED_COLUMNS + OPTIONAL_COLUMNS)}"))
     col = {c: header.index(c) for c in header}
     domain = geometry.domain()
-    core = None if geometry.core_um is None else geometry.core_um / geometry.length_scale_um
-
     def report(row: int, reason: str, shot: str | None = None) -> None:
         prob = RowProblem(path.name, row, where, reason, shot)
         if strict:
@@ -350,19 +384,6 @@ def read_measured(path: str | Path, *, shape: str | None = None,
         if key in seen:
             report(row, f"duplicate position of {where} {seen[key]} in shot {shot!r}", shot)
             continue
-        if core is not None:
-            # the hard-core point-vortex model (thermo.sampler/estimate) cannot hold a
-            # vortex within one core radius of the wall or two within two core radii
-            if not bool(domain.contains(scaled[None, :], margin=core)[0]):
-                report(row, f"position ({xy_um[0]:.4g}, {xy_um[1]:.4g}) um is within the "
-                       f"core radius {geometry.core_um:g} um of the wall", shot)
-                continue
-            near = [r for r, x0, y0, *_ in shots[shot]
-                    if math.hypot(x0 - xy_um[0], y0 - xy_um[1]) < 2.0 * geometry.core_um]
-            if near:
-                report(row, f"closer than two core radii (2 x {geometry.core_um:g} um) to "
-                       f"{where} {near[0]} in shot {shot!r}", shot)
-                continue
         seen[key] = row
         shots[shot].append((row, float(xy_um[0]), float(xy_um[1]), sign,
                             vals.get("t", math.nan), vals.get("weight", math.nan)))
@@ -388,8 +409,9 @@ def read_measured(path: str | Path, *, shape: str | None = None,
         _warn(path, problems)
     return MeasuredEnsemble(
         source=path.name, shots=tuple(out), geometry=geometry, domain=domain,
-        core_radius=None if geometry.core_um is None
+        core_radius=DEFAULT_CORE if geometry.core_um is None
         else geometry.core_um / geometry.length_scale_um,
+        core_given=geometry.core_um is not None,
         length_scale_um=geometry.length_scale_um, problems=tuple(problems),
         n_rows=len(raw_rows))
 

@@ -15,10 +15,16 @@ from typing import Any
 import numpy as np
 
 from thermo import sampler
-from thermo.classify import structure_observables
 from thermo.dos.model import OBSERVED_PER_REPLICA, DensityOfStates
 from thermo.errors import SamplerError
 
+#: (top, overshoot of the like-sign bound) of the ladder at reach 0; see DosSettings.reach
+LADDER_ENDS = (1.0, 1.15)
+#: rungs added per reach step, and the widest reach estimators ask for
+REACH_RUNGS = 8
+MAX_REACH = 2
+#: rungs of the ladder at reach 0 (thermo.sampler.adaptive_ladder's default)
+BASE_RUNGS = 24
 #: recorded samples per replica when DosSettings.thin is None (thinning chosen to match);
 #: MBAR, its bootstrap and the tables work on energy bins, so their cost hardly grows with it
 _SAMPLES_PER_REPLICA = 32000
@@ -36,7 +42,13 @@ class DosSettings:
         4000 samples per replica (thin = max(2, n_sweeps // 4000)); the structure observables
         are evaluated on about 1000 of them.
     n_boot : bootstrap replicates for the uncertainties.
-    betas : explicit ladder (overrides n_temps) or None.
+    betas : explicit ladder (overrides n_temps and reach) or None.
+    reach : how far the ladder reaches past the collapse bounds (0, 1, 2, ...): the ends are
+        ``LADDER_ENDS`` x 2**reach (beta~ = 1, 2, 4 at the top; 1.15, 2.3, 4.6 times the
+        like-sign bound -2/max(N+, N-) at the bottom), with ``REACH_RUNGS`` more rungs per
+        step. Beyond the bounds only the core holds the gas together, so the energies there
+        move slowly with beta; estimators ask for a wider reach when a configuration's
+        energy lies beyond the ladder (thermo.estimate).
 
     Units: betas in 1/E0.
     """
@@ -47,8 +59,11 @@ class DosSettings:
     thin: int | None = None
     n_boot: int = 40
     betas: tuple[float, ...] | None = None
+    reach: int = 0
 
     def __post_init__(self) -> None:
+        if not (isinstance(self.reach, (int, np.integer)) and 0 <= self.reach <= MAX_REACH):
+            raise SamplerError(f"DosSettings.reach = {self.reach!r}; accepted: 0..{MAX_REACH}")
         if int(self.n_sweeps) < 10:
             raise SamplerError(f"DosSettings.n_sweeps = {self.n_sweeps}; need >= 10")
         if int(self.n_boot) < 2:
@@ -68,7 +83,9 @@ def build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
     else:
         # rungs spaced from a short pilot run, denser where E hardly fluctuates (beta > 0),
         # so that the error of beta(E) is even along the ladder (see adaptive_ladder)
-        kw = {} if settings.n_temps is None else {"n_temps": settings.n_temps}
+        scale = 2.0 ** settings.reach
+        kw = {"n_temps": (settings.n_temps or BASE_RUNGS) + REACH_RUNGS * settings.reach,
+              "beta_max": LADDER_ENDS[0] * scale, "overshoot": LADDER_ENDS[1] * scale}
         kw["pilot_sweeps"] = int(min(1000, max(100, settings.n_sweeps // 20)))
         betas = np.asarray(sampler.adaptive_ladder(n_plus, n_minus, core_radius, domain, rng,
                                                    **kw))
@@ -85,19 +102,10 @@ def build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
     stride = max(1, s_rec // OBSERVED_PER_REPLICA)
     result = sampler.run_tempering(domain, n_plus, n_minus, betas, settings.n_sweeps,
                                    core_radius, rng, position_stride=stride, **kw)
-    observables = None
-    if result.positions.shape[2] >= 2:
-        k = betas.size
-        sub = structure_observables(result.positions.reshape(-1, *result.positions.shape[2:]),
-                                    result.signs)
-        observables = {}
-        for name, v in sub.items():
-            full = np.full((k, s_rec), np.nan)
-            full[:, ::stride] = np.asarray(v).reshape(k, -1)
-            observables[name] = full.reshape(-1)
     stored = dict(n_temps=int(betas.size), n_sweeps=int(settings.n_sweeps),
                   burn_in=settings.burn_in, thin=settings.thin, n_boot=int(settings.n_boot),
+                  reach=int(settings.reach) if settings.betas is None else 0,
                   betas=[float(b) for b in betas] if settings.betas is not None else None)
     return DensityOfStates.from_tempering(result, n_boot=settings.n_boot, rng=rng,
                                           domain_key=repr(tuple(domain.key())),
-                                          settings=stored, observables=observables)
+                                          settings=stored, position_stride=stride)

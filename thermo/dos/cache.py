@@ -33,7 +33,8 @@ from thermo.errors import SamplerError
 
 #: bump when the file layout changes: it is part of :func:`cache_key`, so files of another
 #: version are left alone (and refused by :func:`load`) and the build is redone under a new name
-FORMAT_VERSION = 4  # 4: builds use the pilot-spaced ladder and 2x-thinned energies
+FORMAT_VERSION = 5  # 5: configurations of the observed subset kept; bootstrap blocks shared
+# across rungs; ladders of several reaches
 #: densities of states already read in this process: path -> (mtime_ns, size, dos), so
 #: repeated estimates do not re-read the npz (a changed file is read again)
 _LOADED: dict[Path, tuple[int, int, DensityOfStates]] = {}
@@ -48,6 +49,11 @@ def default_cache_dir() -> "os.PathLike[str]":
 def cache_key(n_plus: int, n_minus: int, domain: Any, core_radius: float) -> tuple:
     """(N+, N-, domain key, core radius, format version): what a stored DOS depends on."""
     return (int(n_plus), int(n_minus), tuple(domain.key()), float(core_radius), FORMAT_VERSION)
+
+
+def build_seed(key: tuple, reach: int = 0) -> int:
+    """The seed of a build of ``key``: a hash of the key (and reach), stable across processes."""
+    return int(hashlib.sha1(repr((key, int(reach))).encode()).hexdigest()[:15], 16)
 
 
 def cache_path(n_plus: int, n_minus: int, domain: Any, core_radius: float,
@@ -68,6 +74,7 @@ def save(dos: DensityOfStates, path: Any, key: tuple) -> None:
                 format_version=FORMAT_VERSION)
     arrays = dict(betas=dos.betas, n_k=dos.n_k, energies=dos.energies, f=dos.f,
                   log_denom=dos.log_denom, boot_f=dos.boot_f, boot_counts=dos.boot_counts,
+                  sample_index=dos.sample_index, sample_positions=dos.sample_positions,
                   meta=np.array(json.dumps(meta)))
     arrays.update({f"obs__{k}": v for k, v in dos.observables.items()})
     arrays.update({f"diag__{k}": v for k, v in dos.diagnostics.items()})
@@ -118,7 +125,8 @@ def _read(path: Path) -> tuple[DensityOfStates, dict]:
             domain_key=meta["domain_key"], core_radius=float(meta["core_radius"]),
             betas=z["betas"], n_k=z["n_k"], energies=z["energies"], f=z["f"],
             log_denom=z["log_denom"], boot_f=z["boot_f"], boot_counts=z["boot_counts"],
-            observables=obs, diagnostics=diag, settings=meta["settings"])
+            observables=obs, diagnostics=diag, settings=meta["settings"],
+            sample_index=z["sample_index"], sample_positions=z["sample_positions"])
         tables = {k[5:]: z[k] for k in z.files if k.startswith("tab__")}
     if dos_tables.tables_valid(tables, dos):
         object.__setattr__(dos, "_tables", tables)
@@ -133,11 +141,12 @@ def _settings_cover(stored: dict, wanted: DosSettings) -> bool:
             and wanted.betas is None:
         return False
     return (stored.get("n_sweeps", 0) >= wanted.n_sweeps
-            and stored.get("n_boot", 0) >= wanted.n_boot)
+            and stored.get("n_boot", 0) >= wanted.n_boot
+            and stored.get("reach", 0) >= wanted.reach)
 
 
 def load_or_build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
-                  cache_dir: Any = None, seed: int | np.random.Generator | None = 0,
+                  cache_dir: Any = None, seed: int | np.random.Generator | None = None,
                   settings: DosSettings = DosSettings()) -> DensityOfStates:
     """The density of states for (N+, N-, domain, core radius), from disk if possible.
 
@@ -150,7 +159,9 @@ def load_or_build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
     n_plus, n_minus : vortex numbers; domain : a thermo.domains.base.Domain;
     core_radius : hard-core radius a (domain length unit).
     cache_dir : directory; default ``$XDG_CACHE_HOME/vortherm/dos``.
-    seed : int or Generator for a build (a cache hit ignores it).
+    seed : int or Generator for a build (a cache hit ignores it); None (the default) derives
+        the seed from the cache key and the reach (:func:`build_seed`), so different gases
+        do not share one seed's statistical error while a rebuild of one key is reproducible.
     settings : DosSettings (effort).
 
     Units: energies in E0, betas in 1/E0, a in the domain's length unit.
@@ -176,6 +187,8 @@ def load_or_build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
                 save(dos, path, cache_key(n_plus, n_minus, domain, core_radius))
             _remember(path, dos)
             return dos
+    if seed is None:
+        seed = build_seed(cache_key(n_plus, n_minus, domain, core_radius), settings.reach)
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
     dos = build(n_plus, n_minus, domain, core_radius, settings, rng)
     _ = dos.tables                       # computed once here, stored with the samples

@@ -53,6 +53,9 @@ class DensityOfStates:
     observables : dict name -> (Ntot,) per-sample observables (thermo.classify).
     diagnostics : dict of the sampler's acceptance, swap acceptance, tau, ess arrays.
     settings : dict of the effort settings used to build it.
+    sample_index : (M,) indices into the pooled samples whose configurations are kept;
+    sample_positions : (M, N, 2) float32 those configurations, positive vortices first
+        (about OBSERVED_PER_REPLICA per rung; the structure observables are evaluated on them).
 
     Units: energies in E0, betas in 1/E0.
     """
@@ -71,6 +74,8 @@ class DensityOfStates:
     observables: dict = field(default_factory=dict)
     diagnostics: dict = field(default_factory=dict)
     settings: dict = field(default_factory=dict)
+    sample_index: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
+    sample_positions: np.ndarray = field(default_factory=lambda: np.zeros((0, 0, 2), np.float32))
 
     # ------------------------------------------------------------------ core
     @property
@@ -178,6 +183,43 @@ class DensityOfStates:
 
         mean, err = self._with_errors(fn, max_replicates)
         return {name: (mean[:, i], err[:, i]) for i, name in enumerate(names)}
+
+    def subset_averages(self, index: np.ndarray, values: np.ndarray, beta: Any
+                        ) -> tuple[np.ndarray, np.ndarray]:
+        """Canonical averages of per-sample values known on a subset of the pooled samples.
+
+        Parameters
+        ----------
+        index : (M,) indices into the pooled samples (e.g. ``sample_index``).
+        values : (V, M) values on those samples.
+        beta : (B,) betas inside the ladder.
+
+        Returns
+        -------
+        central (B, V) and replicates (R, B, V) (one per bootstrap replicate). The averages
+        are self-normalised over the subset, as for the structure observables.
+
+        Units: those of the values.
+        """
+        b = self._check_beta(beta)
+        idx = np.asarray(index, np.int64)
+        vals = np.atleast_2d(np.asarray(values, float))
+        e = self.energies[idx]
+
+        def average(ld, counts):
+            lw = -np.outer(b, e) - ld[idx][None, :]
+            if counts is not None:
+                with np.errstate(divide="ignore"):
+                    lw = lw + np.log(counts[idx].astype(float))[None, :]
+            lw -= lw.max(axis=1, keepdims=True)
+            w = np.exp(lw)
+            w /= w.sum(axis=1, keepdims=True)
+            return w @ vals.T
+
+        central = average(self.log_denom, None)
+        reps = np.array([average(ld, c) for ld, c in zip(self._replicate_log_denoms(),
+                                                          self.boot_counts)])
+        return central, reps
 
     # ------------------------------------------------------------ canonical
     def log_z(self, beta: Any) -> np.ndarray:
@@ -388,7 +430,8 @@ class DensityOfStates:
     def from_tempering(cls, result: Any, n_boot: int = 40, n_blocks: int | None = None,
                        rng: np.random.Generator | None = None,
                        domain_key: str | None = None, settings: dict | None = None,
-                       observables: dict | None = None) -> "DensityOfStates":
+                       observables: dict | None = None, position_stride: int = 1
+                       ) -> "DensityOfStates":
         """Pool every replica of a tempering run (``TemperingResult``) with MBAR.
 
         Parameters
@@ -400,6 +443,8 @@ class DensityOfStates:
             autocorrelation time of the energy (blocks >= 4 tau long, at least 10).
         observables : precomputed dict name -> (K*S,) arrays; by default the structure
             observables of thermo.classify are computed from ``positions``.
+        position_stride : ``result.positions`` holds every ``position_stride``-th recorded
+            sample (thermo.sampler.run_tempering's argument of that name).
 
         Units: energies in E0, betas in 1/E0.
         """
@@ -422,38 +467,49 @@ class DensityOfStates:
 
         if n_blocks is None:
             tau = max(tau_int(row) for row in en)
-            n_blocks = int(max(10, min(s, s // max(1, int(np.ceil(4 * tau))))))
+            n_blocks = int(max(MIN_BLOCKS, min(s, s // max(1, int(np.ceil(BLOCK_TAUS * tau))))))
         n_blocks = int(min(n_blocks, s))
         block_len = s // n_blocks
         boot_f = np.empty((n_boot, k))
         boot_counts = np.zeros((n_boot, k * s), dtype=np.uint16)
         for r in range(n_boot):
             counts = np.zeros((k, s))
+            # the same time blocks on every rung: replica swaps correlate the rungs' series
+            # at equal times, and resampling them independently would drop that covariance
+            starts = rng.integers(0, s - block_len + 1, size=n_blocks)
+            idx = (starts[:, None] + np.arange(block_len)[None, :]).ravel()
             for i in range(k):
-                starts = rng.integers(0, s - block_len + 1, size=n_blocks)
-                idx = (starts[:, None] + np.arange(block_len)[None, :]).ravel()
                 np.add.at(counts[i], idx, 1.0)
             c = counts.reshape(-1)
             boot_f[r], _ = solve_mbar(e_bin, betas, counts.sum(axis=1),
                                       counts=np.bincount(bin_of, c, minlength=nb), f_init=f)
             boot_counts[r] = c.astype(np.uint16)
 
-        if observables is None:
-            observables = {}
-            pos = getattr(result, "positions", None)
-            signs = getattr(result, "signs", None)
-            if pos is not None and signs is not None and np.shape(pos)[2] >= 2:
-                # the structure observables cost far more per sample than the energy, and
-                # their averages need less precision than beta(E): evaluate them on an
-                # evenly strided subset (NaN elsewhere) of OBSERVED_PER_REPLICA per rung
-                stride = max(1, s // OBSERVED_PER_REPLICA)
-                p = np.asarray(pos, float)[:, ::stride]
-                sub = structure_observables(p.reshape(-1, *p.shape[2:]), signs)
+        # the configurations of an evenly strided subset of about OBSERVED_PER_REPLICA samples
+        # per rung are kept: the structure observables (which cost far more per sample than the
+        # energy, and need less precision than beta(E)) are evaluated on them, and an imaging
+        # model can be applied to them later (thermo.imaged); NaN marks the other samples
+        pos = getattr(result, "positions", None)
+        signs = getattr(result, "signs", None)
+        sample_index = np.zeros(0, np.int64)
+        sample_positions = np.zeros((0, result.n_plus + result.n_minus, 2), np.float32)
+        if pos is not None and signs is not None and np.shape(pos)[1] > 0:
+            p = np.asarray(pos, float)
+            sub = max(1, p.shape[1] // OBSERVED_PER_REPLICA)
+            p = p[:, ::sub]
+            stride = position_stride * sub
+            cols = np.arange(p.shape[1]) * stride
+            keep = cols < s
+            p = p[:, keep]
+            sample_index = (np.arange(k)[:, None] * s + cols[keep][None, :]).ravel()
+            sample_positions = p.reshape(-1, *p.shape[2:]).astype(np.float32)
+            if observables is None and p.shape[2] >= 2:
                 observables = {}
-                for name, v in sub.items():
-                    full = np.full((k, s), np.nan)
-                    full[:, ::stride] = np.asarray(v).reshape(k, -1)
-                    observables[name] = full.reshape(-1)
+                for name, v in structure_observables(p.reshape(-1, *p.shape[2:]), signs).items():
+                    full = np.full(k * s, np.nan)
+                    full[sample_index] = np.asarray(v)
+                    observables[name] = full
+        observables = observables or {}
         diag = {name: np.asarray(getattr(result, name)) for name in
                 ("acceptance", "swap_acceptance", "tau_int", "ess") if hasattr(result, name)}
         dom = getattr(result, "domain", None)
@@ -463,8 +519,12 @@ class DensityOfStates:
                    core_radius=float(result.core_radius), betas=betas, n_k=n_k,
                    energies=flat, f=f, log_denom=ld, boot_f=boot_f, boot_counts=boot_counts,
                    observables={kk: np.asarray(v, float) for kk, v in observables.items()},
-                   diagnostics=diag, settings=dict(settings or {}))
+                   diagnostics=diag, settings=dict(settings or {}),
+                   sample_index=sample_index, sample_positions=sample_positions)
 
 
+#: block bootstrap: at least this many blocks per series, each at least BLOCK_TAUS x tau_int
+MIN_BLOCKS = 10
+BLOCK_TAUS = 4.0
 #: samples per replica on which the structure observables are evaluated (strided subset)
 OBSERVED_PER_REPLICA = 1000

@@ -27,7 +27,7 @@ import numpy as np
 from scipy.interpolate import CubicHermiteSpline
 
 #: bump when the content or grids of the tables change (stored tables are then recomputed)
-TABLE_VERSION = 5
+TABLE_VERSION = 6  # 6: mean_energy_reps
 N_BETA = 161         # beta grid points for ln Z, <E>, Var E, observables
 N_ENERGY = 201       # energy grid points for beta_micro
 N_TILT = N_BETA      # beta grid inverting <E>(beta) inside beta_micro: the same grid, reused
@@ -268,6 +268,7 @@ def compute_tables(dos: Any) -> dict[str, np.ndarray]:
 
     Returns a dict of arrays: ``beta`` (N_BETA,), ``log_z`` (N_BETA,), ``log_z_reps``
     (B, N_BETA), ``mean_energy``/``var_energy`` (N_BETA,) and their ``_err``,
+    ``mean_energy_reps`` (B, N_BETA),
     ``obs__<name>``/``obs_err__<name>`` (N_BETA,), ``energy`` (increasing),
     ``beta_micro``/``beta_micro_err`` (about N_ENERGY + N_BETA,), ``version`` ().
 
@@ -308,6 +309,7 @@ def compute_tables(dos: Any) -> dict[str, np.ndarray]:
     out = dict(version=np.array(TABLE_VERSION), beta=grid, log_z=log_z[0],
                log_z_reps=np.array(log_z[1:]).reshape(len(sets) - 1, N_BETA),
                mean_energy=mean[0], mean_energy_err=err(mean),
+               mean_energy_reps=np.array(mean[1:]).reshape(len(sets) - 1, N_BETA),
                var_energy=var[0], var_energy_err=err(var),
                energy=e_grid, beta_micro=micro[0], beta_micro_err=err(micro),
                beta_saddle=saddle[0], beta_saddle_err=err(saddle))
@@ -322,6 +324,6 @@ def tables_valid(tables: dict | None, dos: Any) -> bool:
     """True when stored tables match this table version and the DOS's observables."""
     if not tables or int(tables.get("version", -1)) != TABLE_VERSION:
         return False
-    need = {"beta", "log_z", "log_z_reps", "mean_energy", "var_energy", "energy",
+    need = {"beta", "log_z", "log_z_reps", "mean_energy", "mean_energy_reps", "var_energy", "energy",
             "beta_micro", "beta_micro_err", "beta_saddle", "beta_saddle_err"} | {f"obs__{k}" for k in dos.observables}
     return need <= set(tables) and tables["log_z_reps"].shape[0] == dos.boot_f.shape[0]

@@ -196,20 +196,25 @@ def test_demo_table_reports_exactly_its_three_planted_rows():
     assert len(ens.shots) == 30 and ens.core_radius == pytest.approx(0.5 / 40)
 
 
-def test_hard_core_rows_are_reported_when_the_core_is_known(tmp_path):
-    """With core_um = 1: a vortex 0.5 um from the wall and a second one 1.5 um from an
-    earlier vortex (< 2 core radii) cannot be held by the hard-core model."""
+def test_the_core_rule_leaves_out_both_of_a_close_pair_and_counts_them(tmp_path):
+    """With core_um = 1 (minimum separation 2 um): a vortex 0.5 um from the wall is left out,
+    and a vortex 1.5 um from another leaves out both of them (the rule of thermo/admission.py,
+    the same as for simulated frames); all rows are usable rows, nothing is reported as a row
+    problem, and the counts are kept per shot."""
     text = "shot,x,y,sign\n0, 0.0, 0.0, 1\n0, 39.5, 0.0, -1\n0, 1.5, 0.0, -1\n0, 5.0, 0.0, -1\n"
     p = _write(tmp_path, text)
-    with pytest.warns(MeasuredTableWarning):
-        ens = read_measured(p, radius_um=40.0, core_um=1.0)
-    assert [pr.row for pr in ens.problems] == [3, 4]
-    assert "within the core radius" in ens.problems[0].reason
-    assert "closer than two core radii" in ens.problems[1].reason and "line 2" in \
-        ens.problems[1].reason
     with warnings.catch_warnings():
-        warnings.simplefilter("error")   # without a core the same rows are all usable
-        assert read_measured(p, radius_um=40.0).n_vortices[0] == 4
+        warnings.simplefilter("error")
+        ens = read_measured(p, radius_um=40.0, core_um=1.0)
+    assert ens.problems == () and ens.n_vortices[0] == 4
+    kept = ens.admitted[0]
+    assert (kept.left_out_wall, kept.left_out_pairs) == (1, 1)
+    np.testing.assert_allclose(ens.configurations[0][0], [[5.0 / 40.0, 0.0]])
+    # without a core in the table the default core (2% of R = 0.8 um) still separates 1.5 um
+    # from 0: 1.5 < 2 x 0.8, so the pair is left out there too
+    dflt = read_measured(p, radius_um=40.0)
+    assert not dflt.core_given and dflt.core_radius == pytest.approx(0.02)
+    assert dflt.admitted[0].left_out_pairs == 1
 
 
 def test_a_utf8_table_with_a_byte_order_mark_reads_like_one_without(tmp_path):

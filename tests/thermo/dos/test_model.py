@@ -33,7 +33,9 @@ def test_one_vortex_log_dos_and_micro_beta(one_vortex_dos):
     # the bin average of e^E over [a, b] is (e^b - e^a)/(b - a)
     exact = np.log(np.diff(np.exp(edges)) / np.diff(edges))
     good = np.isfinite(ln_g) & (err < 0.3)
-    assert good.sum() >= 10
+    # the sparse low-energy tail has large errors; the bootstrap with time blocks shared by
+    # all rungs (thermo/dos/model.py) states them honestly, so a few more bins fall out
+    assert good.sum() >= 8
     assert np.all(np.abs(ln_g[good] - exact[good]) < 4 * err[good] + 0.02), centres
     lo, hi = one_vortex_dos.energy_range()
     e = np.linspace(lo, hi, 7)[1:-1]

@@ -16,7 +16,11 @@ from gpe.errors import VorthermError
 #: Options of ``temperature`` that only a measured table uses (a run file knows its own trap).
 TABLE_OPTIONS = (("disk_radius_um", "--disk-radius-um"), ("box_um", "--box-um"),
                  ("core_um", "--core-um"), ("pixel_um", "--pixel-um"), ("center", "--center"),
-                 ("strict", "--strict"))
+                 ("strict", "--strict"), ("blur_um", "--blur-um"), ("sign_error", "--sign-error"),
+                 ("resolution_um", "--resolution-um"), ("edge_loss_um", "--edge-loss-um"))
+#: imaging options of ``temperature`` -> keys of thermo.data.geometry.IMAGING_KEYS
+IMAGING_OPTIONS = (("blur_um", "blur_um"), ("sign_error", "sign_error"),
+                   ("resolution_um", "resolution_um"), ("edge_loss_um", "edge_loss_um"))
 
 
 # --------------------------------------------------------------------------- temperature
@@ -37,6 +41,22 @@ def register_temperature(sub) -> None:
                    help="measured table in pixels: trap centre in pixels")
     p.add_argument("--strict", action="store_true", help="stop at the first unusable row")
     p.add_argument("--frames", help="run file: frames to use, e.g. 10:40 or 5,9,-1 (default: all)")
+    p.add_argument("--window-ms", type=float, nargs=2, metavar=("T0", "T1"),
+                   help="run file: the ensemble is every frame in this window, ms (default: the "
+                        "frames after the last beam has switched off)")
+    p.add_argument("--common", choices=("beta_n", "beta"), default="beta_n",
+                   help="what shots of different vortex numbers share: beta~N (default) or beta~")
+    p.add_argument("--blur-um", type=float,
+                   help="measured table, imaging model: rms position error, um (overrides "
+                        "[imaging] of the geometry file)")
+    p.add_argument("--sign-error", type=float,
+                   help="measured table, imaging model: probability of a wrong sign, 0..0.5")
+    p.add_argument("--resolution-um", type=float,
+                   help="measured table, imaging model: closer pairs are lost or merged, um")
+    p.add_argument("--edge-loss-um", type=float,
+                   help="measured table, imaging model: vortices this close to the wall are missed, um")
+    p.add_argument("--no-systematics", action="store_true",
+                   help="skip the systematics budget (core radius, wall, wall cut varied)")
     p.add_argument("--effort", choices=("quick", "standard", "thorough"), default="quick",
                    help="Monte Carlo effort of the density of states (cached on disk per N+, N-)")
     p.add_argument("--csv", type=Path, help="where to write the table (default: beside the source)")
@@ -49,6 +69,7 @@ def register_temperature(sub) -> None:
 
 def _cmd_temperature(args) -> int:
     from gpe.run import reading, thermometry
+    from gpe.run.runfile import RunFile
 
     if not args.source.is_file():
         raise VorthermError(f"{args.source}: no such file; give a run file (.h5) or a measured "
@@ -66,14 +87,32 @@ def _cmd_temperature(args) -> int:
             raise VorthermError(f"{args.source} is a run file, whose trap fixes the geometry; "
                                 f"{', '.join(given)} apply only to measured tables: leave "
                                 f"{'them' if len(given) > 1 else 'it'} out")
-    elif args.frames is not None:
-        raise VorthermError(f"--frames {args.frames}: {args.source} is a measured table (not a "
-                            "run file), whose shots are all used; leave out --frames")
+    elif args.frames is not None or args.window_ms is not None:
+        flag = "--frames" if args.frames is not None else "--window-ms"
+        raise VorthermError(f"{flag}: {args.source} is a measured table (not a run file), whose "
+                            f"shots are all used; leave out {flag}")
+    imaging_um = {key: getattr(args, name) for name, key in IMAGING_OPTIONS
+                  if getattr(args, name) is not None}
     refuse_to_overwrite(temperature_outputs(args.source, args.csv, args.plot),
                         inputs=[args.source], force=args.force)
     if run_file:
-        result = thermometry.temperature_of_run(args.source, frames=parse_frames(args.frames),
-                                                effort=args.effort)
+        if args.window_ms is not None:
+            with RunFile.open(args.source, "r") as run:
+                protocol = reading.protocol_of(run)
+            if protocol.unit_system != "SI":
+                raise VorthermError(f"--window-ms: {args.source} is a run in healing units "
+                                    "(hbar/mu), which have no millisecond scale; choose the "
+                                    "frames with --frames instead")
+        try:
+            result = thermometry.temperature_of_run(
+                args.source, frames=parse_frames(args.frames), window=args.window_ms,
+                time_unit="ms", common=args.common, effort=args.effort,
+                systematics=not args.no_systematics)
+        except VorthermError as exc:
+            if args.window_ms is not None and "window" in str(exc):
+                raise VorthermError(f"--window-ms {args.window_ms[0]:g} {args.window_ms[1]:g}: "
+                                    f"{exc}") from None
+            raise
     else:
         shape, kw = None, {}
         if args.disk_radius_um is not None:
@@ -82,7 +121,9 @@ def _cmd_temperature(args) -> int:
             shape, kw["width_um"], kw["height_um"] = "box", args.box_um[0], args.box_um[1]
         result = thermometry.temperature_of_table(
             args.source, shape=shape, core_um=args.core_um, pixel_um=args.pixel_um,
-            center_px=args.center, strict=args.strict, effort=args.effort, **kw)
+            center_px=args.center, strict=args.strict, effort=args.effort,
+            imaging_um=imaging_um or None, common=args.common,
+            systematics=not args.no_systematics, **kw)
     show_temperature(result, args.source, csv_path=args.csv, as_json=args.json, plot=args.plot,
                      force=args.force)
     return 0
@@ -115,9 +156,10 @@ def show_temperature(result: dict, source: Path, *, csv_path: Path | None = None
     outputs = temperature_outputs(source, csv_path, plot)
     refuse_to_overwrite(outputs, inputs=[source], force=force)
     csv_path = outputs[0][0]
-    report.write_records_csv(csv_path, result["records"], result["time_key"])
+    report.write_records_csv(csv_path, result["records"], result["time_key"],
+                             result.get("time_unit", ""))
     if as_json:
-        print(json.dumps(report.json_report(result), indent=1, allow_nan=True))
+        print(json.dumps(report.json_report(result), indent=1, allow_nan=False))
     else:
         print(report.text_report(result))
         print(f"table written to {csv_path}")

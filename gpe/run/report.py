@@ -1,8 +1,12 @@
 """Reports of thermometry results: CSV tables, the JSON document and the terminal text.
 
 Pure functions of the result dictionaries made by gpe/run/thermometry.py; nothing here computes.
+A bound (``bound = "upper"``: beta~ N < value; ``"lower"``: beta~ N > value) is printed as such
+everywhere: "< -4.6" in the terminal, the ``bound`` column in CSV, ``"bound"`` in JSON, where
+the open side of the interval is ``null`` (strict JSON: no NaN or Infinity).
 
-Units: beta in 1/E0 with E0 = rho kappa^2/(4 pi); energies per vortex in E0.
+Units: beta in 1/E0 with E0 = rho kappa^2/(4 pi); beta~ N dimensionless; energies per vortex in
+E0; D in the domain size.
 """
 
 from __future__ import annotations
@@ -12,66 +16,145 @@ import math
 from pathlib import Path
 
 CSV_COLUMNS = ("n_plus", "n_minus", "energy_per_vortex", "beta", "beta_ci68_lo", "beta_ci68_hi",
-               "beta_ci95_lo", "beta_ci95_hi", "temperature_sign", "prob_negative",
+               "beta_ci95_lo", "beta_ci95_hi", "beta_n", "beta_n_ci95_lo", "beta_n_ci95_hi",
+               "bound", "dos_error", "reach", "temperature_sign", "prob_negative",
                "dipole_moment", "c1", "dipole_fraction", "cluster_fraction", "free_fraction",
-               "left_out_wall", "left_out_pairs", "range_limited", "verdict")
-CSV_UNITS = {"energy_per_vortex": "E0", "beta": "1/E0", "beta_ci68_lo": "1/E0",
-             "beta_ci68_hi": "1/E0", "beta_ci95_lo": "1/E0", "beta_ci95_hi": "1/E0",
-             "dipole_moment": "domain size"}
+               "left_out_wall", "left_out_pairs", "verdict")
+#: the unit of every column ("1" for counts, probabilities and fractions; "" for words)
+CSV_UNITS = {"n_plus": "1", "n_minus": "1", "energy_per_vortex": "E0", "beta": "1/E0",
+             "beta_ci68_lo": "1/E0", "beta_ci68_hi": "1/E0", "beta_ci95_lo": "1/E0",
+             "beta_ci95_hi": "1/E0", "beta_n": "1", "beta_n_ci95_lo": "1",
+             "beta_n_ci95_hi": "1", "bound": "", "dos_error": "1", "reach": "1",
+             "temperature_sign": "", "prob_negative": "1", "dipole_moment": "domain size",
+             "c1": "1", "dipole_fraction": "1", "cluster_fraction": "1", "free_fraction": "1",
+             "left_out_wall": "1", "left_out_pairs": "1", "verdict": "", "frame": "1",
+             "shot": ""}
+
+
+def strict(obj):
+    """``obj`` with NaN and infinities as None and numpy scalars as Python numbers, so that
+    ``json.dumps(..., allow_nan=False)`` accepts it (RFC 8259 has no NaN or Infinity)."""
+    if isinstance(obj, dict):
+        return {str(k): strict(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [strict(v) for v in obj]
+    if hasattr(obj, "item") and not isinstance(obj, (str, bytes)):
+        obj = obj.item()
+    if isinstance(obj, float) and not math.isfinite(obj):
+        return None
+    return obj
 
 
 def _flat(rec: dict) -> dict:
     out = dict(rec)
     out["beta_ci68_lo"], out["beta_ci68_hi"] = rec["beta_ci68"]
     out["beta_ci95_lo"], out["beta_ci95_hi"] = rec["beta_ci95"]
+    out["beta_n_ci95_lo"], out["beta_n_ci95_hi"] = rec.get("beta_n_ci95", [math.nan] * 2)
+    out["bound"] = rec.get("bound") or ""
     return out
 
 
+def _cell(v) -> str:
+    if isinstance(v, bool):
+        return str(v)
+    if isinstance(v, float):
+        return "" if math.isnan(v) else ("inf" if v > 0 else "-inf") if math.isinf(v) else f"{v:.6g}"
+    return "" if v is None else str(v)
+
+
 def write_records_csv(path, records: list[dict], time_key: str, time_unit: str = "") -> Path:
-    """Write per-frame (or per-shot) records as CSV, units in the header names."""
+    """Write per-frame (or per-shot) records as CSV: one plain header line, every column with
+    its unit in brackets (``beta [1/E0]``; words have none); an open interval side is
+    ``-inf``/``inf``, an undefined value empty."""
     path = Path(path)
     first = [time_key] + (["frame"] if time_key == "t" else [])
-    header = [f"{c} [{CSV_UNITS[c]}]" if c in CSV_UNITS else c for c in first + list(CSV_COLUMNS)]
+    units = dict(CSV_UNITS, t=time_unit or "")
+    header = [f"{c} [{units[c]}]" if units.get(c) else c for c in first + list(CSV_COLUMNS)]
     with path.open("w", newline="") as fh:
         writer = csv.writer(fh)
         writer.writerow(header)
         for rec in records:
             flat = _flat(rec)
-            writer.writerow([flat.get(c, "") if not isinstance(flat.get(c), float)
-                             else f"{flat[c]:.6g}" for c in first + list(CSV_COLUMNS)])
+            writer.writerow([_cell(flat.get(c)) for c in first + list(CSV_COLUMNS)])
     return path
 
 
 def json_report(result: dict) -> dict:
     """The JSON document of ``vortherm temperature --json``: frames or shots, and ensemble.
 
-    For a run it says whether the run is complete (``run_complete``), how many frames exist of
-    how many the protocol plans (``frames_stored``, ``frames_planned``) and, for an incomplete
-    run, carries the note ``incomplete``.
+    Strict JSON (:func:`strict`: no NaN; the open side of a bound's interval is null). For a
+    run it says whether the run is complete (``run_complete``), how many frames exist of how
+    many the protocol plans (``frames_stored``, ``frames_planned``) and, for an incomplete run,
+    carries the note ``incomplete``.
 
-    Units: beta in 1/E0 (``beta_unit``); times in ``time_unit``.
+    Units: beta in 1/E0 (``beta_unit``); beta~ N dimensionless; times in ``time_unit``.
     """
     key = "frames" if result["kind"] == "run" else "shots"
     out = {key: result["records"], "ensemble": result["ensemble"],
            "verdict": result["onset"], "beta_unit": "1/E0, E0 = rho kappa^2/(4 pi)",
-           "source": result["source"], "domain": result["domain"]}
-    if result.get("time_unit"):
-        out["time_unit"] = result["time_unit"]
-    if result.get("approximation"):
-        out["approximation"] = result["approximation"]
-    if result.get("problems"):
-        out["problems"] = result["problems"]
+           "beta_n_unit": "1", "source": result["source"], "domain": result["domain"]}
+    for name in ("time_unit", "approximation", "problems", "drive_end", "drive_note"):
+        if result.get(name) not in (None, "", []):
+            out[name] = result[name]
     if result["kind"] == "run" and "run_complete" in result:
         out["run_complete"] = result["run_complete"]
         out["frames_stored"] = result["frames_stored"]
         out["frames_planned"] = result["frames_planned"]
         if result.get("incomplete"):
             out["incomplete"] = result["incomplete"]
-    return out
+    return strict(out)
 
 
 def _fmt(v: float, width: int = 8) -> str:
     return f"{v:{width}.3g}" if isinstance(v, (int, float)) and math.isfinite(v) else " " * (width - 3) + "  -"
+
+
+def beta_n_text(rec: dict) -> str:
+    """beta~ N of a record in words: "-2.97 [-3.29, -2.65]", "< -4.6" or "undefined"."""
+    b = rec.get("beta_n", math.nan)
+    if not isinstance(b, (int, float)) or not math.isfinite(b):
+        return "undefined"
+    if rec.get("bound") == "upper":
+        return f"< {b:.3g}"
+    if rec.get("bound") == "lower":
+        return f"> {b:.3g}"
+    lo, hi = rec.get("beta_n_ci95", [math.nan, math.nan])
+    return f"{b:.3g} [{lo:.3g}, {hi:.3g}]"
+
+
+def _ensemble_lines(ens: dict, unit: str) -> list[str]:
+    lines = []
+    where = (f" (frames in {ens['window'][0]:.4g}..{ens['window'][1]:.4g}{unit})"
+             if "window" in ens else "")
+    lines.append(f"ensemble{where}: {ens['verdict']}")
+    n_eff = ens.get("n_effective")
+    if ens.get("groups"):
+        groups = ", ".join(f"{g['n_plus']}+{g['n_minus']} x{g['shots']}" for g in ens["groups"])
+        shared = {"beta_n": "one beta~N shared by all groups",
+                  "beta": "one beta~ shared by all groups"}.get(ens.get("common"), "")
+        lines.append(f"  groups (N+ + N- x shots): {groups}; {shared}")
+    if n_eff is not None and "tau_frames" in ens:
+        taus = ", ".join(f"{t:.3g}" for t in ens["tau_frames"])
+        lines.append(f"  {ens['frames']} frames of {ens['runs']} run(s), autocorrelation time "
+                     f"{taus} frames: {n_eff:.3g} effectively independent")
+    elif n_eff is not None:
+        lines.append(f"  {ens.get('n_shots', 0)} independent shots")
+    if isinstance(ens.get("dos_error"), float) and math.isfinite(ens["dos_error"]):
+        lines.append(f"  density-of-states error in beta~N: {ens['dos_error']:.2g} (included)")
+    sysb = ens.get("systematics")
+    if sysb:
+        parts = []
+        for name, item in sysb.items():
+            if name == "total":
+                continue
+            vals = "/".join(f"{v:.3g}" for v in item["values"])
+            parts.append(f"{name} {item.get('central', ''):.3g} -> {vals}: "
+                         f"{item['shift'][0]:+.2g}/{item['shift'][1]:+.2g}")
+        lo, hi = sysb["total"]
+        lines.append(f"  systematics (shift of beta~N): {'; '.join(parts)}; total {lo:+.2g}/{hi:+.2g}")
+    if ens.get("imaging_note"):
+        lines.append(f"  note: {ens['imaging_note']}")
+    return lines
 
 
 def text_report(result: dict) -> str:
@@ -80,28 +163,27 @@ def text_report(result: dict) -> str:
     The notes above the verdict say when the run is incomplete (frames that exist of those
     planned), when the domain is an approximation and when table rows were left out.
 
-    Units: beta in 1/E0, E/N in E0, times in the result's ``time_unit``.
+    Units: beta in 1/E0, beta~ N dimensionless, E/N in E0, times in the result's ``time_unit``.
     """
     tk = result["time_key"]
     unit = f" [{result['time_unit']}]" if result.get("time_unit") else ""
-    head = (f"{tk + unit:>12} {'N+':>4} {'N-':>4} {'E/N':>8} {'beta~':>8} {'95% interval':>19} "
-            f"{'beta~N':>8} {'D':>6} {'C1':>6} {'dip':>5} {'clu':>5} {'free':>5}")
+    head = (f"{tk + unit:>12} {'N+':>4} {'N-':>4} {'E/N':>8} {'beta~N (95% interval)':>26} "
+            f"{'D':>6} {'C1':>6} {'dip':>5} {'clu':>5} {'free':>5}")
     lines = [head, "-" * len(head)]
     for r in result["records"]:
-        n = r["n_plus"] + r["n_minus"]
-        lo, hi = r["beta_ci95"]
         tval = r.get(tk, "")
         tstr = f"{tval:12.4g}" if isinstance(tval, float) else f"{str(tval):>12}"
+        n = r["n_plus"] + r["n_minus"]
+        bn = beta_n_text(r) if n >= 2 else ("no vortex" if n == 0 else "one vortex")
         lines.append(
             f"{tstr} {r['n_plus']:4d} {r['n_minus']:4d} {_fmt(r['energy_per_vortex'])} "
-            f"{_fmt(r['beta'])} [{_fmt(lo)} ,{_fmt(hi)}] {_fmt(r['beta'] * n)} "
-            f"{_fmt(r['dipole_moment'], 6)} {_fmt(r['c1'], 6)} {_fmt(r['dipole_fraction'], 5)} "
-            f"{_fmt(r['cluster_fraction'], 5)} {_fmt(r['free_fraction'], 5)}")
-    ens = result["ensemble"]
+            f"{bn:>26} {_fmt(r['dipole_moment'], 6)} {_fmt(r['c1'], 6)} "
+            f"{_fmt(r['dipole_fraction'], 5)} {_fmt(r['cluster_fraction'], 5)} "
+            f"{_fmt(r['free_fraction'], 5)}")
     lines.append("")
-    where = (f" (frames in {ens['window'][0]:.4g}..{ens['window'][1]:.4g}{unit})"
-             if "window" in ens else "")
-    lines.append(f"ensemble{where}: {ens['verdict']}")
+    lines.extend(_ensemble_lines(result["ensemble"], unit))
+    if result.get("drive_note"):
+        lines.append(f"note: ensemble window: {result['drive_note']}")
     if result.get("incomplete"):
         lines.append(f"note: {result['incomplete']}")
     if result.get("approximation"):

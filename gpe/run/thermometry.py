@@ -1,37 +1,54 @@
-"""Thermometry of simulated vortex configurations: per frame, per ensemble, and of a whole run.
+"""Thermometry of vortex configurations: per frame or shot, per ensemble, with its window,
+its correlations and its systematics.
 
-The run side decides which frames make an ensemble and which domain stands in for the trap
-(gpe/run/gas.py); ``thermo`` does the statistical mechanics.
+The run side decides which frames make an ensemble (:func:`ensemble_frames`: by default the
+frames after the last beam has switched off), how correlated they are (:func:`series_weights`)
+and which domain stands in for the trap (gpe/run/gas.py); ``thermo`` does the statistical
+mechanics (thermo/estimate.py). Every ensemble record also carries a systematics budget
+(:func:`systematics`): the shift of beta~ N when the modelling choices (core radius, where the
+wall is taken to be, the wall cut) are varied over stated ranges.
 
-Units: simulation units (xi, hbar/mu) for positions and times; beta in 1/E0, E0 = rho kappa^2/(4 pi).
+Units: simulation units (xi, hbar/mu) for positions and times; beta in 1/E0, E0 = rho kappa^2/(4 pi);
+beta~ N dimensionless.
 """
 
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 
 import numpy as np
 
 from gpe.errors import VorthermError
-from gpe.run.gas import domain_for_trap, gas_configuration
+from gpe.run.gas import CORE_RADIUS_XI, WALL_LAYER_XI, domain_for_trap, gas_configuration
 from gpe.run.reading import protocol_of, select_frames
 from gpe.run.runfile import RunFile
+from thermo.autocorr import integrated_autocorr_time
 from thermo.classify import structure_observables
 from thermo.data.measured import read_measured
 from thermo.dos.build import DosSettings
+from thermo.energy import energy
 from thermo.estimate import estimate_ensemble, estimate_single
 
 # ------------------------------------------------------------------------------------------
 # thermometry of configurations: one record per frame or shot, and one for an ensemble
 # ------------------------------------------------------------------------------------------
-#: Core radius of a measured table without one, in units of the domain size (disk radius).
-DEFAULT_TABLE_CORE = 0.02
 #: Effort of the density-of-states build (Monte Carlo sweeps per replica, bootstrap replicates).
 EFFORT = {"quick": (800, 12), "standard": (4000, 40), "thorough": (16000, 60)}
+#: The effort used when none is asked for (see README: why it is enough)
+DEFAULT_EFFORT = "quick"
+#: Ranges over which the modelling choices are varied for the systematics budget, as factors
+#: of the central value: core radius a (0.5 xi in a run), the wall's depleted layer (1 xi in a
+#: run; for a measured table the domain radius is varied by DOMAIN_SCALES instead), the wall cut
+#: (vortices within WALL_CUTS x a of the wall left out; 1 is the hard-core limit).
+CORE_FACTORS = (0.5, 2.0)
+WALL_LAYERS_XI = (0.5, 2.0)
+DOMAIN_SCALES = (0.98, 1.02)
+WALL_CUTS = (2.0, 3.0)
 
 
 def dos_settings(effort: str):
-    """``thermo.dos.model.DosSettings`` for an effort name: quick, standard or thorough."""
+    """``thermo.dos.build.DosSettings`` for an effort name: quick, standard or thorough."""
     if effort not in EFFORT:
         raise VorthermError(f"effort {effort!r}; accepted: {', '.join(EFFORT)}")
     sweeps, boot = EFFORT[effort]
@@ -42,12 +59,14 @@ def _estimate_record(est) -> dict:
     """The fields of a ``thermo.estimate.BetaEstimate`` that reports and JSON carry."""
     rec = {
         "beta": est.beta, "beta_ci68": list(est.beta_ci68), "beta_ci95": list(est.beta_ci95),
-        "stderr": est.stderr, "method": est.method, "n_plus": est.n_plus,
-        "n_minus": est.n_minus, "energy_per_vortex": est.energy_per_vortex,
+        "beta_n": est.beta_n, "beta_n_ci68": list(est.beta_n_ci68),
+        "beta_n_ci95": list(est.beta_n_ci95), "bound": est.bound,
+        "stderr": est.stderr, "dos_error": est.dos_error, "method": est.method,
+        "n_plus": est.n_plus, "n_minus": est.n_minus,
+        "energy_per_vortex": est.energy_per_vortex,
         "temperature_sign": est.temperature_sign, "prob_negative": est.prob_negative,
         "regime": est.regime, "not_in_equilibrium": est.not_in_equilibrium,
-        "range_limited": est.range_limited,
-        "verdict": est.verdict,
+        "reach": est.reach, "verdict": est.verdict,
     }
     for key in ("dipole_moment", "c1", "dipole_fraction", "cluster_fraction", "free_fraction",
                 "mean_nn_distance"):
@@ -56,8 +75,8 @@ def _estimate_record(est) -> dict:
     return rec
 
 
-def configuration_records(configs, domain, core_radius: float, *, effort: str = "quick",
-                          cache_dir=None, seed: int = 0) -> list[dict]:
+def configuration_records(configs, domain, core_radius: float, *, effort: str = DEFAULT_EFFORT,
+                          cache_dir=None) -> list[dict]:
     """One thermometry record per configuration (microcanonical beta at its energy).
 
     ``configs`` is a sequence of (positions, signs) in domain units. Fewer than two vortices
@@ -67,7 +86,7 @@ def configuration_records(configs, domain, core_radius: float, *, effort: str = 
     records = []
     for pos, signs in configs:
         est = estimate_single(pos, signs, domain, core_radius, cache_dir=cache_dir,
-                              settings=settings, seed=seed)
+                              settings=settings)
         rec = _estimate_record(est)
         rec["n_plus"] = int(np.count_nonzero(np.asarray(signs) > 0))
         rec["n_minus"] = int(np.count_nonzero(np.asarray(signs) < 0))
@@ -79,74 +98,229 @@ def configuration_records(configs, domain, core_radius: float, *, effort: str = 
     return records
 
 
-def ensemble_record(configs, domain, core_radius: float, *, effort: str = "quick",
-                    cache_dir=None, seed: int = 0) -> dict:
-    """Maximum-likelihood beta of an ensemble of configurations, as a record.
+def _undefined_ensemble(n_configs: int, why: str) -> dict:
+    nan = math.nan
+    return {"beta": nan, "beta_ci68": [nan, nan], "beta_ci95": [nan, nan], "beta_n": nan,
+            "beta_n_ci68": [nan, nan], "beta_n_ci95": [nan, nan], "bound": None,
+            "n_shots": 0, "n_effective": 0.0, "groups": [], "left_out_small": n_configs,
+            "temperature_sign": "undetermined", "prob_negative": nan, "verdict": why}
+
+
+def ensemble_record(configs, domain, core_radius: float, *, weights=None,
+                    common: str = "beta_n", imaging=None,
+                    effort: str = DEFAULT_EFFORT, cache_dir=None) -> dict:
+    """beta~ N shared by an ensemble of configurations (thermo.estimate), as a record.
 
     Configurations with fewer than two vortices carry no temperature information and are left
-    out (their number is reported as ``left_out_small``).
+    out (their number is reported as ``left_out_small``). ``weights`` (one per configuration,
+    in (0, 1]) count correlated frames as fewer independent ones.
     """
-    usable = [(p, s) for p, s in configs if len(s) >= 2]
-    if not usable:
-        return {"beta": math.nan, "beta_ci68": [math.nan, math.nan],
-                "beta_ci95": [math.nan, math.nan], "n_shots": 0,
-                "left_out_small": len(configs), "temperature_sign": "undetermined",
-                "prob_negative": math.nan,
-                "verdict": "beta undefined: no configuration has two or more vortices"}
-    est = estimate_ensemble(usable, domain, core_radius, cache_dir=cache_dir,
-                            settings=dos_settings(effort), seed=seed)
+    keep = [i for i, (_, s) in enumerate(configs) if len(s) >= 2]
+    if not keep:
+        return _undefined_ensemble(len(configs), "beta undefined: no configuration has two or "
+                                   "more vortices")
+    w = None if weights is None else [float(weights[i]) for i in keep]
+    est = estimate_ensemble([configs[i] for i in keep], domain, core_radius, weights=w,
+                            common=common, imaging=imaging, cache_dir=cache_dir,
+                            settings=dos_settings(effort))
     rec = _estimate_record(est)
-    rec["n_shots"] = est.n_shots
-    rec["left_out_small"] = len(configs) - len(usable)
+    rec.update({"n_shots": est.n_shots, "n_effective": est.n_effective, "common": est.common,
+                "groups": [{"n_plus": a, "n_minus": b, "shots": n} for a, b, n in est.groups],
+                "left_out_small": len(configs) - len(keep), "imaging": est.imaging})
     return rec
 
 
-def onset_verdict(times: np.ndarray, records: list[dict], time_unit: str) -> str:
-    """Plain-language statement of whether, and from when, the gas is at negative temperature.
+def systematics(central: dict, variations: dict) -> dict:
+    """The systematics budget of an ensemble: shifts of beta~ N, per source and in total.
 
-    The onset is the earliest output time from which at least 80% of the frames with a defined
-    beta have their 95% interval entirely below zero (a frame-by-frame criterion; the
-    confidence quoted is the mean posterior probability of beta < 0 over those frames).
+    ``variations`` maps a source name to ``(values, records)``: the values it was varied to
+    and the ensemble record of each. A source's shift is (min(0, lowest - central),
+    max(0, highest - central)) over its values; the total adds the sources' shifts in
+    quadrature on each side. A variation whose estimate is a bound or undefined is listed and
+    left out of the shift.
+
+    Units: shifts in beta~ N (dimensionless); values in the source's unit.
     """
-    times = np.asarray(times, dtype=float)
-    upper = np.array([r["beta_ci95"][1] for r in records], dtype=float)
-    pneg = np.array([r.get("prob_negative", math.nan) for r in records], dtype=float)
-    defined = np.isfinite(upper)
-    if not defined.any():
-        return "No frame has two or more vortices inside the fluid: no temperature can be given."
-    negative = defined & (upper < 0)
-    for k in range(len(records)):
-        tail = defined[k:]
-        if tail.sum() >= 2 and negative[k:][tail].mean() >= 0.8 and negative[k]:
-            conf = float(np.nanmean(pneg[k:][tail]))
-            return (f"Negative temperature (clustered vortices) from t = {times[k]:.4g} "
-                    f"{time_unit} on: the 95% interval of beta lies below zero in "
-                    f"{int(negative[k:].sum())} of {int(tail.sum())} frames from then, mean "
-                    f"P(beta < 0) = {100 * conf:.0f}%.")
-    n_neg, n_def = int(negative.sum()), int(defined.sum())
-    positive = defined & np.array([r["beta_ci95"][0] > 0 for r in records])
-    if positive[defined].mean() >= 0.8:
-        return (f"Positive temperature: the 95% interval of beta lies above zero in "
-                f"{int(positive.sum())} of {n_def} frames; the vortices stay paired, no "
-                "negative-temperature clustering.")
-    return (f"No sustained negative temperature: {n_neg} of {n_def} frames have beta < 0 at "
-            "95% confidence; the sign is not resolved in the rest.")
-
-
-# ------------------------------------------------------------------------------------------
-# a run's frames
-# ------------------------------------------------------------------------------------------
-def _gas_by_frame(table: np.ndarray, frames, vd) -> dict:
-    """Each frame's detected vortices mapped onto the point-vortex domain (gas.py's rules)."""
     out = {}
-    for f in sorted(set(frames)):
-        rows = table[table["frame"] == f]
-        out[f] = gas_configuration(rows["x"], rows["y"], rows["sign"], vd)
+    c = central.get("beta_n", math.nan)
+    down2 = up2 = 0.0
+    for name, (values, records) in variations.items():
+        got = [r.get("beta_n", math.nan) for r in records]
+        usable = [g for g, r in zip(got, records) if math.isfinite(g) and not r.get("bound")]
+        lo = min([0.0] + [g - c for g in usable]) if math.isfinite(c) else math.nan
+        hi = max([0.0] + [g - c for g in usable]) if math.isfinite(c) else math.nan
+        out[name] = {"values": list(values), "beta_n": got, "shift": [lo, hi],
+                     "left_out": len(got) - len(usable)}
+        if math.isfinite(lo):
+            down2 += lo * lo
+            up2 += hi * hi
+    out["total"] = [-math.sqrt(down2), math.sqrt(up2)] if math.isfinite(c) else [math.nan] * 2
     return out
 
 
+def onset_verdict(times: np.ndarray, records: list[dict], time_unit: str,
+                  after: float | None = None) -> str:
+    """Plain-language statement of whether, and from when, the gas is at negative temperature.
+
+    The onset is the earliest output time (at or after ``after``, the end of the drive) from
+    which at least 80% of the frames with a defined beta have their 95% interval entirely below
+    zero; the onset frame itself must be a measurement, not a bound (a frame whose energy lies
+    beyond the widest ladder says only that beta is below something). Frames while the beams
+    are on are not used: a driven gas is not in equilibrium.
+    """
+    times = np.asarray(times, dtype=float)
+    use = np.ones(len(records), bool) if after is None else times >= after - 1e-9
+    upper = np.array([r["beta_ci95"][1] for r in records], dtype=float)
+    lower = np.array([r["beta_ci95"][0] for r in records], dtype=float)
+    pneg = np.array([r.get("prob_negative", math.nan) for r in records], dtype=float)
+    measured = np.array([not r.get("bound") for r in records])
+    defined = np.isfinite(upper) & use
+    driven = "" if after is None else f" (frames from t = {after:.4g} {time_unit} on, after the drive)"
+    if not defined.any():
+        return ("No frame" + driven + " has two or more vortices inside the fluid: no "
+                "temperature can be given.")
+    negative = defined & (upper < 0)
+    for k in range(len(records)):
+        tail = defined[k:]
+        if tail.sum() >= 2 and negative[k:][tail].mean() >= 0.8 and negative[k] and measured[k]:
+            conf = float(np.nanmean(pneg[k:][tail]))
+            return (f"Negative temperature (clustered vortices) from t = {times[k]:.4g} "
+                    f"{time_unit} on{driven}: the 95% interval of beta lies below zero in "
+                    f"{int(negative[k:].sum())} of {int(tail.sum())} frames from then, mean "
+                    f"P(beta < 0) = {100 * conf:.0f}%.")
+    n_neg, n_def = int(negative.sum()), int(defined.sum())
+    positive = defined & (lower > 0)
+    if positive[defined].mean() >= 0.8:
+        return (f"Positive temperature{driven}: the 95% interval of beta lies above zero in "
+                f"{int(positive.sum())} of {n_def} frames; the vortices stay paired, no "
+                "negative-temperature clustering.")
+    return (f"No sustained negative temperature{driven}: {n_neg} of {n_def} frames have beta "
+            "< 0 at 95% confidence; the sign is not resolved in the rest.")
+
+
+# ------------------------------------------------------------------------------------------
+# a run's frames: which, how correlated
+# ------------------------------------------------------------------------------------------
+def drive_end(protocol) -> tuple[float | None, str]:
+    """When the last beam has switched off (hbar/mu), or None with the reason.
+
+    Units: hbar/mu.
+    """
+    if not protocol.beams:
+        return 0.0, "no beams: every frame"
+    ends = [b.ramp.off_time + b.ramp.off_duration if b.ramp.off_time is not None else None
+            for b in protocol.beams]
+    if any(e is None for e in ends):
+        return None, "a beam never switches off"
+    return float(max(ends)), ""
+
+
+def ensemble_frames(times: np.ndarray, *, at_time: float | None = None,
+                    window: tuple[float, float] | None = None, default: str = "after_drive",
+                    after: float | None = None, source: str = "run",
+                    unit: str = "hbar/mu") -> list[int]:
+    """The frames that form a run's ensemble.
+
+    Parameters
+    ----------
+    times : output times of the run, in ``unit`` (hbar/mu unless said otherwise).
+    at_time : the one frame nearest to this time; a time outside the run's frames is an error.
+    window : every frame with ``t0 <= t <= t1``; a window with no frame is an error.
+    default : what neither means: ``"after_drive"`` (every frame at or after ``after``, the
+        time the last beam has switched off; the last third of the frames when ``after`` is
+        None, i.e. a beam never switches off), ``"last_third"`` or ``"last"`` (the final frame).
+
+    Frames of one run are correlated: :func:`series_weights` counts them.
+    """
+    times = np.asarray(times, dtype=float)
+    if len(times) == 0:
+        raise VorthermError(f"{source}: the run file holds no frames")
+    span = f"frames span {times[0]:.4g}..{times[-1]:.4g} {unit}"
+    if window is not None:
+        t0, t1 = float(window[0]), float(window[1])
+        if not t0 <= t1:
+            raise VorthermError(f"{source}: window {t0:.4g}..{t1:.4g} {unit} ends before it "
+                                "starts; give the earlier time first")
+        frames = [i for i, t in enumerate(times) if t0 - 1e-9 <= t <= t1 + 1e-9]
+        if not frames:
+            raise VorthermError(f"{source}: no frame in the window {t0:.4g}..{t1:.4g} {unit} "
+                                f"({span})")
+        return frames
+    if at_time is not None:
+        step = float(np.median(np.diff(times))) if len(times) > 1 else 0.0
+        if not times[0] - 0.5 * step - 1e-9 <= at_time <= times[-1] + 0.5 * step + 1e-9:
+            raise VorthermError(f"{source}: time {at_time:.4g} {unit} is outside the run "
+                                f"({span})")
+        return [int(np.argmin(np.abs(times - at_time)))]
+    if default == "last":
+        return [len(times) - 1]
+    if default == "after_drive" and after is not None:
+        frames = [i for i, t in enumerate(times) if t >= after - 1e-9]
+        if not frames:
+            raise VorthermError(f"{source}: no frame after the drive ends at t = {after:.4g} "
+                                f"{unit} ({span}); choose a window")
+        return frames
+    if default in ("last_third", "after_drive"):
+        last = max(1, len(times) // 3)
+        return list(range(len(times) - last, len(times)))
+    raise VorthermError(f"ensemble default {default!r}; accepted: 'after_drive', 'last_third', "
+                        "'last'")
+
+
+def series_weights(configs, domain) -> tuple[np.ndarray, float]:
+    """Weights 1/tau_int for the frames of one run, and tau_int.
+
+    tau_int is the integrated autocorrelation time (thermo.autocorr, Sokal's window) of the
+    energy per vortex along the frames; a series of n frames is worth n / tau_int independent
+    shots. Frames with fewer than two vortices are skipped for the series; fewer than 4 usable
+    frames count as independent (tau too uncertain to estimate; said in the record).
+
+    Units: tau_int in frames.
+    """
+    e = np.array([energy(p, s, domain) / len(s) for p, s in configs if len(s) >= 2])
+    tau = integrated_autocorr_time(e) if e.size >= 4 else math.nan
+    tau = max(1.0, tau) if math.isfinite(tau) else 1.0
+    return np.full(len(configs), 1.0 / tau), float(tau)
+
+
+@dataclass(frozen=True)
+class RunSeries:
+    """One run's frames as the thermometry needs them: times, vortex table, trap, protocol."""
+
+    path: str
+    protocol: object
+    times: np.ndarray
+    table: np.ndarray
+    complete: bool
+
+    @classmethod
+    def read(cls, run_path) -> "RunSeries":
+        with RunFile.open(run_path, "r") as run:
+            return cls(str(run_path), protocol_of(run), np.asarray(run.frame_times()),
+                       run.read_vortices(), run.is_complete())
+
+    def frames(self, *, at_time=None, window=None, default="after_drive", time_unit="tau"):
+        """:func:`ensemble_frames` with times in ``time_unit`` ("tau" = hbar/mu, or "ms")."""
+        if time_unit not in ("tau", "ms"):
+            raise VorthermError(f"time unit {time_unit!r}; accepted: 'tau', 'ms'")
+        conv = self.protocol.units.time_to_ms if time_unit == "ms" else (lambda t: t)
+        end, _ = drive_end(self.protocol)
+        return ensemble_frames(conv(self.times), at_time=at_time, window=window,
+                               default=default, after=None if end is None else conv(end),
+                               source=self.path, unit="ms" if time_unit == "ms" else "hbar/mu")
+
+    def gas(self, frames, *, core_xi=CORE_RADIUS_XI, wall_xi=WALL_LAYER_XI, wall_cut=1.0):
+        """(vortex domain, {frame: Admitted}) with these modelling choices (gpe/run/gas.py)."""
+        vd = domain_for_trap(self.protocol.trap, core_xi, wall_xi)
+        out = {}
+        for f in sorted(set(frames)):
+            rows = self.table[self.table["frame"] == f]
+            out[f] = gas_configuration(rows["x"], rows["y"], rows["sign"], vd, wall_cut=wall_cut)
+        return vd, out
+
+
 def run_ensemble(run_path, *, at_time: float | None = None,
-                 window: tuple[float, float] | None = None, default: str = "last",
+                 window: tuple[float, float] | None = None, default: str = "after_drive",
                  time_unit: str = "tau"):
     """The vortex configurations of a run's ensemble (:func:`ensemble_frames`), read once.
 
@@ -154,126 +328,148 @@ def run_ensemble(run_path, *, at_time: float | None = None,
     (vortex_domain, configurations, protocol); configurations are (positions, signs) pairs in
     domain units.
     """
-    with RunFile.open(run_path, "r") as run:
-        protocol = protocol_of(run)
-        times = np.asarray(run.frame_times())
-        table = run.read_vortices()
-    if time_unit not in ("tau", "ms"):
-        raise VorthermError(f"time unit {time_unit!r}; accepted: 'tau', 'ms'")
-    shown = protocol.units.time_to_ms(times) if time_unit == "ms" else times
-    frames = ensemble_frames(shown, at_time=at_time, window=window, default=default,
-                             source=str(run_path), unit="ms" if time_unit == "ms" else "hbar/mu")
-    vd = domain_for_trap(protocol.trap)
-    gas = _gas_by_frame(table, frames, vd)
-    return vd, [(gas[f].positions, gas[f].signs) for f in frames], protocol
+    series = RunSeries.read(run_path)
+    frames = series.frames(at_time=at_time, window=window, default=default, time_unit=time_unit)
+    vd, gas = series.gas(frames)
+    return vd, [(gas[f].positions, gas[f].signs) for f in frames], series.protocol
 
 
-def ensemble_frames(times: np.ndarray, *, at_time: float | None = None,
-                    window: tuple[float, float] | None = None, default: str = "last_third",
-                    source: str = "run", unit: str = "hbar/mu") -> list[int]:
-    """The frames that form a run's ensemble.
-
-    Parameters
-    ----------
-    times : output times of the run, in ``unit`` (hbar/mu unless said otherwise).
-    at_time : the one frame nearest to this time.
-    window : every frame with ``t0 <= t <= t1``.
-    default : what neither means: ``"last_third"`` (the last third of the frames, where a
-        stirred gas has settled, if ever) or ``"last"`` (the final frame).
-
-    Consecutive frames of one run are correlated; an interval over several of them is
-    optimistic (say so when quoting it).
-    """
-    times = np.asarray(times, dtype=float)
-    if len(times) == 0:
-        raise VorthermError(f"{source}: the run file holds no frames")
-    if window is not None:
-        frames = [i for i, t in enumerate(times) if window[0] - 1e-9 <= t <= window[1] + 1e-9]
-        if not frames:
-            raise VorthermError(f"{source}: no frame in the window {window[0]:.4g}..{window[1]:.4g} "
-                                f"{unit} (frames span {times[0]:.4g}..{times[-1]:.4g} {unit})")
-        return frames
-    if at_time is not None:
-        return [int(np.argmin(np.abs(times - at_time)))]
-    if default == "last":
-        return [len(times) - 1]
-    if default == "last_third":
-        last = max(1, len(times) // 3)
-        return list(range(len(times) - last, len(times)))
-    raise VorthermError(f"ensemble default {default!r}; accepted: 'last_third', 'last'")
-
-
-def _ensemble_of(configs, left_out, vd, frames, *, effort, cache_dir) -> dict:
-    rec = ensemble_record(configs, vd.domain, vd.core_radius, effort=effort, cache_dir=cache_dir)
-    rec.update({
-        "n_plus": float(np.mean([np.sum(s > 0) for _, s in configs])),
-        "n_minus": float(np.mean([np.sum(s < 0) for _, s in configs])),
-        "frames": len(frames),
-        "left_out_wall": int(sum(w for w, _ in left_out)),
-        "left_out_pairs": int(sum(p for _, p in left_out)),
-        "approximation": vd.approximate,
-    })
+def _pooled(series_frames, *, common, effort, cache_dir, core_xi=CORE_RADIUS_XI,
+            wall_xi=WALL_LAYER_XI, wall_cut=1.0) -> dict:
+    """The ensemble of several runs' frames: each run a correlated series, runs independent."""
+    configs, weights, taus, left_wall, left_pairs, vd = [], [], [], 0, 0, None
+    for series, frames in series_frames:
+        vd, gas = series.gas(frames, core_xi=core_xi, wall_xi=wall_xi, wall_cut=wall_cut)
+        cs = [(gas[f].positions, gas[f].signs) for f in frames]
+        w, tau = series_weights(cs, vd.domain)
+        configs += cs
+        weights += list(w)
+        taus.append(tau)
+        left_wall += sum(gas[f].left_out_wall for f in frames)
+        left_pairs += sum(gas[f].left_out_pairs for f in frames)
+    rec = ensemble_record(configs, vd.domain, vd.core_radius, weights=weights, common=common,
+                          effort=effort, cache_dir=cache_dir)
+    rec.update({"frames": len(configs), "runs": len(series_frames), "tau_frames": taus,
+                "left_out_wall": left_wall, "left_out_pairs": left_pairs,
+                "approximation": vd.approximate})
     for key in ("dipole_fraction", "cluster_fraction", "free_fraction", "energy_per_vortex"):
         rec.setdefault(key, math.nan)
     return rec
 
 
+def _with_systematics(rec, compute, *, choices) -> dict:
+    """Add ``systematics`` to an ensemble record: ``compute(**choice)`` for every variation."""
+    variations = {}
+    for name, (values, key, central_value) in choices.items():
+        records = []
+        for v in values:
+            try:
+                records.append(compute(**{key: v}))
+            except VorthermError as exc:     # e.g. no frame left with two vortices
+                records.append({"beta_n": math.nan, "verdict": str(exc)})
+        variations[name] = ([central_value] + list(values), [rec] + records)
+    rec["systematics"] = systematics(rec, {k: (v[0][1:], v[1][1:]) for k, v in variations.items()})
+    for name, (values, _, central_value) in choices.items():
+        rec["systematics"][name]["central"] = central_value
+    return rec
+
+
+def _run_choices() -> dict:
+    return {"core_radius_xi": ([CORE_RADIUS_XI * f for f in CORE_FACTORS], "core_xi",
+                               CORE_RADIUS_XI),
+            "wall_layer_xi": (list(WALL_LAYERS_XI), "wall_xi", WALL_LAYER_XI),
+            "wall_cut": (list(WALL_CUTS), "wall_cut", 1.0)}
+
+
+def pooled_ensemble(run_paths, *, time: float | None = None, window=None,
+                    default: str = "after_drive", time_unit: str = "tau",
+                    common: str = "beta_n", effort: str = DEFAULT_EFFORT, cache_dir=None,
+                    systematics: bool = False) -> dict:
+    """The ensemble record of one or more runs (e.g. the seeds of one sweep point).
+
+    Every run is an independent series; the frames of one run are correlated and weighted by
+    :func:`series_weights`. Times in ``time_unit`` ("tau" = hbar/mu, or "ms"); neither
+    ``time`` nor ``window`` means :func:`ensemble_frames`'s default.
+    """
+    chosen = []
+    for path in run_paths:
+        series = RunSeries.read(path)
+        chosen.append((series, series.frames(at_time=time, window=window, default=default,
+                                             time_unit=time_unit)))
+
+    def compute(**choice):
+        return _pooled(chosen, common=common, effort=effort, cache_dir=cache_dir, **choice)
+
+    rec = compute()
+    first, frames = chosen[0]
+    shown = first.protocol.display_time(first.times)
+    rec["window"] = [float(shown[frames[0]]), float(shown[frames[-1]])]
+    if systematics and math.isfinite(rec.get("beta_n", math.nan)):
+        rec = _with_systematics(rec, compute, choices=_run_choices())
+    return rec
+
+
 def temperature_of_run(run_path, *, frames=None, at_time: float | None = None,
-                       window: tuple[float, float] | None = None, ensemble_default: str = "last_third",
-                       per_frame: bool = True, effort: str = "quick", cache_dir=None) -> dict:
+                       window: tuple[float, float] | None = None, time_unit: str = "tau",
+                       ensemble_default: str = "after_drive", per_frame: bool = True,
+                       common: str = "beta_n", effort: str = DEFAULT_EFFORT, cache_dir=None,
+                       systematics: bool = True) -> dict:
     """Thermometry of a run file: beta of every chosen frame and of the run's ensemble.
 
     Parameters
     ----------
     frames : frames that get a per-frame estimate (None, a slice or a list; default all).
     at_time, window, ensemble_default : which frames form the ensemble
-        (:func:`ensemble_frames`; times in hbar/mu).
+        (:func:`ensemble_frames`; times in ``time_unit``: "tau" = hbar/mu, or "ms").
     per_frame : False skips the per-frame estimates (sweeps need only the ensemble).
+    common : what the vortex-number groups of the ensemble share ("beta_n" or "beta").
     effort : density-of-states effort (quick, standard, thorough).
+    systematics : add the systematics budget to the ensemble (re-estimates it five times).
 
     Returns
     -------
     dict with ``records`` (one per frame, times in the protocol's display unit), ``ensemble``
-    (with its ``window`` in that unit), ``onset`` (plain-language verdict), ``time_unit``,
+    (with its ``window`` in that unit, ``n_effective``, ``tau_frames``, ``groups``,
+    ``systematics``), ``onset`` (plain-language verdict), ``time_unit``, ``drive_end``,
     ``approximation``, ``domain``, and the run's state: ``run_complete``, ``frames_stored``,
     ``frames_planned`` (the protocol's outputs, t = 0 included) and ``incomplete`` (a note
     saying how many frames exist of how many are planned; empty for a complete run): the input
     of gpe/run/report.py.
 
-    Units: times in hbar/mu in, the protocol's display unit out; beta in 1/E0.
+    Units: times in ``time_unit`` in, the protocol's display unit out; beta in 1/E0.
     """
-    with RunFile.open(run_path, "r") as run:
-        protocol = protocol_of(run)
-        times = np.asarray(run.frame_times())
-        table = run.read_vortices()
-        complete = run.is_complete()
+    series = RunSeries.read(run_path)
+    protocol, times = series.protocol, series.times
     planned = protocol.evolution.n_outputs + 1
-    note = "" if complete else incomplete_note(
+    note = "" if series.complete else incomplete_note(
         len(times), planned, protocol.display_time(times[-1]) if len(times) else 0.0,
         protocol.display_time(protocol.evolution.n_outputs * protocol.evolution.output_interval),
         protocol.time_unit)
-    vd = domain_for_trap(protocol.trap)
     unit = protocol.time_unit
     chosen = select_frames(run_path, frames, len(times)) if per_frame else []
-    ens_frames = ensemble_frames(times, at_time=at_time, window=window, default=ensemble_default,
-                                 source=str(run_path))
-    gas = _gas_by_frame(table, set(chosen) | set(ens_frames), vd)
+    ens_frames = series.frames(at_time=at_time, window=window, default=ensemble_default,
+                               time_unit=time_unit)
+    vd, gas = series.gas(set(chosen) | set(ens_frames))
     records = configuration_records([(gas[f].positions, gas[f].signs) for f in chosen],
                                     vd.domain, vd.core_radius, effort=effort, cache_dir=cache_dir)
     t_user = protocol.display_time(times)
     for rec, f in zip(records, chosen):
         rec.update({"frame": f, "t": float(t_user[f]), "left_out_wall": gas[f].left_out_wall,
                     "left_out_pairs": gas[f].left_out_pairs})
-    ensemble = _ensemble_of([(gas[f].positions, gas[f].signs) for f in ens_frames],
-                            [(gas[f].left_out_wall, gas[f].left_out_pairs) for f in ens_frames],
-                            vd, ens_frames, effort=effort, cache_dir=cache_dir)
-    ensemble["window"] = [float(t_user[ens_frames[0]]), float(t_user[ens_frames[-1]])]
-    onset = onset_verdict(t_user[chosen], records, unit) if per_frame else ensemble["verdict"]
+    ensemble = pooled_ensemble([run_path], window=None if window is None else window,
+                               time=at_time, default=ensemble_default, time_unit=time_unit,
+                               common=common, effort=effort, cache_dir=cache_dir,
+                               systematics=systematics)
+    end, why = drive_end(protocol)
+    after = None if end is None else float(protocol.display_time(end))
+    onset = (onset_verdict(t_user[chosen], records, unit, after=after) if per_frame
+             else ensemble["verdict"])
     return {"kind": "run", "source": str(run_path), "time_key": "t", "time_unit": unit,
             "records": records, "ensemble": ensemble, "onset": onset,
+            "drive_end": after, "drive_note": why,
             "approximation": vd.approximate, "domain": vd.domain.kind,
-            "run_complete": complete, "frames_stored": len(times), "frames_planned": planned,
-            "incomplete": note}
+            "run_complete": series.complete, "frames_stored": len(times),
+            "frames_planned": planned, "incomplete": note}
 
 
 def incomplete_note(n_stored: int, n_planned: int, t_last: float, t_end: float,
@@ -295,38 +491,71 @@ def incomplete_note(n_stored: int, n_planned: int, t_last: float, t_end: float,
             "(`vortherm run --resume RUN.h5` continues a stopped run)")
 
 
+def _table_choices(table) -> dict:
+    return {"core_radius": ([table.core_radius * f for f in CORE_FACTORS], "core",
+                            table.core_radius),
+            "domain_radius": ([1.0 / s for s in DOMAIN_SCALES], "scale_inv", 1.0),
+            "wall_cut": (list(WALL_CUTS), "wall_cut", 1.0)}
+
+
 def temperature_of_table(path, *, shape: str | None = None, radius_um: float | None = None,
                          width_um: float | None = None, height_um: float | None = None,
                          core_um: float | None = None, pixel_um: float | None = None,
-                         center_px=None, strict: bool = False, effort: str = "quick",
-                         cache_dir=None) -> dict:
+                         center_px=None, strict: bool = False, imaging_um: dict | None = None,
+                         common: str = "beta_n", effort: str = DEFAULT_EFFORT, cache_dir=None,
+                         systematics: bool = True) -> dict:
     """Thermometry of a measured vortex table: beta of every shot and of the ensemble of shots.
 
     Geometry options override the TOML beside the table (thermo/data/geometry.py); the core
-    radius defaults to 2% of the domain size. Returns the same kind of dict as
+    radius defaults to 2% of the domain size (thermo.data.measured.DEFAULT_CORE). The imaging
+    model is the ``[imaging]`` table of the geometry TOML, overridden key by key by
+    ``imaging_um`` (keys of thermo.data.geometry.IMAGING_KEYS); without one, the estimate is of
+    the imaged configurations and the record says so. Shots are independent (weights 1). Returns the same kind of dict as
     :func:`temperature_of_run`, keyed by shot.
     """
     table = read_measured(path, shape=shape, radius_um=radius_um, width_um=width_um,
                           height_um=height_um, core_um=core_um, pixel_um=pixel_um,
-                          center_px=center_px, strict=strict)
-    core = table.core_radius if table.core_radius is not None else DEFAULT_TABLE_CORE
-    configs = table.configurations
-    records = configuration_records(configs, table.domain, core, effort=effort, cache_dir=cache_dir)
-    for rec, shot in zip(records, table.shot_ids):
-        rec["shot"] = shot
-    ensemble = ensemble_record(configs, table.domain, core, effort=effort, cache_dir=cache_dir)
+                          center_px=center_px, strict=strict, imaging_um=imaging_um)
+    model = table.geometry.imaging_model()
+    core = table.core_radius
+    records = configuration_records(table.configurations, table.domain, core, effort=effort,
+                                    cache_dir=cache_dir)
+    for rec, shot, kept in zip(records, table.shot_ids, table.admitted):
+        rec.update({"shot": shot, "left_out_wall": kept.left_out_wall,
+                    "left_out_pairs": kept.left_out_pairs})
+
+    def compute(core=core, scale_inv=1.0, wall_cut=1.0):
+        kept = table.admitted_with(core, wall_cut=wall_cut, scale=1.0 / scale_inv)
+        rec = ensemble_record([(a.positions, a.signs) for a in kept], table.domain, core,
+                              common=common, imaging=model, effort=effort, cache_dir=cache_dir)
+        rec["left_out_wall"] = int(sum(a.left_out_wall for a in kept))
+        rec["left_out_pairs"] = int(sum(a.left_out_pairs for a in kept))
+        return rec
+
+    ensemble = compute()
+    ensemble["core_radius"] = core
+    ensemble["core_given"] = table.core_given
+    ensemble["imaging_um"] = dict(table.geometry.imaging_um)
+    if model is None:
+        ensemble["imaging_note"] = ("no imaging model: beta describes the configurations as "
+                                    "imaged (blur, lost or wrong-sign vortices shift it); give "
+                                    "one with the [imaging] table of the geometry file or the "
+                                    "--blur-um/--sign-error options")
+    if systematics and math.isfinite(ensemble.get("beta_n", math.nan)):
+        ensemble = _with_systematics(ensemble, compute, choices=_table_choices(table))
     return {"kind": "measured", "source": str(path), "time_key": "shot", "time_unit": "",
             "records": records, "ensemble": ensemble, "onset": ensemble["verdict"],
             "approximation": "", "domain": table.domain.kind,
             "problems": [str(p) for p in table.problems]}
 
 
-def analyse(run_path, *, time: float | None = None, window=None, effort: str = "quick",
-            cache_dir=None) -> dict:
-    """The ensemble record of a run at one time (nearest frame) or over a window (sweeps).
+def analyse(run_path, *, time: float | None = None, window=None, effort: str = DEFAULT_EFFORT,
+            cache_dir=None, systematics: bool = False) -> dict:
+    """The ensemble record of one run at one time (nearest frame) or over a window (sweeps).
 
-    Times in hbar/mu; neither given means the final frame. The same policy as
-    :func:`temperature_of_run`, without the per-frame estimates.
+    Times in hbar/mu; neither given means the frames after the drive
+    (:func:`ensemble_frames`). The same policy as :func:`temperature_of_run`, without the
+    per-frame estimates.
     """
-    return temperature_of_run(run_path, at_time=time, window=window, ensemble_default="last",
-                              per_frame=False, effort=effort, cache_dir=cache_dir)["ensemble"]
+    return pooled_ensemble([run_path], time=time, window=window, effort=effort,
+                           cache_dir=cache_dir, systematics=systematics)

@@ -13,6 +13,15 @@ arguments override the file key by key. Accepted TOML keys::
     pixel_um = 0.8          # only if the table is in pixels
     center_px = [256.0, 240.0]
 
+    [imaging]               # optional: how the imaging degrades the configurations
+    blur_um = 0.5           # rms position error per coordinate
+    resolution_um = 0.0     # pairs closer than this are lost (opposite) or merged (like)
+    edge_loss_um = 0.0      # vortices this close to the wall are missed
+    sign_error = 0.02       # probability that a sign is recorded wrongly, 0 <= p < 0.5
+
+With an ``[imaging]`` table the thermometry pushes its reference ensembles through that model
+(thermo.imaged), so beta refers to the gas before imaging.
+
 Tables and geometry files are UTF-8 text, with or without a byte-order mark; other encodings
 are refused by file, line and byte (:func:`read_utf8_text`), never guessed.
 
@@ -35,12 +44,15 @@ from typing import Any, Sequence
 
 import numpy as np
 
+from thermo.data.degrade import ImagingModel
 from thermo.domains.base import Domain
 from thermo.domains.kinds import domain_class, domain_classes
 from thermo.errors import DomainError, MeasuredTableError
 
 GEOMETRY_KEYS = ("shape", "radius_um", "width_um", "height_um", "core_um", "pixel_um",
-                 "center_px")
+                 "center_px", "imaging")
+#: keys of the [imaging] table (lengths in um; sign_error a probability)
+IMAGING_KEYS = ("blur_um", "resolution_um", "edge_loss_um", "sign_error")
 # Byte-order marks of encodings other than UTF-8 (UTF-32 LE first: it begins with UTF-16 LE's).
 _OTHER_BOMS = ((codecs.BOM_UTF32_LE, "UTF-32"), (codecs.BOM_UTF32_BE, "UTF-32"),
                (codecs.BOM_UTF16_LE, "UTF-16"), (codecs.BOM_UTF16_BE, "UTF-16"))
@@ -97,8 +109,9 @@ class Geometry:
     shape : the kind name of a thermo domain, ``"disk"`` or ``"box"``.
     radius_um : disk radius; width_um, height_um : box sides (x and y).
     core_um : vortex core radius, ``None`` if not known.
+    imaging_um : the ``[imaging]`` table as ((key, value), ...) (empty: no imaging model).
 
-    Units: micrometres.
+    Units: micrometres (sign_error a probability).
     """
 
     shape: str
@@ -106,6 +119,18 @@ class Geometry:
     width_um: float | None = None
     height_um: float | None = None
     core_um: float | None = None
+    imaging_um: tuple = ()
+
+    def imaging_model(self):
+        """The ``[imaging]`` table as a thermo.data.degrade.ImagingModel in scaled units, or
+        None when there is none (or all its values are zero)."""
+        vals = dict(self.imaging_um)
+        if not any(vals.values()):
+            return None
+        return ImagingModel.from_um(self.length_scale_um, blur_um=vals.get("blur_um", 0.0),
+                                    resolution_um=vals.get("resolution_um", 0.0),
+                                    edge_loss_um=vals.get("edge_loss_um", 0.0),
+                                    sign_flip=vals.get("sign_error", 0.0))
 
     def __post_init__(self) -> None:
         for key in _size_keys(self.shape):
@@ -228,7 +253,32 @@ def read_geometry_file(path: str | Path) -> dict[str, Any]:
                 and all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in c)):
             raise MeasuredTableError(
                 f"{path}: center_px must be a list of two numbers [x, y]; got {c!r}")
+    if "imaging" in data:
+        data["imaging"] = check_imaging(data["imaging"], f"{path}: [imaging]")
     return data
+
+
+def check_imaging(table: Any, where: str) -> dict[str, float]:
+    """Check an imaging table (keys IMAGING_KEYS): lengths >= 0, 0 <= sign_error < 0.5.
+
+    ``where`` names the file or option in the error. Units: um; sign_error a probability.
+    """
+    if not isinstance(table, dict):
+        raise MeasuredTableError(f"{where} must be a table of {list(IMAGING_KEYS)}; got {table!r}")
+    unknown = sorted(set(table) - set(IMAGING_KEYS))
+    if unknown:
+        raise MeasuredTableError(f"{where}: unknown key(s) {unknown}; accepted: {list(IMAGING_KEYS)}")
+    out = {}
+    for key, v in table.items():
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+            raise MeasuredTableError(f"{where}: {key} must be a number; got {v!r}")
+        if key == "sign_error" and not 0.0 <= v < 0.5:
+            raise MeasuredTableError(f"{where}: sign_error = {v:g} is not a probability in "
+                                     "[0, 0.5) (half the signs wrong or more carries no charge)")
+        if key != "sign_error" and v < 0:
+            raise MeasuredTableError(f"{where}: {key} = {v:g} must be >= 0 um")
+        out[key] = float(v)
+    return out
 
 
 def resolve_geometry(table_path: str | Path, *, shape: str | None = None,
@@ -236,12 +286,14 @@ def resolve_geometry(table_path: str | Path, *, shape: str | None = None,
                      height_um: float | None = None, core_um: float | None = None,
                      pixel_um: float | None = None,
                      center_px: Sequence[float] | None = None,
-                     geometry_file: str | Path | None = None
+                     geometry_file: str | Path | None = None,
+                     imaging_um: dict | None = None
                      ) -> tuple[Geometry, PixelCalibration | None]:
     """Combine keyword geometry with the TOML beside the table (keywords win).
 
     ``shape`` defaults to ``"disk"`` when a radius is known, ``"box"`` when width and
-    height are. Returns the geometry and the pixel calibration (None for tables in um).
+    height are. ``imaging_um`` (keys IMAGING_KEYS) overrides the file's ``[imaging]`` key by
+    key. Returns the geometry and the pixel calibration (None for tables in um).
 
     Units: micrometres; center_px in pixels.
     """
@@ -269,7 +321,9 @@ def resolve_geometry(table_path: str | Path, *, shape: str | None = None,
     geometry = Geometry(shape=str(shp),
                         **{k: _opt_float(merged.get(k)) if k in sizes else None
                            for k in ("radius_um", "width_um", "height_um")},
-                        core_um=_opt_float(merged.get("core_um")))
+                        core_um=_opt_float(merged.get("core_um")),
+                        imaging_um=tuple(sorted({**data.get("imaging", {}), **check_imaging(
+                            imaging_um or {}, "imaging options")}.items())))
     calib = None
     if merged.get("pixel_um") is not None or merged.get("center_px") is not None:
         if merged.get("pixel_um") is None or merged.get("center_px") is None:

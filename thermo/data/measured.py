@@ -278,7 +278,7 @@ def read_measured(path: str | Path, *, shape: str | None = None,
                   height_um: float | None = None, core_um: float | None = None,
                   pixel_um: float | None = None, center_px: Sequence[float] | None = None,
                   geometry_file: str | Path | None = None, dataset: str | None = None,
-                  strict: bool = False) -> MeasuredEnsemble:
+                  strict: bool = False, imaging_um: dict | None = None) -> MeasuredEnsemble:
     """Read a measured vortex table (CSV, or HDF5 by suffix .h5/.hdf5) into configurations.
 
     Parameters
@@ -307,7 +307,8 @@ def read_measured(path: str | Path, *, shape: str | None = None,
         raise MeasuredTableError(f"measured table {path} does not exist")
     geometry, calib = resolve_geometry(
         path, shape=shape, radius_um=radius_um, width_um=width_um, height_um=height_um,
-        core_um=core_um, pixel_um=pixel_um, center_px=center_px, geometry_file=geometry_file)
+        core_um=core_um, pixel_um=pixel_um, center_px=center_px, geometry_file=geometry_file,
+        imaging_um=imaging_um)
     is_hdf5 = path.suffix.lower() in (".h5", ".hdf5", ".hdf")
     header, raw_rows = _read_hdf5_rows(path, dataset) if is_hdf5 else _read_csv_rows(path)
     where = "index" if is_hdf5 else "line"

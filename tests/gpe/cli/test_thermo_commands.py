@@ -15,17 +15,33 @@ from gpe.run.runfile import RunFile
 
 def test_temperature_json_has_the_promised_fields(tiny_run, tmp_path, capsys, monkeypatch):
     monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
-    assert main(["temperature", str(tiny_run), "--json", "--csv", str(tmp_path / "t.csv")]) == 0
-    doc = json.loads(capsys.readouterr().out)
+    assert main(["temperature", str(tiny_run), "--json", "--csv", str(tmp_path / "t.csv"),
+                 "--no-systematics"]) == 0
+
+    def refuse(name):
+        raise ValueError(f"{name} in strict JSON")
+
+    # strict JSON (RFC 8259): no NaN or Infinity anywhere
+    doc = json.loads(capsys.readouterr().out, parse_constant=refuse)
     assert len(doc["frames"]) == 6
     for rec in doc["frames"] + [doc["ensemble"]]:
-        for key in ("beta", "beta_ci68", "beta_ci95", "verdict"):
+        for key in ("beta", "beta_ci68", "beta_ci95", "beta_n", "beta_n_ci95", "bound",
+                    "verdict"):
             assert key in rec
+        assert rec["bound"] in (None, "upper", "lower")
+        if rec["beta_n"] is not None and rec["bound"] is None:   # no empty intervals
+            assert None not in rec["beta_n_ci95"]
     for rec in doc["frames"]:
         for key in ("n_plus", "n_minus", "energy_per_vortex"):
             assert key in rec
+    ens = doc["ensemble"]
+    for key in ("n_effective", "groups", "common", "tau_frames", "window"):
+        assert key in ens
+    assert 0 < ens["n_effective"] <= ens["n_shots"]
     assert isinstance(doc["verdict"], str) and doc["verdict"]
-    assert (tmp_path / "t.csv").read_text().startswith("t,frame,")
+    header = (tmp_path / "t.csv").read_text().splitlines()[0].split(",")
+    assert header[:4] == ["t [hbar/mu]", "frame [1]", "n_plus [1]", "n_minus [1]"]
+    assert "beta_n [1]" in header and "bound" in header
 
 
 def _write_table(path, rng, shots=6, n=6, radius_um=30.0):

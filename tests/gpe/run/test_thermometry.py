@@ -144,7 +144,17 @@ def test_run_ensemble_picks_the_frames_of_a_window_in_either_time_unit(tiny_run)
     ms = protocol.units.time_to_ms(np.array([4.0, 8.0]))
     _, ms_configs, _ = run_ensemble(tiny_run, window=(float(ms[0]), float(ms[1])), time_unit="ms")
     assert [len(s) for _, s in ms_configs] == [len(s) for _, s in tau_configs]
-    _, last, _ = run_ensemble(tiny_run)          # neither given: the final frame
+    _, last, _ = run_ensemble(tiny_run, default="last")
     assert len(last) == 1
+    # neither given: the frames after the last beam has switched off; the tiny protocol's beam
+    # never switches off, so the last third of the frames (and the reason is given)
+    from gpe.run.thermometry import drive_end
+
+    end, why = drive_end(protocol)
+    _, after, _ = run_ensemble(tiny_run)
+    assert end is None and "never switches off" in why
+    assert len(after) == len(times) // 3
     with pytest.raises(VorthermError, match=r"no frame in the window .* ms"):
         run_ensemble(tiny_run, window=(1e6, 2e6), time_unit="ms")
+    with pytest.raises(VorthermError, match=r"time 1e\+06 ms is outside the run"):
+        run_ensemble(tiny_run, at_time=1e6, time_unit="ms")

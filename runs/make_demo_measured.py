@@ -89,7 +89,10 @@ def main(argv: list[str] | None = None) -> None:
     args.out.write_text("\n".join(lines) + "\n", encoding="utf-8")
     args.out.with_suffix(".toml").write_text(
         "# geometry of demo_measured.csv (synthetic demo data, see its header)\n"
-        f'shape = "disk"\nradius_um = {RADIUS_UM:g}\ncore_um = {CORE_UM:g}\n',
+        f'shape = "disk"\nradius_um = {RADIUS_UM:g}\ncore_um = {CORE_UM:g}\n'
+        "\n# the imaging model the table went through: the thermometry pushes its reference\n"
+        "# ensembles through it, so beta refers to the gas before imaging\n"
+        f"[imaging]\nblur_um = {BLUR_UM:g}\nsign_error = {SIGN_FLIP:g}\n",
         encoding="utf-8")
     print(f"wrote {args.out} ({len(lines)} lines) and {args.out.with_suffix('.toml')}")
 

@@ -93,6 +93,13 @@ def _cmd_temperature(args) -> int:
                             f"shots are all used; leave out {flag}")
     imaging_um = {key: getattr(args, name) for name, key in IMAGING_OPTIONS
                   if getattr(args, name) is not None}
+    for name, flag in TABLE_OPTIONS:
+        value = getattr(args, name)
+        if name in dict(IMAGING_OPTIONS) and value is not None:
+            limit_ok = 0.0 <= value < 0.5 if name == "sign_error" else value >= 0.0
+            if not limit_ok:
+                accepted = "a probability 0 <= p < 0.5" if name == "sign_error" else "a length >= 0 um"
+                raise VorthermError(f"{flag} {value:g}: accepted is {accepted}; nothing was written")
     refuse_to_overwrite(temperature_outputs(args.source, args.csv, args.plot),
                         inputs=[args.source], force=args.force)
     if run_file:

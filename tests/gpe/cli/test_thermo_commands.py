@@ -240,3 +240,21 @@ def test_compare_keeps_earlier_outputs_unless_forced(one_run, tmp_path, capsys, 
     assert main(["compare", str(one_run), "--measured", str(table), "-o",
                  str(tmp_path / "shots"), "--force"]) == 2
     assert "input" in capsys.readouterr().err
+
+
+def test_bad_imaging_options_and_empty_windows_are_refused_naming_the_option(
+        tmp_path, capsys, rng, tiny_run):
+    """An imaging model with a probability outside [0, 0.5), or a window with no frame, is a
+    clear error that names the option; nothing is written."""
+    table = tmp_path / "shots.csv"
+    _write_table(table, rng)
+    assert main(["temperature", str(table), "--disk-radius-um", "30", "--sign-error", "1.5"]) == 2
+    assert "--sign-error 1.5" in capsys.readouterr().err
+    assert main(["temperature", str(table), "--disk-radius-um", "30", "--blur-um", "-1"]) == 2
+    assert "--blur-um -1" in capsys.readouterr().err
+    assert not (tmp_path / "shots_temperature.csv").exists()
+    # the tiny run is in healing units: no ms scale for --window-ms
+    csv = tmp_path / "run_t.csv"
+    assert main(["temperature", str(tiny_run), "--window-ms", "1e5", "2e5", "--csv", str(csv)]) == 2
+    assert "--window-ms" in capsys.readouterr().err
+    assert not csv.exists()

@@ -78,6 +78,20 @@ def test_onset_verdict_finds_first_sustained_negative_frame():
     assert "3 of 3 frames" in text
 
 
+def test_onset_is_never_decided_by_a_bound_or_by_frames_with_the_beams_on():
+    """A frame whose energy lies beyond the widest ladder is only a bound (beta~N < value): it
+    may support a negative verdict but not date the onset; frames before the drive ends are
+    not used at all (a driven gas is not in equilibrium)."""
+    inf = float("inf")
+    bound = {"beta_ci95": [-inf, -1.2], "prob_negative": 1.0, "bound": "upper"}
+    recs = [_rec(-3, -0.5, 0.99), bound, _rec(-3, -0.5, 0.99), _rec(-3, -0.4, 0.99),
+            _rec(-2, -0.1, 0.98)]
+    t = np.arange(5.0) * 10
+    assert "from t = 0 ms" in onset_verdict(t, recs, "ms")
+    text = onset_verdict(t, recs, "ms", after=10.0)   # the beams are off from t = 10 ms
+    assert "from t = 20 ms" in text and "after the drive" in text
+
+
 def test_onset_verdict_positive_and_undefined():
     recs = [_rec(0.1, 2, 0.0)] * 4
     assert onset_verdict(np.arange(4.0), recs, "ms").startswith("Positive temperature")

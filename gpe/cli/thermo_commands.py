@@ -35,7 +35,9 @@ def register_temperature(sub) -> None:
     p.add_argument("--box-um", type=float, nargs=2, metavar=("LX", "LY"),
                    help="measured table: box sides in um")
     p.add_argument("--core-um", type=float,
-                   help="measured table: vortex core radius in um (default: 2%% of the domain size)")
+                   help="measured table: vortex core radius a in um (default: 2%% of the domain "
+                        "size); vortices within a of the wall, and both of any pair closer than "
+                        "2a (the minimum separation), are left out and counted")
     p.add_argument("--pixel-um", type=float, help="measured table in pixels: pixel size in um")
     p.add_argument("--center", type=float, nargs=2, metavar=("X", "Y"),
                    help="measured table in pixels: trap centre in pixels")

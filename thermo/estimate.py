@@ -11,9 +11,8 @@
       U(theta) = sum_g c_g [S_g - W_g m_g(c_g theta)],   V(theta) = sum_g c_g^2 W_g v_g(c_g theta),
 
   where S_g is the (weighted) sum of the group's statistic, W_g its weight, m_g and v_g the
-  canonical mean and variance of the statistic. The estimate is the root of U, the interval
-  the set {theta: U^2 <= z^2 V} (Rao's score interval; C. R. Rao, Proc. Camb. Phil. Soc. 44, 50
-  (1948)), and P(beta < 0) the confidence distribution Phi(U(0)/sqrt V(0)).
+  canonical mean and variance of the statistic (solved in thermo/fit.py: the root of U, the
+  score interval, P(beta < 0) from the confidence distribution).
 * **Weights.** Shots carry weights w_i <= 1: frames of one simulated run are correlated, and a
   series of n frames with integrated autocorrelation time tau is worth n/tau independent shots;
   each of its frames gets w = 1/tau (gpe/run/thermometry.py), so W_g counts effectively
@@ -48,8 +47,7 @@ from dataclasses import dataclass, field, replace
 from typing import Any, Callable, Sequence
 
 import numpy as np
-from scipy.special import jn_zeros, ndtr
-from scipy.stats import chi2
+from scipy.special import jn_zeros
 
 from thermo.classify import structure_observables
 from thermo.curves import Curves
@@ -57,15 +55,13 @@ from thermo.dos.build import MAX_REACH, DosSettings
 from thermo.dos.cache import load_or_build
 from thermo.dos.model import DensityOfStates
 from thermo.energy import energy_batch, validate_configuration
+from thermo.equilibrium import structure_check
 from thermo.errors import ConfigurationError
+from thermo.fit import Q68, Q95, Z95, Part, level_set, solve, widen
 from thermo.imaged import imaged_curves, reference_groups
 
-STRUCTURE_OBSERVABLES = ("dipole_moment", "c1", "cluster_fraction")
 #: what the groups of an ensemble share: beta~ N or beta~
 COMMON = ("beta_n", "beta")
-_Q68 = float(chi2.ppf(0.682689492, 1))   # = 1: one-sigma level
-_Q95 = float(chi2.ppf(0.95, 1))
-_Z95 = float(np.sqrt(_Q95))
 
 
 @dataclass(frozen=True)
@@ -215,160 +211,6 @@ def signs_of(n_plus: int, n_minus: int) -> np.ndarray:
     return np.concatenate([np.ones(n_plus, int), -np.ones(n_minus, int)])
 
 
-@dataclass(frozen=True)
-class Part:
-    """One group of an ensemble fit: c = d beta / d theta, weight W, statistic sum S."""
-
-    key: tuple[int, int]
-    c: float
-    weight: float
-    total: float
-    curves: Curves
-
-
-@dataclass(frozen=True)
-class Solution:
-    """The fit of theta (beta~ N or beta~): estimate, intervals and how they end."""
-
-    theta: float
-    ci68: tuple[float, float]
-    ci95: tuple[float, float]
-    limit: str          # "", "low" or "high": which end of the ladder the result reaches
-    both_ends: bool     # the interval spans the whole common ladder
-    dos_error: float
-    fisher: float
-    prob_negative: float
-    span: tuple[float, float]
-
-
-def _interp(x, grid, values):
-    return np.interp(x, grid, values)
-
-
-def _connected(inside: np.ndarray, i0: int) -> tuple[int, int]:
-    lo = hi = i0
-    while lo > 0 and inside[lo - 1]:
-        lo -= 1
-    while hi < len(inside) - 1 and inside[hi + 1]:
-        hi += 1
-    return lo, hi
-
-
-def _root(theta, u) -> tuple[float, str]:
-    """Root of an increasing u on the grid: (theta, "") or (edge, "low"/"high")."""
-    if u[0] > 0:
-        return float(theta[0]), "low"
-    if u[-1] < 0:
-        return float(theta[-1]), "high"
-    i = int(np.flatnonzero(u <= 0)[-1]) if np.any(u <= 0) else 0
-    i = min(i, len(u) - 2)
-    du = u[i + 1] - u[i]
-    frac = 0.0 if du == 0 else float(-u[i] / du)
-    return float(theta[i] + min(max(frac, 0.0), 1.0) * (theta[i + 1] - theta[i])), ""
-
-
-def _edges(theta, stat, level, t_hat) -> tuple[float, float, bool, bool]:
-    """The connected set {stat <= level} around t_hat, edges interpolated, and whether it
-    reaches the low / high end of the grid."""
-    inside = stat <= level
-    i0 = int(np.clip(np.searchsorted(theta, t_hat), 0, len(theta) - 1))
-    if not inside[i0]:
-        near = np.flatnonzero(inside)
-        if near.size == 0:
-            return t_hat, t_hat, bool(i0 == 0), bool(i0 == len(theta) - 1)
-        i0 = int(near[np.argmin(np.abs(near - i0))])
-    lo_i, hi_i = _connected(inside, i0)
-
-    def edge(i_in, i_out):
-        x0, x1, y0, y1 = theta[i_in], theta[i_out], stat[i_in], stat[i_out]
-        return float(x0 + (level - y0) * (x1 - x0) / (y1 - y0)) if y1 != y0 else float(x0)
-
-    lo = float(theta[0]) if lo_i == 0 else edge(lo_i, lo_i - 1)
-    hi = float(theta[-1]) if hi_i == len(theta) - 1 else edge(hi_i, hi_i + 1)
-    return lo, hi, lo_i == 0, hi_i == len(theta) - 1
-
-
-def solve(parts: Sequence[Part], n_grid: int = 2001) -> Solution:
-    """Root of the score U(theta) and the score intervals, over the ladder every group covers.
-
-    Units: theta in the parts' parameter (beta~ N for c = 1/N, beta~ for c = 1).
-    """
-    lo = max(p.curves.beta[0] / p.c for p in parts)
-    hi = min(p.curves.beta[-1] / p.c for p in parts)
-    theta = np.linspace(lo, hi, n_grid)
-
-    def score(mean_of):
-        return sum(p.c * (p.total - p.weight * _interp(p.c * theta, p.curves.beta, mean_of(p)))
-                   for p in parts)
-
-    u = score(lambda p: p.curves.mean)
-    v = sum(p.c ** 2 * p.weight * _interp(p.c * theta, p.curves.beta, p.curves.var)
-            for p in parts)
-    v = np.maximum(v, 1e-300)
-    t_hat, side = _root(theta, u)
-    stat = u * u / v
-    lo68, hi68, _, _ = _edges(theta, stat, _Q68, t_hat)
-    lo95, hi95, at_lo, at_hi = _edges(theta, stat, _Q95, t_hat)
-    limit = side or ("low" if at_lo and not at_hi else "high" if at_hi and not at_lo else "")
-    both = at_lo and at_hi
-    n_rep = min(p.curves.mean_reps.shape[0] for p in parts)
-    i0 = int(np.argmin(np.abs(theta)))
-    roots, pneg = [], []
-    for r in range(n_rep):
-        ur = score(lambda p: p.curves.mean_reps[r])
-        tr, sr = _root(theta, ur)
-        if not sr:
-            roots.append(tr)
-        pneg.append(float(ndtr(ur[i0] / np.sqrt(v[i0]))))
-    dos_err = float(np.std(roots, ddof=1)) if len(roots) > 1 else 0.0
-    prob_neg = float(np.mean(pneg)) if pneg else float(ndtr(u[i0] / np.sqrt(v[i0])))
-    fisher = 1.0 / float(np.sqrt(np.interp(t_hat, theta, v)))
-    return Solution(theta=t_hat, ci68=(lo68, hi68), ci95=(lo95, hi95), limit=limit,
-                    both_ends=both, dos_error=dos_err, fisher=fisher,
-                    prob_negative=prob_neg, span=(float(lo), float(hi)))
-
-
-def _widen(ci, b_hat, extra, z):
-    lo, hi = ci
-    return (b_hat - float(np.hypot(b_hat - lo, z * extra)),
-            b_hat + float(np.hypot(hi - b_hat, z * extra)))
-
-
-def _structure(pos, key, dos, beta_lo, beta_hi, b_hat, se_hat, z_max):
-    """Invert the canonical curves of the structure observables at the shots' means."""
-    obs = structure_observables(pos, signs_of(*key))
-    means = {k: float(np.mean(v)) for k, v in obs.items()}
-    found, flag = {}, False
-    n = len(pos)
-    if n < 2 or not dos.observables or not np.isfinite(se_hat):
-        return means, found, flag
-    names = [k for k in STRUCTURE_OBSERVABLES if k in dos.observables]
-    for name in names:
-        grid, mean, err = dos.canonical_curve(name)
-        inside = (grid >= beta_lo) & (grid <= beta_hi)
-        coarse, curve, curve_err = grid[inside], mean[inside], err[inside]
-        target = means[name]
-        se_obs = float(np.std(obs[name], ddof=1) / np.sqrt(n))
-        diff = curve - target
-        cross = np.flatnonzero(np.sign(diff[:-1]) != np.sign(diff[1:]))
-        if cross.size == 0:
-            found[name] = (float("nan"), float("nan"))
-            # the shots' mean lies outside the whole canonical curve: not an equilibrium value
-            if np.min(np.abs(diff) - 3 * np.hypot(curve_err, se_obs)) > 0:
-                flag = True
-            continue
-        cands = [coarse[i] - diff[i] * (coarse[i + 1] - coarse[i]) / (diff[i + 1] - diff[i])
-                 for i in cross]
-        j = int(np.argmin(np.abs(np.array(cands) - b_hat)))
-        i = cross[j]
-        slope = (curve[i + 1] - curve[i]) / (coarse[i + 1] - coarse[i])
-        err_b = float(np.hypot(se_obs, curve_err[i]) / max(abs(slope), 1e-300))
-        found[name] = (float(cands[j]), err_b)
-        if abs(cands[j] - b_hat) > z_max * np.hypot(err_b, se_hat):
-            flag = True
-    return means, found, flag
-
-
 def _sign(ci95) -> tuple[str, str]:
     if ci95[1] < 0:
         return "negative", "negative temperature (clustered side)"
@@ -505,8 +347,8 @@ def estimate_ensemble(configs: Sequence, domain: Any, core_radius: float, *,
         se_t = float("nan")
     else:
         t_val = sol.theta
-        t68 = _widen(sol.ci68, t_val, dos_err, 1.0)
-        t95 = _widen(sol.ci95, t_val, dos_err, _Z95)
+        t68 = widen(sol.ci68, t_val, dos_err, 1.0)
+        t95 = widen(sol.ci95, t_val, dos_err, Z95)
         se_t = float(np.hypot(sol.fisher, dos_err))
     b_n = t_val * to_n
     bn68, bn95 = (t68[0] * to_n, t68[1] * to_n), (t95[0] * to_n, t95[1] * to_n)
@@ -523,7 +365,7 @@ def estimate_ensemble(configs: Sequence, domain: Any, core_radius: float, *,
         c_main = 1.0 / n_main if common == "beta_n" else 1.0
         lo_b, hi_b = sol.span[0] * c_main, sol.span[1] * c_main
         if imaging is None and not bound:
-            clustering, structure_betas, flag = _structure(
+            clustering, structure_betas, flag = structure_check(
                 pos_main, key_main, dos_main, lo_b, hi_b, beta, se, equilibrium_z)
         else:
             clustering = {k: float(np.mean(v)) for k, v in
@@ -558,7 +400,7 @@ def _interval(beta_grid, ll, level):
     """Profile-likelihood interval {beta: 2 (l_max - l) <= level}, and whether it reaches the
     low / high end of the grid."""
     drop = 2.0 * (ll.max() - ll)
-    lo, hi, at_lo, at_hi = _edges(beta_grid, drop, level, float(beta_grid[np.argmax(ll)]))
+    lo, hi, at_lo, at_hi = level_set(beta_grid, drop, level, float(beta_grid[np.argmax(ll)]))
     return (lo, hi), at_lo, at_hi
 
 
@@ -597,8 +439,8 @@ def estimate_single(positions: Any, signs: Any, domain: Any, core_radius: float,
         lz = dos.log_z_spline()
         lz_fine = dos._memo("lz_fine", lambda: lz(fine))
         ll = -fine * e - lz_fine
-        ci68, _, _ = _interval(fine, ll, _Q68)
-        ci95, at_lo, at_hi = _interval(fine, ll, _Q95)
+        ci68, _, _ = _interval(fine, ll, Q68)
+        ci95, at_lo, at_hi = _interval(fine, ll, Q95)
         b_mic, b_err = (float(x[0]) for x in dos.beta_micro([e]))
         limit = "low" if at_lo and not at_hi else "high" if at_hi and not at_lo else ""
         if not np.isfinite(b_mic) and not limit:
@@ -626,7 +468,7 @@ def estimate_single(positions: Any, signs: Any, domain: Any, core_radius: float,
         value = b_mic
         ci68 = (min(ci68[0], b_mic), max(ci68[1], b_mic))
         ci95 = (min(ci95[0], b_mic), max(ci95[1], b_mic))
-        ci68, ci95 = _widen(ci68, b_mic, b_err, 1.0), _widen(ci95, b_mic, b_err, _Z95)
+        ci68, ci95 = widen(ci68, b_mic, b_err, 1.0), widen(ci95, b_mic, b_err, Z95)
         grid, var_e, _ = dos.canonical_curve("energy_variance")
         se = float(np.hypot(1.0 / np.sqrt(float(np.interp(b_mic, grid, var_e))), b_err))
     th = thresholds(*key, domain)

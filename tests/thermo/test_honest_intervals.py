@@ -9,7 +9,7 @@ as often as it promises (the definition of a confidence interval; any statistics
 import numpy as np
 import pytest
 
-from gpe.run.thermometry import series_weights
+from gpe.run.frames import series_weights
 from thermo.data.degrade import ImagingModel, degrade
 from thermo.domains.disk import Disk
 from thermo.dos.build import DosSettings, build

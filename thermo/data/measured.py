@@ -44,6 +44,7 @@ from typing import Any, Iterable, Sequence
 import h5py
 import numpy as np
 
+from thermo.admission import Admitted, admit
 from thermo.data.geometry import (
     Geometry,
     PixelCalibration,
@@ -51,7 +52,6 @@ from thermo.data.geometry import (
     read_utf8_text,
     resolve_geometry,
 )
-from thermo.admission import Admitted, admit
 from thermo.errors import MeasuredTableError
 
 #: core radius of a table that gives none, in units of the domain size (disk radius, box height)

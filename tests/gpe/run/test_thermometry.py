@@ -162,7 +162,7 @@ def test_run_ensemble_picks_the_frames_of_a_window_in_either_time_unit(tiny_run)
     assert len(last) == 1
     # neither given: the frames after the last beam has switched off; the tiny protocol's beam
     # never switches off, so the last third of the frames (and the reason is given)
-    from gpe.run.thermometry import drive_end
+    from gpe.run.frames import drive_end
 
     end, why = drive_end(protocol)
     _, after, _ = run_ensemble(tiny_run)

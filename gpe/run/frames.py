@@ -1,0 +1,145 @@
+"""Which frames of a run form its ensemble, and how correlated they are.
+
+* :func:`ensemble_frames`: a window, one time, or by default the frames after the last beam has
+  switched off (:func:`drive_end`); a time outside the run or a window without frames is an
+  error naming the times the run has.
+* :func:`series_weights`: frames of one run are correlated; a series of n frames with integrated
+  autocorrelation time tau_int is worth n / tau_int independent shots, so each frame weighs
+  1/tau_int in the ensemble fit (thermo/estimate.py).
+* :class:`RunSeries`: a run file read once, with its frames mapped onto the point-vortex gas for
+  any choice of core radius, wall layer and wall cut (gpe/run/gas.py).
+
+Units: times in hbar/mu (or ms where said); tau_int in frames.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from gpe.errors import VorthermError
+from gpe.run.gas import CORE_RADIUS_XI, WALL_LAYER_XI, domain_for_trap, gas_configuration
+from gpe.run.reading import protocol_of
+from gpe.run.runfile import RunFile
+from thermo.autocorr import integrated_autocorr_time
+from thermo.energy import energy
+
+
+def drive_end(protocol) -> tuple[float | None, str]:
+    """When the last beam has switched off (hbar/mu), or None with the reason.
+
+    Units: hbar/mu.
+    """
+    if not protocol.beams:
+        return 0.0, "no beams: every frame"
+    ends = [b.ramp.off_time + b.ramp.off_duration if b.ramp.off_time is not None else None
+            for b in protocol.beams]
+    if any(e is None for e in ends):
+        return None, "a beam never switches off"
+    return float(max(ends)), ""
+
+
+def ensemble_frames(times: np.ndarray, *, at_time: float | None = None,
+                    window: tuple[float, float] | None = None, default: str = "after_drive",
+                    after: float | None = None, source: str = "run",
+                    unit: str = "hbar/mu") -> list[int]:
+    """The frames that form a run's ensemble.
+
+    Parameters
+    ----------
+    times : output times of the run, in ``unit`` (hbar/mu unless said otherwise).
+    at_time : the one frame nearest to this time; a time outside the run's frames is an error.
+    window : every frame with ``t0 <= t <= t1``; a window with no frame is an error.
+    default : what neither means: ``"after_drive"`` (every frame at or after ``after``, the
+        time the last beam has switched off; the last third of the frames when ``after`` is
+        None, i.e. a beam never switches off), ``"last_third"`` or ``"last"`` (the final frame).
+
+    Frames of one run are correlated: :func:`series_weights` counts them.
+    """
+    times = np.asarray(times, dtype=float)
+    if len(times) == 0:
+        raise VorthermError(f"{source}: the run file holds no frames")
+    span = f"frames span {times[0]:.4g}..{times[-1]:.4g} {unit}"
+    if window is not None:
+        t0, t1 = float(window[0]), float(window[1])
+        if not t0 <= t1:
+            raise VorthermError(f"{source}: window {t0:.4g}..{t1:.4g} {unit} ends before it "
+                                "starts; give the earlier time first")
+        frames = [i for i, t in enumerate(times) if t0 - 1e-9 <= t <= t1 + 1e-9]
+        if not frames:
+            raise VorthermError(f"{source}: no frame in the window {t0:.4g}..{t1:.4g} {unit} "
+                                f"({span})")
+        return frames
+    if at_time is not None:
+        step = float(np.median(np.diff(times))) if len(times) > 1 else 0.0
+        if not times[0] - 0.5 * step - 1e-9 <= at_time <= times[-1] + 0.5 * step + 1e-9:
+            raise VorthermError(f"{source}: time {at_time:.4g} {unit} is outside the run "
+                                f"({span})")
+        return [int(np.argmin(np.abs(times - at_time)))]
+    if default == "last":
+        return [len(times) - 1]
+    if default == "after_drive" and after is not None:
+        frames = [i for i, t in enumerate(times) if t >= after - 1e-9]
+        if not frames:
+            raise VorthermError(f"{source}: no frame after the drive ends at t = {after:.4g} "
+                                f"{unit} ({span}); choose a window")
+        return frames
+    if default in ("last_third", "after_drive"):
+        last = max(1, len(times) // 3)
+        return list(range(len(times) - last, len(times)))
+    raise VorthermError(f"ensemble default {default!r}; accepted: 'after_drive', 'last_third', "
+                        "'last'")
+
+
+def series_weights(configs, domain) -> tuple[np.ndarray, float]:
+    """Weights 1/tau_int for the frames of one run, and tau_int.
+
+    tau_int is the integrated autocorrelation time (thermo.autocorr, Sokal's window) of the
+    energy per vortex along the frames; a series of n frames is worth n / tau_int independent
+    shots. Frames with fewer than two vortices are skipped for the series; fewer than 4 usable
+    frames count as independent (tau too uncertain to estimate; said in the record).
+
+    Units: tau_int in frames.
+    """
+    e = np.array([energy(p, s, domain) / len(s) for p, s in configs if len(s) >= 2])
+    tau = integrated_autocorr_time(e) if e.size >= 4 else math.nan
+    tau = max(1.0, tau) if math.isfinite(tau) else 1.0
+    return np.full(len(configs), 1.0 / tau), float(tau)
+
+
+@dataclass(frozen=True)
+class RunSeries:
+    """One run's frames as the thermometry needs them: times, vortex table, trap, protocol."""
+
+    path: str
+    protocol: object
+    times: np.ndarray
+    table: np.ndarray
+    complete: bool
+
+    @classmethod
+    def read(cls, run_path) -> "RunSeries":
+        with RunFile.open(run_path, "r") as run:
+            return cls(str(run_path), protocol_of(run), np.asarray(run.frame_times()),
+                       run.read_vortices(), run.is_complete())
+
+    def frames(self, *, at_time=None, window=None, default="after_drive", time_unit="tau"):
+        """:func:`ensemble_frames` with times in ``time_unit`` ("tau" = hbar/mu, or "ms")."""
+        if time_unit not in ("tau", "ms"):
+            raise VorthermError(f"time unit {time_unit!r}; accepted: 'tau', 'ms'")
+        conv = self.protocol.units.time_to_ms if time_unit == "ms" else (lambda t: t)
+        end, _ = drive_end(self.protocol)
+        return ensemble_frames(conv(self.times), at_time=at_time, window=window,
+                               default=default, after=None if end is None else conv(end),
+                               source=self.path, unit="ms" if time_unit == "ms" else "hbar/mu")
+
+    def gas(self, frames, *, core_xi=CORE_RADIUS_XI, wall_xi=WALL_LAYER_XI, wall_cut=1.0):
+        """(vortex domain, {frame: Admitted}) with these modelling choices (gpe/run/gas.py)."""
+        vd = domain_for_trap(self.protocol.trap, core_xi, wall_xi)
+        out = {}
+        for f in sorted(set(frames)):
+            rows = self.table[self.table["frame"] == f]
+            out[f] = gas_configuration(rows["x"], rows["y"], rows["sign"], vd, wall_cut=wall_cut)
+        return vd, out

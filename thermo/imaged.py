@@ -30,7 +30,7 @@ from thermo.admission import admit
 from thermo.curves import Curves
 from thermo.data.degrade import ImagingModel, degrade
 from thermo.dos.model import DensityOfStates
-from thermo.energy import energy
+from thermo.energy import energy_batch
 from thermo.errors import ConfigurationError
 from thermo.sampler import run_tempering
 
@@ -49,14 +49,28 @@ def check_model(model: Any) -> ImagingModel:
     return model
 
 
-def imaged_energy(positions, signs, domain, core_radius: float, model: ImagingModel,
-                  rng: np.random.Generator) -> float:
-    """Energy of one configuration as the imaging model and the admission rule record it."""
-    p, s = degrade(positions, signs, domain, model, rng, core_radius=0.0)
-    kept = admit(p, s, domain, core_radius)
-    if len(kept.signs) == 0:
-        return 0.0
-    return energy(kept.positions, kept.signs, domain)
+def imaged_energies(configs, domain, core_radius: float, model: ImagingModel,
+                    rng: np.random.Generator) -> np.ndarray:
+    """Energies of configurations as the imaging model and the admission rule record them.
+
+    ``configs`` is a sequence of (positions, signs); the imaged configurations are grouped by
+    their vortex number so the energies are computed in batches (thermo.energy.energy_batch).
+    Units: E0.
+    """
+    kept = []
+    for pos, signs in configs:
+        p, sg = degrade(pos, signs, domain, model, rng, core_radius=0.0)
+        kept.append(admit(p, sg, domain, core_radius))
+    out = np.zeros(len(kept))
+    by_n: dict[int, list[int]] = {}
+    for i, k in enumerate(kept):
+        by_n.setdefault(len(k.signs), []).append(i)
+    for n, idx in by_n.items():
+        if n == 0:
+            continue
+        out[idx] = energy_batch(np.stack([kept[i].positions for i in idx]),
+                                np.stack([kept[i].signs for i in idx]), domain)
+    return out
 
 
 def _expected_count(n: int, domain, core_radius: float, model: ImagingModel,
@@ -122,8 +136,8 @@ def imaged_curves(dos: DensityOfStates, domain, core_radius: float, model: Imagi
     pick = np.arange(0, dos.sample_index.size, step)
     rng = np.random.default_rng([int(seed), dos.n_plus, dos.n_minus])
     signs = np.concatenate([np.ones(dos.n_plus, int), -np.ones(dos.n_minus, int)])
-    t = np.array([imaged_energy(dos.sample_positions[i].astype(float), signs, domain,
-                                core_radius, model, rng) for i in pick])
+    t = imaged_energies([(dos.sample_positions[i].astype(float), signs) for i in pick], domain,
+                        core_radius, model, rng)
     grid = dos.tables["beta"]
     central, reps = dos.subset_averages(dos.sample_index[pick], np.stack([t, t * t]), grid)
     curves = Curves(beta=grid, mean=central[:, 0],

@@ -31,6 +31,9 @@ def register_temperature(sub) -> None:
                     "pixels with --pixel-um and --center). beta is in units of 1/E0 with "
                     "E0 = rho kappa^2/(4 pi); beta*N compares across vortex numbers.")
     p.add_argument("source", type=Path, help="run file (.h5 from `vortherm run`) or measured table (.csv/.h5)")
+    p.add_argument("more_runs", type=Path, nargs="*", metavar="RUN",
+                   help="further run files (e.g. the seeds of one protocol): their frames are "
+                        "listed together and their ensembles pooled as independent series")
     p.add_argument("--disk-radius-um", type=float, help="measured table: disk radius in um")
     p.add_argument("--box-um", type=float, nargs=2, metavar=("LX", "LY"),
                    help="measured table: box sides in um")
@@ -82,6 +85,10 @@ def _cmd_temperature(args) -> int:
                             "has one geometry; give --disk-radius-um R for a disk or --box-um LX "
                             "LY for a box, not both")
     run_file = reading.is_run_file(args.source)   # by content; refuses a locked/truncated HDF5
+    for extra in args.more_runs:
+        if not (extra.is_file() and reading.is_run_file(extra)) or not run_file:
+            raise VorthermError(f"{extra}: several sources must all be run files (.h5 from "
+                                "`vortherm run`); a measured table is given alone")
     if run_file:
         given = [flag for name, flag in TABLE_OPTIONS
                  if getattr(args, name) is not None and getattr(args, name) is not False]
@@ -103,7 +110,7 @@ def _cmd_temperature(args) -> int:
                 accepted = "a probability 0 <= p < 0.5" if name == "sign_error" else "a length >= 0 um"
                 raise VorthermError(f"{flag} {value:g}: accepted is {accepted}; nothing was written")
     refuse_to_overwrite(temperature_outputs(args.source, args.csv, args.plot),
-                        inputs=[args.source], force=args.force)
+                        inputs=[args.source, *args.more_runs], force=args.force)
     if run_file:
         if args.window_ms is not None:
             with RunFile.open(args.source, "r") as run:
@@ -113,9 +120,9 @@ def _cmd_temperature(args) -> int:
                                     "(hbar/mu), which have no millisecond scale; choose the "
                                     "frames with --frames instead")
         try:
-            result = thermometry.temperature_of_run(
-                args.source, frames=parse_frames(args.frames), window=args.window_ms,
-                time_unit="ms", common=args.common, effort=args.effort,
+            result = thermometry.temperature_of_runs(
+                [args.source, *args.more_runs], frames=parse_frames(args.frames),
+                window=args.window_ms, time_unit="ms", common=args.common, effort=args.effort,
                 systematics=not args.no_systematics)
         except VorthermError as exc:
             if args.window_ms is not None and "window" in str(exc):

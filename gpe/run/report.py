@@ -28,7 +28,7 @@ CSV_UNITS = {"n_plus": "1", "n_minus": "1", "energy_per_vortex": "E0", "beta": "
              "temperature_sign": "", "prob_negative": "1", "dipole_moment": "domain size",
              "c1": "1", "dipole_fraction": "1", "cluster_fraction": "1", "free_fraction": "1",
              "left_out_wall": "1", "left_out_pairs": "1", "verdict": "", "frame": "1",
-             "shot": ""}
+             "shot": "", "run": ""}
 
 
 def strict(obj):
@@ -67,7 +67,8 @@ def write_records_csv(path, records: list[dict], time_key: str, time_unit: str =
     its unit in brackets (``beta [1/E0]``; words have none); an open interval side is
     ``-inf``/``inf``, an undefined value empty."""
     path = Path(path)
-    first = [time_key] + (["frame"] if time_key == "t" else [])
+    first = ((["run"] if any("run" in r for r in records) else []) + [time_key]
+             + (["frame"] if time_key == "t" else []))
     units = dict(CSV_UNITS, t=time_unit or "")
     header = [f"{c} [{units[c]}]" if units.get(c) else c for c in first + list(CSV_COLUMNS)]
     with path.open("w", newline="") as fh:
@@ -167,12 +168,16 @@ def text_report(result: dict) -> str:
     """
     tk = result["time_key"]
     unit = f" [{result['time_unit']}]" if result.get("time_unit") else ""
-    head = (f"{tk + unit:>12} {'N+':>4} {'N-':>4} {'E/N':>8} {'beta~N (95% interval)':>26} "
+    first = (f"{'run':>12} {tk + unit:>8}" if any("run" in r for r in result["records"])
+             else f"{tk + unit:>12}")
+    head = (f"{first} {'N+':>4} {'N-':>4} {'E/N':>8} {'beta~N (95% interval)':>26} "
             f"{'D':>6} {'C1':>6} {'dip':>5} {'clu':>5} {'free':>5}")
     lines = [head, "-" * len(head)]
     for r in result["records"]:
         tval = r.get(tk, "")
         tstr = f"{tval:12.4g}" if isinstance(tval, float) else f"{str(tval):>12}"
+        if "run" in r:
+            tstr = f"{r['run'][-12:]:>12} {tstr.strip():>8}"
         n = r["n_plus"] + r["n_minus"]
         bn = beta_n_text(r) if n >= 2 else ("no vortex" if n == 0 else "one vortex")
         lines.append(

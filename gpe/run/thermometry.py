@@ -15,6 +15,7 @@ beta~ N dimensionless.
 from __future__ import annotations
 
 import math
+from pathlib import Path
 import numpy as np
 
 from gpe.errors import VorthermError
@@ -288,7 +289,7 @@ def temperature_of_run(run_path, *, frames=None, at_time: float | None = None,
                        window: tuple[float, float] | None = None, time_unit: str = "tau",
                        ensemble_default: str = "after_drive", per_frame: bool = True,
                        common: str = "beta_n", effort: str = DEFAULT_EFFORT, cache_dir=None,
-                       systematics: bool = True) -> dict:
+                       systematics: bool = True, with_ensemble: bool = True) -> dict:
     """Thermometry of a run file: beta of every chosen frame and of the run's ensemble.
 
     Parameters
@@ -299,7 +300,8 @@ def temperature_of_run(run_path, *, frames=None, at_time: float | None = None,
     per_frame : False skips the per-frame estimates (sweeps need only the ensemble).
     common : what the vortex-number groups of the ensemble share ("beta_n" or "beta").
     effort : density-of-states effort (quick, standard, thorough).
-    systematics : add the systematics budget to the ensemble (re-estimates it five times).
+    systematics : add the systematics budget to the ensemble (re-estimates it six times).
+    with_ensemble : False leaves the ensemble out (:func:`temperature_of_runs` pools it).
 
     Returns
     -------
@@ -331,20 +333,54 @@ def temperature_of_run(run_path, *, frames=None, at_time: float | None = None,
     for rec, f in zip(records, chosen):
         rec.update({"frame": f, "t": float(t_user[f]), "left_out_wall": gas[f].left_out_wall,
                     "left_out_pairs": gas[f].left_out_pairs})
-    ensemble = pooled_ensemble([run_path], window=None if window is None else window,
-                               time=at_time, default=ensemble_default, time_unit=time_unit,
-                               common=common, effort=effort, cache_dir=cache_dir,
-                               systematics=systematics)
+    ensemble = pooled_ensemble([run_path], window=window, time=at_time,
+                               default=ensemble_default, time_unit=time_unit, common=common,
+                               effort=effort, cache_dir=cache_dir,
+                               systematics=systematics) if with_ensemble else {}
     end, why = drive_end(protocol)
     after = None if end is None else float(protocol.display_time(end))
     onset = (onset_verdict(t_user[chosen], records, unit, after=after) if per_frame
-             else ensemble["verdict"])
+             else ensemble.get("verdict", ""))
     return {"kind": "run", "source": str(run_path), "time_key": "t", "time_unit": unit,
             "records": records, "ensemble": ensemble, "onset": onset,
             "drive_end": after, "drive_note": why,
             "approximation": vd.approximate, "domain": vd.domain.kind,
             "run_complete": series.complete, "frames_stored": len(times),
             "frames_planned": planned, "incomplete": note}
+
+
+def temperature_of_runs(run_paths, *, frames=None, window=None, time_unit: str = "tau",
+                        ensemble_default: str = "after_drive", common: str = "beta_n",
+                        effort: str = DEFAULT_EFFORT, cache_dir=None,
+                        systematics: bool = True) -> dict:
+    """Thermometry of several runs (e.g. the seeds of one protocol): every run's frames, and
+    one ensemble pooling the runs as independent series (:func:`pooled_ensemble`).
+
+    One run gives exactly :func:`temperature_of_run`. With several, every record carries its
+    ``run`` (the file's stem), the verdict is given per run, and the run-state keys describe
+    the first run, with ``incomplete`` naming every incomplete one.
+
+    Units: as :func:`temperature_of_run`.
+    """
+    paths = list(run_paths)
+    if len(paths) == 1:
+        return temperature_of_run(paths[0], frames=frames, window=window, time_unit=time_unit,
+                                  ensemble_default=ensemble_default, common=common,
+                                  effort=effort, cache_dir=cache_dir, systematics=systematics)
+    results = [temperature_of_run(p, frames=frames, window=window, time_unit=time_unit,
+                                  ensemble_default=ensemble_default, effort=effort,
+                                  cache_dir=cache_dir, with_ensemble=False) for p in paths]
+    out = dict(results[0])
+    out["records"] = [dict(rec, run=Path(p).stem) for p, r in zip(paths, results)
+                      for rec in r["records"]]
+    out["ensemble"] = pooled_ensemble(paths, window=window, default=ensemble_default,
+                                      time_unit=time_unit, common=common, effort=effort,
+                                      cache_dir=cache_dir, systematics=systematics)
+    out["onset"] = " ".join(f"[{Path(p).stem}] {r['onset']}" for p, r in zip(paths, results))
+    out["source"] = ", ".join(str(p) for p in paths)
+    out["incomplete"] = "; ".join(f"{Path(p).stem}: {r['incomplete']}" for p, r in
+                                  zip(paths, results) if r["incomplete"])
+    return out
 
 
 def incomplete_note(n_stored: int, n_planned: int, t_last: float, t_end: float,

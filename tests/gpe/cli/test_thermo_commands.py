@@ -258,3 +258,30 @@ def test_bad_imaging_options_and_empty_windows_are_refused_naming_the_option(
     assert main(["temperature", str(tiny_run), "--window-ms", "1e5", "2e5", "--csv", str(csv)]) == 2
     assert "--window-ms" in capsys.readouterr().err
     assert not csv.exists()
+
+
+def test_several_runs_are_listed_together_and_pooled_as_independent_series(
+        tiny_run, tmp_path, capsys, monkeypatch):
+    """Two run files (here two copies of one run, standing in for two seeds): every frame of
+    both is listed with its run, and the ensemble pools both runs' frames, each run weighted by
+    its own autocorrelation time."""
+    import shutil
+
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
+    second = tmp_path / "seed2.h5"
+    shutil.copy(tiny_run, second)
+    csv = tmp_path / "both.csv"
+    assert main(["temperature", str(tiny_run), str(second), "--json", "--csv", str(csv),
+                 "--no-systematics"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert len(doc["frames"]) == 12
+    assert {f["run"] for f in doc["frames"]} == {tiny_run.stem, "seed2"}
+    ens = doc["ensemble"]
+    assert ens["runs"] == 2 and len(ens["tau_frames"]) == 2
+    assert ens["frames"] == 2 * (6 // 3)       # the last third of each run (the beam stays on)
+    assert csv.read_text().splitlines()[0].startswith("run,t [hbar/mu],frame [1],")
+    # a measured table cannot be mixed with runs
+    table = tmp_path / "t.csv"
+    table.write_text("shot,x,y,sign\n0,0,0,1\n")
+    assert main(["temperature", str(tiny_run), str(table)]) == 2
+    assert "must all be run files" in capsys.readouterr().err

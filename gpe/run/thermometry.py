@@ -212,7 +212,10 @@ def run_ensemble(run_path, *, at_time: float | None = None,
 
 def _pooled(series_frames, *, common, effort, cache_dir, core_xi=CORE_RADIUS_XI,
             wall_xi=WALL_LAYER_XI, wall_cut=1.0) -> dict:
-    """The ensemble of several runs' frames: each run a correlated series, runs independent."""
+    """The ensemble of several runs' frames: each run a correlated series, runs independent.
+
+    ``n_plus``/``n_minus`` are the mean vortex numbers over the frames (the fit's groups are in
+    ``groups``)."""
     configs, weights, taus, left_wall, left_pairs, vd = [], [], [], 0, 0, None
     for series, frames in series_frames:
         vd, gas = series.gas(frames, core_xi=core_xi, wall_xi=wall_xi, wall_cut=wall_cut)
@@ -225,7 +228,9 @@ def _pooled(series_frames, *, common, effort, cache_dir, core_xi=CORE_RADIUS_XI,
         left_pairs += sum(gas[f].left_out_pairs for f in frames)
     rec = ensemble_record(configs, vd.domain, vd.core_radius, weights=weights, common=common,
                           effort=effort, cache_dir=cache_dir)
-    rec.update({"frames": len(configs), "runs": len(series_frames), "tau_frames": taus,
+    rec.update({"n_plus": float(np.mean([np.sum(s > 0) for _, s in configs])),
+                "n_minus": float(np.mean([np.sum(s < 0) for _, s in configs])),
+                "frames": len(configs), "runs": len(series_frames), "tau_frames": taus,
                 "left_out_wall": left_wall, "left_out_pairs": left_pairs,
                 "approximation": vd.approximate})
     for key in ("dipole_fraction", "cluster_fraction", "free_fraction", "energy_per_vortex"):

@@ -3,4 +3,16 @@
 Never imports ``gpe``; depends only on numpy, scipy, numba and h5py.
 """
 
-__version__ = "0.1.0"
+from importlib.metadata import PackageNotFoundError as _PackageNotFoundError
+from importlib.metadata import version as _version
+
+
+def _installed_version() -> str:
+    # one distribution (vortherm) ships gpe and thermo; pyproject.toml holds the version
+    try:
+        return _version("vortherm")
+    except _PackageNotFoundError:  # imported from a source tree that was never installed
+        return "0+unknown"
+
+
+__version__ = _installed_version()

@@ -12,6 +12,7 @@ import os
 import sys
 import warnings
 
+from gpe import __version__
 from gpe.cli import commands
 from gpe.errors import VorthermError
 from thermo.errors import ThermoError
@@ -29,7 +30,7 @@ def build_parser() -> argparse.ArgumentParser:
         description=("Stir a 2D Bose-Einstein condensate on a CPU, find its quantized vortices "
                      "and measure their temperature (both signs of beta)."),
     )
-    parser.add_argument("--version", action="version", version="vortherm 0.1.0")
+    parser.add_argument("--version", action="version", version=f"vortherm {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     sub.required = True
     for register in commands.REGISTRY:

@@ -211,7 +211,8 @@ def _cmd_plot(args) -> int:
 # --------------------------------------------------------------------------- demo
 def _register_demo(sub) -> None:
     p = add_command(sub, "demo", "run the demo scenario end to end and say where the outputs are",
-                    "Simulates runs/demo.toml (a scenario of our own: a 87Rb condensate in a disk "
+                    "Simulates the demo protocol shipped with the package (runs/demo.toml in a "
+                    "checkout; a scenario of our own: a 87Rb condensate in a disk "
                     "stirred once by a paddle of six beams), detects the vortices, draws figures, measures the "
                     "vortex-gas temperature and prints the verdict.")
     p.add_argument("-o", "--output", type=Path, default=Path("demo-output"),
@@ -221,6 +222,8 @@ def _register_demo(sub) -> None:
 
 
 def _cmd_demo(args) -> int:
+    from importlib import resources
+
     from gpe.cli import progress
     from gpe.figures import standard
     from gpe.run import products, reading, simulate, thermometry
@@ -228,11 +231,8 @@ def _cmd_demo(args) -> int:
 
     out = args.output
     out.mkdir(parents=True, exist_ok=True)
-    source = Path(__file__).resolve().parents[2] / "runs" / "demo.toml"
-    if not source.exists():
-        raise VorthermError(f"the demo protocol {source} is missing; the demo runs from a source "
-                            "checkout installed with `pip install -e .`")
-    text = source.read_text()
+    # package data (gpe/demo/, links to runs/ in a checkout): found from any install
+    text = resources.files("gpe").joinpath("demo/demo.toml").read_text(encoding="utf-8")
     protocol_path = out / "demo.toml"
     protocol_path.write_text(text)
     protocol = parse_protocol(text, source=str(protocol_path))

@@ -6,8 +6,10 @@ Whatever lies past that counter is an unfinished record and is cut away when the
 for writing.  Checkpoints and vortex-table replacements are written to a ``*.new`` object and
 renamed over the old one, so a crash leaves either the old or the new version, never a mix.
 
-Units: every dataset carries a ``unit`` attribute (simulation units: xi, hbar/mu, mu, n0); the
-root attributes ``unit_*`` give the SI value of each unit.
+Units: every dataset carries a ``units`` attribute (CF convention; simulation units: xi, hbar/mu,
+mu, n0; format 1 called it ``unit``, and readers accept both); the root attributes ``unit_*`` give
+the SI value of each unit. Every dataset has HDF5 dimension scales (gpe/run/scales.py), so netCDF
+readers (``xarray.open_datatree(path, engine="h5netcdf")``) see named axes with coordinates.
 """
 
 from __future__ import annotations
@@ -23,13 +25,20 @@ import numpy as np
 from gpe import __version__
 from gpe.errors import RunFileError
 from gpe.field.grid import Grid
+from gpe.run import scales
+from gpe.run.scales import LEGACY_UNITS_ATTR, UNITS_ATTR, units_of
 
 FORMAT_NAME = "vortherm-run"
-FORMAT_VERSION = 1
+#: 2: ``units`` attributes and dimension scales (coordinates /x, /y, /t, /vortex at the root)
+FORMAT_VERSION = 2
+#: versions this code reads (and resumes: a format-1 file keeps ``unit`` and gets no scales)
+READABLE_FORMAT_VERSIONS = (1, 2)
 
 #: Rows of the ``vortices`` dataset (the same columns as gpe.analysis.vortices.VORTEX_DTYPE).
 VORTEX_ROW = np.dtype([("frame", "<i8"), ("t", "<f8"), ("x", "<f8"), ("y", "<f8"),
                        ("sign", "i1"), ("track", "<i8")])
+#: The unit of each column of the vortex table (simulation units).
+VORTEX_UNITS = {"frame": "1", "t": "hbar/mu", "x": "xi", "y": "xi", "sign": "1", "track": "1"}
 
 @dataclass(frozen=True)
 class Checkpoint:
@@ -112,34 +121,39 @@ class RunFile:
             a[f"unit_{key}"] = float(value)
         for key, value in (extra_attrs or {}).items():
             a[key] = value
+        # the coordinates at the root, where every group's datasets can see them as scales
+        x = scales.coordinate(f, "x", np.asarray(grid.x), "xi", "x about the grid centre")
+        y = scales.coordinate(f, "y", np.asarray(grid.y), "xi", "y about the grid centre")
+        times = scales.coordinate(f, "t", np.empty(0), "hbar/mu", "time", growing=True)
+        rows = scales.coordinate(f, "vortex", np.empty(0, np.int64), "1",
+                                 "row of the vortex table", growing=True)
         g = f.create_group("grid")
         g.attrs.update(nx=grid.nx, ny=grid.ny, length_x=grid.length_x, length_y=grid.length_y,
-                       unit="xi")
-        _dataset(g, "x", np.asarray(grid.x), "xi")
-        _dataset(g, "y", np.asarray(grid.y), "xi")
+                       units="xi")
+        g["x"], g["y"] = x, y           # hard links: format 1's names for the same datasets
         pot = f.create_group("potential")
         if static_potential is not None:
-            _dataset(pot, "trap", np.asarray(static_potential, np.float64), "mu")
+            _dataset(pot, "trap", np.asarray(static_potential, np.float64), "mu", (y, x))
         for name, array in trap_arrays.items():
             array = np.asarray(array)
             # booleans as 0/1 bytes (readable everywhere), marked so that they come back as bool
-            ds = _dataset(pot, name, array.astype(np.uint8) if array.dtype == bool else array, "1")
+            ds = _dataset(pot, name, array.astype(np.uint8) if array.dtype == bool else array, "1",
+                          scales.array_scales(pot, name, array.shape))
             ds.attrs["boolean"] = array.dtype == bool
         if ground_state_psi is not None:
             _dataset(f.create_group("ground_state"), "psi", np.asarray(ground_state_psi),
-                     "sqrt(n0)")
+                     "sqrt(n0)", (y, x))
         snaps = f.create_group("snapshots")
         snaps.attrs["n_frames"] = 0
         options = dict(compression=compression, shuffle=True) if compression else {}
         psi = snaps.create_dataset("psi", shape=(0, grid.ny, grid.nx), dtype=snapshot_dtype,
                                    maxshape=(None, grid.ny, grid.nx),
                                    chunks=(1, grid.ny, grid.nx), **options)
-        psi.attrs["unit"] = "sqrt(n0)"
-        times = snaps.create_dataset("t", shape=(0,), dtype=np.float64, maxshape=(None,),
-                                     chunks=(256,))
-        times.attrs["unit"] = "hbar/mu"
+        psi.attrs[UNITS_ATTR] = "sqrt(n0)"
+        scales.attach(psi, (times, y, x))
+        snaps["t"] = times
         f.create_group("observables")
-        _vortex_dataset(f, "vortices", np.empty(0, VORTEX_ROW))
+        scales.attach(_vortex_dataset(f, "vortices", np.empty(0, VORTEX_ROW), UNITS_ATTR), [rows])
         f.flush()
         return cls(f, path)
 
@@ -182,10 +196,10 @@ class RunFile:
             raise RunFileError(f"{self.path}: not a vortherm run file (root attributes "
                                f"format='{FORMAT_NAME}' and format_version are missing)")
         version = int(a["format_version"])
-        if version != FORMAT_VERSION:
+        if version not in READABLE_FORMAT_VERSIONS:
             raise RunFileError(f"{self.path}: run file format_version {version} is not "
-                               f"supported; this vortherm ({__version__}) reads version "
-                               f"{FORMAT_VERSION}")
+                               f"supported; this vortherm ({__version__}) reads versions "
+                               f"{', '.join(map(str, READABLE_FORMAT_VERSIONS))}")
         for name in ("grid", "snapshots/psi", "snapshots/t", "observables"):
             if name not in self._f:
                 raise RunFileError(f"{self.path}: damaged run file, '{name}' is missing")
@@ -199,8 +213,14 @@ class RunFile:
                 if name not in f and f[new].attrs.get("written", False):
                     f.move(new, name)
                 else:
-                    del f[new]
+                    scales.delete(f, new)
+        scales.sync_index(f, "vortices", "vortex")
         self.truncate_to_frame(self.n_frames)
+
+    @property
+    def _units_attr(self) -> str:
+        """The unit attribute's name in this file: "units", or "unit" in a format-1 file."""
+        return UNITS_ATTR if int(self._f.attrs["format_version"]) >= 2 else LEGACY_UNITS_ATTR
 
     def close(self) -> None:
         """Flush and close the file (idempotent)."""
@@ -267,8 +287,8 @@ class RunFile:
             return {}
         arrays = {}
         for name, ds in self._f["potential"].items():
-            if name == "trap":
-                continue
+            if name == "trap" or (isinstance(ds, h5py.Dataset) and ds.is_scale):
+                continue   # the potential, and the pixel-index scales of the arrays
             if not isinstance(ds, h5py.Dataset):
                 raise RunFileError(f"{self.path}: damaged run file, 'potential/{name}' is not a "
                                    "dataset; expected the arrays of the trap (e.g. potential/mask)")
@@ -320,7 +340,7 @@ class RunFile:
                      units: Mapping[str, str] | None = None) -> int:
         """Append one frame (snapshot, observables, vortex rows); returns its index.
 
-        ``units`` gives the unit of each observable, stored as its dataset's ``unit``
+        ``units`` gives the unit of each observable, stored as its dataset's ``units``
         attribute when the dataset is first created (see gpe.analysis.diagnostics).
         Units: t in hbar/mu; psi in sqrt(n0); vortex x, y in xi.
         """
@@ -339,7 +359,8 @@ class RunFile:
                 ds = obs_group.create_dataset(name, shape=(n,), dtype=np.float64,
                                               maxshape=(None,), chunks=(256,), fillvalue=np.nan)
                 ds[...] = np.nan
-                ds.attrs["unit"] = (units or {}).get(name, "")
+                ds.attrs[self._units_attr] = (units or {}).get(name, "")
+                scales.attach(ds, [scales.root_scale(self._f, "t")])
             _append(obs_group[name], n, float(observables.get(name, np.nan)))
         if vortices is not None and len(vortices):
             rows = _vortex_rows(vortices, self.path)
@@ -350,6 +371,7 @@ class RunFile:
             start = table.shape[0]
             table.resize(start + len(rows), axis=0)
             table[start:] = rows
+            scales.sync_index(f, "vortices", "vortex")
         f.flush()
         f["snapshots"].attrs["n_frames"] = n + 1  # the counter last: it marks a complete record
         f.flush()
@@ -381,11 +403,11 @@ class RunFile:
         return {name: ds[:n] for name, ds in self._f["observables"].items()}
 
     def observable_unit(self, name: str) -> str:
-        """Unit attribute of observable ``name``."""
+        """Unit of observable ``name`` (its ``units`` attribute; ``unit`` in format-1 files)."""
         if name not in self._f["observables"]:
             raise RunFileError(f"{self.path}: no observable '{name}'; stored: "
                                f"{sorted(self._f['observables'])}")
-        return str(self._f["observables"][name].attrs["unit"])
+        return units_of(self._f["observables"][name])
 
     # -- vortex table ----------------------------------------------------------------------------
     def read_vortices(self) -> np.ndarray:
@@ -398,12 +420,13 @@ class RunFile:
         rows = _vortex_rows(table, self.path)
         f = self._f
         if "vortices.new" in f:
-            del f["vortices.new"]
-        _vortex_dataset(f, "vortices.new", rows).attrs["written"] = True
+            scales.delete(f, "vortices.new")
+        _vortex_dataset(f, "vortices.new", rows, self._units_attr).attrs["written"] = True
         f.flush()
-        del f["vortices"]
+        scales.delete(f, "vortices")
         f.move("vortices.new", "vortices")
         del f["vortices"].attrs["written"]
+        scales.sync_index(f, "vortices", "vortex")
         f.flush()
 
     # -- checkpoint ------------------------------------------------------------------------------
@@ -419,18 +442,19 @@ class RunFile:
         if not 0 <= frame <= self.n_frames:
             raise RunFileError(f"{self.path}: checkpoint frame {frame} is not in 0..{self.n_frames}")
         if "checkpoint.new" in f:
-            del f["checkpoint.new"]
+            scales.delete(f, "checkpoint.new")
         g = f.create_group("checkpoint.new")
-        _dataset(g, "psi", np.asarray(psi), "sqrt(n0)")
+        axes = (scales.root_scale(f, "y"), scales.root_scale(f, "x"))
+        _dataset(g, "psi", np.asarray(psi), "sqrt(n0)", axes, self._units_attr)
         g.attrs["t"] = float(t)
-        g.attrs["t_unit"] = "hbar/mu"
+        g.attrs[f"t_{self._units_attr}"] = "hbar/mu"
         g.attrs["frame"] = frame
         g.attrs["rng_state"] = "" if rng is None else json.dumps(rng.bit_generator.state)
         g.attrs["step"] = int(step)
         g.attrs["written"] = True  # last: the group is complete
         f.flush()
         if "checkpoint" in f:
-            del f["checkpoint"]
+            scales.delete(f, "checkpoint")
         f.move("checkpoint.new", "checkpoint")
         f.flush()
 
@@ -450,9 +474,11 @@ class RunFile:
                           rng_state=json.loads(state) if state else None)
 
 
-def _dataset(group: h5py.Group, name: str, data: np.ndarray, unit: str) -> h5py.Dataset:
+def _dataset(group: h5py.Group, name: str, data: np.ndarray, unit: str, axes,
+             units_attr: str = UNITS_ATTR) -> h5py.Dataset:
     ds = group.create_dataset(name, data=data)
-    ds.attrs["unit"] = unit
+    ds.attrs[units_attr] = unit
+    scales.attach(ds, list(axes))
     return ds
 
 
@@ -461,10 +487,10 @@ def _append(ds: h5py.Dataset, index: int, value: float) -> None:
     ds[index] = value
 
 
-def _vortex_dataset(f: h5py.File, name: str, rows: np.ndarray) -> h5py.Dataset:
+def _vortex_dataset(f: h5py.File, name: str, rows: np.ndarray, units_attr: str) -> h5py.Dataset:
     ds = f.create_dataset(name, data=rows, maxshape=(None,), chunks=(1024,))
-    ds.attrs.update(unit_frame="1", unit_t="hbar/mu", unit_x="xi", unit_y="xi", unit_sign="1",
-                    unit_track="1")
+    # one unit per column: units_<column> ("unit_<column>" in format-1 files)
+    ds.attrs.update({f"{units_attr}_{c}": u for c, u in VORTEX_UNITS.items()})
     # the SI factors beside the table, so it can be read without the root attributes
     for key, si_key in (("unit_length_m", "xi_in_m"), ("unit_time_s", "hbar_over_mu_in_s")):
         if key in f.attrs:

@@ -3,6 +3,7 @@
 import h5py
 import numpy as np
 import pytest
+import xarray as xr
 
 from gpe.errors import RunFileError
 from gpe.field.grid import Grid
@@ -174,7 +175,7 @@ def test_errors_name_the_file_and_the_expectation(tmp_path):
         RunFile.open(tmp_path / "other.h5")
     with _create(tmp_path / "future.h5") as run:
         run._f.attrs["format_version"] = FORMAT_VERSION + 1
-    with pytest.raises(RunFileError, match="format_version 2 is not supported"):
+    with pytest.raises(RunFileError, match=f"format_version {FORMAT_VERSION + 1} is not supported"):
         RunFile.open(tmp_path / "future.h5")
     with _create(tmp_path / "empty.h5") as run:
         with pytest.raises(RunFileError, match="no snapshots"):
@@ -240,3 +241,111 @@ def test_a_run_file_open_for_writing_elsewhere_is_named_as_locked(tmp_path, monk
         writer.stdin.close()
         writer.wait(timeout=30)
     assert is_run_file(run)           # readable again once the writer has closed it
+
+
+# ------------------------------------------------------------------------------------------
+# units attributes and dimension scales: what netCDF readers see
+# ------------------------------------------------------------------------------------------
+def _written_with_every_kind_of_dataset(path):
+    """A run file with a trap array, two frames, vortex rows, two checkpoints, a replaced table."""
+    mask = np.zeros((5, 7), bool)
+    mask[1:4, 2:6] = True
+    with _create(path, trap_arrays={"mask": mask}, ground_state_psi=_psi0()) as run:
+        for frame, t in enumerate((0.0, 0.5)):
+            run.append_frame(t, _psi0() * (1 + t), {"norm": 1.0 + t, "energy": 2.0},
+                             vortices=_rows(frame, t, 2 + frame),
+                             units={"norm": "n0 xi^2", "energy": "mu n0 xi^2"})
+            run.write_checkpoint(_psi0(), t, 10 * frame)
+        run.replace_vortices(_rows(1, 0.5, 3))
+    return mask
+
+
+def test_every_dataset_has_units_and_a_scale_on_every_axis(tmp_path):
+    path = tmp_path / "r.h5"
+    _written_with_every_kind_of_dataset(path)
+    seen = []
+
+    def check(name, obj):
+        if not isinstance(obj, h5py.Dataset):
+            return
+        seen.append(name)
+        if obj.dtype.names:                         # the vortex table: one unit per column
+            assert {f"units_{c}" for c in obj.dtype.names} <= set(obj.attrs), name
+        else:
+            assert "units" in obj.attrs and "unit" not in obj.attrs, name
+        if not obj.is_scale:
+            assert all(len(obj.dims[axis]) == 1 for axis in range(obj.ndim)), name
+
+    with h5py.File(path) as f:
+        f.visititems(check)
+        assert f["grid/x"] == f["x"] and f["snapshots/t"] == f["t"]   # links, not copies
+        # no scale keeps a reference to a deleted checkpoint or vortex table
+        assert len(f["x"].attrs["REFERENCE_LIST"]) == 4   # trap, ground state, snapshots, checkpoint
+        assert len(f["vortex"].attrs["REFERENCE_LIST"]) == 1
+        np.testing.assert_array_equal(f["vortex"][...], np.arange(3))
+    assert {"snapshots/psi", "observables/norm", "vortices", "potential/mask",
+            "checkpoint/psi", "ground_state/psi", "potential/trap"} <= set(seen)
+
+
+def test_xarray_opens_the_run_file_with_named_dimensions_and_coordinates(tmp_path):
+    path = tmp_path / "r.h5"
+    mask = _written_with_every_kind_of_dataset(path)
+    with xr.open_datatree(path, engine="h5netcdf") as tree:
+        snaps = tree["snapshots"].to_dataset()
+        assert snaps["psi"].dims == ("t", "y", "x")
+        np.testing.assert_array_equal(snaps["x"], GRID.x)
+        np.testing.assert_array_equal(snaps["y"], GRID.y)
+        np.testing.assert_array_equal(snaps["t"], [0.0, 0.5])
+        assert snaps["t"].attrs["units"] == "hbar/mu" and snaps["psi"].attrs["units"] == "sqrt(n0)"
+        np.testing.assert_allclose(snaps["psi"].values[1], 1.5 * _psi0(), rtol=1e-6)
+        obs = tree["observables"].to_dataset()
+        assert obs["norm"].dims == ("t",) and obs["norm"].attrs["units"] == "n0 xi^2"
+        np.testing.assert_array_equal(obs["norm"], [1.0, 1.5])
+        pot = tree["potential"].to_dataset()
+        assert pot["trap"].dims == ("y", "x")
+        assert pot["mask"].dims == ("mask_row", "mask_column")
+        np.testing.assert_array_equal(pot["mask"].values.astype(bool), mask)
+        assert tree["checkpoint"].to_dataset()["psi"].dims == ("y", "x")
+        assert tree.to_dataset()["vortices"].dims == ("vortex",)
+    with xr.open_dataset(path, engine="h5netcdf", group="observables") as ds:  # one group alone
+        assert ds["energy"].dims == ("t",)
+
+
+def _as_format_1(path):
+    """Rewrite a run file the way format 1 stored it: ``unit`` attributes, no scales."""
+    with h5py.File(path, "r+") as f:
+        def plain(name, obj):
+            if isinstance(obj, h5py.Dataset):
+                for axis in range(obj.ndim):
+                    for scale in list(obj.dims[axis].values()):
+                        obj.dims[axis].detach_scale(scale)
+            for key in [k for k in obj.attrs if k == "units" or k.startswith("units_")]:
+                obj.attrs["unit" + key[5:]] = obj.attrs[key]
+                del obj.attrs[key]
+        f.visititems(plain)
+        for name in ("x", "y", "t", "vortex", "potential/mask_row", "potential/mask_column"):
+            del f[name]
+        for name in ("grid/x", "grid/y", "snapshots/t"):
+            for key in ("CLASS", "NAME", "REFERENCE_LIST", "long_name"):
+                if key in f[name].attrs:
+                    del f[name].attrs[key]
+        f.attrs["format_version"] = 1
+
+
+def test_format_1_files_with_unit_attributes_still_read_and_resume(tmp_path):
+    path = tmp_path / "old.h5"
+    mask = _written_with_every_kind_of_dataset(path)
+    _as_format_1(path)
+    with RunFile.open(path, "r+") as run:
+        assert run.observable_unit("norm") == "n0 xi^2"
+        np.testing.assert_array_equal(run.trap_arrays()["mask"], mask)
+        run.append_frame(1.0, _psi0(), {"norm": 3.0, "lz": 0.5}, vortices=_rows(2, 1.0, 1),
+                         units={"norm": "n0 xi^2", "lz": "hbar n0 xi^2"})
+        run.write_checkpoint(_psi0(), 1.0, 20)
+        run.replace_vortices(run.read_vortices())
+        assert run.observable_unit("lz") == "hbar n0 xi^2"
+        np.testing.assert_array_equal(run.frame_times(), [0.0, 0.5, 1.0])
+    with h5py.File(path) as f:          # the old file keeps its own attribute name throughout
+        assert f["observables/lz"].attrs["unit"] == "hbar n0 xi^2"
+        assert "units" not in f["checkpoint/psi"].attrs and "t_unit" in f["checkpoint"].attrs
+        assert "unit_x" in f["vortices"].attrs and "x" not in f

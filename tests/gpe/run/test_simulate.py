@@ -110,7 +110,7 @@ def test_vortex_table_carries_its_si_factors(tmp_path):
     out = pipeline.simulate(protocol, tmp_path / "tiny.h5")
     with h5py.File(out) as f:
         attrs = f["vortices"].attrs
-        assert attrs["unit_x"] == "xi"
+        assert attrs["units_x"] == "xi"
         # xi = hbar / sqrt(m mu) [definition]; recomputed from scipy.constants
         from scipy.constants import hbar
         u = protocol.units

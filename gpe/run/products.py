@@ -1,5 +1,6 @@
 """What is made from a finished run file besides figures: re-detected vortex tables (CSV in
-micrometres). The standard figures are drawn by gpe/figures/standard.py.
+micrometres, a plain header line, metadata in a JSON sidecar ``<name>.json`` beside it). The
+standard figures are drawn by gpe/figures/standard.py.
 
 Reads run files through gpe.run.runfile and the stored protocol (gpe.run.reading.protocol_of); writes only
 the files asked for, and the run file only when re-detection is stored on purpose.
@@ -15,14 +16,48 @@ import numpy as np
 
 from gpe.analysis.tracking import find_events, track_vortices
 from gpe.analysis.vortices import VORTEX_DTYPE, find_vortices
+from gpe import __version__
 from gpe.errors import VorthermError
+from gpe.run.jsontext import dumps_strict
 from gpe.run.reading import protocol_of, select_frames
 from gpe.run.runfile import RunFile
 from gpe.run.simulate import DETECT_THRESHOLD
 
+#: Columns of the vortex CSV: (name, unit, description). Positions about the grid centre.
+VORTEX_CSV_COLUMNS = (
+    ("frame", "1", "frame index in the run file"),
+    ("t_ms", "ms", "time of the frame"),
+    ("x_um", "um", "x position about the grid centre"),
+    ("y_um", "um", "y position about the grid centre"),
+    ("sign", "1", "circulation: +1 counter-clockwise, -1 clockwise"),
+    ("track", "1", "track the vortex belongs to across frames (-1: not linked)"),
+)
+
+
+def vortex_columns_si(table: np.ndarray, protocol) -> dict[str, np.ndarray]:
+    """The vortex table's columns in SI units, named as in the CSV (``VORTEX_CSV_COLUMNS``).
+
+    Units: t_ms in ms, x_um and y_um in micrometres about the grid centre.
+    """
+    um = protocol.units.length_m * 1e6
+    return {"frame": np.asarray(table["frame"], np.int64),
+            "t_ms": np.asarray(protocol.units.time_to_ms(np.asarray(table["t"], float))),
+            "x_um": np.asarray(table["x"], float) * um, "y_um": np.asarray(table["y"], float) * um,
+            "sign": np.asarray(table["sign"], np.int64),
+            "track": np.asarray(table["track"], np.int64)}
+
+
+def sidecar_path(csv_path) -> Path:
+    """The JSON file beside a CSV that holds its metadata: ``<name>.json``.
+
+    Units: none.
+    """
+    return Path(csv_path).with_suffix(".json")
+
 
 def vortex_csv_path(run_path, csv_path=None) -> Path:
-    """Where :func:`redetect` writes its table: ``csv_path``, or ``RUN_vortices.csv`` beside the run.
+    """Where :func:`redetect` writes its table: ``csv_path``, or ``RUN_vortices.csv`` beside the run
+    (its metadata goes to :func:`sidecar_path`, ``RUN_vortices.json``).
 
     Units: none.
     """
@@ -37,8 +72,10 @@ def redetect(run_path, *, threshold: float = DETECT_THRESHOLD, region: str = "tr
 
     Returns (table, events, csv_path). The run file is changed only with ``store=True``, and
     then the old vortex table is replaced in one step (only when every frame was re-detected,
-    so the stored table never mixes two detections). An existing CSV is refused before anything
-    is read or stored unless ``overwrite`` (``--force``); the CSV is never the run file itself.
+    so the stored table never mixes two detections). An existing CSV or sidecar is refused
+    before anything is read or stored unless ``overwrite`` (``--force``); neither is ever the
+    run file itself. The CSV has one plain header line (``pandas.read_csv`` reads it as is);
+    units, origin, detection settings and the source run are in the JSON sidecar.
 
     Units: threshold as a fraction of the peak background density; CSV in um and ms.
     """
@@ -54,9 +91,14 @@ def redetect(run_path, *, threshold: float = DETECT_THRESHOLD, region: str = "tr
     if csv_path.is_dir():
         raise VorthermError(f"--csv {csv_path} is a folder; give the name of the CSV file to "
                             "write, e.g. --csv run_vortices.csv")
-    if csv_path.exists() and not overwrite:
-        raise VorthermError(f"{csv_path} exists already; pass --force (overwrite=True) to "
-                            "overwrite it, or choose another file with --csv")
+    sidecar = sidecar_path(csv_path)
+    if sidecar.resolve() == Path(run_path).resolve():
+        raise VorthermError(f"--csv {csv_path}: its metadata file {sidecar} would be the run "
+                            "file itself; choose another CSV name")
+    for existing in (csv_path, sidecar):
+        if existing.exists() and not overwrite:
+            raise VorthermError(f"{existing} exists already; pass --force (overwrite=True) to "
+                                "overwrite it, or choose another file with --csv")
     with RunFile.open(run_path, "r") as run:
         protocol = protocol_of(run)
         times = np.asarray(run.frame_times())
@@ -83,15 +125,22 @@ def redetect(run_path, *, threshold: float = DETECT_THRESHOLD, region: str = "tr
         with RunFile.open(run_path, "r+") as run:
             run.replace_vortices(table)
     _write_vortex_csv(csv_path, table, protocol)
+    meta = {"format": "vortherm-vortices", "package_version": __version__,
+            "table": csv_path.name, "run_file": str(run_path), "rows": int(table.size),
+            "columns": [{"name": n, "units": u, "description": d}
+                        for n, u, d in VORTEX_CSV_COLUMNS],
+            "origin": "grid centre", "detection": {"threshold": threshold, "region": region,
+                                                   "frames": chosen},
+            "xi_in_m": protocol.units.length_m, "hbar_over_mu_in_s": protocol.units.time_s}
+    sidecar.write_text(dumps_strict(meta, indent=1) + "\n", encoding="utf-8")
     return table, events, csv_path
 
 
 def _write_vortex_csv(path: Path, table: np.ndarray, protocol) -> None:
-    """Vortex table in SI: frame, t [ms], x [um], y [um] about the grid centre, sign, track."""
-    um = protocol.units.length_m * 1e6
-    with Path(path).open("w") as fh:
-        fh.write("# vortices detected by vortherm; x, y in micrometres about the grid centre\n")
-        fh.write("frame,t_ms,x_um,y_um,sign,track\n")
-        for r in table:
-            fh.write(f"{int(r['frame'])},{protocol.units.time_to_ms(r['t']):.6g},{r['x'] * um:.6g},{r['y'] * um:.6g},"
-                     f"{int(r['sign'])},{int(r['track'])}\n")
+    """Vortex table in SI (VORTEX_CSV_COLUMNS), one header line, floats to full precision."""
+    columns = vortex_columns_si(table, protocol)
+    names = [n for n, _, _ in VORTEX_CSV_COLUMNS]
+    with Path(path).open("w", encoding="utf-8") as fh:
+        fh.write(",".join(names) + "\n")
+        for row in zip(*(columns[n].tolist() for n in names)):
+            fh.write(",".join(map(repr, row)) + "\n")

@@ -85,7 +85,7 @@ def test_vortices_exports_csv_and_checks_its_options(tiny_run, tmp_path, capsys)
     with h5py.File(tiny_run) as f:
         before = f["vortices"][...]
     assert main(["vortices", str(tiny_run), "--csv", str(csv), "--threshold", "0.3"]) == 0
-    assert csv.read_text().splitlines()[1] == "frame,t_ms,x_um,y_um,sign,track"
+    assert csv.read_text().splitlines()[0] == "frame,t_ms,x_um,y_um,sign,track"
     with h5py.File(tiny_run) as f:                 # unchanged without --store
         np.testing.assert_array_equal(f["vortices"][...], before)
     assert main(["vortices", str(tiny_run), "--threshold", "1.5"]) == 2

@@ -4,11 +4,13 @@ import csv
 
 import h5py
 import numpy as np
+import pandas as pd
 import pytest
 
 from gpe.errors import VorthermError
 from gpe.figures import standard
 from gpe.run import products
+from gpe.run.jsontext import loads_strict
 from gpe.run.runfile import RunFile
 
 
@@ -57,9 +59,34 @@ def test_an_existing_csv_is_refused_before_anything_is_read_or_stored(tiny_run, 
     with RunFile.open(tiny_run) as run:                 # the stored table is untouched too
         np.testing.assert_array_equal(run.read_vortices(), stored)
     table, _, _ = products.redetect(tiny_run, csv_path=csv_path, overwrite=True)
-    assert csv_path.read_text().count("\n") == table.size + 2   # comment, header, rows
+    assert csv_path.read_text().count("\n") == table.size + 1   # header, rows
     # the run file itself is never the CSV, with or without overwrite
     with pytest.raises(VorthermError, match="the run file itself"):
         products.redetect(tiny_run, csv_path=tiny_run, overwrite=True)
     with RunFile.open(tiny_run) as run:
         np.testing.assert_array_equal(run.read_vortices(), stored)
+
+
+def test_the_vortex_csv_reads_in_pandas_as_is_with_its_metadata_beside_it(tiny_run, tmp_path):
+    table, _, path = products.redetect(tiny_run, csv_path=tmp_path / "v.csv")
+    frame = pd.read_csv(path)                      # no comment= or skiprows= needed
+    assert list(frame.columns) == ["frame", "t_ms", "x_um", "y_um", "sign", "track"]
+    assert len(frame) == table.size > 0
+    assert frame["sign"].isin([-1, 1]).all() and frame["frame"].dtype.kind == "i"
+    with RunFile.open(tiny_run) as run:
+        length_m, time_s = run.units()["length_m"], run.units()["time_s"]
+    # [definition of the units] um and ms from the SI factors the run file stores, to the last bit
+    np.testing.assert_allclose(frame["x_um"], table["x"] * length_m * 1e6, rtol=1e-15)
+    np.testing.assert_allclose(frame["t_ms"], table["t"] * time_s * 1e3, rtol=1e-15)
+    meta = loads_strict((tmp_path / "v.json").read_text(encoding="utf-8"))
+    assert [c["name"] for c in meta["columns"]] == list(frame.columns)
+    assert {c["name"]: c["units"] for c in meta["columns"]}["x_um"] == "um"
+    assert meta["rows"] == len(frame) and meta["run_file"] == str(tiny_run)
+    assert meta["xi_in_m"] == pytest.approx(length_m, rel=1e-15)
+
+
+def test_an_existing_sidecar_is_refused_like_the_csv(tiny_run, tmp_path):
+    (tmp_path / "v.json").write_text("mine\n")
+    with pytest.raises(VorthermError, match=r"v\.json exists already.*--force"):
+        products.redetect(tiny_run, csv_path=tmp_path / "v.csv")
+    assert (tmp_path / "v.json").read_text() == "mine\n" and not (tmp_path / "v.csv").exists()

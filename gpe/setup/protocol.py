@@ -22,6 +22,7 @@ from typing import Any, Mapping, Sequence
 
 import numpy as np
 import scipy.constants as const
+import tomli_w
 
 from gpe.errors import ProtocolError, VorthermError
 from gpe.field.beams import (
@@ -427,6 +428,40 @@ def load_protocol(path: str | Path, overrides: Sequence[str] = ()) -> Protocol:
         raise ProtocolError(f"{path}: cannot read the protocol file ({exc}). Accepted: a readable UTF-8 "
                             "TOML file, e.g. one written by `vortherm init`.") from None
     return parse_protocol(text, str(path), overrides, base_dir=path.parent)
+
+
+def protocol_from_dict(data: Mapping[str, Any], source: str = "<dict>",
+                       overrides: Sequence[str] = (), base_dir: str | Path | None = None) -> Protocol:
+    """Resolve a protocol given as a dict with the file's tables and keys (see :func:`parse_protocol`).
+
+    The dict is written as TOML text first, so a run file stores it verbatim like a file's
+    text and rebuilds the same protocol from it. numpy scalars and arrays are taken as numbers
+    and lists; anything else TOML cannot hold is a ProtocolError naming its key.
+
+    Units: as in the dict (``units = "SI"`` or ``"healing"``, the keys' suffixes).
+    """
+    return parse_protocol(tomli_w.dumps(_toml_ready(data, source, "")), source, overrides,
+                          base_dir=base_dir)
+
+
+def _toml_ready(value: Any, source: str, key: str) -> Any:
+    if isinstance(value, Mapping):
+        out = {}
+        for k, v in value.items():
+            if not isinstance(k, str):
+                raise ProtocolError(f"{source}: key {k!r} in {key or 'the top level'} is not a "
+                                    "string; accepted: table and key names as strings")
+            out[k] = _toml_ready(v, source, f"{key}.{k}" if key else k)
+        return out
+    if isinstance(value, (list, tuple, np.ndarray)):
+        return [_toml_ready(v, source, f"{key}.{i}") for i, v in enumerate(list(value))]
+    if isinstance(value, np.generic):
+        value = value.item()
+    if not isinstance(value, (str, bool, int, float)):
+        raise ProtocolError(f"{source}: {key} = {value!r} ({type(value).__name__}) cannot be "
+                            "written in a protocol; accepted: numbers, strings, booleans, lists "
+                            "and tables (dicts)")
+    return value
 
 
 def example_protocol_text() -> str:

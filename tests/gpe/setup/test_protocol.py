@@ -377,3 +377,31 @@ def test_circle_polyline_and_static_paths_resolve():
     assert "speeds_c" in msg and "1 speeds" in msg
     msg = error_of(overrides=['beams.0.path={kind = "circle", radius_um = 10.0}'])
     assert "angular_speed_hz" in msg and "speed_c" in msg
+
+
+def test_a_protocol_from_a_dict_equals_the_one_from_its_file():
+    import tomllib
+
+    from tiny_protocol import TINY
+
+    from gpe.setup.protocol import protocol_from_dict
+
+    data = tomllib.loads(TINY)
+    data["trap"]["radius_xi"] = np.float64(data["trap"]["radius_xi"])     # numpy numbers pass
+    from_dict, from_text = protocol_from_dict(data, "tiny"), parse_protocol(TINY, "tiny")
+    assert from_dict.to_dict() == from_text.to_dict()
+    # the stored text parses back to the same tables (what a run file keeps)
+    assert tomllib.loads(from_dict.source_text) == tomllib.loads(TINY)
+
+
+def test_a_dict_value_toml_cannot_hold_is_named_by_its_key():
+    import tomllib
+
+    from tiny_protocol import TINY
+
+    from gpe.setup.protocol import protocol_from_dict
+
+    data = tomllib.loads(TINY)
+    data["beams"][0]["waist_xi"] = None
+    with pytest.raises(ProtocolError, match=r"beams\.0\.waist_xi = None.*accepted: numbers"):
+        protocol_from_dict(data, source="mine")

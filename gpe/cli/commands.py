@@ -37,6 +37,35 @@ def _cmd_init(args) -> int:
     return 0
 
 
+# --------------------------------------------------------------------------- schema
+def _register_schema(sub) -> None:
+    p = add_command(sub, "schema", "write the JSON Schema of the protocol file (for editors)",
+                    "The keys of every protocol table with their unit suffixes, types, choices and "
+                    "signs as a JSON Schema (draft 2020-12), generated from the protocol reader's "
+                    "own schema. Point a TOML editor's schema setting at the file to get "
+                    "completion and checks while writing a protocol.")
+    p.add_argument("-o", "--output", type=Path,
+                   help="file to write, e.g. protocol.schema.json (default: print to stdout)")
+    p.add_argument("--force", action="store_true", help="overwrite an existing file")
+    p.set_defaults(handler=_cmd_schema)
+
+
+def _cmd_schema(args) -> int:
+    from gpe.run.jsontext import dumps_strict
+    from gpe.setup.json_schema import protocol_json_schema
+
+    text = dumps_strict(protocol_json_schema(), indent=1) + "\n"
+    if args.output is None:
+        print(text, end="")
+        return 0
+    if args.output.exists() and not args.force:
+        raise VorthermError(f"{args.output} exists already; pass --force to overwrite it, "
+                            "or choose another file name with -o.")
+    args.output.write_text(text, encoding="utf-8")
+    print(f"wrote {args.output}")
+    return 0
+
+
 # --------------------------------------------------------------------------- run
 def _register_run(sub) -> None:
     p = add_command(sub, "run", "simulate a protocol and write its run file (HDF5)",
@@ -275,6 +304,6 @@ def _cmd_describe(args) -> int:
     return 0
 
 
-REGISTRY = [_register_init, _register_run, _register_vortices, _register_plot,
+REGISTRY = [_register_init, _register_schema, _register_run, _register_vortices, _register_plot,
             register_temperature, register_compare, _register_sweep, _register_demo,
             _register_describe]

@@ -349,3 +349,15 @@ def test_format_1_files_with_unit_attributes_still_read_and_resume(tmp_path):
         assert f["observables/lz"].attrs["unit"] == "hbar n0 xi^2"
         assert "units" not in f["checkpoint/psi"].attrs and "t_unit" in f["checkpoint"].attrs
         assert "unit_x" in f["vortices"].attrs and "x" not in f
+
+
+def test_the_json_a_run_file_holds_is_strict(tiny_run):
+    from gpe.run.jsontext import loads_strict
+
+    # [exact] RFC 8259 has no NaN or Infinity: a strict parser must accept every JSON attribute
+    with h5py.File(tiny_run) as f:
+        resolved = loads_strict(str(f.attrs["protocol_json"]))
+        assert loads_strict(str(f.attrs["protocol_overrides"])) == []
+        state = str(f["checkpoint"].attrs["rng_state"])
+        assert state == "" or isinstance(loads_strict(state), dict)
+    assert resolved["grid"]["nx"] == 64

@@ -15,8 +15,10 @@ units when the caller uses them; nothing here assumes which).
 
 from __future__ import annotations
 
+import logging
 import math
 from dataclasses import dataclass, field
+from typing import Callable
 
 import numpy as np
 from numba import njit
@@ -29,6 +31,8 @@ from gpe.field.solver import BeamRows, SolverSettings, observables
 
 __all__ = ["GroundState", "thomas_fermi_guess", "find_ground_state", "imprint_vortices",
            "winding_phase"]
+
+logger = logging.getLogger(__name__)
 
 
 # -- ground state (imaginary time) ---------------------------------------------------------------
@@ -81,6 +85,7 @@ def find_ground_state(
     vortices: tuple[np.ndarray, np.ndarray] | None = None, core_size: float = 1.0,
     precision: str = "complex128", threads: int | None = None, fft: str = "auto",
     fft_planning: str = "measured",
+    progress: Callable[[int, int], None] | None = None,
 ) -> GroundState:
     r"""Ground state by imaginary-time split-step (normalised gradient flow).
 
@@ -116,6 +121,9 @@ def find_ground_state(
     core_size : float
         Width of the imprinted tanh cores; also sets the free core disks (1.5 core_size) and
         the width of the correction bumps (max(0.5 core_size, dx, dy)).
+    progress : callable ``(steps, max_steps)``, optional
+        Called after every convergence check; once converged it is called a last time with
+        ``(steps, steps)``, so that a progress bar ends full.
 
     Units: V, mu in mu; dt in hbar/mu; norm in n0 xi^2; positions in xi.
     """
@@ -155,11 +163,11 @@ def find_ground_state(
     shift = 0.0 if mu is None else float(mu)
     with kernels.kernel_threads(threads):
         return _relax(grid, psi, fftb, v_trap, v_beam, v_kernel, g, norm, shift, dt, tol,
-                      check_every, max_steps, phase_factor, hold)
+                      check_every, max_steps, phase_factor, hold, progress)
 
 
 def _relax(grid, psi, fftb, v_trap, v_beam, v_kernel, g, norm, shift, dt, tol, check_every,
-           max_steps, phase_factor, hold) -> GroundState:
+           max_steps, phase_factor, hold, progress=None) -> GroundState:
     """The imaginary-time loop of :func:`find_ground_state` (arithmetic on preallocated arrays)."""
     amp, _, _, gx, gy = kernels.empty_beam_rows(0, grid.nx, grid.ny)
     n_pts = grid.nx * grid.ny
@@ -210,7 +218,14 @@ def _relax(grid, psi, fftb, v_trap, v_beam, v_kernel, g, norm, shift, dt, tol, c
         if len(history) > 1:
             (_, mu0, e0), (_, mu1, e1) = history[-2], history[-1]
             converged = (abs(mu1 - mu0) <= tol * abs(mu1)) and (abs(e1 - e0) <= tol * abs(e1))
+            logger.debug("ground state step %d: mu = %.10g, relative changes of mu %.3g and "
+                         "energy %.3g (tolerance %.3g)", steps, mu1, abs(mu1 - mu0) / (abs(mu1) or 1.0),
+                         abs(e1 - e0) / (abs(e1) or 1.0), tol)
+        if progress is not None:
+            progress(steps, steps if converged else max_steps)
     final = history[-1]
+    logger.info("ground state %s after %d steps: mu = %.8g, energy = %.8g",
+                "converged" if converged else "NOT converged", steps, final[1], final[2])
     return GroundState(psi=np.array(psi), mu=final[1], energy=final[2], steps=steps,
                        converged=converged, history=np.array(history))
 

@@ -9,6 +9,7 @@ Units: simulation units throughout (xi, hbar/mu, mu); SI only in the summary tex
 
 from __future__ import annotations
 
+import logging
 import time
 import warnings
 from dataclasses import dataclass
@@ -26,6 +27,8 @@ from gpe.field.solver import Solver, SolverSettings
 from gpe.run.memory import check_memory
 from gpe.run.reading import is_complete, protocol_of
 from gpe.run.runfile import RunFile
+
+logger = logging.getLogger(__name__)
 
 #: Density threshold of the detector relative to the peak background (common practice: 0.1-0.3).
 DETECT_THRESHOLD = 0.2
@@ -57,7 +60,7 @@ def _detect(psi: np.ndarray, grid, region: np.ndarray, frame: int, t: float) -> 
     return rows
 
 
-def _initial_state(protocol, v_static, beams, threads):
+def _initial_state(protocol, v_static, beams, threads, progress=None):
     """Ground state with the beams at their t = 0 heights and positions, plus seeded noise."""
     gs_cfg = protocol.ground_state
     kwargs = {}
@@ -72,7 +75,8 @@ def _initial_state(protocol, v_static, beams, threads):
     gs = find_ground_state(
         protocol.grid, v_static, g=1.0, beams=beams, dt=gs_cfg.dt,
         tol=min(gs_cfg.mu_tolerance, gs_cfg.energy_tolerance), max_steps=gs_cfg.max_steps,
-        vortices=vortices, threads=threads, fft_planning=protocol.evolution.fft_planning, **kwargs)
+        vortices=vortices, threads=threads, fft_planning=protocol.evolution.fft_planning,
+        progress=progress, **kwargs)
     psi = gs.psi.copy()
     if gs_cfg.noise_amplitude > 0:
         # Relative complex noise, only where there is fluid, drawn from the protocol's seed:
@@ -85,7 +89,8 @@ def _initial_state(protocol, v_static, beams, threads):
 
 def simulate(protocol, out_path, *, resume: bool = False,
              progress: Callable[[RunProgress], None] | None = None,
-             threads: int | None = None) -> Path:
+             threads: int | None = None,
+             ground_state_progress: Callable[[int, int], None] | None = None) -> Path:
     """Run ``protocol`` and write (or, with ``resume``, complete) its run file.
 
     Parameters
@@ -96,6 +101,8 @@ def simulate(protocol, out_path, *, resume: bool = False,
         a complete run file is left untouched.
     progress : callback receiving a :class:`RunProgress` after every output.
     threads : FFT threads (default: all cores).
+    ground_state_progress : callback ``(steps, max_steps)`` of the imaginary-time relaxation
+        (see gpe.field.ground_state.find_ground_state); not called when a run is resumed.
 
     Returns
     -------
@@ -115,6 +122,7 @@ def simulate(protocol, out_path, *, resume: bool = False,
     out_path = Path(out_path)
     resuming = resume and out_path.exists()
     if resuming and is_complete(out_path):
+        logger.info("%s is complete already; nothing to do", out_path)
         return out_path
     check_memory(protocol, resume=resuming)
     grid = protocol.grid
@@ -146,11 +154,14 @@ def simulate(protocol, out_path, *, resume: bool = False,
         psi0, t0, step0, frame0 = ck.psi, ck.t, ck.step, ck.frame
         mu_run = run.attrs_float("mu_run")
         run.truncate_to_frame(frame0)
+        logger.info("%s: resuming from the checkpoint at frame %d, t = %.6g hbar/mu (step %d)",
+                    out_path, frame0, t0, step0)
         solver = _make_solver(protocol, v_static, beams, mu_run, psi0, t0, step0, threads)
     else:
         v_static = protocol.build_trap()
         region = protocol.trap.detection_region(v_static)
-        gs, psi0 = _initial_state(protocol, v_static, beams, threads)
+        logger.info("%s: ground state on a %d x %d grid", protocol.source_name, grid.nx, grid.ny)
+        gs, psi0 = _initial_state(protocol, v_static, beams, threads, ground_state_progress)
         if not gs.converged:
             warnings.warn(f"{protocol.source_name}: ground state not converged to the tolerance "
                           f"after {gs.steps} steps (mu = {gs.mu:.6g}); raise "
@@ -171,6 +182,8 @@ def simulate(protocol, out_path, *, resume: bool = False,
         tmp.replace(out_path)
         run = RunFile.open(out_path, "r+")
         frame0 = 1
+        logger.info("%s: started, %d outputs every %.6g hbar/mu", out_path, ev.n_outputs,
+                    ev.output_interval)
 
     frame = frame0
     last_ck_wall = time.monotonic()
@@ -187,6 +200,8 @@ def simulate(protocol, out_path, *, resume: bool = False,
                     or time.monotonic() - last_ck_wall >= ev.checkpoint_every_s):
                 run.write_checkpoint(solver.psi, solver.t, solver.step_count, frame)
                 since_ck, last_ck_wall = 0, time.monotonic()
+                logger.debug("%s: checkpoint at frame %d, step %d", out_path, frame,
+                             solver.step_count)
             if progress is not None:
                 elapsed = time.perf_counter() - start_wall
                 rate = (solver.step_count - start_steps) / elapsed if elapsed > 0 else 0.0
@@ -195,6 +210,7 @@ def simulate(protocol, out_path, *, resume: bool = False,
                                      int(np.count_nonzero(rows["sign"] < 0)), time_unit))
         _finish_tracks(run)
         run.mark_complete()
+        logger.info("%s: complete, %d frames, %d steps", out_path, frame, solver.step_count)
     finally:
         run.close()
     return out_path

@@ -95,6 +95,20 @@ def test_fixed_mu_relaxation_reaches_that_chemical_potential():
     assert state.mu == pytest.approx(5.0, rel=1e-3)  # Strang O(dt) bias in mu [practice]
 
 
+def test_progress_is_told_every_check_and_ends_full_when_converged():
+    calls = []
+    state = find_ground_state(GRID, HARMONIC, g=0.0, norm=1.0, dt=0.01, tol=1e-8,
+                              check_every=50, progress=lambda done, total: calls.append((done, total)))
+    assert state.converged
+    assert [d for d, _ in calls] == list(range(50, state.steps + 1, 50))
+    assert all(t == 200_000 for _, t in calls[:-1]) and calls[-1] == (state.steps, state.steps)
+    capped = []
+    state = find_ground_state(GRID, HARMONIC, g=0.0, norm=1.0, dt=0.01, tol=1e-14,
+                              check_every=30, max_steps=70,
+                              progress=lambda done, total: capped.append((done, total)))
+    assert not state.converged and capped == [(30, 70), (60, 70), (70, 70)]
+
+
 def test_ground_state_input_errors():
     with pytest.raises(VorthermError, match="exactly one"):
         find_ground_state(GRID, HARMONIC, norm=1.0, mu=1.0)

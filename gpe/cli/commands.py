@@ -92,7 +92,7 @@ def _cmd_run(args) -> int:
     from gpe.setup.protocol import load_protocol
 
     if args.resume is not None:
-        path = simulate.simulate_resume(args.resume, progress=progress.terminal_progress_factory(),
+        path = simulate.simulate_resume(args.resume, progress=progress.run_progress(),
                                         threads=args.threads)
         print(reading.summary_text(path))
         return 0
@@ -111,7 +111,9 @@ def _cmd_run(args) -> int:
         if out.exists() and not args.force:
             raise VorthermError(f"{out} exists already; continue it with `vortherm run --resume {out}`, "
                                 "or pass --force to start again, or -o for another name.")
-        path = simulate.simulate(protocol, out, progress=progress.terminal_progress_factory(), threads=args.threads)
+        path = simulate.simulate(protocol, out, progress=progress.run_progress(),
+                                 ground_state_progress=progress.counter("ground state", "steps"),
+                                 threads=args.threads)
         print(reading.summary_text(path))
     return 0
 
@@ -142,24 +144,17 @@ def _cmd_sweep(args) -> int:
     from gpe.sweep import execute as sw
     from gpe.sweep.file import load_sweep
 
+    from gpe.cli.progress import sweep_progress
+
     spec = load_sweep(args.sweep)
     out_dir = args.output or sw.default_out_dir(args.sweep)
-    bar = {}
-
-    def progress(p) -> None:
-        from gpe.cli.progress import ProgressBar
-
-        if "bar" not in bar:
-            bar["bar"] = ProgressBar(p.total, label="sweep", unit="points")
-        eta = "" if p.eta_s is None else f"ETA {p.eta_s / 60:.1f} min"
-        bar["bar"].update(p.done + p.skipped + p.failed,
-                          extra=f"running {p.running} failed {p.failed} skipped {p.skipped} {eta}")
-
-    result = sw.run_sweep(spec, out_dir, scheduler=args.scheduler, workers=args.workers,
-                          threads=args.threads, progress=progress,
-                          restart_changed=args.restart_changed)
-    if "bar" in bar:
-        bar["bar"].close()
+    bar = sweep_progress()
+    try:
+        result = sw.run_sweep(spec, out_dir, scheduler=args.scheduler, workers=args.workers,
+                              threads=args.threads, progress=bar,
+                              restart_changed=args.restart_changed)
+    finally:
+        bar.close()
     print(f"summary tables: {', '.join(str(v) for v in result.files.values())}")
     if result.failed:
         print(f"{len(result.failed)} point(s) failed:")
@@ -271,7 +266,8 @@ def _cmd_demo(args) -> int:
     if not reading.is_complete(run_path):
         if run_path.exists() and not resume:
             run_path.unlink()
-        simulate.simulate(protocol, run_path, resume=resume, progress=progress.terminal_progress_factory(),
+        simulate.simulate(protocol, run_path, resume=resume, progress=progress.run_progress(),
+                          ground_state_progress=progress.counter("ground state", "steps"),
                           threads=args.threads)
     print(reading.summary_text(run_path))
     print("2/4 figures")

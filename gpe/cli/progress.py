@@ -1,18 +1,34 @@
-"""A plain text progress bar for long work, drawn on standard error.
+"""Progress of long work: a tqdm bar where someone watches, log lines where nobody does.
 
-Kept free of third-party dependencies; it redraws at most a few times per second so that it
-costs nothing next to the numerics.
+The numerics only call back (``progress(done, total)`` from the ground state and the
+density-of-states builds, a ``RunProgress`` from a run, a sweep ``Progress``); this module turns
+those calls into a ``tqdm.auto`` bar -- a widget in a notebook, a bar on a terminal -- and into
+INFO lines of the logger ``gpe.cli.progress`` every tenth of the work (and at least once a
+minute), which is what a log file or a redirected standard error receives. The command line
+(gpe/cli/main.py) decides where those lines go; a notebook may use these callbacks too::
+
+    from gpe.cli.progress import counter, run_progress
+    simulate(protocol, "run.h5", progress=run_progress(), ground_state_progress=counter("ground state", "steps"))
 """
 
 from __future__ import annotations
 
+import logging
+import math
 import sys
 import time
-from typing import Callable, TextIO
+from typing import Any, Callable
+
+from tqdm import autonotebook, std
+
+logger = logging.getLogger(__name__)
+
+#: Where bars are drawn and whether they are: set by the command line (-q, --log-file).
+SETTINGS = {"bars": None}   # None: when standard error is a terminal or in a notebook
 
 
 def _format_seconds(seconds: float) -> str:
-    if seconds != seconds or seconds == float("inf"):  # NaN or unknown
+    if not math.isfinite(seconds):
         return "--:--"
     seconds = int(round(seconds))
     hours, rest = divmod(seconds, 3600)
@@ -20,81 +36,139 @@ def _format_seconds(seconds: float) -> str:
     return f"{hours:d}:{minutes:02d}:{secs:02d}" if hours else f"{minutes:02d}:{secs:02d}"
 
 
-class ProgressBar:
-    """Progress towards a known total, with rate and estimated time to completion.
+def in_notebook() -> bool:
+    """True inside a Jupyter kernel, where ``tqdm.auto`` gives a widget."""
+    return autonotebook.tqdm is not std.tqdm
+
+
+def bars_enabled(stream: Any = None) -> bool:
+    """Whether a bar is drawn: the command line's choice, else in a notebook or on a terminal."""
+    if SETTINGS["bars"] is not None:
+        return bool(SETTINGS["bars"])
+    stream = sys.stderr if stream is None else stream
+    return in_notebook() or bool(getattr(stream, "isatty", lambda: False)())
+
+
+class Counter:
+    """A callback ``(done, total)`` drawing a tqdm bar and logging a line every tenth.
+
+    The bar opens at the first call and closes itself when ``done >= total`` (or on
+    :meth:`close`); ``total`` may change between calls (a ground state that converges early
+    ends with ``done == total``). ``postfix`` text is shown after the bar and in the lines.
 
     Parameters
     ----------
-    total : float
-        The amount of work at completion (for a simulation: the final simulated time).
-    label : str
-        Text in front of the bar.
-    unit : str
-        How ``done`` is printed (for a simulation: the time unit).
-    stream : TextIO, optional
-        Where to draw; standard error by default. Nothing is drawn when it is not a terminal
-        and ``force`` is false, except a final line.
+    label : text before the bar and at the start of every log line.
+    unit : what ``done`` counts ("steps", "points", "sweeps", "ms").
+    log_every : fraction of the work between two log lines.
+    log_seconds : at most this long between two log lines.
+    stream : where the bar is drawn (standard error by default).
+
+    Units: ``log_seconds`` in seconds of wall-clock time.
     """
 
-    def __init__(self, total: float, label: str = "", unit: str = "", stream: TextIO | None = None,
-                 width: int = 28, min_interval: float = 0.2, force: bool = False) -> None:
-        self.total = float(total)
-        self.label = label
-        self.unit = unit
+    def __init__(self, label: str, unit: str = "", *, log_every: float = 0.1,
+                 log_seconds: float = 60.0, stream: Any = None) -> None:
+        self.label, self.unit = label, unit
+        self.log_every, self.log_seconds = float(log_every), float(log_seconds)
         self._stream = stream
-        self.width = width
-        self.min_interval = min_interval
-        self.interactive = force or getattr(self.stream, "isatty", lambda: False)()
+        self._bar = None
+        self._start = None
+        self._next_fraction = 0.0
+        self._last_log = 0.0
+        self.done, self.total = 0.0, 0.0
+        self.closed = False
 
-        self._start = time.perf_counter()
-        self._last_draw = 0.0
-        self._done = 0.0
-        self._extra = ""
+    def __call__(self, done: float, total: float, postfix: str = "") -> None:
+        if self.closed:
+            return
+        now = time.monotonic()
+        if self._start is None:
+            self._start = self._last_log = now
+            if bars_enabled(self._stream):
+                self._bar = autonotebook.tqdm(
+                    total=float(total), desc=self.label, unit=f" {self.unit}" if self.unit else "it",
+                    file=self._stream if self._stream is not None else None, leave=True,
+                    dynamic_ncols=True, disable=False, bar_format=_BAR_FORMAT)
+        self.done, self.total = float(done), float(total)
+        if self._bar is not None:
+            if self._bar.total != self.total:
+                self._bar.total = self.total
+            if postfix:
+                self._bar.set_postfix_str(postfix, refresh=False)
+            self._bar.update(self.done - self._bar.n)
+        fraction = self.done / self.total if self.total > 0 else 1.0
+        finished = self.total > 0 and self.done >= self.total
+        if finished or fraction >= self._next_fraction or now - self._last_log >= self.log_seconds:
+            self._log(now, fraction, postfix)
+            while self._next_fraction <= fraction:
+                self._next_fraction += self.log_every
+        if finished:
+            self.close()
 
-    @property
-    def stream(self) -> TextIO:
-        """The stream drawn on: the one given, or the standard error of the moment."""
-        return self._stream if self._stream is not None else sys.stderr
-
-    def update(self, done: float, extra: str = "") -> None:
-        """Record progress ``done`` (same unit as ``total``) and redraw if due."""
-        self._done = float(done)
-        self._extra = extra
-        now = time.perf_counter()
-        if self.interactive and now - self._last_draw >= self.min_interval:
-            self._last_draw = now
-            self.stream.write("\r" + self._line(now))
-            self.stream.flush()
-
-    def _line(self, now: float) -> str:
-        frac = 0.0 if self.total <= 0 else min(max(self._done / self.total, 0.0), 1.0)
-        filled = int(round(frac * self.width))
+    def _log(self, now: float, fraction: float, postfix: str) -> None:
+        self._last_log = now
         elapsed = now - self._start
-        eta = elapsed * (1 - frac) / frac if frac > 0 else float("nan")
-        bar = "#" * filled + "." * (self.width - filled)
-        text = (f"{self.label} [{bar}] {self._done:.4g}/{self.total:.4g} {self.unit} "
-                f"{100 * frac:5.1f}%  elapsed {_format_seconds(elapsed)}  ETA {_format_seconds(eta)}")
-        if self._extra:
-            text += "  " + self._extra
-        return text
+        eta = elapsed * (1 - fraction) / fraction if fraction > 0 else math.inf
+        logger.info("%s: %.6g/%.6g %s (%.0f%%), elapsed %s, ETA %s%s", self.label, self.done,
+                    self.total, self.unit, 100 * min(fraction, 1.0), _format_seconds(elapsed),
+                    _format_seconds(eta), f", {postfix}" if postfix else "")
 
     def close(self) -> None:
-        """Draw the final state and end the line."""
-        self.stream.write(("\r" if self.interactive else "") + self._line(time.perf_counter()) + "\n")
-        self.stream.flush()
+        """End the bar (idempotent)."""
+        if self.closed:
+            return
+        self.closed = True
+        if self._bar is not None:
+            self._bar.close()
+
+    def __enter__(self) -> "Counter":
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
 
 
-def terminal_progress_factory() -> Callable[[object], None]:
-    """A callback for :func:`gpe.run.simulate.simulate` that draws a progress bar on standard error
-    (it receives a ``gpe.run.simulate.RunProgress`` after every output)."""
-    state: dict = {}
+_BAR_FORMAT = "{desc}: {percentage:3.0f}%|{bar}| {n:.6g}/{total:.6g}{unit} [{elapsed}<{remaining}{postfix}]"
+
+
+def counter(label: str, unit: str = "", **options) -> Counter:
+    """A ``(done, total)`` progress callback (ground state, density-of-states builds)."""
+    return Counter(label, unit, **options)
+
+
+def run_progress(**options) -> Callable[[Any], None]:
+    """A callback for ``gpe.run.simulate.simulate(progress=...)``: simulated time of the run,
+    steps per second and the vortex numbers of the last frame."""
+    bar: dict[str, Counter] = {}
 
     def draw(p) -> None:
-        if "bar" not in state:
-            state["bar"] = ProgressBar(p.t_end, label="run", unit=p.time_unit)
-        bar = state["bar"]
-        bar.update(p.t, extra=f"{p.steps_per_s:,.0f} steps/s  N+={p.n_plus} N-={p.n_minus}")
-        if p.t >= p.t_end * (1 - 1e-12):
-            bar.close()
+        if "bar" not in bar:
+            bar["bar"] = Counter("run", p.time_unit, **options)
+        bar["bar"](p.t, p.t_end, f"{p.steps_per_s:,.0f} steps/s, N+={p.n_plus} N-={p.n_minus}")
 
     return draw
+
+
+def sweep_progress(**options) -> Counter:
+    """A callback for ``gpe.sweep.execute.run_sweep(progress=...)``: points finished (done,
+    skipped or failed) of all, with the running, failed and skipped counts; call ``close()``
+    when the sweep returns (an interrupted sweep never reaches its total)."""
+    bar = Counter("sweep", "points", **options)
+
+    def draw(p) -> None:
+        bar(p.done + p.skipped + p.failed, p.total,
+            f"running {p.running}, failed {p.failed}, skipped {p.skipped}")
+
+    return _SweepCounter(bar, draw)
+
+
+class _SweepCounter:
+    def __init__(self, bar: Counter, draw: Callable) -> None:
+        self.bar, self._draw = bar, draw
+
+    def __call__(self, p) -> None:
+        self._draw(p)
+
+    def close(self) -> None:
+        self.bar.close()

@@ -1,17 +1,19 @@
-"""Tests of gpe.cli.progress: the text progress bar (what it draws, where and when)."""
+"""Tests of gpe.cli.progress: the tqdm bar where someone watches, log lines where nobody does."""
 
 import io
+import logging
 import math
-import sys
 
 import pytest
 
 from gpe.cli import progress
-from gpe.cli.progress import ProgressBar, _format_seconds
+from gpe.cli.progress import counter, run_progress, sweep_progress
+from gpe.run.simulate import RunProgress
+from gpe.sweep.execute import Progress
 
 
 class FakeClock:
-    """Stands in for time.perf_counter, so elapsed time and ETA are known exactly."""
+    """Stands in for time.monotonic, so elapsed times and ETAs are known exactly."""
 
     def __init__(self, now: float = 100.0) -> None:
         self.now = now
@@ -23,105 +25,103 @@ class FakeClock:
 @pytest.fixture
 def clock(monkeypatch):
     fake = FakeClock()
-    monkeypatch.setattr(progress.time, "perf_counter", fake)
+    monkeypatch.setattr(progress.time, "monotonic", fake)
     return fake
 
 
-def test_final_line_shows_done_total_percentage_and_bar(clock):
-    out = io.StringIO()
-    bar = ProgressBar(200.0, label="run", unit="tau", stream=out, width=20)
-    bar.update(50.0, extra="3 vortices")
-    bar.close()
-    text = out.getvalue()
-    assert text.endswith("\n") and text.count("\n") == 1
-    line = text.rstrip("\n")
-    assert line.startswith("run [")
-    assert "50/200 tau" in line
-    assert " 25.0%" in line                       # 50 / 200
-    assert "[" + "#" * 5 + "." * 15 + "]" in line  # a quarter of 20 cells filled
-    assert line.endswith("  3 vortices")
+@pytest.fixture
+def lines(caplog):
+    caplog.set_level(logging.INFO, logger=progress.logger.name)
+    return lambda: [r.getMessage() for r in caplog.records if r.name == progress.logger.name]
 
 
-def test_done_is_clamped_to_the_bar(clock):
-    out = io.StringIO()
-    bar = ProgressBar(10.0, stream=out, width=10)
-    bar.update(12.0)          # overshoot (last step past the end) still reads as complete
-    bar.close()
-    assert "100.0%" in out.getvalue() and "#" * 10 in out.getvalue()
-    empty = io.StringIO()
-    nothing = ProgressBar(0.0, stream=empty, width=10)   # no work at all: 0 %, no division
-    nothing.close()
-    assert "  0.0%" in empty.getvalue() and "." * 10 in empty.getvalue()
+@pytest.fixture
+def no_bars(monkeypatch):
+    monkeypatch.setitem(progress.SETTINGS, "bars", False)
 
 
-def test_non_interactive_stream_gets_only_the_final_line(clock):
-    out = io.StringIO()   # not a terminal: isatty() is False
-    bar = ProgressBar(100.0, unit="ms", stream=out, min_interval=0.0)
-    assert not bar.interactive
-    for done in (10.0, 20.0, 30.0):
+def test_a_line_every_tenth_of_the_work(clock, lines, no_bars):
+    c = counter("ground state", "steps")
+    for done in range(0, 101):
         clock.now += 1.0
-        bar.update(done)
-    assert out.getvalue() == ""
-    bar.close()
-    assert "\r" not in out.getvalue()
-    assert out.getvalue().count("\n") == 1 and "30/100 ms" in out.getvalue()
+        c(done, 100)
+    got = lines()
+    assert len(got) == 11                       # 0 %, 10 %, ..., 100 %
+    assert got[5].startswith("ground state: 50/100 steps (50%)")
+    # ETA = elapsed * (1 - f) / f: 50 s for half the work -> 50 s left
+    assert "elapsed 00:50, ETA 00:50" in got[5]
+    assert got[-1].startswith("ground state: 100/100 steps (100%)") and c.closed
+    c(100, 100)                                 # closed: later calls change nothing
+    assert len(lines()) == 11
 
 
-def test_interactive_stream_redraws_in_place_at_most_every_min_interval(clock):
+def test_a_line_at_least_every_log_seconds(clock, lines, no_bars):
+    c = counter("run", "ms", log_seconds=60.0)
+    c(0.0, 1000.0)
+    clock.now += 30.0
+    c(1.0, 1000.0)        # not yet a tenth, not yet a minute
+    clock.now += 31.0
+    c(2.0, 1000.0)        # a minute since the last line
+    got = lines()
+    assert len(got) == 2 and got[1].startswith("run: 2/1000 ms (0%)")
+
+
+def test_a_total_that_shrinks_to_done_ends_the_bar_full(clock, lines, no_bars):
+    # the ground state: (steps, max_steps) until it converges, then (steps, steps)
+    c = counter("ground state", "steps")
+    c(50, 200_000)
+    c(100, 200_000)
+    c(150, 150)
+    assert c.closed and lines()[-1].startswith("ground state: 150/150 steps (100%)")
+
+
+def test_the_bar_is_drawn_on_the_stream_when_enabled(monkeypatch, clock):
+    monkeypatch.setitem(progress.SETTINGS, "bars", True)
     out = io.StringIO()
-    bar = ProgressBar(100.0, stream=out, min_interval=0.5, force=True)
-    assert bar.interactive
-    clock.now += 1.0
-    bar.update(10.0)          # drawn
-    clock.now += 0.1
-    bar.update(20.0)          # too soon after the last draw: skipped
-    clock.now += 0.5
-    bar.update(30.0)          # drawn
-    bar.close()               # always drawn
-    draws = out.getvalue().split("\r")[1:]
-    assert len(draws) == 3
-    assert "10/100" in draws[0] and "30/100" in draws[1] and draws[2].endswith("\n")
-    assert not any("20/100" in d for d in draws)
+    c = counter("ground state", "steps", stream=out)
+    c(10, 40, "x1")
+    c(40, 40, "x2")
+    text = out.getvalue()
+    assert "ground state: 100%" in text and "40/40 steps" in text and "x2" in text
+    assert text.endswith("\n")
 
 
-def test_elapsed_and_eta_follow_the_linear_extrapolation(clock):
-    # ETA = elapsed * (1 - f) / f for the fraction f done: 10 s for a quarter -> 30 s left
-    out = io.StringIO()
-    bar = ProgressBar(200.0, stream=out)
-    clock.now += 10.0
-    bar.update(50.0)
-    bar.close()
-    assert "elapsed 00:10  ETA 00:30" in out.getvalue()
-    # past an hour the hours are shown: 1 h for half the work -> 1 h left
-    out = io.StringIO()
-    bar = ProgressBar(2.0, stream=out)
-    clock.now += 3600.0
-    bar.update(1.0)
-    bar.close()
-    assert "elapsed 1:00:00  ETA 1:00:00" in out.getvalue()
+def test_no_bar_unless_a_terminal_or_a_notebook(monkeypatch):
+    monkeypatch.setitem(progress.SETTINGS, "bars", None)
+    assert not progress.in_notebook()          # pytest is not a Jupyter kernel
+    assert not progress.bars_enabled(io.StringIO())
+    tty = io.StringIO()
+    tty.isatty = lambda: True
+    assert progress.bars_enabled(tty)
+    monkeypatch.setitem(progress.SETTINGS, "bars", False)   # -q
+    assert not progress.bars_enabled(tty)
 
 
-def test_eta_is_unknown_before_any_progress(clock):
-    out = io.StringIO()
-    bar = ProgressBar(5.0, stream=out)
-    clock.now += 7.0
-    bar.close()
-    assert "elapsed 00:07  ETA --:--" in out.getvalue()
+def test_run_progress_shows_time_rate_and_vortex_numbers(clock, lines, no_bars):
+    draw = run_progress()
+    for t in (2.0, 4.0, 6.0, 8.0, 10.0):
+        clock.now += 1.0
+        draw(RunProgress(t, 10.0, int(20 * t), 123.0, 2, 1, "ms"))
+    got = lines()
+    assert got[0].startswith("run: 2/10 ms (20%)") and got[0].endswith("123 steps/s, N+=2 N-=1")
+    assert got[-1].startswith("run: 10/10 ms (100%)")
+
+
+def test_sweep_progress_counts_every_finished_point(clock, lines, no_bars):
+    bar = sweep_progress()
+    bar(Progress(total=4, done=0, skipped=1, running=2, failed=0, pending=1, elapsed_s=0.0,
+                 eta_s=None))
+    bar(Progress(total=4, done=2, skipped=1, running=0, failed=1, pending=0, elapsed_s=3.0,
+                 eta_s=0.0))
+    got = lines()
+    assert got[0].startswith("sweep: 1/4 points (25%)") and "skipped 1" in got[0]
+    assert got[-1].startswith("sweep: 4/4 points (100%)") and "failed 1" in got[-1]
+    bar.close()   # idempotent after a full bar
 
 
 @pytest.mark.parametrize("seconds, text", [
-    (0.0, "00:00"), (59.4, "00:59"), (59.6, "01:00"), (61.0, "01:01"),
-    (3599.0, "59:59"), (3600.0, "1:00:00"), (3725.0, "1:02:05"), (36000.0, "10:00:00"),
-    (math.nan, "--:--"), (math.inf, "--:--"),
+    (0.0, "00:00"), (59.4, "00:59"), (59.6, "01:00"), (3599.0, "59:59"), (3600.0, "1:00:00"),
+    (3725.0, "1:02:05"), (math.nan, "--:--"), (math.inf, "--:--"),
 ])
 def test_seconds_format(seconds, text):
-    assert _format_seconds(seconds) == text
-
-
-def test_default_stream_is_the_standard_error_of_the_moment(clock, monkeypatch):
-    bar = ProgressBar(4.0, label="sweep", unit="points")
-    later = io.StringIO()
-    monkeypatch.setattr(sys, "stderr", later)   # e.g. replaced by a test harness after creation
-    bar.update(1.0)
-    bar.close()
-    assert "sweep [" in later.getvalue() and "1/4 points" in later.getvalue()
+    assert progress._format_seconds(seconds) == text

@@ -17,12 +17,14 @@ from __future__ import annotations
 import concurrent.futures as cf
 import contextlib
 import json
+import logging
 import multiprocessing
 import os
 import signal
 import threading
 import time
 import traceback
+import warnings
 from dataclasses import asdict, dataclass
 from pathlib import Path
 from typing import Any, Callable, Mapping
@@ -36,6 +38,8 @@ from gpe.sweep.table import (
     summarise,
     write_json,
 )
+
+logger = logging.getLogger(__name__)
 
 # NumPy, h5py and the pipeline are imported inside functions on purpose: a spawned worker imports
 # this module first, and the thread-count variables set by ``_init_worker`` only take effect if no
@@ -63,6 +67,8 @@ class PointTask:
     measure: Measure
     threads: int | None = None
     stop_path: str = ""
+    log_level: int = logging.WARNING
+    coordinator_pid: int = 0
 
 
 def run_point(task: PointTask) -> dict:
@@ -112,8 +118,10 @@ def _execute(point_fn: Callable[[PointTask], Mapping], task: PointTask) -> dict:
         # the sweep was interrupted after this task was queued: do not start it
         return {"status": "cancelled", "values": {}, "error": "", "elapsed_s": 0.0}
     start = time.perf_counter()
+    messages: list[dict] = []
     try:
-        raw = point_fn(task)
+        with _collected_messages(task, messages):
+            raw = point_fn(task)
         values = {}
         for q in task.measure.quantities:
             if q not in raw:
@@ -129,7 +137,66 @@ def _execute(point_fn: Callable[[PointTask], Mapping], task: PointTask) -> dict:
         record = {"status": "failed", "values": {}, "error": f"{type(exc).__name__}: {exc}",
                   "traceback": traceback.format_exc()}
     record["elapsed_s"] = time.perf_counter() - start
+    record["messages"] = messages
     return record
+
+
+class _Collector(logging.Handler):
+    def __init__(self, level: int, messages: list[dict]) -> None:
+        super().__init__(level)
+        self.messages = messages
+
+    def filter(self, record: logging.LogRecord) -> bool:
+        return (record.name == "py.warnings" or record.name.split(".")[0] in ("gpe", "thermo")) \
+            and record.levelno >= self.level
+
+    def emit(self, record: logging.LogRecord) -> None:
+        self.messages.append({"level": record.levelname, "logger": record.name,
+                              "message": record.getMessage()})
+
+
+def _one_line_warning(message, category, filename, lineno, line=None) -> str:
+    return f"{message}"
+
+
+@contextlib.contextmanager
+def _collected_messages(task: PointTask, messages: list[dict]):
+    """In a worker process: the point's log records (from ``task.log_level`` on) and its
+    warnings, collected for the coordinator, which logs them with the point id.
+
+    In the coordinator's own process (a thread pool, an in-process dask cluster) the records
+    reach its handlers directly, and warnings' global state is not touched from threads.
+    """
+    if task.coordinator_pid in (0, os.getpid()):
+        yield
+        return
+    root = logging.getLogger()
+    handler = _Collector(task.log_level, messages)
+    old_level, old_format = root.level, warnings.formatwarning
+    root.addHandler(handler)
+    root.setLevel(min(task.log_level, old_level or logging.WARNING))
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("default")   # each point reports its own, even if repeated
+            warnings.formatwarning = _one_line_warning
+            logging.captureWarnings(True)
+            try:
+                yield
+            finally:
+                logging.captureWarnings(False)
+                warnings.formatwarning = old_format
+    finally:
+        root.removeHandler(handler)
+        root.setLevel(old_level)
+
+
+def relay_messages(point_id: str, messages) -> None:
+    """Log a worker's collected messages in this process, each with its point id."""
+    for m in messages or ():
+        level = logging.getLevelName(m.get("level", "WARNING"))
+        logging.getLogger(m.get("logger") or __name__).log(
+            level if isinstance(level, int) else logging.WARNING, "%s: %s", point_id,
+            m.get("message", ""))
 
 
 # -- executors ----------------------------------------------------------------------------------
@@ -355,6 +422,9 @@ def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
         executor = _as_executor(executor)
         threads = threads or 1  # a cluster worker's share of cores is set where it is started
 
+    # workers report their records from this level on (what this process would show)
+    log_level = min(logging.getLogger("gpe").getEffectiveLevel(),
+                    logging.getLogger("py.warnings").getEffectiveLevel(), logging.WARNING)
     start = time.monotonic()
     futures: dict[cf.Future, Point] = {}
     interrupted = False
@@ -390,6 +460,7 @@ def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
             outcome = fut.result()
             if outcome["status"] == "cancelled":  # a stop file left by another session
                 raise KeyboardInterrupt
+        relay_messages(point.point_id, outcome.get("messages"))
         records[point.point_id] = _save_record(out_dir, point, sweep, outcome)
         n_done_here += 1
 
@@ -400,7 +471,7 @@ def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
         for p in todo:
             task = PointTask(p.point_id, str(sweep.base), p.overrides,
                              str(out_dir / "runs" / f"{p.point_id}.h5"), sweep.measure, threads,
-                             str(stop_path))
+                             str(stop_path), log_level, os.getpid())
             futures[executor.submit(_execute, point_fn, task)] = p
         report(force=True)
         waiting = set(futures)
@@ -433,6 +504,7 @@ def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
         for fut, p in futures.items():
             if (fut.done() and not fut.cancelled() and fut.exception() is None
                     and p.point_id not in records and fut.result()["status"] != "cancelled"):
+                relay_messages(p.point_id, fut.result().get("messages"))
                 records[p.point_id] = _save_record(out_dir, p, sweep, fut.result())
     result = summarise(sweep, out_dir, points, records, interrupted)
     report(force=True)

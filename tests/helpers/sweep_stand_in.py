@@ -100,3 +100,14 @@ def run_stand_in(sweep_file: Path, out: Path, **kw) -> SweepResult:
     kw.setdefault("fingerprint", stand_in_fingerprint)
     kw.setdefault("point_fn", stand_in_point)
     return run_sweep(sweep, out, is_complete=stand_in_is_complete, **kw)
+
+
+def talking_point(task: PointTask) -> dict:
+    """The stand-in point, after a warning and two log records (INFO and DEBUG) of its own."""
+    import logging
+    import warnings
+
+    warnings.warn(f"speed of {task.point_id} is made up", UserWarning)
+    logging.getLogger("gpe.run.simulate").info("%s simulated", task.point_id)
+    logging.getLogger("gpe.run.simulate").debug("%s details", task.point_id)
+    return stand_in_point(task)

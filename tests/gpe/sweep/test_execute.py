@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import concurrent.futures as cf
 import json
+import logging
 import math
 from pathlib import Path
 
@@ -398,3 +399,26 @@ def test_an_unreachable_scheduler_is_a_sweep_error_and_leaves_no_folder(sweep_fi
     with pytest.raises(SweepError, match=address.replace(".", r"\.")):
         run_stand_in(sweep_file, out, scheduler=address)
     assert not out.exists()
+
+
+@pytest.mark.parametrize("level, expect_info", [(logging.WARNING, False), (logging.INFO, True)])
+def test_warnings_and_logs_of_spawned_workers_reach_the_coordinator_log(sweep_file, tmp_path,
+                                                                        caplog, level,
+                                                                        expect_info):
+    from sweep_stand_in import talking_point
+
+    caplog.set_level(level)   # what the command line sets with -v (INFO) or by default
+    result = run_stand_in(sweep_file, tmp_path / "out", workers=2, point_fn=talking_point)
+    assert result.complete
+    pids = [r["point_id"] for r in result.runs]
+    warned = [r for r in caplog.records if r.name == "py.warnings"]
+    # one warning per point, each with its point id, although all come from one code line
+    assert sorted(r.getMessage() for r in warned) == sorted(
+        f"{pid}: speed of {pid} is made up" for pid in pids)
+    assert all(r.levelno == logging.WARNING for r in warned)
+    info = [r.getMessage() for r in caplog.records if r.name == "gpe.run.simulate"]
+    assert sorted(info) == ([f"{pid}: {pid} simulated" for pid in sorted(pids)] if expect_info else [])
+    # the point records keep them too
+    rec = json.loads((tmp_path / "out" / "points" / f"{pids[0]}.json").read_text())
+    assert {"level": "WARNING", "logger": "py.warnings",
+            "message": f"speed of {pids[0]} is made up"} in rec["messages"]

@@ -218,7 +218,14 @@ def _register_plot(sub) -> None:
     p.add_argument("--frames", default="-1", help="frames to draw, e.g. 0,30,-1 (default: the last)")
     p.add_argument("--movie", action="store_true", help="also write an animation (mp4 or GIF)")
     p.add_argument("-o", "--output", type=Path, help="folder for the figures (default: beside the run)")
+    _add_format(p)
+    p.add_argument("--force", action="store_true", help="replace figures that exist already")
     p.set_defaults(handler=_cmd_plot)
+
+
+def _add_format(p) -> None:
+    p.add_argument("--format", default="png", type=str.lower, choices=("png", "pdf", "svg"),
+                   help="figure files: png (raster) or pdf, svg (vector); default png")
 
 
 def _cmd_plot(args) -> int:
@@ -226,7 +233,8 @@ def _cmd_plot(args) -> int:
 
     out_dir = args.output or args.run.with_name(args.run.stem + "_figures")
     written = standard.make_figures(args.run, out_dir, frames=parse_frames(args.frames),
-                                    movie=args.movie)
+                                    movie=args.movie, format=args.format,
+                                    overwrite=args.force)
     for path in written:
         print(f"figure: {path}")
     return 0
@@ -242,6 +250,7 @@ def _register_demo(sub) -> None:
     p.add_argument("-o", "--output", type=Path, default=Path("demo-output"),
                    help="folder for all outputs (default: ./demo-output)")
     p.add_argument("--threads", type=int, help="FFT threads (default: all cores)")
+    _add_format(p)
     p.set_defaults(handler=_cmd_demo)
 
 
@@ -271,7 +280,9 @@ def _cmd_demo(args) -> int:
                           threads=args.threads)
     print(reading.summary_text(run_path))
     print("2/4 figures")
-    for path in standard.make_figures(run_path, out / "figures", frames=[0, -1], movie=False):
+    # the demo folder is the demo's own: a second demo replaces its figures
+    for path in standard.make_figures(run_path, out / "figures", frames=[0, -1], movie=False,
+                                      format=args.format, overwrite=True):
         print(f"  {path}")
     print("3/4 vortex table")
     # the demo folder is the demo's own: a second demo replaces its outputs

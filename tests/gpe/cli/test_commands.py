@@ -110,6 +110,30 @@ def test_plot_writes_figures(tiny_run, tmp_path):
     assert "tiny_energies.png" in names
 
 
+@pytest.mark.parametrize("fmt, magic", [("pdf", b"%PDF"), ("svg", b"<?xml")])
+def test_plot_writes_vector_figures(tiny_run, tmp_path, fmt, magic):
+    out = tmp_path / "fig"
+    assert main(["plot", str(tiny_run), "-o", str(out), "--format", fmt.upper()]) == 0
+    files = sorted(out.iterdir())
+    assert files and all(p.suffix == f".{fmt}" for p in files)
+    assert all(p.read_bytes().startswith(magic) for p in files)
+
+
+def test_plot_keeps_existing_figures_unless_forced(tiny_run, tmp_path, capsys):
+    out = tmp_path / "fig"
+    assert main(["plot", str(tiny_run), "-o", str(out)]) == 0
+    before = {p.name: p.stat().st_mtime_ns for p in out.iterdir()}
+    assert main(["plot", str(tiny_run), "-o", str(out)]) == 2
+    err = capsys.readouterr().err
+    assert "tiny_density_phase.png" in err and "--force" in err
+    assert {p.name: p.stat().st_mtime_ns for p in out.iterdir()} == before   # untouched
+    assert main(["plot", str(tiny_run), "-o", str(out), "--format", "svg"]) == 0  # other names
+    assert main(["plot", str(tiny_run), "-o", str(out), "--force"]) == 0
+    with pytest.raises(SystemExit) as stop:                  # argparse names the choices
+        main(["plot", str(tiny_run), "-o", str(out), "--format", "eps"])
+    assert stop.value.code == 2 and "png" in capsys.readouterr().err
+
+
 def test_describe_lists_every_observable_with_its_unit(capsys):
     from gpe.analysis import diagnostics
 

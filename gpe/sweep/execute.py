@@ -30,8 +30,9 @@ from pathlib import Path
 from typing import Any, Callable, Mapping
 
 from gpe.errors import VorthermError
-from gpe.sweep.file import Measure, Point, Sweep, SweepError
+from gpe.sweep.file import Measure, Point, Sweep, SweepError, time_unit_factor
 from gpe.sweep.manifest import prepare_output, protocol_fingerprint
+from gpe.sweep.thinning import thin_snapshots
 from gpe.sweep.table import (
     SweepResult,
     read_json,
@@ -69,6 +70,7 @@ class PointTask:
     stop_path: str = ""
     log_level: int = logging.WARNING
     coordinator_pid: int = 0
+    keep_snapshots: str | int = "all"
 
 
 def run_point(task: PointTask) -> dict:
@@ -91,18 +93,13 @@ def run_point(task: PointTask) -> dict:
         simulate.simulate_resume(run_path, threads=task.threads)
     elif not run_path.exists():
         simulate.simulate(protocol, run_path, threads=task.threads)
-    scale = _time_to_simulation(protocol, task.measure.time_unit)
+    if task.keep_snapshots != "all":
+        thin_snapshots(run_path, task.keep_snapshots)   # before measuring: always the kept frames
+    scale = time_unit_factor(protocol, task.measure.time_unit)
     m = task.measure
     at_time = None if m.at_time is None else m.at_time * scale
     window = None if m.window is None else (m.window[0] * scale, m.window[1] * scale)
     return thermometry.analyse(run_path, time=at_time, window=window)
-
-
-def _time_to_simulation(protocol: Any, time_unit: str) -> float:
-    """Factor from a measurement time unit to hbar/mu (tau)."""
-    if time_unit == "protocol":
-        time_unit = "tau" if str(protocol.unit_system).lower() == "healing" else "ms"
-    return 1.0 if time_unit == "tau" else protocol.units.ms_to_time(1.0)
 
 
 _WORKER_INTERRUPTED = False
@@ -409,6 +406,7 @@ def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
         rec = read_json(out_dir / "points" / f"{p.point_id}.json") or {}
         run_path = out_dir / "runs" / f"{p.point_id}.h5"
         if (rec.get("status") == "ok" and rec.get("measure") == json.loads(json.dumps(measure))
+                and rec.get("keep_snapshots", "all") == sweep.output.keep_snapshots
                 and _verified(is_complete, run_path)):
             records[p.point_id] = rec
         else:
@@ -471,7 +469,8 @@ def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
         for p in todo:
             task = PointTask(p.point_id, str(sweep.base), p.overrides,
                              str(out_dir / "runs" / f"{p.point_id}.h5"), sweep.measure, threads,
-                             str(stop_path), log_level, os.getpid())
+                             str(stop_path), log_level, os.getpid(),
+                             sweep.output.keep_snapshots)
             futures[executor.submit(_execute, point_fn, task)] = p
         report(force=True)
         waiting = set(futures)
@@ -523,7 +522,8 @@ def _verified(is_complete: Callable[[Path], bool], path: Path) -> bool:
 def _save_record(out_dir: Path, point: Point, sweep: Sweep, outcome: Mapping) -> dict:
     rec = {"point_id": point.point_id, "grid_id": point.grid_id, "seed": point.seed,
            "overrides": list(point.overrides), "run_file": f"runs/{point.point_id}.h5",
-           "measure": asdict(sweep.measure), **outcome}
+           "measure": asdict(sweep.measure), "keep_snapshots": sweep.output.keep_snapshots,
+           **outcome}
     rec = json.loads(json.dumps(rec))  # tuples -> lists, so that reruns compare equal
     write_json(out_dir / "points" / f"{point.point_id}.json", rec)
     return rec

@@ -34,7 +34,8 @@ MEASURABLE = ("beta", "n_plus", "n_minus", "dipole_fraction", "cluster_fraction"
 
 SEED_KEY = "evolution.seed"
 
-_TOP_KEYS = ("base", "axes", "seeds", "measure", "name", "description")
+_TOP_KEYS = ("base", "axes", "seeds", "measure", "output", "name", "description")
+_OUTPUT_KEYS = ("keep_snapshots",)
 _AXIS_KEYS = ("key", "values", "range", "label", "unit")
 _RANGE_KEYS = ("start", "stop", "num", "scale")
 _MEASURE_KEYS = ("at_time", "at_time_ms", "at_time_tau", "window", "window_ms", "window_tau",
@@ -82,6 +83,16 @@ class Measure:
 
 
 @dataclass(frozen=True)
+class Output:
+    """What each point keeps on disk: ``keep_snapshots`` is "all", "last" or K (every K-th
+    frame and the last), applied when the run is complete, before it is measured
+    (gpe/sweep/thinning.py).
+    """
+
+    keep_snapshots: str | int = "all"
+
+
+@dataclass(frozen=True)
 class Point:
     """One run of the sweep: a grid point and a noise seed.
 
@@ -106,6 +117,7 @@ class Sweep:
     seeds: tuple[int, ...]
     measure: Measure
     text: str = field(repr=False)
+    output: Output = field(default_factory=Output)
 
     def points(self) -> list[Point]:
         """All points, grid index major and seed minor (the first axis varies slowest)."""
@@ -273,11 +285,36 @@ def _parse_measure(src: str, table: Any) -> Measure:
     return Measure(at_time, window, tuple(dict.fromkeys(quantities)), unit)
 
 
+def _parse_output(src: str, table: Any) -> Output:
+    where = f"{src}: [output]"
+    if not isinstance(table, dict):
+        raise SweepError(f"{where}: expected a table, e.g. [output] keep_snapshots = \"last\"")
+    _check_keys(where, table, _OUTPUT_KEYS)
+    keep = table.get("keep_snapshots", "all")
+    accepted = ('accepted: "all" (default), "last", or a whole number K >= 1 for every K-th '
+                'frame (the last one always kept)')
+    if isinstance(keep, str):
+        if keep not in ("all", "last"):
+            raise SweepError(f"{where}.keep_snapshots: {keep!r} is not a choice; {accepted}")
+    elif isinstance(keep, bool) or not isinstance(keep, int) or keep < 1:
+        raise SweepError(f"{where}.keep_snapshots: {keep!r} is not a choice; {accepted}")
+    return Output("all" if keep == 1 else keep)
+
+
+def time_unit_factor(protocol: Any, time_unit: str) -> float:
+    """Factor from a measurement time unit ("ms", "tau" or "protocol") to hbar/mu."""
+    if time_unit == "protocol":
+        time_unit = "tau" if str(protocol.unit_system).lower() == "healing" else "ms"
+    return 1.0 if time_unit == "tau" else protocol.units.ms_to_time(1.0)
+
+
 def parse_sweep(text: str, source: str | os.PathLike, *, check_protocol: bool = True) -> Sweep:
     """Parse and validate sweep-file text; ``source`` is the file path (base is relative to it).
 
     With ``check_protocol`` the base protocol is loaded once per axis with that axis overridden,
-    so that a misspelt protocol key is reported now and not after a night of failed runs.
+    so that a misspelt protocol key is reported now and not after a night of failed runs, and
+    once per grid point, so that a ``[measure]`` time outside a point's run, or a window with
+    no frame that ``[output] keep_snapshots`` keeps, is refused before any point runs.
     """
     src = str(source)
     try:
@@ -301,9 +338,11 @@ def parse_sweep(text: str, source: str | os.PathLike, *, check_protocol: bool = 
         raise SweepError(f"{src}: the same key appears on two axes: {keys}")
     seeds = _parse_seeds(src, data.get("seeds", 1))
     measure = _parse_measure(src, data.get("measure", {}))
-    sweep = Sweep(src, base_path, axes, seeds, measure, text)
+    output = _parse_output(src, data.get("output", {}))
+    sweep = Sweep(src, base_path, axes, seeds, measure, text, output)
     if check_protocol:
         _check_axis_keys(sweep)
+        _check_measure_times(sweep)
     return sweep
 
 
@@ -336,3 +375,68 @@ def _check_axis_keys(sweep: Sweep) -> None:
         else:
             raise SweepError(f"{sweep.source}: axis '{axis.key}': the base protocol "
                              f"{sweep.base.name} rejects every value: {errors[0]}")
+
+
+def _measure_key(m: Measure) -> str:
+    stem = "at_time" if m.at_time is not None else "window"
+    return stem if m.time_unit == "protocol" else f"{stem}_{m.time_unit}"
+
+
+def _check_measure_times(sweep: Sweep) -> None:
+    """Every grid point's run must hold the measured time or a kept frame in the window."""
+    # imported here: the protocol loads NumPy (see the note at the top of this module)
+    from gpe.setup.protocol import load_protocol
+    from gpe.sweep.thinning import kept_frames
+
+    m = sweep.measure
+    if m.at_time is None and m.window is None:
+        return
+    key = f"[measure] {_measure_key(m)}"
+    keep = sweep.output.keep_snapshots
+    seen = set()
+    for point in sweep.points():
+        if point.grid_id in seen:
+            continue
+        seen.add(point.grid_id)
+        try:
+            with warnings.catch_warnings():  # each run reports its own warnings
+                warnings.simplefilter("ignore")
+                protocol = load_protocol(sweep.base, point.overrides)
+        except ProtocolError:
+            continue                         # this point fails on its own when it runs
+        ev = protocol.evolution
+        scale = time_unit_factor(protocol, m.time_unit)
+        interval = ev.output_interval / scale
+        end = ev.n_outputs * interval
+        times = [i * interval for i in kept_frames(ev.n_outputs + 1, keep)]
+        unit = m.time_unit if m.time_unit != "protocol" else (
+            "tau" if str(protocol.unit_system).lower() == "healing" else "ms")
+        where = (f"{sweep.source}: {key}" + (f" at point {point.grid_id} "
+                 f"({', '.join(point.overrides[:-1])})" if len(point.overrides) > 1 else ""))
+        span = f"the run spans 0 .. {end:.6g} {unit}"
+        tol = 1e-9 * max(1.0, end)
+        kept = ("" if keep == "all" else f" (keep_snapshots = {keep!r} keeps frames at "
+                f"{_some(times)} {unit})")
+        if m.window is not None:
+            t0, t1 = m.window
+            if t0 < -tol or t1 > end + tol:
+                raise SweepError(f"{where}: window [{t0:.6g}, {t1:.6g}] {unit} is not inside the "
+                                 f"run; {span}; accepted: 0 <= t0 < t1 <= {end:.6g} {unit}")
+            if not any(t0 - tol <= t <= t1 + tol for t in times):
+                raise SweepError(f"{where}: no {'kept ' if kept else ''}frame in the window "
+                                 f"[{t0:.6g}, {t1:.6g}] {unit}{kept or f' (frames every {interval:.6g} {unit})'}; "
+                                 "accepted: a window holding at least one frame")
+        else:
+            t = m.at_time
+            if t < -tol or t > end + tol:
+                raise SweepError(f"{where}: time {t:.6g} {unit} is outside the run; {span}; "
+                                 f"accepted: 0 <= at_time <= {end:.6g} {unit}")
+            nearest = min(times, key=lambda s: abs(s - t))
+            if kept and abs(nearest - t) > 0.5 * interval + tol:
+                raise SweepError(f"{where}: time {t:.6g} {unit} is not a kept frame{kept}; the "
+                                 f"nearest is {nearest:.6g} {unit}; accepted: a kept frame's time")
+
+
+def _some(times: Sequence[float], n: int = 4) -> str:
+    shown = ", ".join(f"{t:.6g}" for t in times[:n])
+    return shown + (f", ..., {times[-1]:.6g}" if len(times) > n else "")

@@ -163,13 +163,13 @@ def test_measurement_time_is_converted_to_hbar_over_mu():
     from scipy import constants
 
     from gpe.setup.protocol import load_protocol
-    from gpe.sweep.execute import _time_to_simulation
+    from gpe.sweep.file import time_unit_factor
 
     p = load_protocol(DEMO)
     tau_s = constants.hbar / p.atoms.chemical_potential_J  # time unit hbar/mu
-    assert _time_to_simulation(p, "ms") == pytest.approx(1e-3 / tau_s, rel=1e-9)
-    assert _time_to_simulation(p, "protocol") == _time_to_simulation(p, "ms")  # units = "SI"
-    assert _time_to_simulation(p, "tau") == 1.0
+    assert time_unit_factor(p, "ms") == pytest.approx(1e-3 / tau_s, rel=1e-9)
+    assert time_unit_factor(p, "protocol") == time_unit_factor(p, "ms")  # units = "SI"
+    assert time_unit_factor(p, "tau") == 1.0
 
 
 TINY_PROTOCOL = """
@@ -422,3 +422,34 @@ def test_warnings_and_logs_of_spawned_workers_reach_the_coordinator_log(sweep_fi
     rec = json.loads((tmp_path / "out" / "points" / f"{pids[0]}.json").read_text())
     assert {"level": "WARNING", "logger": "py.warnings",
             "message": f"speed of {pids[0]} is made up"} in rec["messages"]
+
+
+def test_a_sweep_keeps_the_snapshots_it_is_told_to_and_measures_them(tmp_path):
+    """keep_snapshots = 2 with the real pipeline (in this process): the run file holds frames
+    0, 2, 4 of 0..4 and the recorded measurement is the thinned file's."""
+    from tiny_protocol import tiny_protocol_text
+
+    from gpe.run import reading, thermometry
+    from gpe.run.runfile import RunFile
+
+    (tmp_path / "tiny.toml").write_text(tiny_protocol_text(duration=8.0, output_interval=2.0))
+    src = tmp_path / "s.toml"
+    src.write_text('base = "tiny.toml"\n[[axes]]\nkey = "beams.0.path.speed_c"\nvalues = [0.6]\n'
+                   '[measure]\nwindow_tau = [4.0, 8.0]\nquantities = ["beta", "n_plus"]\n'
+                   '[output]\nkeep_snapshots = 2\n')
+    result = run_sweep(load_sweep(src), tmp_path / "out", executor=cf.ThreadPoolExecutor(1))
+    assert result.complete, result.failed
+    run_path = tmp_path / "out" / "runs" / "p000_s0.h5"
+    assert reading.is_complete(run_path)
+    with RunFile.open(run_path, "r") as run:
+        np.testing.assert_array_equal(run.frame_times(), [0.0, 4.0, 8.0])
+        assert json.loads(str(run.attrs["snapshots_kept"]))["frames"] == [0, 2, 4]
+    direct = thermometry.analyse(run_path, window=(4.0, 8.0))
+    assert result.runs[0]["n_plus"] == pytest.approx(direct["n_plus"])
+    rec = json.loads((tmp_path / "out" / "points" / "p000_s0.json").read_text())
+    assert rec["keep_snapshots"] == 2
+    # a rerun with the same setting skips the point
+    seen = []
+    run_sweep(load_sweep(src), tmp_path / "out", executor=cf.ThreadPoolExecutor(1),
+              progress=seen.append)
+    assert seen[-1].skipped == 1

@@ -132,3 +132,92 @@ def test_axis_unit_for_every_suffix_in_the_protocol_schema(tmp_path):
                       ("evolution.duration_tau", "hbar/mu"), ("evolution.damping", "")):
         assert parse_sweep(f'base = "p.toml"\n[[axes]]\nkey = "{key}"\nvalues = [1.0]\n',
                            str(tmp_path / "s.toml"), check_protocol=False).axes[0].unit == unit
+
+
+@pytest.mark.parametrize("table, expected", [
+    ("", "all"), ('[output]\nkeep_snapshots = "all"', "all"),
+    ('[output]\nkeep_snapshots = "last"', "last"), ("[output]\nkeep_snapshots = 5", 5),
+    ("[output]\nkeep_snapshots = 1", "all"),
+])
+def test_keep_snapshots_choices(sweep_file, table, expected):
+    text = sweep_file.read_text() + table + "\n"
+    sweep = parse_sweep(text, sweep_file, check_protocol=False)
+    assert sweep.output.keep_snapshots == expected
+
+
+@pytest.mark.parametrize("table, message", [
+    ('[output]\nkeep_snapshots = "first"', "'first' is not a choice"),
+    ("[output]\nkeep_snapshots = 0", "0 is not a choice"),
+    ("[output]\nkeep_snapshots = 2.5", "2.5 is not a choice"),
+    ("[output]\nkeep_snapshot = 2", "did you mean 'keep_snapshots'"),
+])
+def test_bad_keep_snapshots_is_named_with_the_choices(sweep_file, table, message):
+    with pytest.raises(SweepError) as err:
+        parse_sweep(sweep_file.read_text() + table + "\n", sweep_file, check_protocol=False)
+    text = str(err.value)
+    assert message in text and "sweep.toml: [output]" in text
+    assert "keep_snapshot" in text and ('"last"' in text or "did you mean" in text)
+
+
+def _timed_sweep(tmp_path, measure: str, output: str = "", axis: str = "") -> str:
+    """A sweep of the tiny protocol: outputs every 2 hbar/mu up to 10 (frames 0, 2, ..., 10)."""
+    from tiny_protocol import tiny_protocol_text
+
+    (tmp_path / "tiny.toml").write_text(tiny_protocol_text(duration=10.0, output_interval=2.0))
+    axis = axis or 'key = "beams.0.path.speed_c"\nvalues = [0.4, 0.6]'
+    return (f'base = "tiny.toml"\n[[axes]]\n{axis}\n[measure]\n{measure}\n'
+            + (f"[output]\n{output}\n" if output else ""))
+
+
+@pytest.mark.parametrize("measure, output", [
+    ("window_tau = [4.0, 10.0]", ""), ("window = [3.0, 5.0]", "keep_snapshots = 2"),
+    ("at_time = 6.0", "keep_snapshots = 3"), ("at_time = 9.5", 'keep_snapshots = "last"'),
+    ("window = [0.0, 10.0]", 'keep_snapshots = "last"'), ("at_time_tau = 0", ""),
+])
+def test_measure_times_inside_the_runs_are_accepted(tmp_path, measure, output):
+    src = tmp_path / "s.toml"
+    src.write_text(_timed_sweep(tmp_path, measure, output))
+    assert load_sweep(src).measure is not None
+
+
+@pytest.mark.parametrize("measure, output, words", [
+    ("window_tau = [8.0, 14.0]", "", ["[measure] window_tau", "not inside the run",
+                                      "0 .. 10 tau", "t1 <= 10 tau"]),
+    ("window = [-1.0, 1.0]", "", ["[measure] window", "not inside"]),
+    ("window = [2.5, 3.5]", "", ["no frame in the window [2.5, 3.5] tau", "every 2 tau"]),
+    ("window = [0.5, 6.0]", 'keep_snapshots = "last"',
+     ["no kept frame", "keeps frames at 10 tau"]),
+    ("window = [1.0, 5.0]", "keep_snapshots = 3", ["no kept frame", "0, 6, 10"]),
+    ("at_time = 12.0", "", ["[measure] at_time", "outside the run", "at_time <= 10 tau"]),
+    ("at_time = 4.0", 'keep_snapshots = "last"', ["not a kept frame", "nearest is 10 tau"]),
+])
+def test_measure_times_outside_the_runs_are_refused_before_running(tmp_path, measure, output,
+                                                                   words):
+    src = tmp_path / "s.toml"
+    src.write_text(_timed_sweep(tmp_path, measure, output))
+    with pytest.raises(SweepError) as err:
+        load_sweep(src)
+    text = str(err.value)
+    assert "s.toml" in text and "accepted:" in text
+    for w in words:
+        assert w in text, (w, text)
+
+
+def test_a_swept_duration_is_checked_point_by_point(tmp_path):
+    src = tmp_path / "s.toml"
+    src.write_text(_timed_sweep(tmp_path, "window_tau = [6.0, 8.0]",
+                                axis='key = "evolution.duration_tau"\nvalues = [10.0, 4.0]'))
+    with pytest.raises(SweepError) as err:
+        load_sweep(src)
+    text = str(err.value)
+    assert "point p001 (evolution.duration_tau=4.0)" in text and "0 .. 4 tau" in text
+
+
+def test_the_command_line_refuses_a_bad_window_before_any_point_runs(tmp_path, capsys):
+    from gpe.cli.main import main
+
+    src = tmp_path / "s.toml"
+    src.write_text(_timed_sweep(tmp_path, "window_tau = [20.0, 30.0]"))
+    out = tmp_path / "out"
+    assert main(["sweep", str(src), "-o", str(out)]) == 2
+    assert "window_tau" in capsys.readouterr().err and not out.exists()

@@ -155,6 +155,7 @@ def _cmd_sweep(args) -> int:
                               restart_changed=args.restart_changed)
     finally:
         bar.close()
+    print(sweep_summary_text(result))
     print(f"summary tables: {', '.join(str(v) for v in result.files.values())}")
     if result.failed:
         print(f"{len(result.failed)} point(s) failed:")
@@ -173,6 +174,34 @@ def _cmd_sweep(args) -> int:
     return 0 if not result.failed else 1
 
 
+
+
+def sweep_summary_text(result) -> str:
+    """The per-point table printed at the end of a sweep: swept values, seeds that finished,
+    beta (mean over seeds with its 95% interval) and the other measured means, with units."""
+    import math
+
+    def number(v) -> str:
+        return "" if v is None or (isinstance(v, float) and math.isnan(v)) else f"{v:.4g}"
+
+    qs = [q for q in result.quantities if q != "beta"]
+    head = [a.title for a in result.axes] + ["ok/seeds", f"beta [{result.units['beta_mean']}]",
+                                             "95% interval", "beta<0"]
+    head += [f"{q} [{result.units[q + '_mean']}]" for q in qs]
+    rows = []
+    for r in result.points:
+        lo, hi = number(r["beta_lo95"]), number(r["beta_hi95"])
+        row = [str(r[a.key]) for a in result.axes]
+        row += [f"{r['n_ok']}/{r['n_seeds']}", number(r["beta_mean"]),
+                f"[{lo}, {hi}]" if lo and hi else "", number(r["frac_beta_negative"])]
+        row += [number(r[q + "_mean"]) for q in qs]
+        rows.append(row)
+    width = [max(len(c) for c in col) for col in zip(head, *rows)]
+    lines = ["  ".join(c.rjust(w) for c, w in zip(line, width)) for line in [head, *rows]]
+    n_ok = sum(r["status"] == "ok" for r in result.runs)
+    title = (f"sweep summary: {n_ok} of {len(result.runs)} runs measured "
+             "(means over seeds; the interval is Student-t over the seeds that finished)")
+    return "\n".join([title, *lines])
 
 
 # --------------------------------------------------------------------------- vortices

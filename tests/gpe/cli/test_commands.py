@@ -183,3 +183,24 @@ def test_vortices_keeps_an_existing_csv_unless_forced(tiny_run, tmp_path, capsys
     assert default.read_text() == "kept\n"
     assert main(["vortices", str(tiny_run), "--force"]) == 0
     assert default.read_text() == first
+
+
+def test_the_sweep_summary_names_every_point_with_its_values_and_units(tmp_path):
+    from sweep_stand_in import run_stand_in, write_sweep_file
+
+    from gpe.cli.commands import sweep_summary_text
+
+    result = run_stand_in(write_sweep_file(tmp_path), tmp_path / "out", workers=1)
+    text = sweep_summary_text(result).splitlines()
+    assert text[0].startswith("sweep summary: 8 of 8 runs measured")
+    head = text[1].split()
+    assert head[:2] == ["beam", "speed"] and "[1/E0]" in text[1] and "n_plus" in text[1]
+    assert len(text) == 2 + len(result.points)
+    for line, point in zip(text[2:], result.points):
+        cells = line.split()
+        assert float(cells[0]) == point["beams.0.path.speed_c"]
+        assert float(cells[1]) == point["beams.0.waist_um"]
+        assert cells[2] == "2/2"
+        assert float(cells[3]) == pytest.approx(point["beta_mean"], rel=1e-3)
+        assert float(cells[-2]) == pytest.approx(point["n_plus_mean"], rel=1e-3)
+        assert float(cells[-1]) == pytest.approx(point["dipole_fraction_mean"], rel=1e-3)

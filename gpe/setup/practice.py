@@ -2,7 +2,8 @@
 :class:`~gpe.errors.ProtocolWarning` for numbers against the usual rules of thumb.
 
 Each rule is marked "common practice" where it is one (dx <= xi, waist >= 2 dx, about one radian
-of phase per step, damping 1e-4 .. 3e-2, mu << hbar omega_z for a quasi-2D gas).
+of phase per step, damping 1e-4 .. 3e-2, mu << hbar omega_z for a quasi-2D gas, a beam that
+reaches the fluid, a beam slower than the sound speed c = sqrt(g n0 / m)).
 
 Units: simulation units (xi, hbar/mu, mu); SI only in the messages.
 """
@@ -11,7 +12,10 @@ from __future__ import annotations
 
 import math
 import warnings
+
+import numpy as np
 import scipy.constants as const
+from scipy import ndimage
 
 from gpe.errors import ProtocolWarning
 from gpe.field.beams import find_beam_excursion
@@ -53,6 +57,19 @@ def check_practice(ctx: ReadingContext, p, grid_sec: Section, ev: Section, beam_
                  f"{hit.time:.4g} hbar/mu = {u.time_to_si(hit.time) * 1e3:.4g} ms, closer than one waist "
                  f"to the edge of the grid", f"a path with |x| <= {hit.limit_x:.4g} xi and |y| <= "
                  f"{hit.limit_y:.4g} xi while the beam is on (or a larger [grid])")
+    fluid = _fluid_distance(p.trap, g) if p.beams else None
+    for i, beam in enumerate(p.beams):
+        if fluid is not None:
+            _check_beam_reaches_fluid(warn, i, beam, p, *fluid)
+        speed = beam.path.max_speed
+        # common practice: sound speed c = sqrt(g n0 / m), 1 in simulation units (n0 at mu)
+        if beam.height != 0 and speed > 1.0:
+            warn(f"[beams.{i}] the beam moves at up to {speed:.3g} c = "
+                 f"{speed * u.speed_m_s * 1e3:.3g} mm/s, faster than the sound speed of the bulk, "
+                 f"c = sqrt(g n0 / m) = 1 c = {u.speed_m_s * 1e3:.3g} mm/s (and the local "
+                 "sound speed, lower where the density is lower): a supersonic obstacle drags "
+                 "a wake of sound waves besides vortices; common practice stirs between the "
+                 "critical speed of vortex shedding, a few tenths of c, and c.")
     dt = p.evolution.dt
     # |V0| of the strongest beam: a well turns the phase as fast as a barrier of the same height
     v_max = _trap_maximum(p.trap, g) + beams.max_height() + 1.0
@@ -91,3 +108,59 @@ def _trap_maximum(trap: Trap, grid: Grid) -> float:
         grid = Grid(max(8, 2 * (grid.nx // (2 * stride))), max(8, 2 * (grid.ny // (2 * stride))),
                     grid.length_x, grid.length_y)
     return float(trap.potential(grid).max())
+
+
+#: Times at which a beam's path is sampled for the fluid check, at most.
+_PATH_SAMPLES = 4000
+
+
+def _fluid_distance(trap: Trap, grid: Grid):
+    """Distance from every point of a (coarse) copy of the grid to the nearest fluid point,
+    fluid being where the trap stays below the chemical potential (V < mu, Thomas-Fermi).
+
+    Units: xi; returns (grid, distances) or None when the trap holds no fluid at all.
+    """
+    stride = max(1, math.ceil(math.sqrt(grid.nx * grid.ny / _PRACTICE_POINTS)))
+    if stride > 1:
+        grid = Grid(max(8, 2 * (grid.nx // (2 * stride))), max(8, 2 * (grid.ny // (2 * stride))),
+                    grid.length_x, grid.length_y)
+    fluid = trap.potential(grid) < 1.0
+    if not fluid.any():
+        return None
+    return grid, ndimage.distance_transform_edt(~fluid, sampling=(grid.dy, grid.dx))
+
+
+def _check_beam_reaches_fluid(warn, i: int, beam, p, grid: Grid, distance: np.ndarray) -> None:
+    """Warn when a beam's centre never comes within one waist of the fluid while it is on
+    (``distance``: to the fluid, on ``grid``, from :func:`_fluid_distance`)."""
+    if beam.height == 0:
+        return
+    duration = p.evolution.duration
+    n = int(min(_PATH_SAMPLES, max(200, math.ceil(duration * beam.path.max_speed
+                                                   / (0.25 * beam.waist)))))
+    t = np.linspace(0.0, duration, n)
+    on = np.broadcast_to(np.asarray(beam.ramp.factor(t), dtype=float) != 0.0, t.shape)
+    if not on.any():
+        return
+    x, y = beam.path.position(t)
+    x = np.broadcast_to(np.asarray(x, dtype=float), t.shape)
+    y = np.broadcast_to(np.asarray(y, dtype=float), t.shape)
+    best = (math.inf, 0.0, 0.0, 0.0)
+    for ox, oy in beam.offsets:
+        cx, cy = x[on] + ox, y[on] + oy
+        col = np.clip(np.rint((cx - grid.x[0]) / grid.dx).astype(int), 0, grid.nx - 1)
+        row = np.clip(np.rint((cy - grid.y[0]) / grid.dy).astype(int), 0, grid.ny - 1)
+        d = distance[row, col]
+        k = int(np.argmin(d))
+        if d[k] < best[0]:
+            best = (float(d[k]), float(t[on][k]), float(cx[k]), float(cy[k]))
+    gap, when, bx, by = best
+    cell = max(grid.dx, grid.dy)
+    if gap > beam.waist + cell:
+        u = p.units
+        warn(f"[beams.{i}] the beam never enters the fluid: its centre stays about "
+             f"{gap:.3g} xi = {u.length_to_si(gap) * 1e6:.3g} um (within a grid cell, "
+             f"{cell:.2g} xi) from the condensate (closest "
+             f"at t = {when:.4g} hbar/mu = {u.time_to_ms(when):.4g} ms, at (x, y) = ({bx:.4g}, "
+             f"{by:.4g}) xi), more than its waist {beam.waist:.3g} xi, so it stirs nothing; "
+             "move its path (or the trap) so that it crosses the region where V_trap < mu.")

@@ -111,3 +111,20 @@ def talking_point(task: PointTask) -> dict:
     logging.getLogger("gpe.run.simulate").info("%s simulated", task.point_id)
     logging.getLogger("gpe.run.simulate").debug("%s details", task.point_id)
     return stand_in_point(task)
+
+
+def slow_stand_in_point(task: PointTask) -> dict:
+    """The stand-in point taking ~0.3 s, logging every start and every finished simulation
+    (``computed.log`` in the output folder: ``start <id> <pid>`` / ``done <id>``), for the
+    kill tests."""
+    out = Path(task.run_path).parent.parent
+    run = Path(task.run_path)
+    with (out / "computed.log").open("a") as fh:
+        fh.write(f"start {task.point_id} {os.getpid()}\n")
+    was_complete = stand_in_is_complete(run)
+    time.sleep(0.3)
+    values = stand_in_point(task)
+    if not was_complete:
+        with (out / "computed.log").open("a") as fh:
+            fh.write(f"done {task.point_id}\n")
+    return values

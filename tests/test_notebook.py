@@ -10,7 +10,10 @@ NOTEBOOK = Path(__file__).resolve().parents[1] / "docs" / "example.ipynb"
 
 
 @pytest.mark.notebook
-def test_the_example_notebook_runs_and_shows_the_dataset_and_the_vortices(tmp_path):
+def test_the_example_notebook_runs_and_shows_the_dataset_and_the_vortices(tmp_path, monkeypatch):
+    # a notebook kernel draws inline; CI exports MPLBACKEND=Agg for the scripts, which the
+    # kernel would inherit and then show no figure at all
+    monkeypatch.delenv("MPLBACKEND", raising=False)
     nb = nbformat.read(NOTEBOOK, as_version=4)
     source = "\n".join(cell.source for cell in nb.cells)
     assert "matplotlib.use" not in source          # a notebook never changes the user's backend

@@ -37,8 +37,16 @@ def _format_seconds(seconds: float) -> str:
 
 
 def in_notebook() -> bool:
-    """True inside a Jupyter kernel, where ``tqdm.auto`` gives a widget."""
-    return autonotebook.tqdm is not std.tqdm
+    """True inside a Jupyter kernel: ``tqdm.auto`` draws a widget there (with ipywidgets
+    installed; without, the text bar, which a notebook shows as well)."""
+    if autonotebook.tqdm is not std.tqdm:
+        return True
+    ipython = sys.modules.get("IPython")
+    try:
+        shell = ipython.get_ipython() if ipython is not None else None
+        return shell is not None and "IPKernelApp" in shell.config
+    except Exception:  # noqa: BLE001 -- any odd shell is simply not a notebook
+        return False
 
 
 def bars_enabled(stream: Any = None) -> bool:

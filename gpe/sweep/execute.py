@@ -423,6 +423,9 @@ def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
     # workers report their records from this level on (what this process would show)
     log_level = min(logging.getLogger("gpe").getEffectiveLevel(),
                     logging.getLogger("py.warnings").getEffectiveLevel(), logging.WARNING)
+    logger.info("sweep %s: %d points, %d to run, %d finished before; %s", sweep.source,
+                len(points), len(todo), n_skipped,
+                f"{capacity} workers x {threads} threads" if capacity else "the given executor")
     start = time.monotonic()
     futures: dict[cf.Future, Point] = {}
     interrupted = False
@@ -461,6 +464,11 @@ def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
         relay_messages(point.point_id, outcome.get("messages"))
         records[point.point_id] = _save_record(out_dir, point, sweep, outcome)
         n_done_here += 1
+        if outcome["status"] == "failed":
+            logger.warning("%s failed: %s", point.point_id, outcome["error"])
+        else:
+            logger.info("%s %s in %.3g s", point.point_id, outcome["status"],
+                        outcome.get("elapsed_s", float("nan")))
 
     previous_term = None
     if threading.current_thread() is threading.main_thread():

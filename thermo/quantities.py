@@ -30,6 +30,8 @@ QUANTITIES: dict[str, Quantity] = {q.name: q for q in (
     Quantity("n_plus", "1", "number of positive (counter-clockwise) vortices"),
     Quantity("n_minus", "1", "number of negative (clockwise) vortices"),
     Quantity("beta", "1/E0", f"inverse temperature of the vortex gas, beta~ = beta E0, E0 = {E0}"),
+    Quantity("beta_n", "1", "beta~ N, the inverse temperature times the vortex number: compares "
+             "gases of different N"),
     Quantity("energy_per_vortex", "E0", "point-vortex energy per vortex (constant N ln(R/a) dropped)"),
     Quantity("dipole_moment", "domain size", "D = |sum s_i u_i| / N"),
     Quantity("c1", "1", "C1 = (1/N) sum_i s_i s_nn(i), nn the nearest neighbour"),

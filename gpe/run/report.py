@@ -15,6 +15,8 @@ import csv
 import math
 from pathlib import Path
 
+from gpe.run.jsontext import strict_json
+
 CSV_COLUMNS = ("n_plus", "n_minus", "energy_per_vortex", "beta", "beta_ci68_lo", "beta_ci68_hi",
                "beta_ci95_lo", "beta_ci95_hi", "beta_n", "beta_n_ci95_lo", "beta_n_ci95_hi",
                "bound", "dos_error", "reach", "temperature_sign", "prob_negative",
@@ -29,20 +31,6 @@ CSV_UNITS = {"n_plus": "1", "n_minus": "1", "energy_per_vortex": "E0", "beta": "
              "c1": "1", "dipole_fraction": "1", "cluster_fraction": "1", "free_fraction": "1",
              "left_out_wall": "1", "left_out_pairs": "1", "verdict": "", "frame": "1",
              "shot": "", "run": ""}
-
-
-def strict(obj):
-    """``obj`` with NaN and infinities as None and numpy scalars as Python numbers, so that
-    ``json.dumps(..., allow_nan=False)`` accepts it (RFC 8259 has no NaN or Infinity)."""
-    if isinstance(obj, dict):
-        return {str(k): strict(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [strict(v) for v in obj]
-    if hasattr(obj, "item") and not isinstance(obj, (str, bytes)):
-        obj = obj.item()
-    if isinstance(obj, float) and not math.isfinite(obj):
-        return None
-    return obj
 
 
 def _flat(rec: dict) -> dict:
@@ -83,10 +71,10 @@ def write_records_csv(path, records: list[dict], time_key: str, time_unit: str =
 def json_report(result: dict) -> dict:
     """The JSON document of ``vortherm temperature --json``: frames or shots, and ensemble.
 
-    Strict JSON (:func:`strict`: no NaN; the open side of a bound's interval is null). For a
-    run it says whether the run is complete (``run_complete``), how many frames exist of how
-    many the protocol plans (``frames_stored``, ``frames_planned``) and, for an incomplete run,
-    carries the note ``incomplete``.
+    Strict JSON (gpe.run.jsontext.strict_json: no NaN; the open side of a bound's interval is
+    null). For a run it says whether the run is complete (``run_complete``), how many frames
+    exist of how many the protocol plans (``frames_stored``, ``frames_planned``) and, for an
+    incomplete run, carries the note ``incomplete``.
 
     Units: beta in 1/E0 (``beta_unit``); beta~ N dimensionless; times in ``time_unit``.
     """
@@ -103,7 +91,7 @@ def json_report(result: dict) -> dict:
         out["frames_planned"] = result["frames_planned"]
         if result.get("incomplete"):
             out["incomplete"] = result["incomplete"]
-    return strict(out)
+    return strict_json(out)
 
 
 def _fmt(v: float, width: int = 8) -> str:

@@ -7,8 +7,13 @@
 * :func:`vortex_table`: the stored vortex table with its columns in both unit systems; the SI
   columns are those of the CSV that ``vortherm vortices`` writes, computed by the same function
   (gpe.run.products.vortex_columns_si).
+* :func:`temperature_frames` and :func:`ensemble_frame`: a thermometry result
+  (gpe.run.thermometry) as a table of frames or shots -- the columns, units and numbers of the
+  CSV that ``vortherm temperature`` writes (gpe.run.report) -- and as a one-row table of the
+  ensemble with its systematics budget.
 
-Both read the file once and return data in memory; nothing is written.
+They read a file once (or a result already in memory) and return data in memory; nothing is
+written.
 
 Units: simulation units (xi, hbar/mu, mu, n0) beside um and ms, each named by its attribute.
 """
@@ -21,7 +26,8 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
-from gpe.errors import RunFileError
+from gpe.errors import RunFileError, VorthermError
+from gpe.run import report
 from gpe.run.products import VORTEX_CSV_COLUMNS, vortex_columns_si
 from gpe.run.reading import protocol_of, select_frames
 from gpe.run.runfile import VORTEX_UNITS, RunFile
@@ -125,4 +131,142 @@ def vortex_table(path) -> pd.DataFrame:
         "x": np.asarray(table["x"], float), "y": np.asarray(table["y"], float),
         "x_um": si["x_um"], "y_um": si["y_um"], "sign": si["sign"], "track": si["track"]})
     frame.attrs["units"] = {**VORTEX_UNITS, **{n: u for n, u, _ in VORTEX_CSV_COLUMNS}}
+    return frame
+
+
+#: Units of the ensemble columns that the per-frame table (gpe.run.report.CSV_UNITS) lacks;
+#: ``window_lo``/``window_hi`` are in the result's time unit.
+_ENSEMBLE_UNITS = {"beta_n_ci68_lo": "1", "beta_n_ci68_hi": "1", "stderr": "1/E0",
+                   "regime": "", "not_in_equilibrium": "", "common": "", "groups": "",
+                   "n_shots": "1", "n_effective": "1", "frames": "1", "runs": "1",
+                   "tau_frames": "frames", "left_out_small": "1", "core_radius": "domain size",
+                   "core_given": "", "imaging_note": ""}
+#: Columns of the ensemble row before its systematics, in order (those of a measured table's
+#: ensemble after ``window_*``: ``core_radius``, ``core_given``, ``imaging_note``).
+_ENSEMBLE_COLUMNS = (
+    "n_plus", "n_minus", "energy_per_vortex", "beta", "beta_ci68_lo", "beta_ci68_hi",
+    "beta_ci95_lo", "beta_ci95_hi", "beta_n", "beta_n_ci68_lo", "beta_n_ci68_hi",
+    "beta_n_ci95_lo", "beta_n_ci95_hi", "bound", "stderr", "dos_error", "reach",
+    "temperature_sign", "prob_negative", "regime", "not_in_equilibrium", "common", "groups",
+    "n_shots", "n_effective", "frames", "runs", "tau_frames", "left_out_small", "left_out_wall",
+    "left_out_pairs", "dipole_moment", "c1", "dipole_fraction", "cluster_fraction",
+    "free_fraction", "verdict")
+
+
+def _result_part(result, key: str):
+    if not isinstance(result, dict) or key not in result:
+        raise VorthermError(f"thermometry result: no {key!r} key; pass what "
+                            "gpe.run.thermometry.temperature_of_run, temperature_of_runs or "
+                            "temperature_of_table returns")
+    return result[key]
+
+
+def _attrs(result: dict, units: dict) -> dict:
+    return {"units": units, "source": result.get("source", ""),
+            "time_unit": result.get("time_unit", ""), "verdict": result.get("onset", "")}
+
+
+def temperature_frames(result: dict) -> pd.DataFrame:
+    """The per-frame (or per-shot) temperatures of a thermometry result as a DataFrame.
+
+    Parameters
+    ----------
+    result : what gpe.run.thermometry.temperature_of_run, temperature_of_runs or
+        temperature_of_table returns.
+
+    Returns
+    -------
+    pandas.DataFrame with one row per frame (or shot) and the columns of the CSV that
+    ``vortherm temperature`` writes, named as there without the unit brackets: ``run`` (several
+    runs only), ``t`` and ``frame`` (runs) or ``shot`` (measured tables), ``n_plus``,
+    ``n_minus``, ``energy_per_vortex``, ``beta`` with ``beta_ci68_lo``/``_hi`` and
+    ``beta_ci95_lo``/``_hi``, ``beta_n`` with ``beta_n_ci95_lo``/``_hi``, ``bound`` ("upper":
+    beta~ N < value, "lower": > value, "" for a measurement), ``dos_error``, ``reach``,
+    ``temperature_sign``, ``prob_negative``, the structure observables, the vortices left out
+    and ``verdict``. Undefined numbers (a frame with fewer than two vortices) are NaN, the open
+    side of a bound's interval is -inf or inf. ``attrs``: ``units`` (column -> unit, the CSV's
+    table gpe.run.report.CSV_UNITS), ``source``, ``time_unit`` and ``verdict`` (the onset
+    statement).
+
+    Raises
+    ------
+    VorthermError
+        ``result`` is not a thermometry result (the missing key is named).
+
+    Units
+    -----
+    As in ``attrs["units"]``: beta in 1/E0 with E0 = rho kappa^2/(4 pi), beta~ N and
+    probabilities dimensionless, ``t`` in the protocol's display unit (ms or hbar/mu).
+    """
+    records = _result_part(result, "records")
+    columns = report.record_columns(records, _result_part(result, "time_key"),
+                                    result.get("time_unit", ""))
+    rows = [report.flat_record(rec) for rec in records]
+    frame = pd.DataFrame({name: [row.get(name, np.nan) for row in rows] for name, _ in columns},
+                         columns=[name for name, _ in columns])
+    frame.attrs.update(_attrs(result, dict(columns)))
+    return frame
+
+
+def _pair(values, n: int = 2) -> list:
+    values = list(values) if isinstance(values, (list, tuple, np.ndarray)) else []
+    return values if len(values) == n else [np.nan] * n
+
+
+def ensemble_frame(result: dict) -> pd.DataFrame:
+    """The ensemble estimate of a thermometry result as a one-row DataFrame.
+
+    Parameters
+    ----------
+    result : what gpe.run.thermometry.temperature_of_run, temperature_of_runs or
+        temperature_of_table returns.
+
+    Returns
+    -------
+    pandas.DataFrame with one row: ``window_lo``/``window_hi`` (runs: the first and last time
+    of the ensemble), the per-frame table's quantities for the ensemble (``n_plus``/``n_minus``
+    are the mean vortex numbers for runs), ``beta_n_ci68_lo``/``_hi``, ``stderr``, ``regime``,
+    ``not_in_equilibrium``, ``common``, ``groups`` (as in the text report: "9+9 x1, 10+10
+    x17"), ``n_shots``, ``n_effective``, ``frames``, ``runs``, ``tau_frames`` (the
+    autocorrelation time of each run, "; "-separated), ``left_out_small``, the systematics
+    budget (``sys_<source>_lo``/``_hi`` per source and ``sys_total_lo``/``_hi``: shifts of
+    beta~ N) and ``verdict``; measured tables add ``core_radius``, ``core_given`` and
+    ``imaging_note``. ``attrs`` as for :func:`temperature_frames`. The numbers are those of the
+    ``ensemble`` of ``vortherm temperature --json``.
+
+    Raises
+    ------
+    VorthermError
+        ``result`` is not a thermometry result (the missing key is named).
+
+    Units
+    -----
+    As in ``attrs["units"]``: beta in 1/E0, beta~ N and its shifts dimensionless, the window in
+    the protocol's display unit, ``tau_frames`` in frames.
+    """
+    ens = _result_part(result, "ensemble")
+    units = {**report.CSV_UNITS, **_ENSEMBLE_UNITS}
+    row = {}
+    if "window" in ens:
+        row["window_lo"], row["window_hi"] = _pair(ens["window"])
+        units["window_lo"] = units["window_hi"] = result.get("time_unit", "")
+    flat = dict(ens)
+    for key in ("beta_ci68", "beta_ci95", "beta_n_ci68", "beta_n_ci95"):
+        flat[f"{key}_lo"], flat[f"{key}_hi"] = _pair(ens.get(key))
+    flat["bound"] = ens.get("bound") or ""
+    flat["groups"] = ", ".join(f"{g['n_plus']}+{g['n_minus']} x{g['shots']}"
+                               for g in ens.get("groups", []))
+    flat["tau_frames"] = "; ".join(repr(float(t)) for t in ens.get("tau_frames", []))
+    for name in _ENSEMBLE_COLUMNS[:-1]:
+        row[name] = flat.get(name, np.nan)
+    if result.get("kind") == "measured":
+        for name in ("core_radius", "core_given", "imaging_note"):
+            row[name] = flat.get(name, "" if name == "imaging_note" else np.nan)
+    for source, item in (ens.get("systematics") or {}).items():
+        lo, hi = _pair(item if source == "total" else item.get("shift"))
+        row[f"sys_{source}_lo"], row[f"sys_{source}_hi"] = lo, hi
+        units[f"sys_{source}_lo"] = units[f"sys_{source}_hi"] = "1"
+    row["verdict"] = ens.get("verdict", "")
+    frame = pd.DataFrame([row], columns=list(row))
+    frame.attrs.update(_attrs(result, {name: units.get(name, "") for name in row}))
     return frame

@@ -33,7 +33,13 @@ CSV_UNITS = {"n_plus": "1", "n_minus": "1", "energy_per_vortex": "E0", "beta": "
              "shot": "", "run": ""}
 
 
-def _flat(rec: dict) -> dict:
+def flat_record(rec: dict) -> dict:
+    """A record with its intervals split into ``*_lo``/``*_hi`` columns and ``bound`` as a
+    word ("" when the value is a measurement): the row of the CSV table and of
+    gpe.run.dataset.temperature_frames.
+
+    Units: as in the record.
+    """
     out = dict(rec)
     out["beta_ci68_lo"], out["beta_ci68_hi"] = rec["beta_ci68"]
     out["beta_ci95_lo"], out["beta_ci95_hi"] = rec["beta_ci95"]
@@ -50,21 +56,33 @@ def _cell(v) -> str:
     return "" if v is None else str(v)
 
 
-def write_records_csv(path, records: list[dict], time_key: str, time_unit: str = "") -> Path:
-    """Write per-frame (or per-shot) records as CSV: one plain header line, every column with
-    its unit in brackets (``beta [1/E0]``; words have none); an open interval side is
-    ``-inf``/``inf``, an undefined value empty."""
-    path = Path(path)
+def record_columns(records: list[dict], time_key: str, time_unit: str = ""
+                   ) -> list[tuple[str, str]]:
+    """(name, unit) of every column of a per-frame (or per-shot) table: ``run`` when the
+    records name their runs, the time key (``t`` with ``frame``, or ``shot``), then
+    :data:`CSV_COLUMNS`; units from :data:`CSV_UNITS` ("" for words), ``t`` in ``time_unit``.
+
+    Units: none (the units are what it returns).
+    """
     first = ((["run"] if any("run" in r for r in records) else []) + [time_key]
              + (["frame"] if time_key == "t" else []))
     units = dict(CSV_UNITS, t=time_unit or "")
-    header = [f"{c} [{units[c]}]" if units.get(c) else c for c in first + list(CSV_COLUMNS)]
+    return [(c, units.get(c, "")) for c in first + list(CSV_COLUMNS)]
+
+
+def write_records_csv(path, records: list[dict], time_key: str, time_unit: str = "") -> Path:
+    """Write per-frame (or per-shot) records as CSV: one plain header line, every column with
+    its unit in brackets (``beta [1/E0]``; words have none); an open interval side is
+    ``-inf``/``inf``, an undefined value empty; numbers to 6 significant digits."""
+    path = Path(path)
+    columns = record_columns(records, time_key, time_unit)
+    header = [f"{c} [{u}]" if u else c for c, u in columns]
     with path.open("w", newline="") as fh:
         writer = csv.writer(fh)
         writer.writerow(header)
         for rec in records:
-            flat = _flat(rec)
-            writer.writerow([_cell(flat.get(c)) for c in first + list(CSV_COLUMNS)])
+            flat = flat_record(rec)
+            writer.writerow([_cell(flat.get(c)) for c, _ in columns])
     return path
 
 

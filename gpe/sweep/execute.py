@@ -35,6 +35,8 @@ from gpe.sweep.manifest import prepare_output, protocol_fingerprint
 from gpe.sweep.thinning import thin_snapshots
 from gpe.sweep.table import (
     SweepResult,
+    ensemble_summary,
+    pool_seeds,
     read_json,
     summarise,
     write_json,
@@ -124,7 +126,8 @@ def _execute(point_fn: Callable[[PointTask], Mapping], task: PointTask) -> dict:
             if q not in raw:
                 raise SweepError(f"the analysis returned no '{q}' (it gave {sorted(raw)})")
             values[q] = float(raw[q])
-        record = {"status": "ok", "values": values, "error": ""}
+        record = {"status": "ok", "values": values, "error": "",
+                  "ensemble": ensemble_summary(raw)}
     except KeyboardInterrupt:
         # Ctrl-C reaches the workers before the main process can leave the stop file; a worker
         # that saw it must not start the tasks still queued for it.
@@ -359,7 +362,9 @@ def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
               is_complete: Callable[[Path], bool] | None = None,
               progress: Callable[[Progress], None] | None = None,
               fingerprint: Callable[[str, tuple], dict] = protocol_fingerprint,
-              restart_changed: bool = False) -> SweepResult:
+              restart_changed: bool = False,
+              pool_fn: Callable[[Sweep, Path, list[Point]], Mapping] | None = pool_seeds
+              ) -> SweepResult:
     """Run (or resume) every point of ``sweep`` and write the summary tables into ``out_dir``.
 
     Parameters
@@ -375,6 +380,9 @@ def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
     fingerprint : ``(base, overrides) -> {"digest", "settings"}`` of a point's protocol
         (default :func:`protocol_fingerprint`); a rerun whose digests differ is refused.
     restart_changed : move the changed points' files aside and compute them again instead.
+    pool_fn : ``(sweep, out_dir, points) -> ensemble record`` of the seeds of one grid point
+        that finished, called here at summary time (default :func:`pool_seeds`: beta~ N pooled
+        over their run files); a failure leaves NaN and its reason in the point's row.
 
     Returns
     -------
@@ -513,7 +521,7 @@ def run_sweep(sweep: Sweep, out_dir: str | os.PathLike, *, executor: Any = None,
                     and p.point_id not in records and fut.result()["status"] != "cancelled"):
                 relay_messages(p.point_id, fut.result().get("messages"))
                 records[p.point_id] = _save_record(out_dir, p, sweep, fut.result())
-    result = summarise(sweep, out_dir, points, records, interrupted)
+    result = summarise(sweep, out_dir, points, records, interrupted, pool=pool_fn)
     report(force=True)
     return result
 
@@ -528,10 +536,13 @@ def _verified(is_complete: Callable[[Path], bool], path: Path) -> bool:
 
 
 def _save_record(out_dir: Path, point: Point, sweep: Sweep, outcome: Mapping) -> dict:
+    from gpe.run.jsontext import dumps_strict  # imports numpy: see the note at the top
+
     rec = {"point_id": point.point_id, "grid_id": point.grid_id, "seed": point.seed,
            "overrides": list(point.overrides), "run_file": f"runs/{point.point_id}.h5",
            "measure": asdict(sweep.measure), "keep_snapshots": sweep.output.keep_snapshots,
            **outcome}
-    rec = json.loads(json.dumps(rec))  # tuples -> lists, so that reruns compare equal
+    # tuples -> lists, NaN -> None: the record in memory is the one on disk, so reruns compare equal
+    rec = json.loads(dumps_strict(rec))
     write_json(out_dir / "points" / f"{point.point_id}.json", rec)
     return rec

@@ -164,7 +164,7 @@ def _cmd_sweep(args) -> int:
     try:
         from gpe.figures.sweep import plot_sweep
 
-        plot_sweep(result, "beta", path=Path(out_dir) / "phase_map.png")
+        plot_sweep(result, path=Path(out_dir) / "phase_map.png")   # beta~ N pooled over seeds
         print(f"phase map: {Path(out_dir) / 'phase_map.png'}")
     except VorthermError as exc:
         print(f"no phase map: {exc}")
@@ -178,29 +178,40 @@ def _cmd_sweep(args) -> int:
 
 def sweep_summary_text(result) -> str:
     """The per-point table printed at the end of a sweep: swept values, seeds that finished,
-    beta (mean over seeds with its 95% interval) and the other measured means, with units."""
+    beta (mean over seeds with its bootstrap 95% interval), the fraction of seeds at negative
+    beta, beta~ N pooled over the seeds with its 95% interval (or the bound it is), and the
+    other measured means, with units."""
     import math
 
     def number(v) -> str:
         return "" if v is None or (isinstance(v, float) and math.isnan(v)) else f"{v:.4g}"
 
+    def interval(lo, hi) -> str:
+        lo, hi = number(lo), number(hi)
+        return f"[{lo}, {hi}]" if lo and hi else ""
+
     qs = [q for q in result.quantities if q != "beta"]
     head = [a.title for a in result.axes] + ["ok/seeds", f"beta [{result.units['beta_mean']}]",
-                                             "95% interval", "beta<0"]
+                                             "95% interval", "beta<0", "beta~N [1]",
+                                             "95% interval"]
     head += [f"{q} [{result.units[q + '_mean']}]" for q in qs]
     rows = []
     for r in result.points:
-        lo, hi = number(r["beta_lo95"]), number(r["beta_hi95"])
         row = [str(r[a.key]) for a in result.axes]
         row += [f"{r['n_ok']}/{r['n_seeds']}", number(r["beta_mean"]),
-                f"[{lo}, {hi}]" if lo and hi else "", number(r["frac_beta_negative"])]
+                interval(r["beta_lo95"], r["beta_hi95"]), number(r["frac_beta_negative"])]
+        bound = r.get("bound") or ""
+        rel = {"upper": "<", "lower": ">"}.get(bound, "")
+        row += [rel + number(r.get("beta_n", math.nan)),
+                "(a bound)" if bound else interval(r.get("beta_n_lo95"), r.get("beta_n_hi95"))]
         row += [number(r[q + "_mean"]) for q in qs]
         rows.append(row)
     width = [max(len(c) for c in col) for col in zip(head, *rows)]
     lines = ["  ".join(c.rjust(w) for c, w in zip(line, width)) for line in [head, *rows]]
     n_ok = sum(r["status"] == "ok" for r in result.runs)
     title = (f"sweep summary: {n_ok} of {len(result.runs)} runs measured "
-             "(means over seeds; the interval is Student-t over the seeds that finished)")
+             "(beta~N pooled over the seeds that finished; means over seeds with bootstrap "
+             "intervals; no interval with one seed; beta~N reasons in summary_points.csv)")
     return "\n".join([title, *lines])
 
 
@@ -319,7 +330,8 @@ def _cmd_demo(args) -> int:
                                        overwrite=True)
     print(f"  {csv_path}")
     print("4/4 temperature of the vortex gas")
-    result = thermometry.temperature_of_run(run_path, effort="quick")
+    result = thermometry.temperature_of_run(run_path, effort="quick",
+                                            progress=progress.dos_progress())
     show_temperature(result, run_path, csv_path=out / "demo_temperature.csv", plot=True,
                      force=True)
     print(f"\nall demo outputs are in {out.resolve()}")

@@ -244,12 +244,14 @@ def _verdict(words, sign, prob_neg, value, ci95, bound, n, th, regime, extra=())
         "".join(f"; {e}" for e in extra)
 
 
-def default_provider(domain, core_radius, cache_dir, settings, seed
+def default_provider(domain, core_radius, cache_dir, settings, seed, progress=None
                      ) -> Callable[[int, int, int], DensityOfStates]:
-    """(n_plus, n_minus, reach) -> the cached density of states (thermo.dos.cache)."""
+    """(n_plus, n_minus, reach) -> the cached density of states (thermo.dos.cache); a build
+    reports its sweeps to ``progress(done, total)`` when given."""
     def provide(npl: int, nmi: int, reach: int = 0) -> DensityOfStates:
         return load_or_build(npl, nmi, domain, core_radius, cache_dir=cache_dir, seed=seed,
-                             settings=replace(settings, reach=max(reach, settings.reach)))
+                             settings=replace(settings, reach=max(reach, settings.reach)),
+                             progress=progress)
     return provide
 
 
@@ -259,7 +261,8 @@ def estimate_ensemble(configs: Sequence, domain: Any, core_radius: float, *,
                       cache_dir: Any = None, settings: DosSettings = DosSettings(),
                       seed: int | None = None,
                       dos_provider: Callable[[int, int], DensityOfStates] | None = None,
-                      equilibrium_z: float = 3.0, n_grid: int = 2001) -> BetaEstimate:
+                      equilibrium_z: float = 3.0, n_grid: int = 2001,
+                      progress: Callable[[int, int], Any] | None = None) -> BetaEstimate:
     """beta~ N (or beta~) shared by an ensemble of shots (see the module docstring).
 
     Parameters
@@ -277,6 +280,8 @@ def estimate_ensemble(configs: Sequence, domain: Any, core_radius: float, *,
     equilibrium_z : disagreement (in combined standard errors) that sets
         ``not_in_equilibrium``.
     n_grid : points of the theta grid.
+    progress : ``progress(done, total)`` of every density-of-states build (Monte Carlo sweeps;
+        thermo.dos.build.build), or None.
 
     Units: beta in 1/E0; positions in the domain size.
     """
@@ -320,7 +325,7 @@ def estimate_ensemble(configs: Sequence, domain: Any, core_radius: float, *,
     ref_counts = {k: len(v) for k, v in members.items()}
     key_main = max(ref_counts, key=lambda k: (ref_counts[k], -abs(k[0] - k[1])))
     n_main = sum(key_main)
-    provider = (default_provider(domain, core_radius, cache_dir, settings, seed)
+    provider = (default_provider(domain, core_radius, cache_dir, settings, seed, progress)
                 if dos_provider is None else (lambda a, b, reach=0: dos_provider(a, b)))
     can_widen = dos_provider is None
     reach = settings.reach
@@ -407,8 +412,8 @@ def _interval(beta_grid, ll, level):
 def estimate_single(positions: Any, signs: Any, domain: Any, core_radius: float, *,
                     cache_dir: Any = None, settings: DosSettings = DosSettings(),
                     seed: int | None = None,
-                    dos_provider: Callable[[int, int], DensityOfStates] | None = None
-                    ) -> BetaEstimate:
+                    dos_provider: Callable[[int, int], DensityOfStates] | None = None,
+                    progress: Callable[[int, int], Any] | None = None) -> BetaEstimate:
     """beta of one configuration: microcanonical beta(E) at its energy.
 
     ``beta`` is dS/dE at the shot's energy (the temperature of an isolated gas with that
@@ -416,7 +421,8 @@ def estimate_single(positions: Any, signs: Any, domain: Any, core_radius: float,
     betas under which this energy is typical, i.e. the finite-N energy fluctuation),
     extended to contain ``beta`` and widened by the density-of-states bootstrap error. When
     the energy or the interval reaches the end of the ladder, the ladder is widened; if that
-    does not suffice the result is a bound (see the module docstring).
+    does not suffice the result is a bound (see the module docstring). ``progress(done,
+    total)`` is told the sweeps of every density-of-states build it needs.
 
     Units: beta in 1/E0.
     """
@@ -429,7 +435,7 @@ def estimate_single(positions: Any, signs: Any, domain: Any, core_radius: float,
                           if sum(key) == 1 else "no vortex: no vortex-gas temperature")
     pos = grouped[key][0]
     e = float(energy_batch(pos, signs_of(*key), domain)[0])
-    provider = (default_provider(domain, core_radius, cache_dir, settings, seed)
+    provider = (default_provider(domain, core_radius, cache_dir, settings, seed, progress)
                 if dos_provider is None else (lambda a, b, reach=0: dos_provider(a, b)))
     reach = settings.reach
     while True:

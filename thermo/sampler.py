@@ -20,6 +20,7 @@ length unit (disk radius; box side along y).
 
 from __future__ import annotations
 
+import itertools
 import math
 from dataclasses import dataclass
 
@@ -58,19 +59,23 @@ _V, _I, _F = types.float64[::1], types.int64, types.float64
 
 # kernels as first-class functions (*domain.kernels()): compiled once for all domains, cached
 @njit(types.void(types.float64[:, :, ::1], _V, SIGNS, _V, _V, _F, *KERNEL_TYPES, _F, _I, _I, _I,
-                 _I, _F, types.float64[:, ::1], types.float64[:, :, :, ::1], _V, _V, _V, _V, _I,
-                 _I), cache=True)
+                 _I, _I, _F, types.float64[:, ::1], types.float64[:, :, :, ::1], _V, _V, _V, _V,
+                 _I, _I, _V, _V), cache=True)
 def _tempering_kernel(pos, energies, signs, betas, steps, max_step, self_fn, pair_fn, wall_fn,
-                      move_fn, params, core, n_total, burn_in, thin, adapt_every, target, out_e,
-                      out_pos, move_acc, move_att, swap_acc, swap_att, seed, pos_stride):
-    np.random.seed(seed)
+                      move_fn, params, core, sweep_start, sweep_stop, burn_in, thin, adapt_every,
+                      target, out_e, out_pos, move_acc, move_att, swap_acc, swap_att, seed,
+                      pos_stride, block_acc, block_att):
+    # sweeps sweep_start..sweep_stop-1 of one chain: called once for the whole run or in
+    # consecutive pieces (progress reports in between) with the same arrays; the generator is
+    # seeded at the first sweep only and numba keeps its state between calls in a thread, so
+    # the pieces draw exactly the numbers of one call
+    if sweep_start == 0:
+        np.random.seed(seed)
     n_rep = pos.shape[0]
     n = pos.shape[1]
     min_d2 = 4.0 * core * core
-    block_acc = np.zeros(n_rep)
-    block_att = np.zeros(n_rep)
-    rec = 0
-    for sweep in range(n_total):
+    rec = (sweep_start - burn_in) // thin if sweep_start > burn_in else 0   # recorded so far
+    for sweep in range(sweep_start, sweep_stop):
         production = sweep >= burn_in
         for k in range(n_rep):
             beta = betas[k]
@@ -131,6 +136,16 @@ def _tempering_kernel(pos, energies, signs, betas, steps, max_step, self_fn, pai
                         out_pos[k, rec // pos_stride, i, 0] = pos[k, i, 0]
                         out_pos[k, rec // pos_stride, i, 1] = pos[k, i, 1]
             rec += 1
+
+
+def _pieces(n_total: int, progress, n_reports: int) -> list[tuple[int, int]]:
+    """Consecutive (start, stop) sweep ranges: one without progress, else ``n_reports``."""
+    if progress is None or n_total <= 1:
+        return [(0, n_total)]
+    if not (isinstance(n_reports, (int, np.integer)) and n_reports >= 1):
+        raise SamplerError(f"n_reports = {n_reports!r}: must be a positive integer")
+    edges = np.unique(np.linspace(0, n_total, min(n_reports, n_total) + 1).round().astype(int))
+    return [(int(a), int(b)) for a, b in itertools.pairwise(edges)]
 
 
 @dataclass(frozen=True)
@@ -228,7 +243,8 @@ def _initial_configuration(domain, n, core, rng) -> np.ndarray:
 def run_tempering(domain: Domain, n_plus: int, n_minus: int, betas, n_sweeps: int,
                   core_radius: float, rng: np.random.Generator, burn_in: int | None = None,
                   thin: int = 1, initial=None, target_acceptance: float = 0.4,
-                  position_stride: int = 1) -> TemperingResult:
+                  position_stride: int = 1, progress=None, n_reports: int = 20
+                  ) -> TemperingResult:
     """Sample the canonical ensemble at every beta of a ladder with parallel tempering.
 
     Parameters
@@ -257,6 +273,11 @@ def run_tempering(domain: Domain, n_plus: int, n_minus: int, betas, n_sweeps: in
         Keep the configuration of every ``position_stride``-th recorded sample only (the
         energies of all): where E decorrelates in a few sweeps, recording it often pays,
         while storing every configuration would cost K S N 16 bytes.
+    progress : callable ``progress(done, total)``, optional
+        Called with the sweeps done (burn-in included) of all, ``n_reports`` times at most,
+        the last time with done == total; the samples are the same with or without it.
+    n_reports : int
+        Number of pieces the sweeps are run in when ``progress`` is given.
 
     Returns
     -------
@@ -313,10 +334,15 @@ def run_tempering(domain: Domain, n_plus: int, n_minus: int, betas, n_sweeps: in
     swap_att = np.zeros(max(k_rep - 1, 0))
     seed = int(rng.integers(0, 2**31 - 1))
     adapt_every = max(5, int(math.ceil(200 / n)))
-    _tempering_kernel(pos, energies, signs, b, steps, size, *kern, float(core_radius),
-                      int(burn + s_rec * thin), int(burn), int(thin), adapt_every,
-                      float(target_acceptance), out_e, out_pos, move_acc, move_att,
-                      swap_acc, swap_att, seed, int(position_stride))
+    n_total = int(burn + s_rec * thin)
+    block_acc, block_att = np.zeros(k_rep), np.zeros(k_rep)
+    for start, stop in _pieces(n_total, progress, n_reports):
+        _tempering_kernel(pos, energies, signs, b, steps, size, *kern, float(core_radius),
+                          start, stop, int(burn), int(thin), adapt_every,
+                          float(target_acceptance), out_e, out_pos, move_acc, move_att,
+                          swap_acc, swap_att, seed, int(position_stride), block_acc, block_att)
+        if progress is not None:
+            progress(stop, n_total)
     tau = np.array([integrated_autocorr_time(e) for e in out_e])
     with np.errstate(invalid="ignore", divide="ignore"):
         ess = s_rec / tau
@@ -382,10 +408,15 @@ def default_ladder(n_plus: int, n_minus: int, core_radius: float, domain: Domain
     return np.concatenate((pos[::-1], [0.0], neg))
 
 
+def pilot_burn_in(pilot_sweeps: int) -> int:
+    """Burn-in sweeps of the pilot run of :func:`adaptive_ladder`."""
+    return max(200, int(pilot_sweeps) // 4)
+
+
 def adaptive_ladder(n_plus: int, n_minus: int, core_radius: float, domain: Domain,
                     rng: np.random.Generator, n_temps: int = 24, pilot_sweeps: int = 1000,
                     max_swap_gap: float = 1.5, beta_max: float = 1.0,
-                    overshoot: float = 1.15) -> np.ndarray:
+                    overshoot: float = 1.15, progress=None) -> np.ndarray:
     """A ladder with the same ends as :func:`default_ladder`, spaced from a short pilot run.
 
     Why: the error of beta read off <E>(beta) (or off dS/dE) is SE(<E>)/Var(E) ~
@@ -416,6 +447,8 @@ def adaptive_ladder(n_plus: int, n_minus: int, core_radius: float, domain: Domai
         Largest |d beta| sigma_E allowed between neighbours (dimensionless).
     beta_max, overshoot : float
         Ends of the ladder, as for :func:`default_ladder`.
+    progress : callable ``progress(done, total)``, optional
+        Sweeps of the pilot run, as for :func:`run_tempering`.
 
     Returns
     -------
@@ -429,7 +462,7 @@ def adaptive_ladder(n_plus: int, n_minus: int, core_radius: float, domain: Domai
     if not (math.isfinite(max_swap_gap) and max_swap_gap > 0):
         raise SamplerError(f"max_swap_gap = {max_swap_gap!r}: must be > 0")
     res = run_tempering(domain, n_plus, n_minus, pilot, int(pilot_sweeps), core_radius, rng,
-                        burn_in=max(200, int(pilot_sweeps) // 4))
+                        burn_in=pilot_burn_in(pilot_sweeps), progress=progress)
     sd = res.energies.std(axis=1, ddof=1)
     b_inc = pilot[::-1]
     ln_sd = np.log(np.maximum(sd[::-1], 1e-12))

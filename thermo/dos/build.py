@@ -9,6 +9,7 @@ Units: energies in E0 = rho kappa^2 / (4 pi); beta in 1/E0; core radius in the d
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
@@ -31,6 +32,8 @@ BURN_IN_PER_VORTEX = 150
 #: recorded samples per replica when DosSettings.thin is None (thinning chosen to match);
 #: MBAR, its bootstrap and the tables work on energy bins, so their cost hardly grows with it
 _SAMPLES_PER_REPLICA = 32000
+#: progress reports of each tempering run of a build (see build's ``progress``)
+PROGRESS_REPORTS = 20
 
 
 @dataclass(frozen=True)
@@ -73,25 +76,8 @@ class DosSettings:
             raise SamplerError(f"DosSettings.n_boot = {self.n_boot}; need >= 2 for errors")
 
 
-def build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
-          settings: DosSettings = DosSettings(), rng: np.random.Generator | None = None
-          ) -> DensityOfStates:
-    """Run parallel tempering (thermo.sampler) and pool it with MBAR; no caching.
-
-    Units: core radius in the domain's length unit; betas in 1/E0.
-    """
-    rng = np.random.default_rng() if rng is None else rng
-    if settings.betas is not None:
-        betas = np.asarray(settings.betas, float)
-    else:
-        # rungs spaced from a short pilot run, denser where E hardly fluctuates (beta > 0),
-        # so that the error of beta(E) is even along the ladder (see adaptive_ladder)
-        scale = 2.0 ** settings.reach
-        kw = {"n_temps": (settings.n_temps or BASE_RUNGS) + REACH_RUNGS * settings.reach,
-              "beta_max": LADDER_ENDS[0] * scale, "overshoot": LADDER_ENDS[1] * scale}
-        kw["pilot_sweeps"] = int(min(1000, max(100, settings.n_sweeps // 20)))
-        betas = np.asarray(sampler.adaptive_ladder(n_plus, n_minus, core_radius, domain, rng,
-                                                   **kw))
+def _run_options(n_plus: int, n_minus: int, settings: DosSettings) -> dict:
+    """``burn_in`` and ``thin`` of the tempering run of a build (see :func:`build`)."""
     kw = {k: getattr(settings, k) for k in ("burn_in", "thin") if getattr(settings, k) is not None}
     # successive sweeps are strongly correlated (tau_int of E is ~1-60 sweeps along the
     # ladder), so keeping every sweep adds little over ~_SAMPLES_PER_REPLICA, while the
@@ -105,16 +91,95 @@ def build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
     # burn-in, 0.9-1.0x with 1500; larger gases relax more slowly, hence the term in N)
     kw.setdefault("burn_in", max(BURN_IN, BURN_IN_PER_VORTEX * (n_plus + n_minus),
                                  int(settings.n_sweeps) // 5))
+    return kw
+
+
+def _main_sweeps(n_plus: int, n_minus: int, settings: DosSettings) -> int:
+    """Sweeps of the tempering run of a build, burn-in included (thermo.sampler.run_tempering)."""
+    kw = _run_options(n_plus, n_minus, settings)
+    return int(kw["burn_in"]) + (int(settings.n_sweeps) // int(kw["thin"])) * int(kw["thin"])
+
+
+class _Report:
+    """The stages of a build (pilot, tempering) as one count of sweeps for ``progress``."""
+
+    def __init__(self, progress) -> None:
+        self.progress, self.sizes = progress, []
+
+    def add(self, sweeps: int) -> None:
+        self.sizes.append(int(sweeps))
+
+    def stage(self, index: int):
+        if self.progress is None:
+            return None
+        offset = sum(self.sizes[:index % len(self.sizes)])
+        total = sum(self.sizes)
+
+        def tell(done: int, _stage_total: int) -> None:
+            if offset + done < total:     # done == total only once MBAR has pooled the runs
+                self.progress(offset + int(done), total)
+        return tell
+
+    def begin(self) -> None:
+        if self.progress is not None:
+            self.progress(0, sum(self.sizes))
+
+    def finish(self) -> None:
+        if self.progress is not None:
+            total = sum(self.sizes)
+            self.progress(total, total)
+
+
+def build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
+          settings: DosSettings = DosSettings(), rng: np.random.Generator | None = None,
+          progress: Callable[[int, int], Any] | None = None) -> DensityOfStates:
+    """Run parallel tempering (thermo.sampler) and pool it with MBAR; no caching.
+
+    Parameters
+    ----------
+    n_plus, n_minus : vortex numbers; domain : a thermo.domains.base.Domain;
+    core_radius : hard-core radius a.
+    settings : DosSettings (effort); rng : source of the build (fresh when None).
+    progress : callable ``progress(done, total)``, optional. Called with the Monte Carlo
+        sweeps done of all (the pilot run that spaces the ladder and the tempering run, burn-in
+        included): first with done == 0, then monotonically, at most
+        ``2 * PROGRESS_REPORTS + 2`` times in all, the last time with done == total once the
+        MBAR pooling has finished. The build is the same with or without it.
+
+    Units: core radius in the domain's length unit; betas in 1/E0.
+    """
+    rng = np.random.default_rng() if rng is None else rng
+    report = _Report(progress)
+    if settings.betas is not None:
+        betas = np.asarray(settings.betas, float)
+        report.add(_main_sweeps(n_plus, n_minus, settings))
+        report.begin()
+    else:
+        # rungs spaced from a short pilot run, denser where E hardly fluctuates (beta > 0),
+        # so that the error of beta(E) is even along the ladder (see adaptive_ladder)
+        scale = 2.0 ** settings.reach
+        kw = {"n_temps": (settings.n_temps or BASE_RUNGS) + REACH_RUNGS * settings.reach,
+              "beta_max": LADDER_ENDS[0] * scale, "overshoot": LADDER_ENDS[1] * scale}
+        kw["pilot_sweeps"] = int(min(1000, max(100, settings.n_sweeps // 20)))
+        report.add(sampler.pilot_burn_in(kw["pilot_sweeps"]) + kw["pilot_sweeps"])
+        report.add(_main_sweeps(n_plus, n_minus, settings))
+        report.begin()
+        betas = np.asarray(sampler.adaptive_ladder(n_plus, n_minus, core_radius, domain, rng,
+                                                   progress=report.stage(0), **kw))
+    kw = _run_options(n_plus, n_minus, settings)
     # configurations only for the strided subset on which the structure observables are
     # evaluated (the same stride as from_tempering's), so many energies cost little memory
     s_rec = int(settings.n_sweeps) // int(kw["thin"])
     stride = max(1, s_rec // OBSERVED_PER_REPLICA)
     result = sampler.run_tempering(domain, n_plus, n_minus, betas, settings.n_sweeps,
-                                   core_radius, rng, position_stride=stride, **kw)
+                                   core_radius, rng, position_stride=stride,
+                                   progress=report.stage(-1), n_reports=PROGRESS_REPORTS, **kw)
     stored = dict(n_temps=int(betas.size), n_sweeps=int(settings.n_sweeps),
                   burn_in=settings.burn_in, thin=settings.thin, n_boot=int(settings.n_boot),
                   reach=int(settings.reach) if settings.betas is None else 0,
                   betas=[float(b) for b in betas] if settings.betas is not None else None)
-    return DensityOfStates.from_tempering(result, n_boot=settings.n_boot, rng=rng,
-                                          domain_key=repr(tuple(domain.key())),
-                                          settings=stored, position_stride=stride)
+    dos = DensityOfStates.from_tempering(result, n_boot=settings.n_boot, rng=rng,
+                                         domain_key=repr(tuple(domain.key())),
+                                         settings=stored, position_stride=stride)
+    report.finish()
+    return dos

@@ -147,7 +147,7 @@ def _settings_cover(stored: dict, wanted: DosSettings) -> bool:
 
 def load_or_build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
                   cache_dir: Any = None, seed: int | np.random.Generator | None = None,
-                  settings: DosSettings = DosSettings()) -> DensityOfStates:
+                  settings: DosSettings = DosSettings(), progress=None) -> DensityOfStates:
     """The density of states for (N+, N-, domain, core radius), from disk if possible.
 
     The file is keyed by :func:`cache_key`; a stored build is reused when it was made with
@@ -163,6 +163,8 @@ def load_or_build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
         the seed from the cache key and the reach (:func:`build_seed`), so different gases
         do not share one seed's statistical error while a rebuild of one key is reproducible.
     settings : DosSettings (effort).
+    progress : callable ``progress(done, total)`` for a build, in Monte Carlo sweeps
+        (:func:`thermo.dos.build.build`); a stored entry is loaded without calling it.
 
     Units: energies in E0, betas in 1/E0, a in the domain's length unit.
     """
@@ -190,7 +192,7 @@ def load_or_build(n_plus: int, n_minus: int, domain: Any, core_radius: float,
     if seed is None:
         seed = build_seed(cache_key(n_plus, n_minus, domain, core_radius), settings.reach)
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
-    dos = build(n_plus, n_minus, domain, core_radius, settings, rng)
+    dos = build(n_plus, n_minus, domain, core_radius, settings, rng, progress=progress)
     _ = dos.tables                       # computed once here, stored with the samples
     save(dos, path, cache_key(n_plus, n_minus, domain, core_radius))
     _remember(path, dos)

@@ -7,8 +7,9 @@ INFO lines of the logger ``gpe.cli.progress`` every tenth of the work (and at le
 minute), which is what a log file or a redirected standard error receives. The command line
 (gpe/cli/main.py) decides where those lines go; a notebook may use these callbacks too::
 
-    from gpe.cli.progress import counter, run_progress
+    from gpe.cli.progress import counter, dos_progress, run_progress
     simulate(protocol, "run.h5", progress=run_progress(), ground_state_progress=counter("ground state", "steps"))
+    temperature_of_run("run.h5", progress=dos_progress())
 """
 
 from __future__ import annotations
@@ -143,6 +144,26 @@ _BAR_FORMAT = "{desc}: {percentage:3.0f}%|{bar}| {n:.6g}/{total:.6g}{unit} [{ela
 def counter(label: str, unit: str = "", **options) -> Counter:
     """A ``(done, total)`` progress callback (ground state, density-of-states builds)."""
     return Counter(label, unit, **options)
+
+
+def dos_progress(**options) -> Callable[[float, float], None]:
+    """A callback for the density-of-states builds of thermometry (``progress=`` of
+    gpe.run.thermometry.temperature_of_run and friends, thermo.dos.build.build): one bar
+    "density of states" in Monte Carlo sweeps per build, opened at the build's first report
+    and closed at its last (done == total); a cached density of states shows none. Log lines
+    every quarter of a build unless ``log_every`` says otherwise."""
+    options.setdefault("log_every", 0.25)
+    bar: dict[str, Counter] = {}
+
+    def draw(done: float, total: float) -> None:
+        current = bar.get("bar")
+        if current is not None and not current.closed and done < current.done:
+            current.close()             # a build that ended without its last report
+        if current is None or current.closed:
+            bar["bar"] = current = Counter("density of states", "sweeps", **options)
+        current(done, total)
+
+    return draw
 
 
 def run_progress(**options) -> Callable[[Any], None]:

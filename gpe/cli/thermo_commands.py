@@ -73,6 +73,7 @@ def register_temperature(sub) -> None:
 
 
 def _cmd_temperature(args) -> int:
+    from gpe.cli.progress import dos_progress
     from gpe.run import reading, thermometry
     from gpe.run.runfile import RunFile
 
@@ -123,7 +124,7 @@ def _cmd_temperature(args) -> int:
             result = thermometry.temperature_of_runs(
                 [args.source, *args.more_runs], frames=parse_frames(args.frames),
                 window=args.window_ms, time_unit="ms", common=args.common, effort=args.effort,
-                systematics=not args.no_systematics)
+                systematics=not args.no_systematics, progress=dos_progress())
         except VorthermError as exc:
             if args.window_ms is not None and "window" in str(exc):
                 raise VorthermError(f"--window-ms {args.window_ms[0]:g} {args.window_ms[1]:g}: "
@@ -139,7 +140,7 @@ def _cmd_temperature(args) -> int:
             args.source, shape=shape, core_um=args.core_um, pixel_um=args.pixel_um,
             center_px=args.center, strict=args.strict, effort=args.effort,
             imaging_um=imaging_um or None, common=args.common,
-            systematics=not args.no_systematics, **kw)
+            systematics=not args.no_systematics, progress=dos_progress(), **kw)
     show_temperature(result, args.source, csv_path=args.csv, as_json=args.json, plot=args.plot,
                      force=args.force)
     return 0

@@ -73,17 +73,18 @@ def _estimate_record(est) -> dict:
 
 
 def configuration_records(configs, domain, core_radius: float, *, effort: str = DEFAULT_EFFORT,
-                          cache_dir=None) -> list[dict]:
+                          cache_dir=None, progress=None) -> list[dict]:
     """One thermometry record per configuration (microcanonical beta at its energy).
 
     ``configs`` is a sequence of (positions, signs) in domain units. Fewer than two vortices
     give a record whose ``verdict`` says why beta is undefined (never a silent number).
+    ``progress(done, total)`` is told the sweeps of every density-of-states build.
     """
     settings = dos_settings(effort)
     records = []
     for pos, signs in configs:
         est = estimate_single(pos, signs, domain, core_radius, cache_dir=cache_dir,
-                              settings=settings)
+                              settings=settings, progress=progress)
         rec = _estimate_record(est)
         rec["n_plus"] = int(np.count_nonzero(np.asarray(signs) > 0))
         rec["n_minus"] = int(np.count_nonzero(np.asarray(signs) < 0))
@@ -105,7 +106,7 @@ def _undefined_ensemble(n_configs: int, why: str) -> dict:
 
 def ensemble_record(configs, domain, core_radius: float, *, weights=None,
                     common: str = "beta_n", imaging=None,
-                    effort: str = DEFAULT_EFFORT, cache_dir=None) -> dict:
+                    effort: str = DEFAULT_EFFORT, cache_dir=None, progress=None) -> dict:
     """beta~ N shared by an ensemble of configurations (thermo.estimate), as a record.
 
     Configurations with fewer than two vortices carry no temperature information and are left
@@ -119,7 +120,7 @@ def ensemble_record(configs, domain, core_radius: float, *, weights=None,
     w = None if weights is None else [float(weights[i]) for i in keep]
     est = estimate_ensemble([configs[i] for i in keep], domain, core_radius, weights=w,
                             common=common, imaging=imaging, cache_dir=cache_dir,
-                            settings=dos_settings(effort))
+                            settings=dos_settings(effort), progress=progress)
     rec = _estimate_record(est)
     rec.update({"n_shots": est.n_shots, "n_effective": est.n_effective, "common": est.common,
                 "groups": [{"n_plus": a, "n_minus": b, "shots": n} for a, b, n in est.groups],
@@ -211,7 +212,7 @@ def run_ensemble(run_path, *, at_time: float | None = None,
 
 
 def _pooled(series_frames, *, common, effort, cache_dir, core_xi=CORE_RADIUS_XI,
-            wall_xi=WALL_LAYER_XI, wall_cut=1.0) -> dict:
+            wall_xi=WALL_LAYER_XI, wall_cut=1.0, progress=None) -> dict:
     """The ensemble of several runs' frames: each run a correlated series, runs independent.
 
     ``n_plus``/``n_minus`` are the mean vortex numbers over the frames (the fit's groups are in
@@ -227,7 +228,7 @@ def _pooled(series_frames, *, common, effort, cache_dir, core_xi=CORE_RADIUS_XI,
         left_wall += sum(gas[f].left_out_wall for f in frames)
         left_pairs += sum(gas[f].left_out_pairs for f in frames)
     rec = ensemble_record(configs, vd.domain, vd.core_radius, weights=weights, common=common,
-                          effort=effort, cache_dir=cache_dir)
+                          effort=effort, cache_dir=cache_dir, progress=progress)
     rec.update({"n_plus": float(np.mean([np.sum(s > 0) for _, s in configs])),
                 "n_minus": float(np.mean([np.sum(s < 0) for _, s in configs])),
                 "frames": len(configs), "runs": len(series_frames), "tau_frames": taus,
@@ -265,12 +266,13 @@ def _run_choices() -> dict:
 def pooled_ensemble(run_paths, *, time: float | None = None, window=None,
                     default: str = "after_drive", time_unit: str = "tau",
                     common: str = "beta_n", effort: str = DEFAULT_EFFORT, cache_dir=None,
-                    systematics: bool = False) -> dict:
+                    systematics: bool = False, progress=None) -> dict:
     """The ensemble record of one or more runs (e.g. the seeds of one sweep point).
 
     Every run is an independent series; the frames of one run are correlated and weighted by
     gpe.run.frames.series_weights. Times in ``time_unit`` ("tau" = hbar/mu, or "ms"); neither
     ``time`` nor ``window`` means gpe.run.frames.ensemble_frames's default.
+    ``progress(done, total)`` is told the sweeps of every density-of-states build.
     """
     chosen = []
     for path in run_paths:
@@ -279,7 +281,8 @@ def pooled_ensemble(run_paths, *, time: float | None = None, window=None,
                                              time_unit=time_unit)))
 
     def compute(**choice):
-        return _pooled(chosen, common=common, effort=effort, cache_dir=cache_dir, **choice)
+        return _pooled(chosen, common=common, effort=effort, cache_dir=cache_dir,
+                       progress=progress, **choice)
 
     rec = compute()
     first, frames = chosen[0]
@@ -294,7 +297,8 @@ def temperature_of_run(run_path, *, frames=None, at_time: float | None = None,
                        window: tuple[float, float] | None = None, time_unit: str = "tau",
                        ensemble_default: str = "after_drive", per_frame: bool = True,
                        common: str = "beta_n", effort: str = DEFAULT_EFFORT, cache_dir=None,
-                       systematics: bool = True, with_ensemble: bool = True) -> dict:
+                       systematics: bool = True, with_ensemble: bool = True,
+                       progress=None) -> dict:
     """Thermometry of a run file: beta of every chosen frame and of the run's ensemble.
 
     Parameters
@@ -307,6 +311,8 @@ def temperature_of_run(run_path, *, frames=None, at_time: float | None = None,
     effort : density-of-states effort (quick, standard, thorough).
     systematics : add the systematics budget to the ensemble (re-estimates it six times).
     with_ensemble : False leaves the ensemble out (:func:`temperature_of_runs` pools it).
+    progress : ``progress(done, total)`` told the Monte Carlo sweeps of every
+        density-of-states build (e.g. gpe.cli.progress.dos_progress()); None: silent.
 
     Returns
     -------
@@ -333,15 +339,16 @@ def temperature_of_run(run_path, *, frames=None, at_time: float | None = None,
                                time_unit=time_unit)
     vd, gas = series.gas(set(chosen) | set(ens_frames))
     records = configuration_records([(gas[f].positions, gas[f].signs) for f in chosen],
-                                    vd.domain, vd.core_radius, effort=effort, cache_dir=cache_dir)
+                                    vd.domain, vd.core_radius, effort=effort, cache_dir=cache_dir,
+                                    progress=progress)
     t_user = protocol.display_time(times)
     for rec, f in zip(records, chosen):
         rec.update({"frame": f, "t": float(t_user[f]), "left_out_wall": gas[f].left_out_wall,
                     "left_out_pairs": gas[f].left_out_pairs})
     ensemble = pooled_ensemble([run_path], window=window, time=at_time,
                                default=ensemble_default, time_unit=time_unit, common=common,
-                               effort=effort, cache_dir=cache_dir,
-                               systematics=systematics) if with_ensemble else {}
+                               effort=effort, cache_dir=cache_dir, systematics=systematics,
+                               progress=progress) if with_ensemble else {}
     end, why = drive_end(protocol)
     after = None if end is None else float(protocol.display_time(end))
     onset = (onset_verdict(t_user[chosen], records, unit, after=after) if per_frame
@@ -357,7 +364,7 @@ def temperature_of_run(run_path, *, frames=None, at_time: float | None = None,
 def temperature_of_runs(run_paths, *, frames=None, window=None, time_unit: str = "tau",
                         ensemble_default: str = "after_drive", common: str = "beta_n",
                         effort: str = DEFAULT_EFFORT, cache_dir=None,
-                        systematics: bool = True) -> dict:
+                        systematics: bool = True, progress=None) -> dict:
     """Thermometry of several runs (e.g. the seeds of one protocol): every run's frames, and
     one ensemble pooling the runs as independent series (:func:`pooled_ensemble`).
 
@@ -371,16 +378,19 @@ def temperature_of_runs(run_paths, *, frames=None, window=None, time_unit: str =
     if len(paths) == 1:
         return temperature_of_run(paths[0], frames=frames, window=window, time_unit=time_unit,
                                   ensemble_default=ensemble_default, common=common,
-                                  effort=effort, cache_dir=cache_dir, systematics=systematics)
+                                  effort=effort, cache_dir=cache_dir, systematics=systematics,
+                                  progress=progress)
     results = [temperature_of_run(p, frames=frames, window=window, time_unit=time_unit,
                                   ensemble_default=ensemble_default, effort=effort,
-                                  cache_dir=cache_dir, with_ensemble=False) for p in paths]
+                                  cache_dir=cache_dir, with_ensemble=False, progress=progress)
+               for p in paths]
     out = dict(results[0])
     out["records"] = [dict(rec, run=Path(p).stem) for p, r in zip(paths, results)
                       for rec in r["records"]]
     out["ensemble"] = pooled_ensemble(paths, window=window, default=ensemble_default,
                                       time_unit=time_unit, common=common, effort=effort,
-                                      cache_dir=cache_dir, systematics=systematics)
+                                      cache_dir=cache_dir, systematics=systematics,
+                                      progress=progress)
     out["onset"] = " ".join(f"[{Path(p).stem}] {r['onset']}" for p, r in zip(paths, results))
     out["source"] = ", ".join(str(p) for p in paths)
     out["incomplete"] = "; ".join(f"{Path(p).stem}: {r['incomplete']}" for p, r in
@@ -419,7 +429,7 @@ def temperature_of_table(path, *, shape: str | None = None, radius_um: float | N
                          core_um: float | None = None, pixel_um: float | None = None,
                          center_px=None, strict: bool = False, imaging_um: dict | None = None,
                          common: str = "beta_n", effort: str = DEFAULT_EFFORT, cache_dir=None,
-                         systematics: bool = True) -> dict:
+                         systematics: bool = True, progress=None) -> dict:
     """Thermometry of a measured vortex table: beta of every shot and of the ensemble of shots.
 
     Geometry options override the TOML beside the table (thermo/data/geometry.py); the core
@@ -427,7 +437,7 @@ def temperature_of_table(path, *, shape: str | None = None, radius_um: float | N
     model is the ``[imaging]`` table of the geometry TOML, overridden key by key by
     ``imaging_um`` (keys of thermo.data.geometry.IMAGING_KEYS); without one, the estimate is of
     the imaged configurations and the record says so. Shots are independent (weights 1). Returns the same kind of dict as
-    :func:`temperature_of_run`, keyed by shot.
+    :func:`temperature_of_run`, keyed by shot; ``progress`` as there.
     """
     table = read_measured(path, shape=shape, radius_um=radius_um, width_um=width_um,
                           height_um=height_um, core_um=core_um, pixel_um=pixel_um,
@@ -435,7 +445,7 @@ def temperature_of_table(path, *, shape: str | None = None, radius_um: float | N
     model = table.geometry.imaging_model()
     core = table.core_radius
     records = configuration_records(table.configurations, table.domain, core, effort=effort,
-                                    cache_dir=cache_dir)
+                                    cache_dir=cache_dir, progress=progress)
     for rec, shot, kept in zip(records, table.shot_ids, table.admitted):
         rec.update({"shot": shot, "left_out_wall": kept.left_out_wall,
                     "left_out_pairs": kept.left_out_pairs})
@@ -443,7 +453,8 @@ def temperature_of_table(path, *, shape: str | None = None, radius_um: float | N
     def compute(core=core, scale_inv=1.0, wall_cut=1.0):
         kept = table.admitted_with(core, wall_cut=wall_cut, scale=1.0 / scale_inv)
         rec = ensemble_record([(a.positions, a.signs) for a in kept], table.domain, core,
-                              common=common, imaging=model, effort=effort, cache_dir=cache_dir)
+                              common=common, imaging=model, effort=effort, cache_dir=cache_dir,
+                              progress=progress)
         rec["left_out_wall"] = int(sum(a.left_out_wall for a in kept))
         rec["left_out_pairs"] = int(sum(a.left_out_pairs for a in kept))
         return rec

@@ -7,7 +7,7 @@ import math
 import pytest
 
 from gpe.cli import progress
-from gpe.cli.progress import counter, run_progress, sweep_progress
+from gpe.cli.progress import counter, dos_progress, run_progress, sweep_progress
 from gpe.run.simulate import RunProgress
 from gpe.sweep.execute import Progress
 
@@ -125,3 +125,52 @@ def test_sweep_progress_counts_every_finished_point(clock, lines, no_bars):
 ])
 def test_seconds_format(seconds, text):
     assert progress._format_seconds(seconds) == text
+
+
+def test_dos_progress_opens_one_bar_per_build(clock, lines, no_bars):
+    draw = dos_progress()
+    for done in (0, 50, 100):                  # a build of 100 sweeps
+        clock.now += 1.0
+        draw(done, 100)
+    for done in (0, 100, 200):                 # the next build (another vortex number)
+        clock.now += 1.0
+        draw(done, 200)
+    got = lines()
+    assert [g.split(" (")[0] for g in got] == [
+        "density of states: 0/100 sweeps", "density of states: 50/100 sweeps",
+        "density of states: 100/100 sweeps", "density of states: 0/200 sweeps",
+        "density of states: 100/200 sweeps", "density of states: 200/200 sweeps"]
+
+
+def test_dos_progress_starts_afresh_after_a_build_that_did_not_finish(clock, lines, no_bars):
+    draw = dos_progress(log_every=1.0)
+    draw(0, 100)
+    draw(60, 100)                              # the build stops here (an error, a Ctrl-C)
+    draw(0, 80)                                # the next build: a new bar from zero
+    draw(80, 80)
+    got = lines()
+    assert got[-1].startswith("density of states: 80/80 sweeps (100%)")
+    assert sum(g.startswith("density of states: 0/") for g in got) == 2
+
+
+def test_dos_progress_draws_a_bar_of_sweeps(monkeypatch, clock):
+    monkeypatch.setitem(progress.SETTINGS, "bars", True)
+    out = io.StringIO()
+    draw = dos_progress(stream=out)
+    draw(300, 1200)
+    draw(1200, 1200)
+    text = out.getvalue()
+    assert "density of states: 100%" in text and "1200/1200 sweeps" in text
+
+
+def test_vortherm_temperature_reports_its_density_of_states_builds(tiny_run, tmp_path, capsys,
+                                                                   monkeypatch):
+    from gpe.cli.main import main
+
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
+    args = ["temperature", str(tiny_run), "--no-systematics", "--csv", str(tmp_path / "t.csv")]
+    assert main(args) == 0
+    err = capsys.readouterr().err           # standard error is no terminal here: lines
+    assert "density of states: 0/" in err and "sweeps (100%)" in err
+    assert main([*args, "--force"]) == 0    # the same vortex numbers: all cached
+    assert "density of states" not in capsys.readouterr().err

@@ -265,8 +265,16 @@ def _pooled_columns(sweep: Sweep, out_dir: Path, ok_points: list[Point],
     try:
         rec = pool(sweep, out_dir, ok_points)
     except Exception as exc:  # noqa: BLE001 -- one point's failure is recorded, not fatal
-        return _ensemble_columns(None, f"{type(exc).__name__}: {exc}")
+        return _ensemble_columns(None, _relative(f"{type(exc).__name__}: {exc}", sweep, out_dir))
     return _ensemble_columns(rec)
+
+
+def _relative(text: str, sweep: Sweep, out_dir: Path) -> str:
+    """``text`` with the output folder and the sweep file's folder written as relative paths,
+    so that the same sweep gives the same tables wherever its folder is."""
+    for folder in (Path(out_dir), Path(sweep.base).parent):
+        text = text.replace(str(folder.resolve()) + os.sep, "").replace(str(folder) + os.sep, "")
+    return text
 
 
 def summarise(sweep: Sweep, out_dir: Path, points: list[Point], records: Mapping[str, dict],

@@ -33,18 +33,27 @@ def integrated_autocorr_time(x: np.ndarray, c: float = 5.0) -> float:
     float
         tau_int in units of the sampling interval (>= 0); NaN for a constant series.
     """
+    return autocorr_window(x, c)[0]
+
+
+def autocorr_window(x: np.ndarray, c: float = 5.0) -> tuple[float, int]:
+    """:func:`integrated_autocorr_time` and the window M it chose (``(nan, 0)`` for a constant
+    or too short series).
+
+    Units: tau_int and M in units of the sampling interval.
+    """
     y = np.asarray(x, dtype=np.float64)
     n = y.size
     if n < 2:
-        return float("nan")
+        return float("nan"), 0
     y = y - y.mean()
     f = np.fft.rfft(y, 2 * n)
     acf = np.fft.irfft(f * np.conj(f))[:n]
     if acf[0] <= 0.0:
-        return float("nan")
+        return float("nan"), 0
     rho = acf / acf[0]
     taus = 2.0 * np.cumsum(rho) - 1.0
     m = np.arange(n)
     ok = m >= c * taus
     window = int(np.argmax(ok)) if ok.any() else n - 1
-    return float(taus[window])
+    return float(taus[window]), window

@@ -1,18 +1,21 @@
 """Simulated versus measured vortex statistics, side by side, with tests of difference.
 
-Both sides are lists of shots, each shot a configuration ``(positions (N, 2), signs
-(N,))`` in the thermo convention (positions scaled by the domain size). For every
-per-shot quantity the table gives the two ensemble means, their difference with a 95%
-bootstrap interval (shots resampled with replacement on each side independently,
-percentile interval), the two-sample Kolmogorov–Smirnov p-value of the per-shot
-distributions and a permutation-test p-value for the difference of the means. Shots
-where a quantity is undefined (energy per vortex of an empty shot, structure
-observables of a shot with fewer than two vortices) are left out of that quantity
-only; ``n_simulation`` / ``n_measured`` in each row say how many shots were used.
+Each side is a :class:`Side`: its shots (``(positions (N, 2), signs (N,))`` in the thermo
+convention, positions scaled by *that side's* domain size), its domain, and the independent
+series the shots belong to. The frames of one simulated run are one series (correlated in
+time); every measured shot is a series of its own; different runs (seeds) are independent.
 
-beta is not a per-shot quantity: each side gets one ensemble estimate from
-:mod:`thermo.estimate`; its difference, interval and p-value come from the two stated
-standard errors (normal approximation), and the KS column is empty for it.
+For every per-shot quantity the table gives the two ensemble means, their difference with a 95%
+interval and two p-values, all computed on independent units (:mod:`thermo.data.units`: the
+variance of each side's mean and a Kolmogorov–Smirnov test from the effective sizes of its series);
+each row says how many shots entered and how many effectively independent values they are worth,
+and when a side has too few for a test the row has no interval and a note says why. Shots where a
+quantity is undefined (energy per vortex of an empty shot, structure observables of a shot with
+fewer than two vortices) are left out of that quantity only.
+
+beta is not a per-shot quantity: each side's beta~ N comes from its own ensemble estimate (its own
+domain, core radius and imaging model; :func:`ensemble_beta`, or gpe.run.thermometry's records),
+and the beta_n row combines their two intervals.
 
 The figure of a comparison is drawn on the field side (``gpe.figures.thermometry``): numerics
 here never import a figure module.
@@ -32,6 +35,7 @@ from scipy import stats
 
 from thermo import classify
 from thermo import energy as energy_mod
+from thermo.data.units import SeriesSample, difference_of_means
 from thermo.energy import validate_configuration
 from thermo.errors import ConfigurationError, ThermoError
 from thermo.estimate import estimate_ensemble
@@ -45,10 +49,10 @@ class CompareError(ThermoError, ValueError):
 Configuration = tuple[np.ndarray, np.ndarray]
 
 #: The per-shot quantities compared, in the order of the table rows (units and meanings in
-#: thermo.quantities.QUANTITIES); beta follows them as an ensemble estimate.
+#: thermo.quantities.QUANTITIES); beta~ N follows them as an ensemble estimate.
 ROWS = ("n_plus", "n_minus", "energy_per_vortex", "dipole_moment", "c1", "dipole_fraction",
         "cluster_fraction", "free_fraction", "mean_nn_distance")
-BETA_UNIT = QUANTITIES["beta"].unit
+BETA_N_UNIT = QUANTITIES["beta_n"].unit
 _STRUCTURE_KEYS = ("dipole_moment", "c1", "dipole_fraction", "cluster_fraction",
                    "free_fraction", "mean_nn_distance")
 
@@ -59,14 +63,15 @@ class CompareRow:
 
     Attributes
     ----------
-    quantity, unit : name (see ``ROWS``) and unit.
-    simulation, measured : ensemble means (beta: ensemble estimates).
+    quantity, unit : name (see ``ROWS``, or "beta_n") and unit.
+    simulation, measured : ensemble means (beta_n: ensemble estimates).
     difference : simulation - measured.
-    ci95_low, ci95_high : 95% interval of the difference.
-    p_ks : two-sample Kolmogorov–Smirnov p-value (NaN for beta).
-    p_permutation : permutation-test p-value of the difference of means (beta: normal
-        approximation from the standard errors).
+    ci95_low, ci95_high : 95% interval of the difference (NaN when no test could be made).
+    p_ks : Kolmogorov–Smirnov p-value with effective sizes (NaN for beta_n).
+    p_mean : p-value of the difference of means (thermo.data.units; beta_n: normal
+        approximation from the two intervals).
     n_simulation, n_measured : shots that entered.
+    n_eff_simulation, n_eff_measured : how many independent shots they are worth.
     """
 
     quantity: str
@@ -77,16 +82,54 @@ class CompareRow:
     ci95_low: float
     ci95_high: float
     p_ks: float
-    p_permutation: float
+    p_mean: float
     n_simulation: int
     n_measured: int
+    n_eff_simulation: float
+    n_eff_measured: float
 
     @property
     def significant(self) -> bool:
         """True if the 95% interval excludes 0 or a p-value is below 0.05."""
-        ps = [p for p in (self.p_ks, self.p_permutation) if np.isfinite(p)]
+        ps = [p for p in (self.p_ks, self.p_mean) if np.isfinite(p)]
         outside = np.isfinite(self.ci95_low) and (self.ci95_low > 0 or self.ci95_high < 0)
         return bool(outside or any(p < 0.05 for p in ps))
+
+
+@dataclass(frozen=True)
+class Side:
+    """One side of a comparison: shots in their own domain and their independent series.
+
+    Attributes
+    ----------
+    configurations : tuple of ``(positions (N, 2), signs (N,))``, positions in units of
+        ``domain``'s size.
+    domain : thermo domain (thermo.domains.Disk / Box) the shots live in.
+    series : (S,) ids; shots with one id form one series in time order (the frames of a run).
+
+    Units: positions in units of the domain size.
+    """
+
+    configurations: tuple[Configuration, ...]
+    domain: Any
+    series: np.ndarray
+
+    @classmethod
+    def of_shots(cls, configurations: Sequence[Any], domain: Any, label: str = "measured"
+                 ) -> "Side":
+        """Independent shots (a measured table)."""
+        configs = _check_configs(configurations, label)
+        return cls(tuple(configs), domain, np.arange(len(configs)))
+
+    @classmethod
+    def of_runs(cls, runs: Sequence[Sequence[Any]], domain: Any, label: str = "simulation"
+                ) -> "Side":
+        """The frames of several runs, each run's frames in time order; runs independent."""
+        configs, series = [], []
+        for k, frames in enumerate(runs):
+            configs.extend(frames)
+            series.extend([k] * len(frames))
+        return cls(tuple(_check_configs(configs, label)), domain, np.asarray(series))
 
 
 @dataclass(frozen=True)
@@ -98,22 +141,21 @@ class Comparison:
     rows : the table, one :class:`CompareRow` per quantity.
     per_shot : ``{quantity: (simulation values, measured values)}`` per-shot arrays
         (NaN where undefined).
-    simulation, measured : the configurations compared (kept for the figure).
-    domain, core_radius : as given.
+    simulation, measured : the two :class:`Side` compared (kept for the figure).
     labels : names of the two sides (for the figure and the writers).
-    notes : remarks (e.g. why beta is missing).
+    notes : remarks (tests not made, bounds, correlated series).
+    beta : the two ensemble records of beta~ N, or None.
 
-    Units: as in thermo.quantities; positions in units of the domain size.
+    Units: as in thermo.quantities; positions in units of each side's domain size.
     """
 
     rows: tuple[CompareRow, ...]
     per_shot: dict[str, tuple[np.ndarray, np.ndarray]]
-    simulation: tuple[Configuration, ...]
-    measured: tuple[Configuration, ...]
-    domain: Any
-    core_radius: float
+    simulation: Side
+    measured: Side
     labels: tuple[str, str] = ("simulation", "measured")
     notes: tuple[str, ...] = field(default=())
+    beta: tuple[dict, dict] | None = None
 
     def row(self, quantity: str) -> CompareRow:
         for r in self.rows:
@@ -183,191 +225,206 @@ def shot_statistics(configurations: Sequence[Configuration], domain: Any
     return out
 
 
-def _bootstrap_diff(a: np.ndarray, b: np.ndarray, n_boot: int, rng: np.random.Generator
-                    ) -> tuple[float, float]:
-    """Percentile 95% interval of mean(a) - mean(b), shots resampled on each side."""
-    ia = rng.integers(0, len(a), size=(n_boot, len(a)))
-    ib = rng.integers(0, len(b), size=(n_boot, len(b)))
-    d = a[ia].mean(axis=1) - b[ib].mean(axis=1)
-    lo, hi = np.quantile(d, [0.025, 0.975])
-    return float(lo), float(hi)
+def _quantity_row(name: str, a: np.ndarray, b: np.ndarray, sim: "Side", meas: "Side"
+                  ) -> tuple[CompareRow, str]:
+    """One per-shot quantity: the difference tested on independent units (thermo.data.units)."""
+    d = difference_of_means(SeriesSample.of(a, sim.series), SeriesSample.of(b, meas.series))
+    row = CompareRow(name, QUANTITIES[name].unit, d.mean_a, d.mean_b, d.difference, *d.ci95,
+                     d.p_ks, d.p_mean, d.n_a, d.n_b, d.n_eff_a, d.n_eff_b)
+    return row, (f"{name}: {d.note}" if d.note else "")
 
 
-def _mean_diff(x: np.ndarray, y: np.ndarray, axis: int = -1) -> np.ndarray:
-    return np.mean(x, axis=axis) - np.mean(y, axis=axis)
+def _half_widths(rec: dict) -> tuple[float, float]:
+    lo, hi = rec["beta_n_ci95"]
+    return float(rec["beta_n"]) - float(lo), float(hi) - float(rec["beta_n"])
 
 
-def _quantity_row(name: str, a: np.ndarray, b: np.ndarray, n_boot: int,
-                  n_permutations: int, rng: np.random.Generator) -> CompareRow:
-    a = a[np.isfinite(a)]
-    b = b[np.isfinite(b)]
-    unit = QUANTITIES[name].unit
-    if len(a) < 2 or len(b) < 2:
-        nan = math.nan
-        return CompareRow(name, unit, float(np.mean(a)) if len(a) else nan,
-                          float(np.mean(b)) if len(b) else nan, nan, nan, nan, nan, nan,
-                          len(a), len(b))
-    lo, hi = _bootstrap_diff(a, b, n_boot, rng)
-    if np.ptp(np.concatenate([a, b])) == 0:
-        # both sides constant and equal: no test can tell them apart
-        p_ks = p_perm = 1.0
-    else:
-        p_ks = float(stats.ks_2samp(a, b).pvalue)
-        p_perm = float(stats.permutation_test(
-            (a, b), _mean_diff, permutation_type="independent", vectorized=True,
-            n_resamples=n_permutations, alternative="two-sided", rng=rng).pvalue)
-    return CompareRow(name, unit, float(a.mean()), float(b.mean()),
-                      float(a.mean() - b.mean()), lo, hi, p_ks, p_perm, len(a), len(b))
+def _beta_row(sim: dict, meas: dict, labels: tuple[str, str]) -> tuple[CompareRow, list[str]]:
+    """beta~ N of the two sides, each estimated on its own (its domain, core and weights).
 
-
-def _beta_row(sim: Sequence[Configuration], meas: Sequence[Configuration], domain: Any,
-              core_radius: float, beta_options: dict[str, Any]
-              ) -> tuple[CompareRow | None, list[str]]:
-    """beta of each side from thermo.estimate.estimate_ensemble.
-
-    Shots with fewer than two vortices carry no temperature, and shots that break the
-    hard-core model (a vortex within a of the wall, two within 2a) have no weight in it;
-    both are left out of this row only, counted in a note. Returns (row or None, notes).
+    The records hold ``beta_n``, ``beta_n_ci95``, ``bound`` and ``n_effective`` (as
+    gpe.run.thermometry's ensemble records or :func:`ensemble_beta`). The difference's interval
+    combines the two sides' asymmetric 95% half-widths in quadrature, the lower end from the
+    first side's lower and the second's upper half-width [common practice for asymmetric
+    errors]; its p-value is the normal one of the half-width on the side of zero. A bound on
+    either side leaves the difference without an interval (a note says so).
     """
+    nan = math.nan
+    vals = [float(r.get("beta_n", nan)) if r.get("beta_n") is not None else nan
+            for r in (sim, meas)]
+    n_eff = [float(r.get("n_effective", nan) or nan) for r in (sim, meas)]
+    counts = [int(r.get("frames", r.get("n_configs", 0)) or 0) for r in (sim, meas)]
     notes = []
-    results = []
-    def fits_hard_core(c: Configuration) -> bool:
-        try:
-            validate_configuration(c[0], c[1], domain, core_radius)
-        except ConfigurationError:
-            return False
-        return True
-
-    for side, configs in (("simulation", sim), ("measured", meas)):
-        usable = [c for c in configs if len(c[1]) >= 2]
-        if len(usable) < len(configs):
-            notes.append(f"beta ({side}): {len(configs) - len(usable)} shot(s) with fewer "
-                         f"than two vortices left out")
-        n_before = len(usable)
-        usable = [c for c in usable if fits_hard_core(c)]
-        if len(usable) < n_before:
-            notes.append(f"beta ({side}): {n_before - len(usable)} shot(s) left out: a vortex "
-                         f"within the core radius {core_radius:g} of the wall or two within "
-                         f"2 core radii (hard-core model); thermo.data.degrade with core_radius "
-                         f"and thermo.data.measured with core_um avoid this")
-        if not usable:
-            return None, notes + [f"beta left out: no {side} shot has two vortices"]
-        results.append((len(usable), estimate_ensemble(usable, domain, core_radius,
-                                                            **beta_options)))
-    (n_a, res_a), (n_b, res_b) = results
-    ba, bb = float(res_a.beta), float(res_b.beta)
-    se = math.hypot(float(res_a.stderr), float(res_b.stderr))
-    diff = ba - bb
+    for label, rec in zip(labels, (sim, meas)):
+        if rec.get("bound"):
+            sign = "<" if rec["bound"] == "upper" else ">"
+            notes.append(f"beta_n ({label}): a bound, beta~N {sign} {float(rec['beta_n']):.3g} "
+                         f"(the energies lie beyond the sampled ladder); no difference interval")
+        elif rec.get("verdict") and not math.isfinite(float(rec.get("beta_n", nan) or nan)):
+            notes.append(f"beta_n ({label}): {rec['verdict']}")
+    diff = vals[0] - vals[1]
+    if notes or not math.isfinite(diff):
+        return CompareRow("beta_n", BETA_N_UNIT, vals[0], vals[1], diff, nan, nan, nan, nan,
+                          *counts, *n_eff), notes
+    (lo_a, hi_a), (lo_b, hi_b) = _half_widths(sim), _half_widths(meas)
+    down, up = math.hypot(lo_a, hi_b), math.hypot(hi_a, lo_b)
     z = float(stats.norm.ppf(0.975))
-    if not (np.isfinite(diff) and np.isfinite(se) and se > 0):
-        nan = math.nan
-        return CompareRow("beta", BETA_UNIT, ba, bb, diff, nan, nan, nan, nan, n_a, n_b), \
-            notes + ["beta difference has no interval: an estimate is undefined"]
-    p = float(2 * stats.norm.sf(abs(diff) / se))
-    for side, res in (("simulation", res_a), ("measured", res_b)):
-        if getattr(res, "verdict", ""):
-            notes.append(f"beta ({side}): {res.verdict}")
-    return CompareRow("beta", BETA_UNIT, ba, bb, diff, diff - z * se, diff + z * se,
-                      math.nan, p, n_a, n_b), notes
+    sigma = (down if diff > 0 else up) / z
+    p = float(2 * stats.norm.sf(abs(diff) / sigma)) if sigma > 0 else nan
+    return CompareRow("beta_n", BETA_N_UNIT, vals[0], vals[1], diff, diff - down, diff + up,
+                      nan, p, *counts, *n_eff), notes
 
 
-def compare_ensembles(simulation: Sequence[Configuration], measured: Sequence[Configuration],
-                      domain: Any, core_radius: float, *, n_boot: int = 2000,
-                      n_permutations: int = 2000, seed: int | np.random.Generator = 0,
-                      include_beta: bool = True, beta_options: dict[str, Any] | None = None,
+def ensemble_beta(side: "Side", core_radius: float, **options: Any) -> dict:
+    """beta~ N of one side on its own: thermo.estimate.estimate_ensemble with every series
+    weighted by 1/tau_int of its energy per vortex (so correlated frames count as the
+    independent shots they are worth) and shots of fewer than two vortices, or outside the
+    hard-core model, left out (counted in ``left_out``).
+
+    Returns a record with ``beta_n``, ``beta_n_ci95``, ``bound``, ``n_effective``, ``frames``,
+    ``left_out``. Units: beta~ N dimensionless.
+    """
+    keep, series = [], []
+    for (pos, s), sid in zip(side.configurations, side.series):
+        if len(s) < 2:
+            continue
+        try:
+            validate_configuration(pos, s, side.domain, core_radius)
+        except ConfigurationError:
+            continue
+        keep.append((pos, s))
+        series.append(sid)
+    if not keep:
+        return {"beta_n": math.nan, "beta_n_ci95": [math.nan, math.nan], "bound": None,
+                "n_effective": 0.0, "frames": 0, "left_out": len(side.configurations),
+                "verdict": "no shot with two vortices inside the hard-core model"}
+    e = np.array([energy_mod.energy(p, s, side.domain) / len(s) for p, s in keep])
+    sample = SeriesSample.of(e, np.asarray(series))
+    tau_of = dict(zip(dict.fromkeys(series), sample.tau))
+    weights = np.array([1.0 / tau_of[sid] for sid in series])
+    est = estimate_ensemble(keep, side.domain, core_radius, weights=weights, **options)
+    return {"beta_n": float(est.beta_n), "beta_n_ci95": [float(v) for v in est.beta_n_ci95],
+            "bound": est.bound, "n_effective": float(est.n_effective), "frames": len(keep),
+            "left_out": len(side.configurations) - len(keep),
+            "verdict": est.verdict}
+
+
+def compare_ensembles(simulation: "Side", measured: "Side", *,
+                      beta: tuple[dict, dict] | None = None,
                       labels: tuple[str, str] = ("simulation", "measured")) -> Comparison:
-    """Compare two ensembles of vortex configurations in the same domain.
+    """Compare two ensembles of vortex configurations of the same domain shape.
 
     Parameters
     ----------
-    simulation, measured : lists of ``(positions (N, 2), signs (N,))``, one per shot
-        (e.g. frames of several seeded runs in a time window; measured shots).
-    domain : thermo domain (thermo.domains.Disk / Box) both sides live in.
-    core_radius : vortex core radius, scaled units (used by the beta estimate).
-    n_boot : bootstrap resamples for the 95% intervals.
-    n_permutations : resamples of the permutation test.
-    seed : seed or generator; the whole table is reproducible from it.
-    include_beta : add the beta row (thermo.estimate.estimate_ensemble; builds or
-        loads a density of states for every (N+, N-) present, which can take minutes).
-    beta_options : keywords for that estimate (e.g. ``cache_dir``, ``settings``, ``seed``).
+    simulation, measured : :class:`Side` -- shots in their own domain (positions scaled by
+        that domain's size), grouped in independent series (the frames of one run form one
+        series; every measured shot is its own).
+    beta : the two sides' ensemble records of beta~ N (:func:`ensemble_beta`, or
+        gpe.run.thermometry's), each estimated with its own domain and core; None leaves the
+        beta_n row out.
     labels : names of the two sides.
 
     Returns
     -------
     Comparison
 
-    Units: positions in units of the domain size; see ``ROWS`` for the rows.
+    Units: positions in units of each side's domain size; see ``ROWS`` for the rows.
     """
-    if not (np.isfinite(core_radius) and core_radius > 0):
-        raise CompareError(f"core_radius must be a positive number (domain units); "
-                           f"got {core_radius}")
-    if n_boot < 100 or n_permutations < 100:
-        raise CompareError(f"n_boot and n_permutations must be >= 100 for a 95% interval; "
-                           f"got {n_boot}, {n_permutations}")
-    sim = _check_configs(simulation, labels[0])
-    meas = _check_configs(measured, labels[1])
-    rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
-    a = shot_statistics(sim, domain)
-    b = shot_statistics(meas, domain)
-    rows = [_quantity_row(name, a[name], b[name], n_boot, n_permutations, rng)
-            for name in ROWS]
-    notes = []
-    if include_beta:
-        beta_row, beta_notes = _beta_row(sim, meas, domain, core_radius, beta_options or {})
-        if beta_row is not None:
-            rows.insert(3, beta_row)
+    if simulation.domain.kind != measured.domain.kind:
+        raise CompareError(f"the {labels[1]} domain is a {measured.domain.kind}, the "
+                           f"{labels[0]}'s a {simulation.domain.kind}; compare needs one shape")
+    sizes = list(zip(measured.domain.key()[1:], simulation.domain.key()[1:]))
+    if any(abs(m - s) > 0.02 * abs(s) for m, s in sizes):
+        raise CompareError(f"the {labels[1]} {comparison_domain_text(measured.domain)} differs "
+                           f"from the {labels[0]}'s {comparison_domain_text(simulation.domain)} "
+                           f"by more than 2%; compare needs the same proportions")
+    a = shot_statistics(simulation.configurations, simulation.domain)
+    b = shot_statistics(measured.configurations, measured.domain)
+    rows, notes = [], []
+    for name in ROWS:
+        row, note = _quantity_row(name, a[name], b[name], simulation, measured)
+        rows.append(row)
+        if note:
+            notes.append(note)
+    if beta is not None:
+        beta_row, beta_notes = _beta_row(beta[0], beta[1], labels)
+        rows.insert(3, beta_row)
         notes.extend(beta_notes)
+    for label, side in zip(labels, (simulation, measured)):
+        n_series = len(set(side.series.tolist()))
+        if n_series < len(side.configurations):
+            notes.append(f"{label}: {len(side.configurations)} frames in {n_series} independent "
+                         f"series (runs); tested as correlated series (effective sizes from "
+                         f"each run's autocorrelation time)")
     return Comparison(rows=tuple(rows), per_shot={k: (a[k], b[k]) for k in ROWS},
-                      simulation=tuple(sim), measured=tuple(meas), domain=domain,
-                      core_radius=float(core_radius), labels=tuple(labels), notes=tuple(notes))
+                      simulation=simulation, measured=measured, labels=tuple(labels),
+                      notes=tuple(notes), beta=beta)
 
 
 # ---------------------------------------------------------------- writers
 
 _COLUMNS = ("quantity", "unit", "simulation", "measured", "difference", "ci95_low",
-            "ci95_high", "p_ks", "p_permutation", "n_simulation", "n_measured")
+            "ci95_high", "p_ks", "p_mean", "n_simulation", "n_measured",
+            "n_eff_simulation", "n_eff_measured", "significant")
 
 
 def write_csv(comparison: Comparison, path: str | Path) -> Path:
-    """Write the table as CSV (one row per quantity; notes as leading # lines)."""
+    """Write the table as CSV: one plain header line, one row per quantity (its unit in the
+    ``unit`` column); the notes and the two beta records are in the JSON twin
+    (:func:`write_json`)."""
     path = Path(path)
     with path.open("w", encoding="utf-8", newline="") as fh:
-        fh.write(f"# {comparison.labels[0]} vs {comparison.labels[1]}; difference = "
-                 f"{comparison.labels[0]} - {comparison.labels[1]}\n")
-        for note in comparison.notes:
-            fh.write(f"# {note}\n")
-        writer = csv.writer(fh)
+        writer = csv.writer(fh, lineterminator="\n")
         writer.writerow(_COLUMNS)
         for r in comparison.rows:
-            d = asdict(r)
-            writer.writerow([d[c] if not isinstance(d[c], float) else f"{d[c]:.6g}"
+            d = asdict(r) | {"significant": r.significant}
+            writer.writerow([f"{d[c]:.6g}" if isinstance(d[c], float) else d[c]
                              for c in _COLUMNS])
     return path
 
 
 def _json_safe(v: Any) -> Any:
+    """Strict JSON (RFC 8259 has no NaN): non-finite numbers as None, numpy as Python."""
+    if isinstance(v, dict):
+        return {str(k): _json_safe(x) for k, x in v.items()}
+    if isinstance(v, (list, tuple, np.ndarray)):
+        return [_json_safe(x) for x in v]
+    if isinstance(v, np.generic):
+        v = v.item()
     if isinstance(v, float) and not math.isfinite(v):
         return None
     return v
 
 
 def comparison_to_dict(comparison: Comparison) -> dict[str, Any]:
-    """The table as plain JSON-ready data (NaN -> None)."""
-    return {
+    """The table as strict-JSON-ready data (NaN and infinities -> None)."""
+    sides = {label: {"shots": len(side.configurations),
+                     "series": len(set(side.series.tolist())),
+                     "domain": comparison_domain_text(side.domain)}
+             for label, side in zip(comparison.labels, (comparison.simulation,
+                                                        comparison.measured))}
+    return _json_safe({
         "labels": list(comparison.labels),
         "difference": f"{comparison.labels[0]} - {comparison.labels[1]}",
-        "core_radius": comparison.core_radius,
+        "sides": sides,
         "notes": list(comparison.notes),
-        "rows": [{k: _json_safe(v) for k, v in asdict(r).items()} | {"significant": r.significant}
-                 for r in comparison.rows],
-    }
+        "rows": [asdict(r) | {"significant": r.significant} for r in comparison.rows],
+        "beta_n": (None if comparison.beta is None else
+                   dict(zip(comparison.labels, comparison.beta))),
+    })
+
+
+def comparison_domain_text(domain: Any) -> str:
+    """A short text of a domain's shape and proportions, e.g. "disk" or "box (1.5, 1)"."""
+    sizes = tuple(domain.key()[1:])
+    return domain.kind + (f" {sizes}" if sizes else "")
 
 
 def write_json(comparison: Comparison, path: str | Path) -> Path:
-    """Write :func:`comparison_to_dict` as JSON."""
+    """Write :func:`comparison_to_dict` as strict JSON."""
     path = Path(path)
-    path.write_text(json.dumps(comparison_to_dict(comparison), indent=2) + "\n",
-                    encoding="utf-8")
+    path.write_text(json.dumps(comparison_to_dict(comparison), indent=1, allow_nan=False)
+                    + "\n", encoding="utf-8")
     return path
 
 

@@ -11,13 +11,22 @@ import pytest
 from thermo.data.compare import (
     ROWS,
     CompareError,
+    Side,
     compare_ensembles,
+    ensemble_beta,
     shot_statistics,
     write_csv,
     write_json,
 )
 from thermo.data.degrade import ImagingModel, degrade_many
 from thermo.domains.disk import Disk
+
+
+def _cmp(a, b, domain=None, **kw):
+    """Two lists of independent shots in one domain."""
+    domain = domain or Disk()
+    return compare_ensembles(Side.of_shots(a, domain, "simulation"),
+                             Side.of_shots(b, domain, "measured"), **kw)
 
 
 def _uniform_shots(rng, n_shots, n_range=(10, 20)):
@@ -66,11 +75,11 @@ def test_undefined_shots_are_nan_not_errors(rng):
 
 def test_ensemble_against_itself_shows_no_difference(rng):
     shots = _uniform_shots(rng, 40)
-    res = compare_ensembles(shots, shots, Disk(), 0.02, include_beta=False, seed=3)
+    res = _cmp(shots, shots)
     for row in res.rows:
         assert row.difference == 0.0
         assert row.ci95_low <= 0.0 <= row.ci95_high
-        assert row.p_ks > 0.05 and row.p_permutation > 0.05
+        assert row.p_ks > 0.05 and row.p_mean > 0.05
         assert not row.significant
 
 
@@ -80,9 +89,9 @@ def test_same_beta_independent_draws_mostly_agree(rng):
     (0.05 / 18) must not reject [common practice: family-wise error control]."""
     a = _uniform_shots(rng, 60)
     b = _uniform_shots(rng, 40)
-    res = compare_ensembles(a, b, Disk(), 0.02, include_beta=False, seed=4)
+    res = _cmp(a, b)
     for row in res.rows:
-        assert row.p_ks > 0.05 / 18 and row.p_permutation > 0.05 / 18, row
+        assert row.p_ks > 0.05 / 18 and row.p_mean > 0.05 / 18, row
 
 
 def test_clearly_different_structure_is_detected(rng):
@@ -96,10 +105,10 @@ def test_clearly_different_structure_is_detected(rng):
         partner = c + 0.03 * np.column_stack([np.cos(ang), np.sin(ang)])
         dipoles.append((np.concatenate([c, partner]), np.repeat([1, -1], 7)))
     uniform = [(disk.sample_uniform(rng, 14), np.repeat([1, -1], 7)) for _ in range(30)]
-    res = compare_ensembles(dipoles, uniform, disk, 0.01, include_beta=False, seed=5)
+    res = _cmp(dipoles, uniform, disk)
     for q in ("c1", "energy_per_vortex", "dipole_fraction", "mean_nn_distance"):
         row = res.row(q)
-        assert row.p_ks < 0.05 and row.p_permutation < 0.05 and row.significant
+        assert row.p_ks < 0.05 and row.p_mean < 0.05 and row.significant
         assert not (row.ci95_low <= 0 <= row.ci95_high)
     # -1 unless two dipoles happen to lie closer than 0.03 to each other
     assert res.row("c1").simulation < -0.95
@@ -107,32 +116,41 @@ def test_clearly_different_structure_is_detected(rng):
 
 def test_writers_round_trip(tmp_path, rng):
     shots = _uniform_shots(rng, 20)
-    res = compare_ensembles(shots, _uniform_shots(rng, 15), Disk(), 0.02, include_beta=False,
-                            n_boot=200, n_permutations=200)
-    data = json.loads(write_json(res, tmp_path / "c.json").read_text())
+    import pandas as pd
+
+    res = _cmp(shots, _uniform_shots(rng, 15))
+
+    def refuse(name):
+        raise ValueError(f"{name} in strict JSON")
+
+    # strict JSON (RFC 8259): the p-values of a row without a test are null, never NaN
+    data = json.loads(write_json(res, tmp_path / "c.json").read_text(), parse_constant=refuse)
     assert [r["quantity"] for r in data["rows"]] == [r.quantity for r in res.rows]
     assert data["rows"][2]["simulation"] == pytest.approx(res.rows[2].simulation)
-    lines = [ln for ln in write_csv(res, tmp_path / "c.csv").read_text().splitlines()
-             if not ln.startswith("#")]
-    assert lines[0].startswith("quantity,unit,simulation,measured,difference,ci95_low")
-    assert len(lines) == 1 + len(res.rows)
+    # a plain header line: pandas reads the table as it is
+    table = pd.read_csv(write_csv(res, tmp_path / "c.csv"))
+    assert list(table.columns[:6]) == ["quantity", "unit", "simulation", "measured",
+                                      "difference", "ci95_low"]
+    assert list(table["quantity"]) == [r.quantity for r in res.rows]
+    assert table["n_measured"].iloc[0] == 15
 
 
 def test_bad_input_raises(rng):
     shots = _uniform_shots(rng, 5)
-    with pytest.raises(CompareError, match="core_radius"):
-        compare_ensembles(shots, shots, Disk(), 0.0)
+    from thermo.domains.box import Box
+
     with pytest.raises(CompareError, match=r"measured shot 1: signs"):
-        compare_ensembles(shots, [shots[0], (shots[1][0], shots[1][1] * 2)], Disk(), 0.02)
+        _cmp(shots, [shots[0], (shots[1][0], shots[1][1] * 2)])
     with pytest.raises(CompareError, match="no shots"):
-        compare_ensembles(shots, [], Disk(), 0.02)
+        _cmp(shots, [])
+    with pytest.raises(CompareError, match="one shape"):
+        compare_ensembles(Side.of_shots(shots, Disk()), Side.of_shots(shots, Box(1.5)))
 
 
 def test_degraded_copy_with_identity_model_compares_equal(rng):
     shots = _uniform_shots(rng, 25)
     same = degrade_many(shots, Disk(), ImagingModel(), rng)
-    res = compare_ensembles(shots, same, Disk(), 0.02, include_beta=False, n_boot=200,
-                            n_permutations=200)
+    res = _cmp(shots, same)
     assert all(r.difference == 0.0 for r in res.rows)
 
 
@@ -167,22 +185,25 @@ def test_two_clearly_different_betas_are_told_apart(tmp_path):
     the lower energy; opposite-sign neighbours dominate at positive beta, so its C1 is
     lower."""
     hot, cold = _sampled_shots(11, [8.0, -3.0])
-    res = compare_ensembles(hot, cold, Disk(), 0.02, seed=6,
-                            beta_options=_beta_options(tmp_path),
+    opts = _beta_options(tmp_path)
+    a, b = Side.of_shots(hot, Disk()), Side.of_shots(cold, Disk())
+    res = compare_ensembles(a, b, beta=(ensemble_beta(a, 0.02, **opts),
+                                        ensemble_beta(b, 0.02, **opts)),
                             labels=("beta N = +8", "beta N = -3"))
     for q in ("energy_per_vortex", "c1"):
         row = res.row(q)
-        assert row.p_ks < 0.05 and row.p_permutation < 0.05
+        assert row.p_ks < 0.05 and row.p_mean < 0.05
         assert row.ci95_high < 0.0, row
-    beta = res.row("beta")
-    assert beta.p_permutation < 0.05 and beta.ci95_low > 0.0, beta
+    beta = res.row("beta_n")
+    assert beta.p_mean < 0.05 and beta.ci95_low > 0.0, beta
     assert beta.simulation > 0 > beta.measured
 
 
 def test_sampled_ensemble_against_itself_including_beta(tmp_path):
     (shots,) = _sampled_shots(12, [-3.0], n_shots=30)
-    res = compare_ensembles(shots, shots, Disk(), 0.02, seed=7,
-                            beta_options=_beta_options(tmp_path))
-    assert res.row("beta").difference == 0.0
+    side = Side.of_shots(shots, Disk())
+    rec = ensemble_beta(side, 0.02, **_beta_options(tmp_path))
+    res = compare_ensembles(side, side, beta=(rec, rec))
+    assert res.row("beta_n").difference == 0.0
     for row in res.rows:
         assert row.ci95_low <= 0.0 <= row.ci95_high and not row.significant, row

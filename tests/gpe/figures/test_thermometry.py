@@ -2,40 +2,34 @@
 
 import math
 
-import matplotlib
-
-matplotlib.use("Agg")
-
-from gpe.figures.thermometry import plot_temperature_series  # noqa: E402
-from thermo.estimate import thresholds  # noqa: E402
+from gpe.figures.thermometry import plot_temperature_series
+from thermo.estimate import thresholds
 
 
-def _record(t, beta):
-    return {"t": t, "n_plus": 5, "n_minus": 5, "beta": beta, "beta_ci95": [beta - 0.1, beta + 0.1],
-            "energy_per_vortex": 0.5, "dipole_fraction": 0.2, "cluster_fraction": 0.6,
-            "free_fraction": 0.2, "c1": 0.3, "thresholds": thresholds(5, 5)}
+def _record(t, beta_n, bound=None):
+    return {"t": t, "n_plus": 5, "n_minus": 5, "beta": beta_n / 10, "beta_n": beta_n,
+            "beta_n_ci95": [beta_n - 1.0, beta_n + 1.0] if bound is None else
+            ([-math.inf, beta_n] if bound == "upper" else [beta_n, math.inf]),
+            "bound": bound, "energy_per_vortex": 0.5, "dipole_fraction": 0.2,
+            "cluster_fraction": 0.6, "free_fraction": 0.2, "c1": 0.3,
+            "thresholds": thresholds(5, 5)}
+
+
+def _result():
+    recs = [_record(t, -3.0 + 0.1 * t) for t in range(10)] + [_record(10.0, math.nan)]
+    recs[2] = _record(2.0, -4.6, bound="upper")       # beyond the ladder: a bound
+    ensemble = {"beta_n": -2.5, "beta_n_ci95": [-2.9, -2.1], "bound": None, "window": [6.0, 9.0]}
+    return {"records": recs, "time_key": "t", "time_unit": "ms", "source": "run.h5",
+            "drive_end": 4.0, "ensemble": ensemble}
 
 
 def test_temperature_figure_is_labelled_and_marks_thresholds(tmp_path):
-    import matplotlib.pyplot as plt
+    from gpe.figures.style import save
 
-    result = {"records": [_record(t, -0.3 + 0.01 * t) for t in range(10)] +
-              [_record(10.0, math.nan)], "time_key": "t", "time_unit": "ms",
-              "source": "run.h5"}
-    seen = {}
-    original = plt.Figure.savefig
-
-    def keep(fig, *args, **kwargs):
-        seen["fig"] = fig
-        return original(fig, *args, **kwargs)
-
-    plt.Figure.savefig = keep
-    try:
-        path = plot_temperature_series(result, tmp_path / "beta.png")
-    finally:
-        plt.Figure.savefig = original
+    fig = plot_temperature_series(_result())
+    path = save(fig, tmp_path / "beta.png")
     assert path.exists() and path.stat().st_size > 10_000
-    axes = seen["fig"].axes
+    axes = fig.axes
     assert axes[-1].get_xlabel() == "time [ms]"
     assert all(ax.get_ylabel() for ax in axes)
     labels = [text.get_text().strip() for text in axes[0].texts]
@@ -45,11 +39,36 @@ def test_temperature_figure_is_labelled_and_marks_thresholds(tmp_path):
     assert levels[0] == -4.0 and abs(levels[1] + 3.6705) < 1e-3
 
 
+def test_a_bound_is_an_open_caret_never_a_plain_point_and_the_window_is_drawn():
+    fig = plot_temperature_series(_result())
+    ax = fig.axes[0]
+    by_label = {line.get_label(): line for line in ax.lines}
+    points = by_label[r"$\tilde\beta N$ per frame"]
+    assert 2.0 not in list(points.get_xdata())               # the bound frame is not a point
+    assert len(points.get_xdata()) == 9                      # 11 frames - one bound - one NaN
+    caret = by_label["bound: below"]
+    assert list(caret.get_xdata()) == [2.0] and list(caret.get_ydata()) == [-4.6]
+    assert caret.get_marker() == 7 and caret.get_markerfacecolor() == "none"
+    ensemble = next(line for line in ax.lines if line.get_label().startswith("ensemble"))
+    assert list(ensemble.get_xdata()) == [6.0, 9.0] and "-2.5" in ensemble.get_label()
+    # the beams-on interval 0..4 ms is shaded on every panel
+    spans = [p for p in ax.patches if p.get_label() == "beams on"]
+    assert len(spans) == 1 and spans[0].get_x() == 0.0 and spans[0].get_width() == 4.0
+
+
+def test_no_figure_function_touches_pyplot_state():
+    import matplotlib.pyplot as plt
+
+    before = plt.get_fignums()
+    plot_temperature_series(_result())
+    assert plt.get_fignums() == before                   # a Figure, not a pyplot window
+
+
 def test_comparison_figure_draws_every_panel(tmp_path, rng):
     import numpy as np
 
     from gpe.figures.thermometry import plot_comparison
-    from thermo.data.compare import compare_ensembles
+    from thermo.data.compare import Side, compare_ensembles
     from thermo.domains.disk import Disk
 
     def shots(n_shots):
@@ -59,10 +78,11 @@ def test_comparison_figure_draws_every_panel(tmp_path, rng):
             out.append((Disk().sample_uniform(rng, n), np.repeat([1, -1], [n // 2, n - n // 2])))
         return out
 
-    res = compare_ensembles(shots(10), shots(8), Disk(), 0.02, include_beta=False, n_boot=200,
-                            n_permutations=200)
-    fig = plot_comparison(res, tmp_path / "c.png", length_scale_um=40.0)
-    assert (tmp_path / "c.png").stat().st_size > 10_000
+    from gpe.figures.style import save
+
+    res = compare_ensembles(Side.of_runs([shots(10)], Disk()), Side.of_shots(shots(12), Disk()))
+    fig = plot_comparison(res, length_scale_um=(40.0, 20.0))
+    assert save(fig, tmp_path / "c.png").stat().st_size > 10_000
     # nine per-shot histograms, g_like, g_opposite, two example configurations, the table
     assert len(fig.axes) == 15
     assert all(ax.get_xlabel() for ax in fig.axes[:9])

@@ -101,15 +101,7 @@ def _cmd_temperature(args) -> int:
         flag = "--frames" if args.frames is not None else "--window-ms"
         raise VorthermError(f"{flag}: {args.source} is a measured table (not a run file), whose "
                             f"shots are all used; leave out {flag}")
-    imaging_um = {key: getattr(args, name) for name, key in IMAGING_OPTIONS
-                  if getattr(args, name) is not None}
-    for name, flag in TABLE_OPTIONS:
-        value = getattr(args, name)
-        if name in dict(IMAGING_OPTIONS) and value is not None:
-            limit_ok = 0.0 <= value < 0.5 if name == "sign_error" else value >= 0.0
-            if not limit_ok:
-                accepted = "a probability 0 <= p < 0.5" if name == "sign_error" else "a length >= 0 um"
-                raise VorthermError(f"{flag} {value:g}: accepted is {accepted}; nothing was written")
+    imaging_um = check_imaging_options(args)
     refuse_to_overwrite(temperature_outputs(args.source, args.csv, args.plot),
                         inputs=[args.source, *args.more_runs], force=args.force)
     if run_file:
@@ -127,8 +119,7 @@ def _cmd_temperature(args) -> int:
                 systematics=not args.no_systematics, progress=dos_progress())
         except VorthermError as exc:
             if args.window_ms is not None and "window" in str(exc):
-                raise VorthermError(f"--window-ms {args.window_ms[0]:g} {args.window_ms[1]:g}: "
-                                    f"{exc}") from None
+                raise VorthermError(f"{_time_option(args)}: {exc}") from None
             raise
     else:
         shape, kw = None, {}
@@ -168,6 +159,7 @@ def show_temperature(result: dict, source: Path, *, csv_path: Path | None = None
     Units: as in the result (beta in 1/E0, times in the protocol's display unit).
     """
     from gpe.figures import thermometry as thermo_figures
+    from gpe.figures.style import save
     from gpe.run import report
 
     outputs = temperature_outputs(source, csv_path, plot)
@@ -181,8 +173,8 @@ def show_temperature(result: dict, source: Path, *, csv_path: Path | None = None
         print(report.text_report(result))
         print(f"table written to {csv_path}")
     if plot:
-        fig_path = outputs[1][0]
-        thermo_figures.plot_temperature_series(result, fig_path)
+        fig_path = save(thermo_figures.plot_temperature_series(result), outputs[1][0],
+                        overwrite=True)   # refused above unless force
         print(f"figure written to {fig_path}")
 
 
@@ -191,28 +183,43 @@ def show_temperature(result: dict, source: Path, *, csv_path: Path | None = None
 # --------------------------------------------------------------------------- compare
 def register_compare(sub) -> None:
     p = add_command(sub, "compare", "simulated vs measured vortex statistics, side by side",
-                    "Frames of one or more run files (e.g. seeds of one protocol) near --time-ms, or in "
-                    "--window-ms, form the simulated ensemble; the measured table (CSV/HDF5) the other. "
-                    "Prints simulation | measured | difference (95% interval) | p-value for vortex "
-                    "numbers, energy per vortex, beta, D, C1, dipole/cluster/free fractions and mean "
-                    "nearest-neighbour distance, with Kolmogorov-Smirnov and permutation tests.")
+                    "Frames of one or more run files (e.g. seeds of one protocol) form the simulated "
+                    "ensemble: by default the frames after the last beam has switched off, or the "
+                    "frame nearest --time-ms, or every frame in --window-ms. The measured table "
+                    "(CSV/HDF5) is the other side, in its own geometry and with its own core "
+                    "radius. Prints simulation | measured | difference (95% interval) | p-values "
+                    "for vortex numbers, energy per vortex, beta~N, D, C1, dipole/cluster/free "
+                    "fractions and mean nearest-neighbour distance. Frames of one run are "
+                    "correlated: the tests use each run's effective number of independent frames "
+                    "(its autocorrelation time), and say when there are too few.")
     p.add_argument("runs", type=Path, nargs="+", help="run files (.h5)")
     p.add_argument("--measured", type=Path, required=True, help="measured vortex table (.csv/.h5)")
-    p.add_argument("--time-ms", type=float, help="simulation time to compare at, ms (default: last frame)")
+    p.add_argument("--time-ms", type=float,
+                   help="compare at the frame nearest this time, ms (default: the frames after "
+                        "the last beam has switched off)")
     p.add_argument("--window-ms", type=float, nargs=2, metavar=("T0", "T1"),
                    help="use every frame in this window, ms")
     p.add_argument("--pixel-um", type=float, help="measured table in pixels: pixel size in um")
     p.add_argument("--center", type=float, nargs=2, metavar=("X", "Y"), help="trap centre in pixels")
+    p.add_argument("--core-um", type=float,
+                   help="measured table: vortex core radius a in um (default: the geometry "
+                        "file's, or 2%% of the domain size)")
     p.add_argument("--strict", action="store_true",
                    help="stop at the first unusable row of the measured table instead of listing them")
-    p.add_argument("--blur-um", type=float, default=0.0, help="imaging model: position blur (um, rms)")
-    p.add_argument("--resolution-um", type=float, default=0.0,
+    p.add_argument("--blur-um", type=float,
+                   help="imaging model: rms position error, um (overrides [imaging] of the "
+                        "measured table's geometry file); applied to the simulated frames and "
+                        "undone in the measured beta")
+    p.add_argument("--resolution-um", type=float,
                    help="imaging model: vortices closer than this are not resolved (um)")
-    p.add_argument("--edge-loss-um", type=float, default=0.0,
+    p.add_argument("--edge-loss-um", type=float,
                    help="imaging model: vortices this close to the wall are lost (um)")
-    p.add_argument("--sign-error", type=float, default=0.0,
-                   help="imaging model: probability of a wrong sign (0..1)")
-    p.add_argument("--seed", type=int, default=0, help="seed of the imaging model and the tests")
+    p.add_argument("--sign-error", type=float,
+                   help="imaging model: probability of a wrong sign, 0..0.5")
+    p.add_argument("--common", choices=("beta_n", "beta"), default="beta_n",
+                   help="what shots of different vortex numbers share: beta~N (default) or beta~")
+    p.add_argument("--seed", type=int, default=0,
+                   help="seed of the imaging model applied to the simulated frames")
     p.add_argument("--effort", choices=("quick", "standard", "thorough"), default="quick")
     p.add_argument("-o", "--output", type=Path, help="stem of the CSV/JSON/PNG outputs")
     p.add_argument("--json", action="store_true", help="print the table as JSON on stdout")
@@ -221,56 +228,105 @@ def register_compare(sub) -> None:
     p.set_defaults(handler=_cmd_compare)
 
 
+def check_imaging_options(args) -> dict:
+    """The imaging options given (keys of thermo.data.geometry.IMAGING_KEYS), each checked;
+    a value out of range is a VorthermError naming the option (nothing is written)."""
+    out = {}
+    for name, key in IMAGING_OPTIONS:
+        value = getattr(args, name)
+        if value is None:
+            continue
+        ok = 0.0 <= value < 0.5 if name == "sign_error" else value >= 0.0
+        if not ok:
+            accepted = "a probability 0 <= p < 0.5" if name == "sign_error" else "a length >= 0 um"
+            flag = "--" + name.replace("_", "-")
+            raise VorthermError(f"{flag} {value:g}: accepted is {accepted}; nothing was written")
+        out[key] = value
+    return out
+
+
+def _time_option(args) -> str:
+    if args.window_ms is not None:
+        return f"--window-ms {args.window_ms[0]:g} {args.window_ms[1]:g}"
+    return f"--time-ms {args.time_ms:g}" if args.time_ms is not None else ""
+
+
 def _cmd_compare(args) -> int:
     import numpy as np
 
     from gpe.figures import thermometry as thermo_figures
+    from gpe.figures.style import save
     from gpe.run import thermometry
+    from gpe.run.frames import RunSeries
+    from gpe.run.jsontext import dumps_strict
     from thermo.data import compare as cmp
-    from thermo.data.degrade import ImagingModel, degrade_many
+    from thermo.data.degrade import degrade_many
     from thermo.data.measured import read_measured
 
+    if args.time_ms is not None and args.window_ms is not None:
+        raise VorthermError(f"--time-ms {args.time_ms:g} and --window-ms both given: give one "
+                            "time or one window")
+    imaging_um = check_imaging_options(args)
     stem = args.output or args.measured.with_name(args.measured.stem + "_vs_simulation")
     how = "choose another stem with -o/--output"
     refuse_to_overwrite([(stem.with_suffix(s), how) for s in (".csv", ".json", ".png")],
                         inputs=[*args.runs, args.measured], force=args.force)
-    sim_configs, vd, protocol = [], None, None
-    for run_path in args.runs:
-        vd, configs, protocol = thermometry.run_ensemble(
-            run_path, at_time=args.time_ms, window=args.window_ms, default="last", time_unit="ms")
-        sim_configs.extend(configs)
-    scale_um = vd.scale * protocol.units.length_m * 1e6
-    # The measured table keeps its own geometry (TOML beside it, or its options): both sides
-    # are compared in scaled units of their own domain, which must be of the same shape.
+    runs, vd, protocol = [], None, None
+    try:
+        for run_path in args.runs:
+            series = RunSeries.read(run_path)
+            frames = series.frames(at_time=args.time_ms, window=args.window_ms, time_unit="ms")
+            vd, gas = series.gas(frames)
+            protocol = series.protocol
+            runs.append([(gas[f].positions, gas[f].signs) for f in frames])
+        sim_beta = thermometry.pooled_ensemble(
+            args.runs, time=args.time_ms, window=args.window_ms, time_unit="ms",
+            common=args.common, effort=args.effort)
+    except VorthermError as exc:
+        option = _time_option(args)
+        raise VorthermError(f"{option}: {exc}" if option else str(exc)) from None
+    # The measured table keeps its own geometry (TOML beside it, or the options) and its own
+    # core radius: each side is in scaled units of its own domain, of the same shape.
     measured = read_measured(args.measured, pixel_um=args.pixel_um, center_px=args.center,
-                             strict=args.strict)
-    if measured.domain.kind != vd.domain.kind:
-        raise VorthermError(f"{args.measured}: the measured domain is a {measured.domain.kind}, "
-                            f"the simulation's a {vd.domain.kind}; compare needs the same shape")
-    # the same shape must also have the same proportions (a box's aspect), within 2%
-    sizes = [(a, b) for a, b in zip(measured.domain.key()[1:], vd.domain.key()[1:])]
-    if any(abs(a - b) > 0.02 * abs(b) for a, b in sizes):
-        raise VorthermError(f"{args.measured}: the measured {measured.domain.kind} "
-                            f"{measured.domain.key()[1:]} differs from the simulation's "
-                            f"{vd.domain.key()[1:]} by more than 2%; compare needs the same shape")
-    core = min(vd.core_radius, measured.core_radius or vd.core_radius)
-    model = ImagingModel(blur=args.blur_um / scale_um, resolution=args.resolution_um / scale_um,
-                         edge_loss=args.edge_loss_um / scale_um, sign_flip=args.sign_error)
-    sim_configs = degrade_many(sim_configs, vd.domain, model, np.random.default_rng(args.seed),
-                               core_radius=core)
-    comparison = cmp.compare_ensembles(sim_configs, measured.configurations, vd.domain,
-                                       core, seed=args.seed,
-                                       beta_options={"settings": thermometry.dos_settings(args.effort)})
+                             core_um=args.core_um, strict=args.strict,
+                             imaging_um=imaging_um or None)
+    model = measured.geometry.imaging_model()
+    meas_beta = thermometry.ensemble_record(
+        measured.configurations, measured.domain, measured.core_radius, common=args.common,
+        imaging=model, effort=args.effort)
+    meas_beta["frames"] = len(measured.configurations)
+    sim_side = cmp.Side.of_runs(runs, vd.domain, "simulation")
+    if model is not None:   # the simulated frames as the camera would see them
+        rng = np.random.default_rng(args.seed)
+        sim_side = cmp.Side(tuple(degrade_many(sim_side.configurations, vd.domain, model, rng,
+                                               core_radius=vd.core_radius)),
+                            vd.domain, sim_side.series)
+    meas_side = cmp.Side.of_shots(measured.configurations, measured.domain, "measured")
+    try:
+        comparison = cmp.compare_ensembles(sim_side, meas_side, beta=(sim_beta, meas_beta))
+    except cmp.CompareError as exc:
+        raise VorthermError(f"{args.measured}: {exc}") from None
+    if model is None:
+        comparison = _with_note(comparison, "no imaging model: the measured beta~N describes the "
+                                "configurations as imaged; give [imaging] in the geometry file "
+                                "or --blur-um/--sign-error")
     csv_path = cmp.write_csv(comparison, stem.with_suffix(".csv"))
     json_path = cmp.write_json(comparison, stem.with_suffix(".json"))
-    fig_path = stem.with_suffix(".png")
-    thermo_figures.plot_comparison(comparison, fig_path, length_scale_um=scale_um)
+    scale_um = (vd.scale * protocol.units.length_m * 1e6, measured.geometry.length_scale_um)
+    fig = thermo_figures.plot_comparison(comparison, length_scale_um=scale_um)
+    fig_path = save(fig, stem.with_suffix(".png"), overwrite=True)
     if args.json:
-        print(json.dumps(cmp.comparison_to_dict(comparison), indent=1, allow_nan=True))
+        print(dumps_strict(cmp.comparison_to_dict(comparison), indent=1))
     else:
         print(_format_comparison(comparison))
         print(f"written: {csv_path}, {json_path}, {fig_path}")
     return 0
+
+
+def _with_note(comparison, note: str):
+    from dataclasses import replace
+
+    return replace(comparison, notes=(*comparison.notes, note))
 
 
 def _format_comparison(comparison) -> str:
@@ -281,13 +337,28 @@ def _format_comparison(comparison) -> str:
         return "E0" if text.startswith("E0") else text[:11]
 
     head = (f"{'quantity':<18} {'unit':<11} {comparison.labels[0]:>10} {comparison.labels[1]:>10} "
-            f"{'difference':>10} {'95% interval':>23} {'KS p':>9} {'perm. p':>9}")
+            f"{'difference':>10} {'95% interval':>23} {'KS p':>9} {'mean p':>9}  "
+            f"shots(effective)")
     lines = [head, "-" * len(head)]
+    bounds = {}
+    if comparison.beta is not None:
+        bounds = {side: {"upper": "<", "lower": ">"}.get(rec.get("bound"), "")
+                  for side, rec in zip(("simulation", "measured"), comparison.beta)}
+
+    def value(r, side: str) -> str:
+        v = getattr(r, side)
+        mark = bounds.get(side, "") if r.quantity == "beta_n" else ""
+        return f"{mark + format(v, '.4g'):>10}" if mark and v == v else num(v)
+
     for r in comparison.rows:
-        lines.append(f"{r.quantity:<18} {unit(r.unit):<11} {num(r.simulation)} {num(r.measured)} "
+        lines.append(f"{r.quantity:<18} {unit(r.unit):<11} {value(r, 'simulation')} "
+                     f"{value(r, 'measured')} "
                      f"{num(r.difference)} [{num(r.ci95_low)}, {num(r.ci95_high)}] "
-                     f"{num(r.p_ks, 9)} {num(r.p_permutation, 9)}")
-    lines.append("E0 = rho kappa^2/(4 pi); lengths in units of the domain size (disk radius)")
+                     f"{num(r.p_ks, 9)} {num(r.p_mean, 9)}  "
+                     f"{r.n_simulation}({r.n_eff_simulation:.3g}) / "
+                     f"{r.n_measured}({r.n_eff_measured:.3g})")
+    lines.append("E0 = rho kappa^2/(4 pi); lengths in units of each side's domain size (disk "
+                 "radius); p-values on independent units (runs' frames as correlated series)")
     lines.extend(f"note: {n}" for n in comparison.notes)
     return "\n".join(lines)
 

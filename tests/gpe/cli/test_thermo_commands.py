@@ -285,3 +285,60 @@ def test_several_runs_are_listed_together_and_pooled_as_independent_series(
     table.write_text("shot,x,y,sign\n0,0,0,1\n")
     assert main(["temperature", str(tiny_run), str(table)]) == 2
     assert "must all be run files" in capsys.readouterr().err
+
+
+def test_compare_keeps_the_measured_geometry_and_core_and_tests_runs_as_series(
+        tiny, tmp_path, capsys, monkeypatch, rng):
+    """The measured beta~N of a comparison is the table's own ensemble estimate (its geometry,
+    its core radius from the TOML beside it), whatever the simulation; the frames of the runs
+    are counted as correlated series of independent runs."""
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
+    runs = []
+    for seed in (1, 2):
+        out = tmp_path / f"s{seed}.h5"
+        assert main(["run", str(tiny), "-o", str(out), "--set", f"evolution.seed={seed}"]) == 0
+        runs.append(str(out))
+    table = tmp_path / "shots.csv"
+    _write_table(table, rng, shots=12, radius_um=10.0)
+    (tmp_path / "shots.toml").write_text('shape = "disk"\nradius_um = 10.0\ncore_um = 0.3\n')
+    capsys.readouterr()
+
+    def refuse(name):
+        raise ValueError(f"{name} in strict JSON")
+
+    # the table alone first: its per-shot estimates may widen the cached ladder, which the
+    # comparisons then load (the same density of states on both paths)
+    assert main(["temperature", str(table), "--json", "--no-systematics"]) == 0
+    alone = json.loads(capsys.readouterr().out, parse_constant=refuse)["ensemble"]
+    docs = []
+    for k, sims in enumerate((runs, runs[:1])):
+        assert main(["compare", *sims, "--measured", str(table), "-o", str(tmp_path / f"c{k}"),
+                     "--json"]) == 0
+        docs.append(json.loads(capsys.readouterr().out, parse_constant=refuse))
+    for doc in docs:
+        measured = doc["beta_n"]["measured"]
+        assert measured["beta_n"] == pytest.approx(alone["beta_n"], rel=1e-12)
+        assert measured["beta_n_ci95"] == pytest.approx(alone["beta_n_ci95"], rel=1e-12)
+        row = next(r for r in doc["rows"] if r["quantity"] == "n_plus")
+        # shots are independent: 12 and the shot 99 emptied by its unusable row
+        assert row["n_eff_measured"] == pytest.approx(13.0)
+        assert doc["sides"]["simulation"]["series"] in (1, 2)
+    assert docs[0]["sides"]["simulation"]["series"] == 2
+    assert any("independent series" in n for n in docs[0]["notes"])
+    import pandas as pd
+    table_csv = pd.read_csv(tmp_path / "c0.csv")
+    assert "beta_n" in list(table_csv["quantity"]) and "n_eff_simulation" in table_csv.columns
+
+
+def test_compare_refuses_a_time_outside_the_run_naming_the_option(one_run, tmp_path, capsys, rng):
+    table = tmp_path / "shots.csv"
+    _write_table(table, rng, radius_um=10.0)
+    stem = tmp_path / "cmp"
+    assert main(["compare", str(one_run), "--measured", str(table), "-o", str(stem),
+                 "--time-ms", "1e6"]) == 2
+    err = capsys.readouterr().err
+    assert "--time-ms 1e+06" in err or "--time-ms 1000000" in err, err
+    assert not any(stem.with_suffix(s).exists() for s in (".csv", ".json", ".png"))
+    assert main(["compare", str(one_run), "--measured", str(table), "-o", str(stem),
+                 "--sign-error", "0.7"]) == 2
+    assert "--sign-error 0.7" in capsys.readouterr().err

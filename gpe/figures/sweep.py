@@ -16,7 +16,8 @@ from __future__ import annotations
 import math
 import os
 import textwrap
-from typing import Any, Mapping
+from collections.abc import Mapping
+from typing import Any
 
 import numpy as np
 from matplotlib.collections import PatchCollection

@@ -25,14 +25,14 @@ import threading
 import time
 import traceback
 import warnings
+from collections.abc import Callable, Mapping
 from dataclasses import asdict, dataclass
 from pathlib import Path
-from typing import Any, Callable, Mapping
+from typing import Any
 
 from gpe.errors import VorthermError
 from gpe.sweep.file import Measure, Point, Sweep, SweepError, time_unit_factor
 from gpe.sweep.manifest import prepare_output, protocol_fingerprint
-from gpe.sweep.thinning import thin_snapshots
 from gpe.sweep.table import (
     SweepResult,
     ensemble_summary,
@@ -41,6 +41,7 @@ from gpe.sweep.table import (
     summarise,
     write_json,
 )
+from gpe.sweep.thinning import thin_snapshots
 
 logger = logging.getLogger(__name__)
 

@@ -24,10 +24,11 @@ import json
 import math
 import os
 import time
+from collections.abc import Callable, Mapping
 from dataclasses import asdict, dataclass
 from pathlib import Path
 from statistics import NormalDist
-from typing import Any, Callable, Mapping
+from typing import Any
 
 from gpe.sweep.file import Axis, Point, Sweep, SweepError, time_unit_factor
 from thermo.quantities import QUANTITIES

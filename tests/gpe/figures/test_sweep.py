@@ -86,3 +86,13 @@ def test_mean_quantities_and_the_line_view(result, tmp_path):
         plot_sweep(result, select={"beams.0.wiast_um": 4.0})
     with pytest.raises(SweepError, match="accepted: beta_n, beta"):
         plot_sweep(result, "cluster_fraction")
+
+
+def test_a_summary_without_pooled_beta_n_is_refused_with_what_to_do(result):
+    import dataclasses
+
+    from gpe.figures.sweep import plot_sweep
+
+    old = [{k: v for k, v in r.items() if not k.startswith("beta_n")} for r in result.points]
+    with pytest.raises(SweepError, match="rerun the same sweep command"):
+        plot_sweep(dataclasses.replace(result, points=old))

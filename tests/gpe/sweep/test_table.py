@@ -12,7 +12,13 @@ import numpy as np
 import pytest
 from sweep_stand_in import run_stand_in, write_sweep_file
 
-from gpe.sweep.table import Z95, bootstrap_interval, read_summary, read_table, wilson_interval
+from gpe.sweep.table import (
+    Z95,
+    bootstrap_interval,
+    read_summary,
+    read_table,
+    wilson_interval,
+)
 
 
 @pytest.fixture
@@ -191,5 +197,6 @@ def test_beta_n_of_a_real_sweep_is_pooled_over_the_seeds_run_files(tmp_path, mon
         np.testing.assert_allclose([row["beta_n [1]"], row["beta_n_lo95 [1]"],
                                     row["beta_n_hi95 [1]"]],
                                    [ref["beta_n"], *ref["beta_n_ci95"]], rtol=1e-12)
+        assert row["bound"] == (ref["bound"] or "")
     for f in sorted(out.rglob("*.json")):
         json.loads(f.read_text(), parse_constant=_refuse)

@@ -225,10 +225,11 @@ def shot_statistics(configurations: Sequence[Configuration], domain: Any
     return out
 
 
-def _quantity_row(name: str, a: np.ndarray, b: np.ndarray, sim: "Side", meas: "Side"
-                  ) -> tuple[CompareRow, str]:
+def _quantity_row(name: str, a: np.ndarray, b: np.ndarray, sim: "Side", meas: "Side",
+                  labels: tuple[str, str]) -> tuple[CompareRow, str]:
     """One per-shot quantity: the difference tested on independent units (thermo.data.units)."""
-    d = difference_of_means(SeriesSample.of(a, sim.series), SeriesSample.of(b, meas.series))
+    d = difference_of_means(SeriesSample.of(a, sim.series), SeriesSample.of(b, meas.series),
+                            labels)
     row = CompareRow(name, QUANTITIES[name].unit, d.mean_a, d.mean_b, d.difference, *d.ci95,
                      d.p_ks, d.p_mean, d.n_a, d.n_b, d.n_eff_a, d.n_eff_b)
     return row, (f"{name}: {d.note}" if d.note else "")
@@ -342,7 +343,7 @@ def compare_ensembles(simulation: "Side", measured: "Side", *,
     b = shot_statistics(measured.configurations, measured.domain)
     rows, notes = [], []
     for name in ROWS:
-        row, note = _quantity_row(name, a[name], b[name], simulation, measured)
+        row, note = _quantity_row(name, a[name], b[name], simulation, measured, labels)
         rows.append(row)
         if note:
             notes.append(note)

@@ -151,8 +151,10 @@ def ks_pvalue(statistic: float, n_a: float, n_b: float) -> float:
     return float(min(1.0, stats.kstwobign.sf((root + 0.12 + 0.11 / root) * statistic)))
 
 
-def difference_of_means(a: SeriesSample, b: SeriesSample) -> Difference:
-    """Compare the means and distributions of two sides (see the module notes).
+def difference_of_means(a: SeriesSample, b: SeriesSample,
+                        labels: tuple[str, str] = ("first", "second")) -> Difference:
+    """Compare the means and distributions of two sides (see the module notes); ``labels``
+    name the sides in the note of a test not made.
 
     Units: as the values.
     """
@@ -160,7 +162,7 @@ def difference_of_means(a: SeriesSample, b: SeriesSample) -> Difference:
     nan2 = (math.nan, math.nan)
     base = dict(mean_a=mean_a, mean_b=mean_b, difference=mean_a - mean_b, n_a=a.n, n_b=b.n,
                 n_eff_a=a.n_effective, n_eff_b=b.n_effective)
-    short = [f"{side} {s.n_effective:.3g}" for side, s in (("first", a), ("second", b))
+    short = [f"{side} {s.n_effective:.3g}" for side, s in zip(labels, (a, b))
              if s.n_effective < MIN_EFFECTIVE]
     if short:
         return Difference(ci95=nan2, se=math.nan, p_mean=math.nan, p_ks=math.nan,

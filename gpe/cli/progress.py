@@ -151,8 +151,9 @@ def dos_progress(**options) -> Callable[[float, float], None]:
     gpe.run.thermometry.temperature_of_run and friends, thermo.dos.build.build): one bar
     "density of states" in Monte Carlo sweeps per build, opened at the build's first report
     and closed at its last (done == total); a cached density of states shows none. Log lines
-    every quarter of a build unless ``log_every`` says otherwise."""
-    options.setdefault("log_every", 0.25)
+    at the start and the end of a build and once a minute in between (a run's frames need
+    dozens of builds of a second or so each), unless ``log_every`` says otherwise."""
+    options.setdefault("log_every", 1.0)
     bar: dict[str, Counter] = {}
 
     def draw(done: float, total: float) -> None:

@@ -136,10 +136,21 @@ def test_dos_progress_opens_one_bar_per_build(clock, lines, no_bars):
         clock.now += 1.0
         draw(done, 200)
     got = lines()
+    # a line where each build starts and ends (log_every = 1 by default here)
     assert [g.split(" (")[0] for g in got] == [
-        "density of states: 0/100 sweeps", "density of states: 50/100 sweeps",
-        "density of states: 100/100 sweeps", "density of states: 0/200 sweeps",
-        "density of states: 100/200 sweeps", "density of states: 200/200 sweeps"]
+        "density of states: 0/100 sweeps", "density of states: 100/100 sweeps",
+        "density of states: 0/200 sweeps", "density of states: 200/200 sweeps"]
+
+
+def test_dos_progress_logs_a_long_build_once_a_minute(clock, lines, no_bars):
+    draw = dos_progress()
+    draw(0, 1000)
+    clock.now += 61.0
+    draw(100, 1000)                            # a tenth, but a minute since the last line
+    clock.now += 1.0
+    draw(200, 1000)
+    assert [g.split(" (")[0] for g in lines()] == [
+        "density of states: 0/1000 sweeps", "density of states: 100/1000 sweeps"]
 
 
 def test_dos_progress_starts_afresh_after_a_build_that_did_not_finish(clock, lines, no_bars):

@@ -81,3 +81,33 @@ def admit(positions: Any, signs: Any, domain: Any, core_radius: float,
                 n_pairs += 1
         pos, sg = pos[keep], sg[keep]
     return Admitted(pos, sg, n_wall, n_pairs)
+
+
+#: A core radius above this fraction of the domain size draws a CoreRadiusWarning (the project's
+#: choice: the point-vortex gas needs a << R; its collapse bounds and the density of states are
+#: those of points, and at a = 10% of R twenty hard cores already cover 20% of a disk).
+CORE_WARN_FRACTION = 0.1
+
+
+class CoreRadiusWarning(UserWarning):
+    """The vortex core radius is not small against the domain."""
+
+
+def core_radius_note(core_radius: float, domain: Any, n_vortices: int | None = None,
+                     where: str = "") -> str:
+    """A warning text (with the numbers) when ``core_radius`` exceeds CORE_WARN_FRACTION of
+    the domain size, else "".
+
+    ``n_vortices`` adds the fraction of the area the hard cores cover. Units: the core radius
+    in the domain's scaled length (disk radius, or the box side along y = 1).
+    """
+    if not core_radius > CORE_WARN_FRACTION:
+        return ""
+    cover = ""
+    if n_vortices:
+        cover = (f"; {n_vortices} hard cores cover "
+                 f"{100 * n_vortices * np.pi * core_radius**2 / domain.area:.3g}% of the area")
+    return (f"{where + ': ' if where else ''}the vortex core radius is {100 * core_radius:.3g}% "
+            f"of the domain size (more than {100 * CORE_WARN_FRACTION:g}%){cover}; the "
+            f"point-vortex thermometry assumes cores much smaller than the domain, so its beta "
+            f"and collapse bounds are unreliable here: use a larger domain or a smaller core")

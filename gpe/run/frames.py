@@ -15,7 +15,9 @@ Units: times in hbar/mu (or ms where said); tau_int in frames.
 from __future__ import annotations
 
 import math
+import warnings
 from dataclasses import dataclass
+from pathlib import Path
 
 import numpy as np
 
@@ -23,6 +25,7 @@ from gpe.errors import VorthermError
 from gpe.run.gas import CORE_RADIUS_XI, WALL_LAYER_XI, domain_for_trap, gas_configuration
 from gpe.run.reading import protocol_of
 from gpe.run.runfile import RunFile
+from thermo.admission import CoreRadiusWarning, core_radius_note
 from thermo.autocorr import integrated_autocorr_time
 from thermo.energy import energy
 
@@ -138,6 +141,12 @@ class RunSeries:
     def gas(self, frames, *, core_xi=CORE_RADIUS_XI, wall_xi=WALL_LAYER_XI, wall_cut=1.0):
         """(vortex domain, {frame: Admitted}) with these modelling choices (gpe/run/gas.py)."""
         vd = domain_for_trap(self.protocol.trap, core_xi, wall_xi)
+        note = core_radius_note(vd.core_radius, vd.domain,
+                                max((int(np.count_nonzero(self.table["frame"] == f))
+                                     for f in set(frames)), default=0),
+                                where=Path(self.path).name)
+        if note:
+            warnings.warn(CoreRadiusWarning(note), stacklevel=2)
         out = {}
         for f in sorted(set(frames)):
             rows = self.table[self.table["frame"] == f]

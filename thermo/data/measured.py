@@ -44,7 +44,7 @@ from typing import Any, Iterable, Sequence
 import h5py
 import numpy as np
 
-from thermo.admission import Admitted, admit
+from thermo.admission import Admitted, CoreRadiusWarning, admit, core_radius_note
 from thermo.data.geometry import (
     Geometry,
     PixelCalibration,
@@ -408,10 +408,14 @@ def read_measured(path: str | Path, *, shape: str | None = None,
             weights=np.array([it[5] for it in items]) if "weight" in col else None))
     if problems:
         _warn(path, problems)
+    core = DEFAULT_CORE if geometry.core_um is None else geometry.core_um / geometry.length_scale_um
+    note = core_radius_note(core, domain, max((len(s.signs) for s in out), default=0),
+                            where=path.name)
+    if note:
+        warnings.warn(CoreRadiusWarning(note), stacklevel=2)
     return MeasuredEnsemble(
         source=path.name, shots=tuple(out), geometry=geometry, domain=domain,
-        core_radius=DEFAULT_CORE if geometry.core_um is None
-        else geometry.core_um / geometry.length_scale_um,
+        core_radius=core,
         core_given=geometry.core_um is not None,
         length_scale_um=geometry.length_scale_um, problems=tuple(problems),
         n_rows=len(raw_rows))

@@ -256,3 +256,14 @@ def test_an_hdf5_file_with_a_text_name_is_refused_as_such(tmp_path):
         f["vortices"] = np.zeros(2)
     with pytest.raises(MeasuredTableError, match=r"table\.csv: an HDF5 file, not a CSV.*\.h5"):
         read_measured(p, radius_um=40.0)
+
+
+def test_a_core_comparable_to_the_domain_is_warned_with_its_numbers(tmp_path):
+    """core_um = 6 um in a disk of 40 um: a = 15% of R; two hard cores of a shot cover
+    2 pi a^2 / (pi R^2) = 4.5% of the disk [exact area ratio]."""
+    from thermo.admission import CoreRadiusWarning
+
+    p = _write(tmp_path, GOOD, toml='shape = "disk"\nradius_um = 40.0\ncore_um = 6.0\n')
+    with pytest.warns(CoreRadiusWarning, match=r"table.csv: the vortex core radius is 15% "
+                                               r"of the domain size.*2 hard cores cover 4.5% "):
+        read_measured(p)

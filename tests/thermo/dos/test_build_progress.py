@@ -127,8 +127,7 @@ def _builds(calls):
 def test_the_estimators_pass_progress_to_their_builds(tmp_path, estimate):
     pos = np.array([[0.3, 0.1], [-0.2, 0.4], [0.1, -0.5], [-0.4, -0.3]])
     signs = np.array([1, 1, -1, -1])
-    # the ladder's own number of rungs: a stored build with a wider reach then serves a
-    # narrower one (thermo.dos.cache._settings_cover compares an explicit n_temps exactly)
+    # each reach of the ladder is its own cache entry (thermo.dos.cache: exact settings)
     settings = DosSettings(n_sweeps=300, n_boot=4)
 
     def run(calls):

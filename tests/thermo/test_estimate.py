@@ -62,16 +62,25 @@ def test_mixed_groups_and_single_shot(cache):
 
 
 def test_out_of_equilibrium_structure_is_flagged(cache):
-    """Tight +- dipoles placed at beta = 0 energies' scale: the energy says one beta, the
-    dipole fraction another, so the flag must be raised."""
-    rng = np.random.default_rng(4)
-    configs = []
-    for _ in range(60):
-        c = Disk().sample_uniform(rng, 2, margin=0.1) * 0.8
-        pos = np.concatenate([c, c + [0.03, 0.0]])
-        configs.append((pos, np.array([1, 1, -1, -1])))
-    res = estimate_ensemble(configs, Disk(), CORE, cache_dir=cache, settings=SETTINGS)
+    """+- dipoles of separation 0.15 R with uniformly placed centres (not a Gibbs state): the
+    energy says beta~ ~ 0.8, the structure observables lie outside their canonical curves, so
+    the flag must be raised. Tighter dipoles (0.03 R) put the energy past the pair-collapse
+    bound beta~ = 1, where the structure check is not made and the verdict says so."""
+    def dipoles(separation):
+        rng = np.random.default_rng(4)
+        configs = []
+        for _ in range(60):
+            c = Disk().sample_uniform(rng, 2, margin=0.1) * 0.8
+            pos = np.concatenate([c, c + [separation, 0.0]])
+            configs.append((pos, np.array([1, 1, -1, -1])))
+        return estimate_ensemble(configs, Disk(), CORE, cache_dir=cache, settings=SETTINGS)
+
+    res = dipoles(0.15)
+    assert res.beta_ci95[1] < 1.0
     assert res.not_in_equilibrium and "not in equilibrium" in res.verdict
+    tight = dipoles(0.03)
+    assert tight.beta_ci95[0] > 1.0 and not tight.not_in_equilibrium
+    assert "structure check not made past the pair-collapse bound" in tight.verdict
 
 
 def test_thresholds_from_outside_values():

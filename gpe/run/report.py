@@ -147,7 +147,9 @@ def _ensemble_lines(ens: dict, unit: str) -> list[str]:
     elif n_eff is not None:
         lines.append(f"  {ens.get('n_shots', 0)} independent shots")
     if isinstance(ens.get("dos_error"), float) and math.isfinite(ens["dos_error"]):
-        lines.append(f"  density-of-states error in beta~N: {ens['dos_error']:.2g} (included)")
+        effort = f", effort {ens['effort']}" if ens.get("effort") else ""
+        lines.append(f"  density-of-states error in beta~N: {ens['dos_error']:.2g} (included"
+                     f"{effort})")
     sysb = ens.get("systematics")
     if sysb:
         parts = []

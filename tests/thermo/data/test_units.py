@@ -76,7 +76,7 @@ def test_correlated_frames_reject_a_true_null_at_the_nominal_rate():
         naive_ks += stats.ks_2samp(a, b).pvalue < 0.05
         naive_perm += stats.permutation_test(
             (a, b), lambda x, y, axis: np.mean(x, axis=axis) - np.mean(y, axis=axis),
-            vectorized=True, n_resamples=500, random_state=rng).pvalue < 0.05
+            vectorized=True, n_resamples=500, rng=rng).pvalue < 0.05
     assert naive_perm > 40 and naive_ks > 40, (naive_perm, naive_ks)
     assert 2 <= boot <= 26 and ks <= 21, (boot, ks)
 

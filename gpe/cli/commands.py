@@ -192,7 +192,7 @@ def sweep_summary_text(result) -> str:
 
     qs = [q for q in result.quantities if q != "beta"]
     head = [a.title for a in result.axes] + ["ok/seeds", f"beta [{result.units['beta_mean']}]",
-                                             "95% interval", "beta<0", "beta~N [1]",
+                                             "seed bootstrap", "beta<0", "beta~N [1]",
                                              "95% interval"]
     head += [f"{q} [{result.units[q + '_mean']}]" for q in qs]
     rows = []
@@ -210,8 +210,10 @@ def sweep_summary_text(result) -> str:
     lines = ["  ".join(c.rjust(w) for c, w in zip(line, width)) for line in [head, *rows]]
     n_ok = sum(r["status"] == "ok" for r in result.runs)
     title = (f"sweep summary: {n_ok} of {len(result.runs)} runs measured "
-             "(beta~N pooled over the seeds that finished; means over seeds with bootstrap "
-             "intervals; no interval with one seed; beta~N reasons in summary_points.csv)")
+             "(beta~N pooled over the seeds that finished, the interval to quote; beta of the "
+             "runs averaged over seeds with a bootstrap over seeds, too narrow for few seeds and "
+             "none for one; other quantities are means over all frames, their intervals in "
+             "summary_points.csv; beta~N reasons there too)")
     return "\n".join([title, *lines])
 
 

@@ -23,7 +23,9 @@ from gpe.run.frames import RunSeries, drive_end, series_weights
 from gpe.run.gas import CORE_RADIUS_XI, WALL_LAYER_XI
 from gpe.run.reading import select_frames
 from thermo.classify import structure_observables
+from thermo.data.compare import shot_statistics
 from thermo.data.measured import read_measured
+from thermo.data.units import SeriesSample, mean_interval
 from thermo.dos.build import DosSettings
 from thermo.estimate import estimate_ensemble, estimate_single
 
@@ -220,6 +222,41 @@ def run_ensemble(run_path, *, at_time: float | None = None,
     return vd, [(gas[f].positions, gas[f].signs) for f in frames], series.protocol
 
 
+#: Per-frame quantities averaged over an ensemble's frames, with the range their interval is
+#: cut to (counts >= 0, fractions in [0, 1]); units in thermo.quantities.QUANTITIES.
+FRAME_QUANTITIES = {"n_plus": (0.0, math.inf), "n_minus": (0.0, math.inf),
+                    "dipole_fraction": (0.0, 1.0), "cluster_fraction": (0.0, 1.0),
+                    "free_fraction": (0.0, 1.0), "energy_per_vortex": (-math.inf, math.inf)}
+
+
+def frame_means(runs_configs, domain) -> dict:
+    """Means over the frames of several runs with 95% intervals that count each run's frames as
+    the correlated series they are and the runs as independent (thermo.data.units).
+
+    ``runs_configs`` is one list of (positions, signs) per run, in time order. Returns
+    {quantity: {"mean", "lo95", "hi95", "n_effective"}} for FRAME_QUANTITIES; frames where a
+    quantity is undefined (no vortex, fewer than two) are left out of it.
+
+    Units: as thermo.quantities.QUANTITIES.
+    """
+    stats_, series = {q: [] for q in FRAME_QUANTITIES}, []
+    for k, configs in enumerate(runs_configs):
+        if not configs:
+            continue
+        st = shot_statistics(configs, domain)
+        for q in FRAME_QUANTITIES:
+            stats_[q].append(st[q])
+        series.append(np.full(len(configs), k))
+    out = {}
+    ids = np.concatenate(series) if series else np.zeros(0, dtype=int)
+    for q, (lo_lim, hi_lim) in FRAME_QUANTITIES.items():
+        values = np.concatenate(stats_[q]) if stats_[q] else np.zeros(0)
+        sample = SeriesSample.of(values, ids)
+        m, lo, hi = mean_interval(sample, lo_lim, hi_lim)
+        out[q] = {"mean": m, "lo95": lo, "hi95": hi, "n_effective": sample.n_effective}
+    return out
+
+
 def _pooled(series_frames, *, common, effort, cache_dir, core_xi=CORE_RADIUS_XI,
             wall_xi=WALL_LAYER_XI, wall_cut=1.0, progress=None) -> dict:
     """The ensemble of several runs' frames: each run a correlated series, runs independent.
@@ -227,9 +264,11 @@ def _pooled(series_frames, *, common, effort, cache_dir, core_xi=CORE_RADIUS_XI,
     ``n_plus``/``n_minus`` are the mean vortex numbers over the frames (the fit's groups are in
     ``groups``)."""
     configs, weights, taus, left_wall, left_pairs, vd = [], [], [], 0, 0, None
+    per_run = []
     for series, frames in series_frames:
         vd, gas = series.gas(frames, core_xi=core_xi, wall_xi=wall_xi, wall_cut=wall_cut)
         cs = [(gas[f].positions, gas[f].signs) for f in frames]
+        per_run.append(cs)
         w, tau = series_weights(cs, vd.domain)
         configs += cs
         weights += list(w)
@@ -243,8 +282,9 @@ def _pooled(series_frames, *, common, effort, cache_dir, core_xi=CORE_RADIUS_XI,
                 "frames": len(configs), "runs": len(series_frames), "tau_frames": taus,
                 "left_out_wall": left_wall, "left_out_pairs": left_pairs,
                 "approximation": vd.approximate})
-    for key in ("dipole_fraction", "cluster_fraction", "free_fraction", "energy_per_vortex"):
-        rec.setdefault(key, math.nan)
+    # the ensemble's quantities are means over all its frames (runs as independent series)
+    rec["frame_means"] = frame_means(per_run, vd.domain)
+    rec.update({q: v["mean"] for q, v in rec["frame_means"].items()})
     return rec
 
 

@@ -183,17 +183,27 @@ def _run_rows(sweep: Sweep, points: list[Point], records: Mapping[str, dict]) ->
     return rows
 
 
-def _seed_statistics(ok: list[dict], qs) -> dict:
-    """Mean, sample standard deviation and bootstrap 95 % interval over seeds, per quantity;
-    the fraction of seeds at negative beta with its Wilson interval."""
+def _seed_statistics(ok: list[dict], qs, frames: Mapping[str, Mapping] | None = None) -> dict:
+    """Per quantity: the mean with a 95 % interval and the standard deviation over seeds; the
+    fraction of seeds at negative beta with its Wilson interval.
+
+    A quantity of ``frames`` (gpe.run.thermometry.frame_means of the pooled record: the frames
+    of all seeds, each seed's frames a correlated series, cut to the quantity's range) takes
+    its mean and interval from there; the others (beta of each run) get the percentile
+    bootstrap over seeds, which with few seeds is too narrow (docs/sweep.md)."""
     import numpy as np
 
+    frames = frames or {}
     row = {}
     for q in qs:
         x = np.array([r[q] for r in ok], dtype=float)
         x = x[np.isfinite(x)]
-        lo, hi = bootstrap_interval(x)
-        row.update({f"{q}_mean": float(x.mean()) if x.size else math.nan,
+        if q in frames:
+            mean, lo, hi = (_float(frames[q].get(k)) for k in ("mean", "lo95", "hi95"))
+        else:
+            mean = float(x.mean()) if x.size else math.nan
+            lo, hi = bootstrap_interval(x)
+        row.update({f"{q}_mean": mean,
                     f"{q}_std": float(x.std(ddof=1)) if x.size > 1 else math.nan,
                     f"{q}_lo95": lo, f"{q}_hi95": hi})
     beta = np.array([r["beta"] for r in ok], dtype=float)
@@ -256,18 +266,20 @@ PoolFn = Callable[[Sweep, Path, list[Point]], Mapping[str, Any]]
 
 
 def _pooled_columns(sweep: Sweep, out_dir: Path, ok_points: list[Point],
-                    pool: PoolFn | None) -> dict:
-    """beta~ N pooled over the seeds that finished (``pool``); a failure is a NaN row with its
-    reason, never the end of the summary."""
+                    pool: PoolFn | None) -> tuple[dict, dict]:
+    """beta~ N pooled over the seeds that finished (``pool``), and the pooled frame means
+    (``frame_means`` of the record, {} if none); a failure is a NaN row with its reason, never
+    the end of the summary."""
     if not ok_points:
-        return _ensemble_columns(None, "no seed of this point finished")
+        return _ensemble_columns(None, "no seed of this point finished"), {}
     if pool is None:
-        return _ensemble_columns(None, "not pooled (no pooling function given)")
+        return _ensemble_columns(None, "not pooled (no pooling function given)"), {}
     try:
         rec = pool(sweep, out_dir, ok_points)
     except Exception as exc:  # noqa: BLE001 -- one point's failure is recorded, not fatal
-        return _ensemble_columns(None, _relative(f"{type(exc).__name__}: {exc}", sweep, out_dir))
-    return _ensemble_columns(rec)
+        return (_ensemble_columns(None, _relative(f"{type(exc).__name__}: {exc}", sweep,
+                                                  out_dir)), {})
+    return _ensemble_columns(rec), dict(rec.get("frame_means") or {})
 
 
 def _relative(text: str, sweep: Sweep, out_dir: Path) -> str:
@@ -304,8 +316,10 @@ def summarise(sweep: Sweep, out_dir: Path, points: list[Point], records: Mapping
         ok = [r for r in group if r["status"] == "ok"]
         row = {"grid_id": grid_id, **{a.key: group[0][a.key] for a in sweep.axes},
                "n_seeds": len(group), "n_ok": len(ok)}
-        row.update(_pooled_columns(sweep, out_dir, [by_id[r["point_id"]] for r in ok], pool))
-        row.update(_seed_statistics(ok, qs))
+        pooled, frames = _pooled_columns(sweep, out_dir, [by_id[r["point_id"]] for r in ok],
+                                         pool)
+        row.update(pooled)
+        row.update(_seed_statistics(ok, qs, frames))
         agg.append(row)
 
     files = {"runs_csv": out_dir / "summary_runs.csv", "points_csv": out_dir / "summary_points.csv",

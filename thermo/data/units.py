@@ -181,3 +181,21 @@ def difference_of_means(a: SeriesSample, b: SeriesSample,
     p_mean = float(2 * stats.t.sf(abs(d) / se, dof)) if se > 0 else float(d == 0)
     p_ks = ks_pvalue(float(stats.ks_2samp(xa, xb).statistic), a.n_effective, b.n_effective)
     return Difference(ci95=(d - z * se, d + z * se), se=se, p_mean=p_mean, p_ks=p_ks, **base)
+
+
+def mean_interval(sample: SeriesSample, lower: float = -math.inf, upper: float = math.inf,
+                  level: float = 0.95) -> tuple[float, float, float]:
+    """The mean of one side with its Student-t interval from the effective size (see the
+    module notes), cut to the quantity's range [lower, upper] (counts >= 0, fractions in
+    [0, 1]); (nan, nan, nan) without two values, (mean, nan, nan) without spread estimate.
+
+    Units: as the values.
+    """
+    if sample.n < 2:
+        m = sample.mean() if sample.n else math.nan
+        return m, math.nan, math.nan
+    m = sample.mean()
+    se = math.sqrt(sample.variance_of_mean())
+    dof = max(sample.n_effective - 1.0, 1.0)
+    half = float(stats.t.ppf(0.5 + level / 2, dof)) * se
+    return m, max(lower, m - half), min(upper, m + half)

@@ -187,6 +187,14 @@ def test_beta_n_of_a_real_sweep_is_pooled_over_the_seeds_run_files(tmp_path, mon
         np.testing.assert_allclose(got, [ref["beta_n"], *ref["beta_n_ci95"],
                                          ref["n_effective"]], rtol=1e-12)
         assert row["bound"] == (ref["bound"] or "")
+        # vortex numbers: the mean over both seeds' frames with the interval that counts each
+        # seed's frames as one correlated series (thermo.data.units), never below 0
+        for q in ("n_plus", "n_minus"):
+            fm = ref["frame_means"][q]
+            np.testing.assert_allclose([row[f"{q}_mean [1]"], row[f"{q}_lo95 [1]"],
+                                        row[f"{q}_hi95 [1]"]],
+                                       [fm["mean"], fm["lo95"], fm["hi95"]], rtol=1e-12)
+            assert 0.0 <= row[f"{q}_lo95 [1]"] <= row[f"{q}_mean [1]"] <= row[f"{q}_hi95 [1]"]
     slow, fast = points.iloc[0], points.iloc[1]
     # speed 0.1 c sheds no vortex: NaN with the estimator's reason, and the sweep went on
     assert math.isnan(slow["beta_n [1]"]) and "two or more vortices" in slow["beta_n_reason"]

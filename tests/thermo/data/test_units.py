@@ -106,3 +106,22 @@ def test_several_runs_are_independent_series():
     assert both.variance_of_mean() == pytest.approx(exact, rel=0.2)
     shifted = SeriesSample.of(np.concatenate([a1, a2 + 2.0]), np.repeat([0, 1], n))
     assert shifted.variance_of_mean() > 2 * both.variance_of_mean()
+
+
+def test_the_mean_of_two_correlated_runs_is_covered_at_close_to_the_nominal_rate():
+    """Two AR(1) runs (rho = 0.8, 150 frames each, about 33 effective frames together) of a
+    process with mean 0: the interval of the pooled mean covers 0 in close to 95% of 300
+    repeats (binomial(300, 0.95): 99.9% of its mass above 272 hits; we allow down to 264,
+    the short-run bias of tau_int); an interval cut to a range never leaves it."""
+    from thermo.data.units import mean_interval
+
+    rng = np.random.default_rng(8)
+    hits = 0
+    for _ in range(300):
+        x = np.concatenate([_ar1(rng, 150, 0.8), _ar1(rng, 150, 0.8)])
+        m, lo, hi = mean_interval(SeriesSample.of(x, np.repeat([0, 1], 150)))
+        hits += lo <= 0.0 <= hi
+    assert hits >= 264, hits
+    counts = SeriesSample.of(np.array([0.0, 0.0, 1.0, 0.0, 0.0, 0.0]), np.zeros(6, dtype=int))
+    m, lo, hi = mean_interval(counts, lower=0.0)
+    assert lo == 0.0 and m == pytest.approx(1 / 6) and hi > m

@@ -79,13 +79,19 @@ def test_temperature_needs_a_geometry(tmp_path, capsys, rng):
     assert "nogeo" in capsys.readouterr().err
 
 
-def test_compare_writes_table_json_and_figure(tiny, tmp_path, capsys, monkeypatch, rng):
-    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
+def _seeded_runs(tiny, folder, seeds=(1, 2)) -> list[str]:
+    """The tiny protocol run once per seed through the command line; the run files' paths."""
     runs = []
-    for seed in (1, 2):
-        out = tmp_path / f"s{seed}.h5"
+    for seed in seeds:
+        out = folder / f"s{seed}.h5"
         assert main(["run", str(tiny), "-o", str(out), "--set", f"evolution.seed={seed}"]) == 0
         runs.append(str(out))
+    return runs
+
+
+def test_compare_writes_table_json_and_figure(tiny, tmp_path, capsys, monkeypatch, rng):
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
+    runs = _seeded_runs(tiny, tmp_path)
     table = tmp_path / "shots.csv"
     _write_table(table, rng, radius_um=10.0)
     (tmp_path / "shots.toml").write_text('shape = "disk"\nradius_um = 10.0\ncore_um = 0.1\n')
@@ -293,11 +299,7 @@ def test_compare_keeps_the_measured_geometry_and_core_and_tests_runs_as_series(
     its core radius from the TOML beside it), whatever the simulation; the frames of the runs
     are counted as correlated series of independent runs."""
     monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
-    runs = []
-    for seed in (1, 2):
-        out = tmp_path / f"s{seed}.h5"
-        assert main(["run", str(tiny), "-o", str(out), "--set", f"evolution.seed={seed}"]) == 0
-        runs.append(str(out))
+    runs = _seeded_runs(tiny, tmp_path)
     table = tmp_path / "shots.csv"
     _write_table(table, rng, shots=12, radius_um=10.0)
     (tmp_path / "shots.toml").write_text('shape = "disk"\nradius_um = 10.0\ncore_um = 0.3\n')

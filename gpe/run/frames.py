@@ -14,7 +14,6 @@ Units: times in hbar/mu (or ms where said); tau_int in frames.
 
 from __future__ import annotations
 
-import math
 import warnings
 from dataclasses import dataclass
 from pathlib import Path
@@ -26,8 +25,7 @@ from gpe.run.gas import CORE_RADIUS_XI, WALL_LAYER_XI, domain_for_trap, gas_conf
 from gpe.run.reading import protocol_of
 from gpe.run.runfile import RunFile
 from thermo.admission import CoreRadiusWarning, core_radius_note
-from thermo.autocorr import integrated_autocorr_time
-from thermo.energy import energy
+from thermo.data.units import series_weights  # noqa: F401 -- part of this module's API
 
 
 def drive_end(protocol) -> tuple[float | None, str]:
@@ -94,22 +92,6 @@ def ensemble_frames(times: np.ndarray, *, at_time: float | None = None,
         return list(range(len(times) - last, len(times)))
     raise VorthermError(f"ensemble default {default!r}; accepted: 'after_drive', 'last_third', "
                         "'last'")
-
-
-def series_weights(configs, domain) -> tuple[np.ndarray, float]:
-    """Weights 1/tau_int for the frames of one run, and tau_int.
-
-    tau_int is the integrated autocorrelation time (thermo.autocorr, Sokal's window) of the
-    energy per vortex along the frames; a series of n frames is worth n / tau_int independent
-    shots. Frames with fewer than two vortices are skipped for the series; fewer than 4 usable
-    frames count as independent (tau too uncertain to estimate; said in the record).
-
-    Units: tau_int in frames.
-    """
-    e = np.array([energy(p, s, domain) / len(s) for p, s in configs if len(s) >= 2])
-    tau = integrated_autocorr_time(e) if e.size >= 4 else math.nan
-    tau = max(1.0, tau) if math.isfinite(tau) else 1.0
-    return np.full(len(configs), 1.0 / tau), float(tau)
 
 
 @dataclass(frozen=True)

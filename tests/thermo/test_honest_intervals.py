@@ -9,7 +9,7 @@ as often as it promises (the definition of a confidence interval; any statistics
 import numpy as np
 import pytest
 
-from gpe.run.frames import series_weights
+from thermo.data.units import series_weights
 from thermo.data.degrade import ImagingModel, degrade
 from thermo.domains.disk import Disk
 from thermo.dos.build import DosSettings, build
@@ -69,7 +69,7 @@ def test_imaging_model_recovers_the_gas_before_imaging(cache):
 def test_correlated_frames_naive_interval_undercovers_weighted_does_not(cache):
     """Frames of one equilibrium series one sweep apart (strongly correlated): treating them as
     independent shots undercovers; weighting them by 1/tau_int (gpe.run.thermometry.
-    series_weights, Sokal's window) restores close to nominal coverage."""
+    thermo.data.units.series_weights, Sokal's window) restores close to nominal coverage."""
     beta, n_rep, n_frames = -0.35, 40, 240
     rng = np.random.default_rng(2026)
     naive_hits = weighted_hits = 0

@@ -35,7 +35,7 @@ from scipy import stats
 
 from thermo import classify
 from thermo import energy as energy_mod
-from thermo.data.units import SeriesSample, difference_of_means
+from thermo.data.units import SeriesSample, difference_of_means, series_weights
 from thermo.energy import validate_configuration
 from thermo.errors import ConfigurationError, ThermoError
 from thermo.estimate import estimate_ensemble
@@ -299,10 +299,11 @@ def ensemble_beta(side: "Side", core_radius: float, **options: Any) -> dict:
         return {"beta_n": math.nan, "beta_n_ci95": [math.nan, math.nan], "bound": None,
                 "n_effective": 0.0, "frames": 0, "left_out": len(side.configurations),
                 "verdict": "no shot with two vortices inside the hard-core model"}
-    e = np.array([energy_mod.energy(p, s, side.domain) / len(s) for p, s in keep])
-    sample = SeriesSample.of(e, np.asarray(series))
-    tau_of = dict(zip(dict.fromkeys(series), sample.tau))
-    weights = np.array([1.0 / tau_of[sid] for sid in series])
+    series = np.asarray(series)
+    weights = np.empty(len(keep))
+    for sid in dict.fromkeys(series.tolist()):   # the weights of gpe.run.thermometry
+        idx = np.flatnonzero(series == sid)
+        weights[idx] = series_weights([keep[i] for i in idx], side.domain)[0]
     est = estimate_ensemble(keep, side.domain, core_radius, weights=weights, **options)
     return {"beta_n": float(est.beta_n), "beta_n_ci95": [float(v) for v in est.beta_n_ci95],
             "bound": est.bound, "n_effective": float(est.n_effective), "frames": len(keep),

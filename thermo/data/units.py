@@ -38,7 +38,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import stats
 
-from thermo.autocorr import autocorr_window
+from thermo.autocorr import autocorr_window, integrated_autocorr_time
+from thermo.energy import energy
 
 #: Fewest effectively independent values on a side for an interval or a p-value (the
 #: project's choice: below it the autocorrelation time itself is too uncertain, and a true
@@ -199,3 +200,21 @@ def mean_interval(sample: SeriesSample, lower: float = -math.inf, upper: float =
     dof = max(sample.n_effective - 1.0, 1.0)
     half = float(stats.t.ppf(0.5 + level / 2, dof)) * se
     return m, max(lower, m - half), min(upper, m + half)
+
+
+def series_weights(configs, domain) -> tuple[np.ndarray, float]:
+    """Weights 1/tau_int for the frames of one run (for the fit of beta), and tau_int.
+
+    tau_int is the integrated autocorrelation time (thermo.autocorr, Sokal's window) of the
+    energy per vortex along the frames; a series of n frames is worth n / tau_int independent
+    shots. Frames with fewer than two vortices are skipped for the series; fewer than 4 usable
+    frames count as independent (tau too uncertain to estimate; said in the record). (No
+    short-series correction here: the coverage of beta with these weights was measured as it
+    is, tests/thermo/test_honest_intervals.py.)
+
+    Units: tau_int in frames.
+    """
+    e = np.array([energy(p, s, domain) / len(s) for p, s in configs if len(s) >= 2])
+    tau = integrated_autocorr_time(e) if e.size >= 4 else math.nan
+    tau = max(1.0, tau) if math.isfinite(tau) else 1.0
+    return np.full(len(configs), 1.0 / tau), float(tau)

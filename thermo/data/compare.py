@@ -39,6 +39,7 @@ from thermo.data.units import SeriesSample, difference_of_means, series_weights
 from thermo.energy import validate_configuration
 from thermo.errors import ConfigurationError, ThermoError
 from thermo.estimate import estimate_ensemble
+from thermo.jsontext import strict_json
 from thermo.quantities import QUANTITIES
 
 
@@ -385,19 +386,6 @@ def write_csv(comparison: Comparison, path: str | Path) -> Path:
     return path
 
 
-def _json_safe(v: Any) -> Any:
-    """Strict JSON (RFC 8259 has no NaN): non-finite numbers as None, numpy as Python."""
-    if isinstance(v, dict):
-        return {str(k): _json_safe(x) for k, x in v.items()}
-    if isinstance(v, (list, tuple, np.ndarray)):
-        return [_json_safe(x) for x in v]
-    if isinstance(v, np.generic):
-        v = v.item()
-    if isinstance(v, float) and not math.isfinite(v):
-        return None
-    return v
-
-
 def comparison_to_dict(comparison: Comparison) -> dict[str, Any]:
     """The table as strict-JSON-ready data (NaN and infinities -> None)."""
     sides = {label: {"shots": len(side.configurations),
@@ -405,7 +393,7 @@ def comparison_to_dict(comparison: Comparison) -> dict[str, Any]:
                      "domain": comparison_domain_text(side.domain)}
              for label, side in zip(comparison.labels, (comparison.simulation,
                                                         comparison.measured))}
-    return _json_safe({
+    return strict_json({
         "labels": list(comparison.labels),
         "difference": f"{comparison.labels[0]} - {comparison.labels[1]}",
         "sides": sides,

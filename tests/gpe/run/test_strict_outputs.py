@@ -44,9 +44,15 @@ def test_json_report_writes_null_for_every_nan_and_infinity():
 
 
 def test_report_has_one_strict_helper_the_shared_one():
-    # one helper for strict JSON across the package (gpe.run.jsontext)
-    assert not hasattr(report, "strict")
-    assert report.strict_json.__module__ == "gpe.run.jsontext"
+    # one helper for strict JSON across both packages (thermo.jsontext, re-exported by
+    # gpe.run.jsontext; thermo cannot import gpe)
+    import thermo.data.compare
+    import thermo.jsontext
+    from gpe.run import jsontext
+
+    assert not hasattr(report, "strict") and not hasattr(thermo.data.compare, "_json_safe")
+    assert report.strict_json is jsontext.strict_json is thermo.jsontext.strict_json
+    assert thermo.data.compare.strict_json is thermo.jsontext.strict_json
 
 
 def test_temperature_json_with_a_frame_without_vortices_is_strict(tiny_run, tmp_path, capsys,

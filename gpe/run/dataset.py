@@ -254,8 +254,7 @@ def ensemble_frame(result: dict) -> pd.DataFrame:
     for key in ("beta_ci68", "beta_ci95", "beta_n_ci68", "beta_n_ci95"):
         flat[f"{key}_lo"], flat[f"{key}_hi"] = _pair(ens.get(key))
     flat["bound"] = ens.get("bound") or ""
-    flat["groups"] = ", ".join(f"{g['n_plus']}+{g['n_minus']} x{g['shots']}"
-                               for g in ens.get("groups", []))
+    flat["groups"] = report.groups_text(ens.get("groups", []))
     flat["tau_frames"] = "; ".join(repr(float(t)) for t in ens.get("tau_frames", []))
     for name in _ENSEMBLE_COLUMNS[:-1]:
         row[name] = flat.get(name, np.nan)

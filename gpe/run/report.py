@@ -48,6 +48,11 @@ def flat_record(rec: dict) -> dict:
     return out
 
 
+def groups_text(groups) -> str:
+    """The vortex-number groups of an ensemble as text: "9+9 x1, 10+10 x17" (N+ + N- x shots)."""
+    return ", ".join(f"{g['n_plus']}+{g['n_minus']} x{g['shots']}" for g in groups)
+
+
 def _cell(v) -> str:
     if isinstance(v, bool):
         return str(v)
@@ -136,7 +141,7 @@ def _ensemble_lines(ens: dict, unit: str) -> list[str]:
     lines.append(f"ensemble{where}: {ens['verdict']}")
     n_eff = ens.get("n_effective")
     if ens.get("groups"):
-        groups = ", ".join(f"{g['n_plus']}+{g['n_minus']} x{g['shots']}" for g in ens["groups"])
+        groups = groups_text(ens["groups"])
         shared = {"beta_n": "one beta~N shared by all groups",
                   "beta": "one beta~ shared by all groups"}.get(ens.get("common"), "")
         lines.append(f"  groups (N+ + N- x shots): {groups}; {shared}")

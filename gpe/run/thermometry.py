@@ -258,7 +258,7 @@ def frame_means(runs_configs, domain) -> dict:
 
 
 def _pooled(series_frames, *, common, effort, cache_dir, core_xi=CORE_RADIUS_XI,
-            wall_xi=WALL_LAYER_XI, wall_cut=1.0, progress=None) -> dict:
+            wall_xi=WALL_LAYER_XI, wall_cut=1.0, progress=None, means=False) -> dict:
     """The ensemble of several runs' frames: each run a correlated series, runs independent.
 
     ``n_plus``/``n_minus`` are the mean vortex numbers over the frames (the fit's groups are in
@@ -282,9 +282,10 @@ def _pooled(series_frames, *, common, effort, cache_dir, core_xi=CORE_RADIUS_XI,
                 "frames": len(configs), "runs": len(series_frames), "tau_frames": taus,
                 "left_out_wall": left_wall, "left_out_pairs": left_pairs,
                 "approximation": vd.approximate})
-    # the ensemble's quantities are means over all its frames (runs as independent series)
-    rec["frame_means"] = frame_means(per_run, vd.domain)
-    rec.update({q: v["mean"] for q, v in rec["frame_means"].items()})
+    if means:   # the central record only: the systematics' variations need beta alone
+        # the ensemble's quantities are means over all its frames (runs independent series)
+        rec["frame_means"] = frame_means(per_run, vd.domain)
+        rec.update({q: v["mean"] for q, v in rec["frame_means"].items()})
     return rec
 
 
@@ -333,7 +334,7 @@ def pooled_ensemble(run_paths, *, time: float | None = None, window=None,
         return _pooled(chosen, common=common, effort=effort, cache_dir=cache_dir,
                        progress=progress, **choice)
 
-    rec = compute()
+    rec = compute(means=True)
     first, frames = chosen[0]
     shown = first.protocol.display_time(first.times)
     rec["window"] = [float(shown[frames[0]]), float(shown[frames[-1]])]

@@ -3,9 +3,9 @@
 * :func:`ensemble_frames`: a window, one time, or by default the frames after the last beam has
   switched off (:func:`drive_end`); a time outside the run or a window without frames is an
   error naming the times the run has.
-* :func:`series_weights`: frames of one run are correlated; a series of n frames with integrated
-  autocorrelation time tau_int is worth n / tau_int independent shots, so each frame weighs
-  1/tau_int in the ensemble fit (thermo/estimate.py).
+* the weights (thermo.data.units.series_weights): frames of one run are correlated; a series of
+  n frames with integrated autocorrelation time tau_int is worth n / tau_int independent shots,
+  so each frame weighs 1/tau_int in the ensemble fit (thermo/estimate.py).
 * :class:`RunSeries`: a run file read once, with its frames mapped onto the point-vortex gas for
   any choice of core radius, wall layer and wall cut (gpe/run/gas.py).
 
@@ -25,7 +25,6 @@ from gpe.run.gas import CORE_RADIUS_XI, WALL_LAYER_XI, domain_for_trap, gas_conf
 from gpe.run.reading import protocol_of
 from gpe.run.runfile import RunFile
 from thermo.admission import CoreRadiusWarning, core_radius_note
-from thermo.data.units import series_weights  # noqa: F401 -- part of this module's API
 
 
 def drive_end(protocol) -> tuple[float | None, str]:
@@ -57,7 +56,7 @@ def ensemble_frames(times: np.ndarray, *, at_time: float | None = None,
         time the last beam has switched off; the last third of the frames when ``after`` is
         None, i.e. a beam never switches off), ``"last_third"`` or ``"last"`` (the final frame).
 
-    Frames of one run are correlated: :func:`series_weights` counts them.
+    Frames of one run are correlated: thermo.data.units.series_weights counts them.
     """
     times = np.asarray(times, dtype=float)
     if len(times) == 0:

@@ -12,7 +12,7 @@ from __future__ import annotations
 import json
 from typing import Any
 
-from thermo.jsontext import strict_json  # noqa: F401 -- part of this module's API
+from thermo.jsontext import strict_json
 
 
 def dumps_strict(obj: Any, **kwargs: Any) -> str:

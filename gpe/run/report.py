@@ -15,7 +15,7 @@ import csv
 import math
 from pathlib import Path
 
-from gpe.run.jsontext import strict_json
+from thermo.jsontext import strict_json
 
 CSV_COLUMNS = ("n_plus", "n_minus", "energy_per_vortex", "beta", "beta_ci68_lo", "beta_ci68_hi",
                "beta_ci95_lo", "beta_ci95_hi", "beta_n", "beta_n_ci95_lo", "beta_n_ci95_hi",
@@ -94,7 +94,7 @@ def write_records_csv(path, records: list[dict], time_key: str, time_unit: str =
 def json_report(result: dict) -> dict:
     """The JSON document of ``vortherm temperature --json``: frames or shots, and ensemble.
 
-    Strict JSON (gpe.run.jsontext.strict_json: no NaN; the open side of a bound's interval is
+    Strict JSON (thermo.jsontext.strict_json: no NaN; the open side of a bound's interval is
     null). For a run it says whether the run is complete (``run_complete``), how many frames
     exist of how many the protocol plans (``frames_stored``, ``frames_planned``) and, for an
     incomplete run, carries the note ``incomplete``.

@@ -19,13 +19,13 @@ from pathlib import Path
 import numpy as np
 
 from gpe.errors import VorthermError
-from gpe.run.frames import RunSeries, drive_end, series_weights
+from gpe.run.frames import RunSeries, drive_end
 from gpe.run.gas import CORE_RADIUS_XI, WALL_LAYER_XI
 from gpe.run.reading import select_frames
 from thermo.classify import structure_observables
 from thermo.data.compare import shot_statistics
 from thermo.data.measured import read_measured
-from thermo.data.units import SeriesSample, mean_interval
+from thermo.data.units import SeriesSample, mean_interval, series_weights
 from thermo.dos.build import DosSettings
 from thermo.estimate import estimate_ensemble, estimate_single
 
@@ -320,7 +320,7 @@ def pooled_ensemble(run_paths, *, time: float | None = None, window=None,
     """The ensemble record of one or more runs (e.g. the seeds of one sweep point).
 
     Every run is an independent series; the frames of one run are correlated and weighted by
-    gpe.run.frames.series_weights. Times in ``time_unit`` ("tau" = hbar/mu, or "ms"); neither
+    thermo.data.units.series_weights. Times in ``time_unit`` ("tau" = hbar/mu, or "ms"); neither
     ``time`` nor ``window`` means gpe.run.frames.ensemble_frames's default.
     ``progress(done, total)`` is told the sweeps of every density-of-states build.
     """

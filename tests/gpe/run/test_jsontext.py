@@ -5,7 +5,8 @@ import math
 import numpy as np
 import pytest
 
-from gpe.run.jsontext import dumps_strict, loads_strict, strict_json
+from gpe.run.jsontext import dumps_strict, loads_strict
+from thermo.jsontext import strict_json
 
 
 def test_non_finite_become_null_and_numpy_becomes_python():

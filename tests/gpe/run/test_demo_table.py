@@ -18,6 +18,7 @@ def cache(tmp_path_factory):
     return tmp_path_factory.mktemp("dos_demo")
 
 
+@pytest.mark.slow   # standard-effort tables for ten vortex numbers (36 s); `pytest` runs it
 def test_the_demo_table_recovers_its_truth_inside_the_95_interval(cache):
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")      # the three planted bad rows

@@ -44,7 +44,7 @@ def total_energy_kernel(pos, signs, self_fn, pair_fn, params):
     for i in range(n):
         xi = pos[i, 0]
         yi = pos[i, 1]
-        e += self_fn(xi, yi, params)
+        e += self_fn(xi, yi, signs[i], params)
         for j in range(i + 1, n):
             e += signs[i] * signs[j] * pair_fn(xi, yi, pos[j, 0], pos[j, 1], params)
     return e

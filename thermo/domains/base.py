@@ -7,7 +7,8 @@ depend only on the shape. Each concrete class (one module per shape in this pack
 * containment with a margin, through the distance to the wall (:meth:`Domain.distance_to_wall`);
 * uniform sampling (:meth:`Domain.sample_uniform`) and the sampling box of the Monte Carlo
   moves (:attr:`Domain.max_step`);
-* its compiled energy kernels (:meth:`Domain.kernels`): the self (image) term, the pair
+* its compiled energy kernels (:meth:`Domain.kernels`): the self term (image energy, and the
+  energy in the domain's own flow where it has one), the pair
   Green's function, the distance to the wall and the energy change of a single move.
 
 The compiled Monte Carlo and energy loops (:mod:`thermo.sampler`, :mod:`thermo.energy`) take
@@ -55,8 +56,10 @@ PARAMS = types.float64[::1]
 POINTS = types.float64[:, ::1]
 SIGNS = types.int64[::1]
 
-#: (x, y, params) -> 2 pi R(z) = ln r_c(z), the self (image) energy. Units: E0.
-SELF_SIGNATURE = types.float64(types.float64, types.float64, PARAMS)
+#: (x, y, s, params) -> the self energy of one vortex of sign s at z: its image energy
+#: 2 pi R(z) = ln r_c(z), plus, in a domain with a flow of its own (the circulation around an
+#: annulus's hole), the vortex's energy in that flow, which is odd in s. Units: E0.
+SELF_SIGNATURE = types.float64(types.float64, types.float64, types.int64, PARAMS)
 #: (x1, y1, x2, y2, params) -> 4 pi G(z1, z2), the pair energy of like signs. Units: E0.
 PAIR_SIGNATURE = types.float64(types.float64, types.float64, types.float64, types.float64, PARAMS)
 #: (x, y, params) -> distance to the nearest wall, negative outside. Units: length unit.
@@ -115,7 +118,7 @@ def pair_sum_move_change(pos, signs, index, x_new, y_new, params, min_dist2, sel
     x_old = pos[index, 0]
     y_old = pos[index, 1]
     s_k = signs[index]
-    d = self_fn(x_new, y_new, params) - self_fn(x_old, y_old, params)
+    d = self_fn(x_new, y_new, s_k, params) - self_fn(x_old, y_old, s_k, params)
     for j in range(n):
         if j == index:
             continue
@@ -137,9 +140,10 @@ def _pair_many(pair_fn, params, p1, p2, out):
 
 
 @njit(types.void(SelfKernel, PARAMS, POINTS, types.float64[::1]), cache=True)
-def _self_many(self_fn, params, p, out):
+def _image_many(self_fn, params, p, out):
+    # the part of the self energy even in the sign: the image energy 2 pi R(z)
     for i in range(p.shape[0]):
-        out[i] = self_fn(p[i, 0], p[i, 1], params)
+        out[i] = 0.5 * (self_fn(p[i, 0], p[i, 1], 1, params) + self_fn(p[i, 0], p[i, 1], -1, params))
 
 
 def kernel_array(a, dtype) -> np.ndarray:
@@ -283,14 +287,15 @@ class Domain(ABC):
     def robin(self, pos) -> np.ndarray:
         """Robin function R(z) = h(z, z), the regular part of G on the diagonal.
 
-        ``2 pi R(z)`` is the log of the conformal radius and, in E0 units, the self energy of
-        one vortex at z (constant ln(L/a) dropped). Units: dimensionless.
+        ``2 pi R(z)`` is the log of the conformal radius and, in E0 units, the image energy of
+        one vortex at z (constant ln(L/a) dropped): the part of the self kernel even in the
+        sign. Units: dimensionless.
         """
         p = as_points(pos, "pos")
         k = self.kernels()
         flat = kernel_array(p.reshape(-1, 2), np.float64)
         out = np.empty(flat.shape[0])
-        _self_many(k.self_energy, k.params, flat, out)
+        _image_many(k.self_energy, k.params, flat, out)
         return (out / (2.0 * np.pi)).reshape(p.shape[:-1])
 
     def conformal_radius(self, pos) -> np.ndarray:

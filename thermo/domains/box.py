@@ -86,8 +86,8 @@ def box_pair(x1: float, y1: float, x2: float, y2: float, params: np.ndarray) -> 
 
 
 @njit(SELF_SIGNATURE, cache=True, error_model="numpy")
-def box_self(x: float, y: float, params: np.ndarray) -> float:
-    """Self energy 2 pi R(z) = ln(conformal radius) of the rectangle. Units: E0."""
+def box_self(x: float, y: float, sign: int, params: np.ndarray) -> float:
+    """Self energy 2 pi R(z) = ln(conformal radius) of the rectangle, either sign. Units: E0."""
     X, Y = _box_corner(x, y, params)
     f = math.pi / params[_P_A]
     s = (math.log(0.5 * f) + params[_P_LNPRIME] + _ln_abs_theta1(f * X, f * Y, params)

@@ -38,8 +38,8 @@ def disk_pair(x1: float, y1: float, x2: float, y2: float, params: np.ndarray) ->
 
 
 @njit(SELF_SIGNATURE, cache=True, error_model="numpy")
-def disk_self(x: float, y: float, params: np.ndarray) -> float:
-    """Self energy ln(1 - |u|^2) = 2 pi R(u) of the unit disk. Units: E0."""
+def disk_self(x: float, y: float, sign: int, params: np.ndarray) -> float:
+    """Self energy ln(1 - |u|^2) = 2 pi R(u) of the unit disk, either sign. Units: E0."""
     return math.log(1.0 - (x * x + y * y))
 
 

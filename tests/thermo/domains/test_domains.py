@@ -17,6 +17,7 @@ from thermo.domains.base import (
     DomainKernels,
     pair_sum_move_change,
 )
+from thermo.domains.annulus import Annulus
 from thermo.domains.box import Box
 from thermo.domains.disk import Disk
 from thermo.domains.kinds import domain_class, domain_classes
@@ -177,9 +178,9 @@ def test_keys_and_validation():
 
 def test_the_domain_classes_are_found_by_kind():
     # discovered from the package, sorted by kind name; an unknown kind is refused by name
-    assert domain_classes() == {"box": Box, "disk": Disk}
+    assert domain_classes() == {"annulus": Annulus, "box": Box, "disk": Disk}
     assert domain_class("disk") is Disk and domain_class("box") is Box
-    with pytest.raises(DomainError, match="'hexagon' is not known; accepted: 'box', 'disk'"):
+    with pytest.raises(DomainError, match="'hexagon' is not known; accepted: 'annulus', 'box', 'disk'"):
         domain_class("hexagon")
 
 
@@ -231,7 +232,7 @@ def test_every_domain_implements_the_whole_interface(cls, rng):
 # A domain written only against the interface, as a new module would be: the unit disk again,
 # its pair term in complex form, the generic move kernel, nothing registered anywhere.
 @njit(SELF_SIGNATURE, error_model="numpy")
-def _plain_self(x, y, params):
+def _plain_self(x, y, s, params):
     return math.log(1.0 - (x * x + y * y))
 
 

@@ -1,14 +1,17 @@
 """Geometry of a measured cloud: the domain in micrometres, the camera calibration, and the
 small TOML file beside a measured table that gives them.
 
-The geometry (disk radius, or box width and height, and the vortex core radius) comes from
+The geometry (disk radius, box width and height, or annulus radii and the circulation on its
+hole, and the vortex core radius) comes from
 keyword arguments or from a TOML file beside the table (same stem, ``.toml``); keyword
 arguments override the file key by key. Accepted TOML keys::
 
-    shape = "disk"          # or "box": the kind name of a thermo domain class
-    radius_um = 40.0        # disk
+    shape = "disk"          # or "box", "annulus": the kind name of a thermo domain class
+    radius_um = 40.0        # disk (annulus: the outer radius)
     width_um = 80.0         # box (x extent)
     height_um = 60.0        # box (y extent)
+    inner_radius_um = 12.0  # annulus: the radius of the hole
+    hole_winding = 1        # annulus: circulation quanta around the hole (0 if not given)
     core_um = 0.5           # vortex core radius (optional, needed for beta)
     pixel_um = 0.8          # only if the table is in pixels
     center_px = [256.0, 240.0]
@@ -49,8 +52,10 @@ from thermo.domains.base import Domain
 from thermo.domains.kinds import domain_class, domain_classes
 from thermo.errors import DomainError, MeasuredTableError
 
-GEOMETRY_KEYS = ("shape", "radius_um", "width_um", "height_um", "core_um", "pixel_um",
-                 "center_px", "imaging")
+GEOMETRY_KEYS = ("shape", "radius_um", "width_um", "height_um", "inner_radius_um",
+                 "hole_winding", "core_um", "pixel_um", "center_px", "imaging")
+#: the size keys of all shapes (micrometres)
+_SIZE_KEYS = ("radius_um", "width_um", "height_um", "inner_radius_um")
 #: keys of the [imaging] table (lengths in um; sign_error a probability)
 IMAGING_KEYS = ("blur_um", "resolution_um", "edge_loss_um", "sign_error")
 # Byte-order marks of encodings other than UTF-8 (UTF-32 LE first: it begins with UTF-16 LE's).
@@ -106,8 +111,10 @@ class Geometry:
 
     Attributes
     ----------
-    shape : the kind name of a thermo domain, ``"disk"`` or ``"box"``.
-    radius_um : disk radius; width_um, height_um : box sides (x and y).
+    shape : the kind name of a thermo domain, ``"disk"``, ``"box"`` or ``"annulus"``.
+    radius_um : disk radius (annulus: outer); width_um, height_um : box sides (x and y);
+    inner_radius_um : the annulus's hole.
+    hole_winding : circulation quanta around an annulus's hole (None: not given, taken as 0).
     core_um : vortex core radius, ``None`` if not known.
     imaging_um : the ``[imaging]`` table as ((key, value), ...) (empty: no imaging model).
 
@@ -120,6 +127,8 @@ class Geometry:
     height_um: float | None = None
     core_um: float | None = None
     imaging_um: tuple = ()
+    inner_radius_um: float | None = None
+    hole_winding: int | None = None
 
     def imaging_model(self):
         """The ``[imaging]`` table as a thermo.data.degrade.ImagingModel in scaled units, or
@@ -138,10 +147,23 @@ class Geometry:
         if self.core_um is not None and not (math.isfinite(self.core_um)
                                              and self.core_um > 0):
             raise MeasuredTableError(f"core_um must be a positive number; got {self.core_um}")
+        if self.hole_winding is not None:
+            if self.shape != "annulus":
+                raise MeasuredTableError(f"hole_winding = {self.hole_winding!r} is for an "
+                                         f"annulus; a {self.shape} has no hole")
+            if isinstance(self.hole_winding, bool) or not isinstance(self.hole_winding, int):
+                raise MeasuredTableError(f"hole_winding must be a whole number of circulation "
+                                         f"quanta; got {self.hole_winding!r}")
 
     def _scaled_domain(self) -> tuple[Domain, float]:
         cls = _shape_class(self.shape)
-        return cls.from_sizes({name: getattr(self, f"{name}_um") for name in cls.size_names})
+        sizes = {name: getattr(self, f"{name}_um") for name in cls.size_names}
+        try:
+            if self.shape == "annulus":
+                return cls.from_sizes(sizes, hole_winding=self.hole_winding or 0)
+            return cls.from_sizes(sizes)
+        except DomainError as exc:
+            raise MeasuredTableError(f"geometry: {exc}") from None
 
     @property
     def length_scale_um(self) -> float:
@@ -243,7 +265,11 @@ def read_geometry_file(path: str | Path) -> dict[str, Any]:
     if unknown:
         raise MeasuredTableError(
             f"{path}: unknown key(s) {unknown}; accepted keys: {list(GEOMETRY_KEYS)}")
-    for key in ("radius_um", "width_um", "height_um", "core_um", "pixel_um"):
+    if "hole_winding" in data and (isinstance(data["hole_winding"], bool)
+                                   or not isinstance(data["hole_winding"], int)):
+        raise MeasuredTableError(f"{path}: hole_winding must be a whole number of circulation "
+                                 f"quanta; got {data['hole_winding']!r}")
+    for key in (*_SIZE_KEYS, "core_um", "pixel_um"):
         if key in data and (isinstance(data[key], bool)
                             or not isinstance(data[key], (int, float))):
             raise MeasuredTableError(f"{path}: {key} must be a number; got {data[key]!r}")
@@ -284,6 +310,7 @@ def check_imaging(table: Any, where: str) -> dict[str, float]:
 def resolve_geometry(table_path: str | Path, *, shape: str | None = None,
                      radius_um: float | None = None, width_um: float | None = None,
                      height_um: float | None = None, core_um: float | None = None,
+                     inner_radius_um: float | None = None, hole_winding: int | None = None,
                      pixel_um: float | None = None,
                      center_px: Sequence[float] | None = None,
                      geometry_file: str | Path | None = None,
@@ -291,8 +318,8 @@ def resolve_geometry(table_path: str | Path, *, shape: str | None = None,
                      ) -> tuple[Geometry, PixelCalibration | None]:
     """Combine keyword geometry with the TOML beside the table (keywords win).
 
-    ``shape`` defaults to ``"disk"`` when a radius is known, ``"box"`` when width and
-    height are. ``imaging_um`` (keys IMAGING_KEYS) overrides the file's ``[imaging]`` key by
+    ``shape`` defaults to ``"annulus"`` when an inner radius is known, ``"disk"`` when only a
+    radius is, ``"box"`` when width and height are. ``imaging_um`` (keys IMAGING_KEYS) overrides the file's ``[imaging]`` key by
     key. Returns the geometry and the pixel calibration (None for tables in um).
 
     Units: micrometres; center_px in pixels.
@@ -304,12 +331,15 @@ def resolve_geometry(table_path: str | Path, *, shape: str | None = None,
     elif geometry_file is not None:
         raise MeasuredTableError(f"geometry file {gfile} does not exist")
     given = dict(shape=shape, radius_um=radius_um, width_um=width_um, height_um=height_um,
+                 inner_radius_um=inner_radius_um, hole_winding=hole_winding,
                  core_um=core_um, pixel_um=pixel_um,
                  center_px=None if center_px is None else list(center_px))
     merged = {**data, **{k: v for k, v in given.items() if v is not None}}
     shp = merged.get("shape")
     if shp is None:
-        if merged.get("radius_um") is not None:
+        if merged.get("inner_radius_um") is not None:
+            shp = "annulus"
+        elif merged.get("radius_um") is not None:
             shp = "disk"
         elif merged.get("width_um") is not None and merged.get("height_um") is not None:
             shp = "box"
@@ -320,7 +350,8 @@ def resolve_geometry(table_path: str | Path, *, shape: str | None = None,
     sizes = _size_keys(shp)
     geometry = Geometry(shape=str(shp),
                         **{k: _opt_float(merged.get(k)) if k in sizes else None
-                           for k in ("radius_um", "width_um", "height_um")},
+                           for k in _SIZE_KEYS},
+                        hole_winding=merged.get("hole_winding"),
                         core_um=_opt_float(merged.get("core_um")),
                         imaging_um=tuple(sorted({**data.get("imaging", {}), **check_imaging(
                             imaging_um or {}, "imaging options")}.items())))

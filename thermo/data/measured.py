@@ -276,6 +276,7 @@ def _read_hdf5_rows(path: Path, dataset: str | None
 def read_measured(path: str | Path, *, shape: str | None = None,
                   radius_um: float | None = None, width_um: float | None = None,
                   height_um: float | None = None, core_um: float | None = None,
+                  inner_radius_um: float | None = None, hole_winding: int | None = None,
                   pixel_um: float | None = None, center_px: Sequence[float] | None = None,
                   geometry_file: str | Path | None = None, dataset: str | None = None,
                   strict: bool = False, imaging_um: dict | None = None) -> MeasuredEnsemble:
@@ -288,8 +289,8 @@ def read_measured(path: str | Path, *, shape: str | None = None,
         encodings are refused by line and byte). HDF5: a compound dataset, or a group of 1D datasets,
         with the same columns (``dataset`` names it; default ``vortices``, ``measured``,
         ``table`` or the root group).
-    shape, radius_um, width_um, height_um, core_um : geometry (override the TOML beside
-        the table, see :func:`resolve_geometry`).
+    shape, radius_um, width_um, height_um, inner_radius_um, hole_winding, core_um : geometry
+        (override the TOML beside the table, see :func:`resolve_geometry`).
     pixel_um, center_px : give these when x, y are pixel coordinates.
     geometry_file : TOML to use instead of ``<stem>.toml`` beside the table.
     strict : raise :class:`MeasuredTableError` on the first unusable row instead of
@@ -307,7 +308,8 @@ def read_measured(path: str | Path, *, shape: str | None = None,
         raise MeasuredTableError(f"measured table {path} does not exist")
     geometry, calib = resolve_geometry(
         path, shape=shape, radius_um=radius_um, width_um=width_um, height_um=height_um,
-        core_um=core_um, pixel_um=pixel_um, center_px=center_px, geometry_file=geometry_file,
+        core_um=core_um, inner_radius_um=inner_radius_um, hole_winding=hole_winding,
+        pixel_um=pixel_um, center_px=center_px, geometry_file=geometry_file,
         imaging_um=imaging_um)
     is_hdf5 = path.suffix.lower() in (".h5", ".hdf5", ".hdf")
     header, raw_rows = _read_hdf5_rows(path, dataset) if is_hdf5 else _read_csv_rows(path)
@@ -424,6 +426,9 @@ def read_measured(path: str | Path, *, shape: str | None = None,
 def _describe(geometry: Geometry, calib: PixelCalibration | None) -> str:
     if geometry.shape == "disk":
         text = f"disk of radius {geometry.radius_um:g} um about the centre"
+    elif geometry.shape == "annulus":
+        text = (f"annulus {geometry.inner_radius_um:g} < r < {geometry.radius_um:g} um about the "
+                f"centre with {geometry.hole_winding or 0} circulation quanta on its hole")
     else:
         text = f"box {geometry.width_um:g} x {geometry.height_um:g} um about the centre"
     if calib is not None:

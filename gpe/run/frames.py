@@ -7,7 +7,8 @@
   n frames with integrated autocorrelation time tau_int is worth n / tau_int independent shots,
   so each frame weighs 1/tau_int in the ensemble fit (thermo/estimate.py).
 * :class:`RunSeries`: a run file read once, with its frames mapped onto the point-vortex gas for
-  any choice of core radius, wall layer and wall cut (gpe/run/gas.py).
+  any choice of core radius, wall layer and wall cut (gpe/run/gas.py). In an annulus the gas is
+  at the circulation its hole carries, read from each frame's field (:meth:`RunSeries.gas`).
 
 Units: times in hbar/mu (or ms where said); tau_int in frames.
 """
@@ -15,16 +16,18 @@ Units: times in hbar/mu (or ms where said); tau_int in frames.
 from __future__ import annotations
 
 import warnings
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
 
+from gpe.analysis.circulation import winding_on_circle
 from gpe.errors import VorthermError
 from gpe.run.gas import CORE_RADIUS_XI, WALL_LAYER_XI, domain_for_trap, gas_configuration
 from gpe.run.reading import protocol_of
 from gpe.run.runfile import RunFile
 from thermo.admission import CoreRadiusWarning, core_radius_note
+from thermo.domains.annulus import Annulus
 
 
 def drive_end(protocol) -> tuple[float | None, str]:
@@ -132,4 +135,41 @@ class RunSeries:
         for f in sorted(set(frames)):
             rows = self.table[self.table["frame"] == f]
             out[f] = gas_configuration(rows["x"], rows["y"], rows["sign"], vd, wall_cut=wall_cut)
+        if isinstance(vd.domain, Annulus):
+            vd = replace(vd, domain=Annulus(vd.domain.inner,
+                                            self.hole_winding(frames, vd, core_xi * wall_cut)))
         return vd, out
+
+    def hole_winding(self, frames, vd, cut_xi: float) -> int:
+        """Circulation quanta on an annulus's hole, the same in every one of ``frames``.
+
+        The phase winding on the circle that bounds the gas on the inside (the shrunk inner wall
+        plus the wall cut ``cut_xi``): it counts the hole's circulation and any vortex left out
+        of the gas between that circle and the wall.
+
+        Raises
+        ------
+        VorthermError
+            If the frames' windings differ (a vortex crossed into the hole): the ensemble is at
+            one circulation, so the message lists where it changes and asks for a window.
+
+        Units: cut_xi in xi.
+        """
+        radius = vd.domain.inner * vd.scale + cut_xi
+        windings = {}
+        with RunFile.open(self.path, "r") as run:
+            grid = run.grid
+            for f in sorted(set(frames)):
+                windings[f] = winding_on_circle(run.psi(f), grid.x, grid.y, radius, vd.center,
+                                                where=f"{Path(self.path).name} frame {f}")
+        values = sorted(set(windings.values()))
+        if len(values) > 1:
+            order = sorted(windings)
+            changes = [f"frame {f} (t = {self.times[f]:.4g} hbar/mu): {windings[f]}"
+                       for i, f in enumerate(order) if i == 0 or windings[f] != windings[order[i - 1]]]
+            raise VorthermError(
+                f"{Path(self.path).name}: the circulation on the annulus's hole changes within "
+                f"the ensemble's frames ({', '.join(changes)} quanta from there on); the gas is "
+                "at one circulation: choose a window of frames where it is constant "
+                "(--window-ms / --time-ms)")
+        return values[0]

@@ -11,7 +11,9 @@ vortices onto that domain:
 * a box becomes a ``thermo.domains.box.Box`` with the same aspect ratio, shrunk the same way;
 * a harmonic trap becomes the disk of the Thomas–Fermi radius, **flagged** as an approximation
   (the density is not uniform, so the uniform-domain point-vortex model is only indicative);
-* annulus and mask traps have no point-vortex domain here; thermometry refuses them clearly.
+* an annulus becomes thermo.domains.annulus.Annulus, shrunk by the wall layer at both walls, at
+  the circulation its hole carries in the frames (gpe.run.frames.RunSeries.gas);
+* mask traps have no point-vortex domain here; thermometry refuses them clearly.
 
 Vortices in the wall layer or closer to each other than two core radii (a pair about to
 annihilate) cannot be placed in the hard-core ensemble; they are left out by the one rule of

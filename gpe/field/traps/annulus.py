@@ -11,8 +11,10 @@ from pathlib import Path
 
 import numpy as np
 
+from gpe.errors import VorthermError
 from gpe.field.grid import Grid
-from gpe.field.traps.base import LENGTH_KEY, TrapSection, WalledTrap
+from gpe.field.traps.base import LENGTH_KEY, TrapSection, VortexDomain, WalledTrap
+from thermo.domains.annulus import Annulus
 
 
 def _refuse_inverted_ring(sec: TrapSection) -> None:
@@ -69,3 +71,25 @@ class AnnulusTrap(WalledTrap):
         """``max(R_in - r, r - R_out)`` (negative inside the ring). Units: xi."""
         r = np.hypot(grid.X, grid.Y)
         return np.maximum(self.inner_radius - r, r - self.outer_radius)
+
+    def vortex_domain(self, core_radius_xi: float, wall_layer_xi: float) -> VortexDomain:
+        """The annulus shrunk by ``wall_layer_xi`` at both walls (the depleted layers), its
+        length unit the shrunk outer radius; no circulation on the hole yet: the run's frames
+        give it (:func:`gpe.analysis.circulation.winding_on_circle`, gpe.run.frames).
+
+        Raises
+        ------
+        VorthermError
+            If the ring left is not wider than four core radii.
+
+        Units
+        -----
+        lengths xi.
+        """
+        outer = self.outer_radius - wall_layer_xi
+        inner = self.inner_radius + wall_layer_xi
+        if outer - inner <= 4 * core_radius_xi:
+            raise VorthermError(f"thermometry: the ring {self.inner_radius:.3g} < r < "
+                                f"{self.outer_radius:.3g} xi is too narrow for a vortex gas "
+                                "(need several healing lengths between its walls)")
+        return VortexDomain(Annulus(inner / outer), outer, (0.0, 0.0), core_radius_xi / outer)

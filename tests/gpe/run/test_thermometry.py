@@ -5,6 +5,7 @@ import math
 import numpy as np
 import pytest
 from tiny_protocol import tiny_protocol_text
+from vortex_fields import imprint
 
 from gpe.errors import VorthermError
 from gpe.field.traps.annulus import AnnulusTrap
@@ -18,9 +19,11 @@ from gpe.run.gas import (
     domain_for_trap,
     gas_configuration,
 )
+from gpe.run.frames import RunSeries
 from gpe.run.runfile import VORTEX_ROW, RunFile
 from gpe.run.thermometry import onset_verdict, temperature_of_run
 from gpe.setup.protocol import parse_protocol
+from thermo.domains.annulus import Annulus
 
 
 def test_disk_trap_maps_to_unit_disk_shrunk_by_the_wall_layer():
@@ -47,9 +50,46 @@ def test_harmonic_trap_is_flagged_as_approximation():
     assert "approximation" in vd.approximate
 
 
-def test_annulus_has_no_point_vortex_domain():
-    with pytest.raises(VorthermError, match="annulus"):
-        domain_for_trap(AnnulusTrap(inner_radius=5, outer_radius=20, wall_height=5))
+def test_annulus_maps_to_the_ring_shrunk_at_both_walls():
+    vd = domain_for_trap(AnnulusTrap(inner_radius=5, outer_radius=20, wall_height=5))
+    assert vd.domain == Annulus((5 + WALL_LAYER_XI) / (20 - WALL_LAYER_XI))
+    assert vd.scale == pytest.approx(20 - WALL_LAYER_XI) and vd.approximate == ""
+    with pytest.raises(VorthermError, match="ring 5 < r < 6.5 xi is too narrow"):
+        domain_for_trap(AnnulusTrap(inner_radius=5, outer_radius=6.5, wall_height=5))
+
+
+def _annulus_run(path, windings):
+    """A hand-written run file in a 6 < r < 20 xi ring: frame k has windings[k] quanta on the
+    hole (imprinted at the centre) and the same two vortices in the ring."""
+    text = tiny_protocol_text(duration=10.0, output_interval=2.0).replace(
+        'shape = "disk"\nradius_xi = 20.0', 'shape = "annulus"\ninner_radius_xi = 6.0\n'
+        "outer_radius_xi = 20.0")
+    protocol = parse_protocol(text, source=str(path.with_suffix(".toml")))
+    grid = protocol.grid
+    X, Y = grid.X, grid.Y
+    with RunFile.create(path, protocol=protocol) as run:
+        for f, n in enumerate(windings):
+            psi = imprint(X, Y, [(0.0, 0.0)] * abs(n), [int(np.sign(n))] * abs(n)) \
+                * imprint(X, Y, [(12.0, 0.0), (-3.0, 13.0)], [1, 1])
+            rows = np.zeros(2, VORTEX_ROW)
+            rows["frame"], rows["t"], rows["track"] = f, 2.0 * f, -1
+            rows["x"], rows["y"], rows["sign"] = [12.0, -3.0], [0.0, 13.0], [1, 1]
+            run.append_frame(2.0 * f, psi, vortices=rows)
+        run.mark_complete()
+    return path
+
+
+def test_an_annulus_runs_gas_is_at_the_circulation_of_its_hole(tmp_path):
+    # the winding of the phase around the hole [exact for the imprinted field] sets the
+    # domain's hole_winding, which enters the energy (thermo.domains.annulus)
+    series = RunSeries.read(_annulus_run(tmp_path / "ring.h5", [2, 2, 2, -1, -1]))
+    vd, gas = series.gas([0, 1, 2])
+    assert vd.domain == Annulus((6 + WALL_LAYER_XI) / (20 - WALL_LAYER_XI), hole_winding=2)
+    assert all(len(g.signs) == 2 for g in gas.values())
+    assert series.gas([3, 4])[0].domain.hole_winding == -1
+    with pytest.raises(VorthermError, match=r"ring.h5: the circulation on the annulus's hole "
+                       r"changes .*frame 0 \(t = 0 hbar/mu\): 2, frame 3 \(t = 6 hbar/mu\): -1"):
+        series.gas([0, 1, 2, 3])
 
 
 def test_wall_layer_vortices_and_close_pairs_are_left_out_and_counted():

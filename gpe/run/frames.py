@@ -122,8 +122,14 @@ class RunSeries:
                                default=default, after=None if end is None else conv(end),
                                source=self.path, unit="ms" if time_unit == "ms" else "hbar/mu")
 
-    def gas(self, frames, *, core_xi=CORE_RADIUS_XI, wall_xi=WALL_LAYER_XI, wall_cut=1.0):
-        """(vortex domain, {frame: Admitted}) with these modelling choices (gpe/run/gas.py)."""
+    def gas(self, frames, *, core_xi=CORE_RADIUS_XI, wall_xi=WALL_LAYER_XI, wall_cut=1.0,
+            one_circulation=True):
+        """(vortex domain, {frame: Admitted}) with these modelling choices (gpe/run/gas.py).
+
+        In an annulus the domain is at the circulation on the hole that all ``frames`` share
+        (:meth:`hole_windings`); with ``one_circulation=False`` it is left at none and frames
+        may differ (:meth:`frame_domains` gives each frame's).
+        """
         vd = domain_for_trap(self.protocol.trap, core_xi, wall_xi)
         note = core_radius_note(vd.core_radius, vd.domain,
                                 max((int(np.count_nonzero(self.table["frame"] == f))
@@ -135,23 +141,17 @@ class RunSeries:
         for f in sorted(set(frames)):
             rows = self.table[self.table["frame"] == f]
             out[f] = gas_configuration(rows["x"], rows["y"], rows["sign"], vd, wall_cut=wall_cut)
-        if isinstance(vd.domain, Annulus):
+        if isinstance(vd.domain, Annulus) and one_circulation:
             vd = replace(vd, domain=Annulus(vd.domain.inner,
                                             self.hole_winding(frames, vd, core_xi * wall_cut)))
         return vd, out
 
-    def hole_winding(self, frames, vd, cut_xi: float) -> int:
-        """Circulation quanta on an annulus's hole, the same in every one of ``frames``.
+    def hole_windings(self, frames, vd, cut_xi: float) -> dict[int, int]:
+        """Circulation quanta on an annulus's hole in each of ``frames``: {frame: winding}.
 
         The phase winding on the circle that bounds the gas on the inside (the shrunk inner wall
         plus the wall cut ``cut_xi``): it counts the hole's circulation and any vortex left out
         of the gas between that circle and the wall.
-
-        Raises
-        ------
-        VorthermError
-            If the frames' windings differ (a vortex crossed into the hole): the ensemble is at
-            one circulation, so the message lists where it changes and asks for a window.
 
         Units: cut_xi in xi.
         """
@@ -162,6 +162,28 @@ class RunSeries:
             for f in sorted(set(frames)):
                 windings[f] = winding_on_circle(run.psi(f), grid.x, grid.y, radius, vd.center,
                                                 where=f"{Path(self.path).name} frame {f}")
+        return windings
+
+    def frame_domains(self, frames, vd, cut_xi: float) -> dict[int, object]:
+        """The thermo domain of each frame: ``vd.domain``, or in an annulus the annulus at that
+        frame's circulation on the hole. Units: cut_xi in xi."""
+        if not isinstance(vd.domain, Annulus):
+            return {f: vd.domain for f in frames}
+        return {f: Annulus(vd.domain.inner, w)
+                for f, w in self.hole_windings(frames, vd, cut_xi).items()}
+
+    def hole_winding(self, frames, vd, cut_xi: float) -> int:
+        """Circulation quanta on an annulus's hole, the same in every one of ``frames``.
+
+        Raises
+        ------
+        VorthermError
+            If the frames' windings differ (a vortex crossed into the hole): the ensemble is at
+            one circulation, so the message lists where it changes and asks for a window.
+
+        Units: cut_xi in xi.
+        """
+        windings = self.hole_windings(frames, vd, cut_xi)
         values = sorted(set(windings.values()))
         if len(values) > 1:
             order = sorted(windings)

@@ -105,7 +105,8 @@ def json_report(result: dict) -> dict:
     out = {key: result["records"], "ensemble": result["ensemble"],
            "verdict": result["onset"], "beta_unit": "1/E0, E0 = rho kappa^2/(4 pi)",
            "beta_n_unit": "1", "source": result["source"], "domain": result["domain"]}
-    for name in ("time_unit", "approximation", "problems", "drive_end", "drive_note"):
+    for name in ("time_unit", "approximation", "problems", "drive_end", "drive_note",
+                 "hole_windings"):
         if result.get(name) not in (None, "", []):
             out[name] = result[name]
     if result["kind"] == "run" and "run_complete" in result:
@@ -206,6 +207,9 @@ def text_report(result: dict) -> str:
         lines.append(f"note: {result['incomplete']}")
     if result.get("approximation"):
         lines.append(f"note: {result['approximation']}")
+    if result.get("hole_windings"):
+        quanta = ", ".join(str(w) for w in result["hole_windings"])
+        lines.append(f"note: annulus: the gas is at the circulation on its hole ({quanta} quanta)")
     if result.get("problems"):
         lines.append(f"note: {len(result['problems'])} table rows were left out (listed above)")
     lines.append("")

@@ -26,6 +26,7 @@ from thermo.classify import structure_observables
 from thermo.data.compare import shot_statistics
 from thermo.data.measured import read_measured
 from thermo.data.units import SeriesSample, mean_interval, series_weights
+from thermo.domains.annulus import Annulus
 from thermo.dos.build import DosSettings
 from thermo.estimate import estimate_ensemble, estimate_single
 
@@ -387,10 +388,17 @@ def temperature_of_run(run_path, *, frames=None, at_time: float | None = None,
     chosen = select_frames(run_path, frames, len(times)) if per_frame else []
     ens_frames = series.frames(at_time=at_time, window=window, default=ensemble_default,
                                time_unit=time_unit)
-    vd, gas = series.gas(set(chosen) | set(ens_frames))
-    records = configuration_records([(gas[f].positions, gas[f].signs) for f in chosen],
-                                    vd.domain, vd.core_radius, effort=effort, cache_dir=cache_dir,
-                                    progress=progress)
+    vd, gas = series.gas(set(chosen) | set(ens_frames), one_circulation=False)
+    # one domain per frame (an annulus's hole may gain or lose quanta between frames)
+    domains = series.frame_domains(chosen, vd, CORE_RADIUS_XI)
+    records = [None] * len(chosen)
+    for dom in dict.fromkeys(domains.values()):
+        idx = [i for i, f in enumerate(chosen) if domains[f] == dom]
+        recs = configuration_records([(gas[chosen[i]].positions, gas[chosen[i]].signs)
+                                      for i in idx], dom, vd.core_radius, effort=effort,
+                                     cache_dir=cache_dir, progress=progress)
+        for i, rec in zip(idx, recs):
+            records[i] = rec
     t_user = protocol.display_time(times)
     for rec, f in zip(records, chosen):
         rec.update({"frame": f, "t": float(t_user[f]), "left_out_wall": gas[f].left_out_wall,
@@ -407,6 +415,8 @@ def temperature_of_run(run_path, *, frames=None, at_time: float | None = None,
             "records": records, "ensemble": ensemble, "onset": onset,
             "drive_end": after, "drive_note": why,
             "approximation": vd.approximate, "domain": vd.domain.kind,
+            "hole_windings": sorted({d.hole_winding for d in domains.values()})
+            if isinstance(vd.domain, Annulus) else [],
             "run_complete": series.complete, "frames_stored": len(times),
             "frames_planned": planned, "incomplete": note}
 
@@ -523,6 +533,8 @@ def temperature_of_table(path, *, shape: str | None = None, radius_um: float | N
     return {"kind": "measured", "source": str(path), "time_key": "shot", "time_unit": "",
             "records": records, "ensemble": ensemble, "onset": ensemble["verdict"],
             "approximation": "", "domain": table.domain.kind,
+            "hole_windings": [table.domain.hole_winding]
+            if isinstance(table.domain, Annulus) else [],
             "problems": [str(p) for p in table.problems]}
 
 

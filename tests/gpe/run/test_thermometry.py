@@ -212,3 +212,20 @@ def test_run_ensemble_picks_the_frames_of_a_window_in_either_time_unit(tiny_run)
         run_ensemble(tiny_run, window=(1e6, 2e6), time_unit="ms")
     with pytest.raises(VorthermError, match=r"time 1e\+06 ms is outside the run"):
         run_ensemble(tiny_run, at_time=1e6, time_unit="ms")
+
+
+def test_each_frame_of_an_annulus_run_is_at_its_own_hole_circulation(tmp_path):
+    # frames 0-1 carry one quantum on the hole, frames 2-3 two: the same two + vortices then
+    # differ in energy by the cross term -2 (n2 - n1) sum_i ln|u_i| [exact:
+    # thermo.domains.annulus], per vortex here; the ensemble (frames 2-3) is at two quanta
+    path = _annulus_run(tmp_path / "ring.h5", [1, 1, 2, 2])
+    res = temperature_of_run(path, window=(4.0, 6.0), systematics=False,
+                             cache_dir=tmp_path / "dos")
+    assert res["hole_windings"] == [1, 2]
+    e = [r["energy_per_vortex"] for r in res["records"]]
+    scale = 20 - WALL_LAYER_XI
+    cross = -2 * (np.log(12.0 / scale) + np.log(math.hypot(-3.0, 13.0) / scale)) / 2
+    assert e[2] - e[0] == pytest.approx(cross, rel=1e-9) and e[1] == e[0] and e[3] == e[2]
+    assert "annulus: the gas is at the circulation on its hole (1, 2 quanta)" in \
+        report.text_report(res)
+    assert report.json_report(res)["hole_windings"] == [1, 2]

@@ -16,6 +16,7 @@ in E0 = rho kappa^2 / (4 pi).
 
 from __future__ import annotations
 
+import cmath
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass
@@ -24,8 +25,10 @@ from typing import ClassVar
 import numpy as np
 from numba import njit
 
-from thermo.domains.base import (PAIR_SIGNATURE, SELF_SIGNATURE, WALL_SIGNATURE, Domain,
-                                 DomainKernels, as_points, check_sizes, pair_sum_move_change)
+from thermo.domains.base import (PAIR_GRADIENT_SIGNATURE, PAIR_SIGNATURE, SELF_GRADIENT_SIGNATURE,
+                                 SELF_SIGNATURE, WALL_SIGNATURE, Domain, DomainKernels,
+                                 GradientKernels, as_points, check_sizes, pair_sum_move_change,
+                                 pair_sum_velocity)
 from thermo.errors import DomainError
 
 # Index of each entry of the parameter vector handed to the compiled kernels.
@@ -63,6 +66,34 @@ def _ln_abs_theta1(wr: float, wi: float, params: np.ndarray) -> float:
     return total
 
 
+@njit(cache=True, error_model="numpy")
+def _dlog_theta1(wr: float, wi: float, params: np.ndarray) -> complex:
+    """theta_1'(w) / theta_1(w) for complex w = wr + i wi (nome from ``params``).
+
+    The derivative of the product form used by :func:`_ln_abs_theta1`,
+
+    .. math:: \\frac{\\vartheta_1'}{\\vartheta_1}(w) = \\cot w + \\sum_{n \\ge 1}
+              2i\\Big[\\frac{a_n e^{-2iw}}{1 - a_n e^{-2iw}}
+                      - \\frac{a_n e^{2iw}}{1 - a_n e^{2iw}}\\Big], \\qquad a_n = q^{2n},
+
+    after the same argument reduction: theta1(w + pi tau) = -q^-1 e^{-2iw} theta1(w) subtracts
+    2i per shift, and the log-derivative has period pi along the real axis.
+    """
+    T = params[_P_T]
+    k = math.floor(wi / T + 0.5)
+    wr_r = wr - math.pi * math.floor(wr / math.pi + 0.5)
+    w = complex(wr_r, wi - k * T)
+    total = cmath.cos(w) / cmath.sin(w) - 2j * k
+    e_plus = cmath.exp(2j * w)
+    e_minus = cmath.exp(-2j * w)
+    q2 = params[_P_Q] * params[_P_Q]
+    a = 1.0
+    for _ in range(int(params[_P_NTERMS])):
+        a *= q2
+        total += 2j * (a * e_minus / (1.0 - a * e_minus) - a * e_plus / (1.0 - a * e_plus))
+    return total
+
+
 @njit(cache=True)
 def _box_corner(x: float, y: float, params: np.ndarray):
     """Centred scaled coordinates -> corner coordinates with the short side along X."""
@@ -93,6 +124,42 @@ def box_self(x: float, y: float, params: np.ndarray) -> float:
     s = (math.log(0.5 * f) + params[_P_LNPRIME] + _ln_abs_theta1(f * X, f * Y, params)
          - _ln_abs_theta1(0.0, f * Y, params) - _ln_abs_theta1(f * X, 0.0, params))
     return -s
+
+
+@njit(PAIR_GRADIENT_SIGNATURE, cache=True, error_model="numpy")
+def box_pair_gradient(x1: float, y1: float, x2: float, y2: float, params: np.ndarray) -> complex:
+    """Gradient of :func:`box_pair` with respect to (x1, y1), as d/dx1 + i d/dy1.
+
+    Each ln|theta_1(w)| has d/d(Re w) = Re D and d/d(Im w) = -Im D with D = theta_1'/theta_1
+    (Cauchy-Riemann). Units: E0 per side along y.
+    """
+    X1, Y1 = _box_corner(x1, y1, params)
+    X2, Y2 = _box_corner(x2, y2, params)
+    f = math.pi / (2.0 * params[_P_A])
+    s = (_dlog_theta1(f * (X1 - X2), f * (Y1 - Y2), params)
+         + _dlog_theta1(f * (X1 + X2), f * (Y1 + Y2), params)
+         - _dlog_theta1(f * (X1 - X2), f * (Y1 + Y2), params)
+         - _dlog_theta1(f * (X1 + X2), f * (Y1 - Y2), params))
+    g_x = -2.0 * f * s.real
+    g_y = 2.0 * f * s.imag
+    if params[_P_ROTATE] > 0.5:
+        return complex(g_y, g_x)
+    return complex(g_x, g_y)
+
+
+@njit(SELF_GRADIENT_SIGNATURE, cache=True, error_model="numpy")
+def box_self_gradient(x: float, y: float, params: np.ndarray) -> complex:
+    """Gradient of :func:`box_self` (the image terms), as d/dx + i d/dy. Units: E0 per side along y."""
+    X, Y = _box_corner(x, y, params)
+    f = math.pi / params[_P_A]
+    d_xy = _dlog_theta1(f * X, f * Y, params)
+    d_y = _dlog_theta1(0.0, f * Y, params)
+    d_x = _dlog_theta1(f * X, 0.0, params)
+    g_x = -f * (d_xy.real - d_x.real)
+    g_y = f * (d_xy.imag - d_y.imag)
+    if params[_P_ROTATE] > 0.5:
+        return complex(g_y, g_x)
+    return complex(g_x, g_y)
 
 
 @njit(WALL_SIGNATURE, cache=True, error_model="numpy")
@@ -177,6 +244,14 @@ class Box(Domain):
         """The rectangle's compiled kernels and its theta-function parameters."""
         return DomainKernels(box_self, box_pair, box_wall_distance, pair_sum_move_change,
                              self._params)
+
+    def gradient_kernels(self) -> GradientKernels:
+        """The rectangle's compiled energy gradients (theta-function log-derivatives).
+
+        Units: E0 per side along y.
+        """
+        return GradientKernels(box_self_gradient, box_pair_gradient, pair_sum_velocity,
+                               self._params)
 
     def distance_to_wall(self, pos) -> np.ndarray:
         """Distance of each point to the nearest side (negative outside). Units: side along y."""

@@ -70,7 +70,7 @@ def point_output_times(protocol, t_start: float) -> np.ndarray:
     """Times of the point-vortex frames after the GPE part ending at ``t_start``. Units: hbar/mu."""
     ev = protocol.evolution
     step = ev.points_output_interval
-    n = int(math.floor((ev.points_until - t_start) / step + 1e-9))
+    n = math.floor((ev.points_until - t_start) / step + 1e-9)
     times = t_start + step * np.arange(1, n + 1)
     if n == 0 or ev.points_until - times[-1] > 1e-9 * ev.points_until:
         times = np.append(times, ev.points_until)

@@ -127,8 +127,10 @@ class PointFrames:
     def read_point_state(self) -> dict | None:
         """The stored hand-off state (dict with pos, signs and :data:`STATE_ATTRS`) or None."""
         g = self._f.get("points/state")
-        if g is None:
-            return None
+        if g is None:   # a crash between removing the old state and renaming the new one
+            g = self._f.get("points/state.new")
+            if g is None or not g.attrs.get("written", False):
+                return None
         out = {"pos": g["pos"][...], "signs": g["signs"][...]}
         out.update({name: g.attrs[name].item() for name in STATE_ATTRS})
         state = str(g.attrs["rng_state"])

@@ -388,25 +388,28 @@ class RunFile(PointFrames):
     def truncate_to_frame(self, n_frames: int) -> None:
         """Keep frames 0..n_frames-1 (and their observables and vortex rows), drop the rest.
 
-        Point-vortex frames (gpe/run/pointstore.py) continue the last snapshot, so they are
-        dropped too.
+        Point-vortex frames (gpe/run/pointstore.py) continue the last snapshot: they are kept
+        (up to their counter) when every complete snapshot is kept, dropped otherwise.
         """
         f = self._f
-        if "points" in f:
-            del f["points"]
         n_frames = int(n_frames)
         if not 0 <= n_frames <= f["snapshots/psi"].shape[0]:
             raise RunFileError(f"{self.path}: cannot truncate to {n_frames} frames; the file "
                                f"has {f['snapshots/psi'].shape[0]}")
+        if "points" in f and n_frames < self.n_frames:
+            del f["points"]
         dropped_complete = n_frames < self.n_frames
         f["snapshots"].attrs["n_frames"] = min(n_frames, self.n_frames)
         for ds in (f["snapshots/psi"], f["snapshots/t"], *f["observables"].values()):
             if ds.shape[0] > n_frames:
                 ds.resize(n_frames, axis=0)
+        if "points" in f and f["points/t"].shape[0] > self.n_point_frames:
+            f["points/t"].resize(self.n_point_frames, axis=0)
+        last = f["snapshots"].attrs["n_frames"] + self.n_point_frames
         table = f["vortices"]
-        if table.shape[0] and table[-1]["frame"] >= n_frames:
+        if table.shape[0] and table[-1]["frame"] >= last:
             rows = table[...]
-            self.replace_vortices(rows[rows["frame"] < n_frames])
+            self.replace_vortices(rows[rows["frame"] < last])
         if dropped_complete:
             f.attrs["complete"] = False
         f.flush()

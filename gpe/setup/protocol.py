@@ -304,7 +304,7 @@ def _resolve_points(ev: Section, interval: float) -> dict:
                     "beside it, or leave the points_* keys out")
         return {}
     until = ev.get("points_until")
-    n_outputs = int(math.floor(ev.get("duration") / interval + 1e-9))
+    n_outputs = math.floor(ev.get("duration") / interval + 1e-9)
     gpe_end = n_outputs * interval
     if until <= gpe_end * (1 + 1e-9):
         ev.fail("points_until", f"ends at or before the GPE part, which ends at its last output "

@@ -4,16 +4,19 @@ The tiny protocol of tests/helpers/tiny_protocol.py (64^2 grid, disk of radius 2
 GPE part; the point vortices continue to ``points_until``.
 """
 
+import logging
+
 import numpy as np
 import pytest
 from tiny_protocol import healing_header, tiny_protocol_text
 
 from gpe.errors import ProtocolError
-from gpe.run import reading
+from gpe.run import products, reading
 from gpe.run import simulate as pipeline
 from gpe.run.frames import RunSeries
 from gpe.run.runfile import RunFile
 from gpe.setup.protocol import parse_protocol
+from gpe.sweep.thinning import thin_snapshots
 
 HANDOFF = "points_until_tau = 210.0\npoints_output_interval_tau = 20.0\n"
 TINY_POINTS = tiny_protocol_text(duration=10.0, output_interval=2.0, rows=3, speed=0.6).replace(
@@ -46,13 +49,23 @@ def test_handoff_continues_the_last_frame_on_one_time_line(tmp_path):
     assert len(series.times) == 16 and series.frames(default="last") == [15]
     assert set(first["track"]) <= set(last_gpe["track"])
     assert "point-vortex dynamics" in reading.summary_text(out)
+    # re-detecting the snapshots (stored) and thinning them keep the point frames as they are
+    products.redetect(out, store=True, csv_path=tmp_path / "v.csv")
+    thin_snapshots(out, "last")
+    with RunFile.open(out) as run:
+        assert (run.n_frames, run.n_point_frames) == (1, 10)
+        after = run.read_vortices()
+        np.testing.assert_array_equal(run.timeline(), np.r_[times[5], times[6:]])
+    for k in range(10):
+        old, new = table[table["frame"] == 6 + k], after[after["frame"] == 1 + k]
+        np.testing.assert_array_equal(np.sort(new[["x", "y"]]), np.sort(old[["x", "y"]]))
 
 
 class _Stop(Exception):
     pass
 
 
-def test_a_crash_in_the_point_part_resumes_to_the_same_table(tmp_path, monkeypatch):
+def test_a_crash_in_the_point_part_resumes_to_the_same_table(tmp_path, monkeypatch, caplog):
     """Bitwise: the resumed hand-off continues from the stored integrator state."""
     whole = pipeline.simulate(_protocol(), tmp_path / "whole.h5")
     with RunFile.open(whole) as run:
@@ -66,6 +79,8 @@ def test_a_crash_in_the_point_part_resumes_to_the_same_table(tmp_path, monkeypat
     with pytest.raises(_Stop):
         pipeline.simulate(_protocol(), part, progress=stop_in_points)
     assert not reading.is_complete(part)
+    with RunFile.open(part) as run:
+        assert run.n_point_frames == 4 and run.read_point_state()["frame"] == 4
     # a second crash between a point frame and its state (the frame must be recomputed)
     calls = {"n": 0}
     original = RunFile.write_point_state
@@ -80,7 +95,10 @@ def test_a_crash_in_the_point_part_resumes_to_the_same_table(tmp_path, monkeypat
     with pytest.raises(_Stop):
         pipeline.simulate(_protocol(), part, resume=True)
     monkeypatch.setattr(RunFile, "write_point_state", original)
-    pipeline.simulate(_protocol(), part, resume=True)
+    with caplog.at_level(logging.INFO, logger="gpe.run.points"):
+        pipeline.simulate(_protocol(), part, resume=True)
+    # 6 snapshots + 6 point frames with their state; the 7th (frame 12) lost its state: redone
+    assert "resuming the point-vortex part at frame 12" in caplog.text
     with RunFile.open(part) as run:
         got = run.read_vortices()
         assert run.is_complete()

@@ -33,11 +33,13 @@ from dataclasses import dataclass
 import numpy as np
 
 from thermo.domains.base import Domain, as_points, kernel_array
-from thermo.dynamics.stepper import REACHED, TOO_MANY_STEPS, dp_run
+from thermo.dynamics.stepper import EVENT, REACHED, TOO_MANY_STEPS, dp_run
 from thermo.dynamics.velocity import check_friction
 from thermo.errors import ConfigurationError
 
 MAX_STEPS = 10_000_000
+#: Largest block of noise kicks drawn at once (kicks x vortices x 2 normal numbers).
+NOISE_BLOCK = 4096
 
 
 @dataclass(frozen=True)
@@ -207,10 +209,11 @@ def advance(state: PointState, t_end: float, domain: Domain, settings: DynamicsS
     g = domain.gradient_kernels()
     w = domain.kernels()
     pos, signs = kernel_array(state.pos, np.float64).copy(), kernel_array(state.signs, np.int64)
-    numbers = np.array([settings.alpha, settings.alpha_prime, settings.rtol, settings.atol,
-                        settings.max_step, settings.annihilation_distance])
-    pairs, wall = state.annihilated, state.lost_to_wall
     kick = math.sqrt(2.0 * settings.diffusion)
+    numbers = np.array([settings.alpha, settings.alpha_prime, settings.rtol, settings.atol,
+                        settings.max_step, settings.annihilation_distance, kick])
+    pairs, wall = state.annihilated, state.lost_to_wall
+    no_normals = np.empty((0, 0, 2))
 
     def slope(p, s):
         out = np.empty_like(p)
@@ -227,23 +230,25 @@ def advance(state: PointState, t_end: float, domain: Domain, settings: DynamicsS
         h = min(1e-3 / vmax if vmax > 0 else 1e-3, settings.max_step)
     clock = np.array([state.t, float(t_end), h, state.steps_taken, state.steps_rejected, 0.0])
     while True:
-        t_before = float(clock[0])
-        dp_run(pos, signs, clock, numbers, MAX_STEPS, kick > 0.0, g.velocity, g.self_gradient,
+        if kick > 0.0:
+            # one block of kicks per call: enough for the remaining time at the noise step (the
+            # unused rest of a block is discarded, so the draws depend only on the call sequence)
+            m = min(NOISE_BLOCK, math.ceil((t_end - clock[0]) / settings.max_step * (1 + 1e-9)) + 1)
+            normals = rng.standard_normal((max(m, 1), signs.size, 2))
+        else:
+            normals = no_normals
+        dp_run(pos, signs, clock, numbers, MAX_STEPS, normals, g.velocity, g.self_gradient,
                g.pair_gradient, w.wall_distance, g.params, w.params, k1)
         status = clock[5]
         if status == TOO_MANY_STEPS:
             raise ConfigurationError(
                 f"point-vortex integration took more than {MAX_STEPS} steps between s = "
                 f"{state.t:.6g} and {t_end:.6g}; loosen rtol/atol or set an annihilation distance")
-        if status == REACHED and kick == 0.0:
-            break
-        if kick > 0.0:
-            # one accepted step of length clock[0] - t_before; the generator draws only here
-            pos += (kick * math.sqrt(float(clock[0]) - t_before)) * rng.standard_normal(pos.shape)
-        pos, signs, dp, dw = _remove(domain, pos, signs, settings)
-        pairs, wall = pairs + dp, wall + dw
-        k1 = slope(pos, signs)
-        if status == REACHED:
+        if status == EVENT:
+            pos, signs, dp, dw = _remove(domain, pos, signs, settings)
+            pairs, wall = pairs + dp, wall + dw
+            k1 = slope(pos, signs)
+        elif status == REACHED:
             break
     t, h, taken, rejected = float(clock[0]), float(clock[2]), int(clock[3]), int(clock[4])
     return PointState(pos, signs, float(t), float(h), pairs, wall, taken, rejected)

@@ -2,9 +2,10 @@
 
 One call advances the vortices until the requested time, or until an accepted step leaves an
 opposite-sign pair closer than the annihilation distance or a vortex closer than half of it to
-the wall (the caller removes them and calls again), or after one accepted step when asked (the
-caller then adds the noise kick). Everything between those events runs here, without Python
-in the loop. Tableau and step-size rule: see :mod:`thermo.dynamics.integrate`.
+the wall (the caller removes them and calls again), or when the block of standard normal numbers
+for the noise kicks is used up (the caller draws the next block). Everything between those
+events runs here, without Python in the loop (a call from Python costs ~0.5 ms of argument
+typing, so one call per step would dominate). Tableau and step-size rule: see :mod:`thermo.dynamics.integrate`.
 
 Units: positions in L; time in m L^2 / hbar.
 """
@@ -19,12 +20,12 @@ from numba import njit, types
 from thermo.domains.base import (PARAMS, POINTS, SIGNS, PairGradientKernel, SelfGradientKernel,
                                  VelocityKernel, WallKernel)
 
-#: Status codes written to info[2].
-REACHED, EVENT, ONE_STEP, TOO_MANY_STEPS = 0.0, 1.0, 2.0, 3.0
+#: Status codes written to clock[5].
+REACHED, EVENT, NOISE_USED_UP, TOO_MANY_STEPS = 0.0, 1.0, 2.0, 3.0
 
 _SIGNATURE = types.void(POINTS, SIGNS, types.float64[::1], types.float64[::1], types.int64,
-                        types.boolean, VelocityKernel, SelfGradientKernel, PairGradientKernel,
-                        WallKernel, PARAMS, PARAMS, types.float64[::1])
+                        types.float64[:, :, ::1], VelocityKernel, SelfGradientKernel,
+                        PairGradientKernel, WallKernel, PARAMS, PARAMS, types.float64[::1])
 
 # Dormand & Prince (1980) coefficients
 A21 = 1 / 5
@@ -57,17 +58,22 @@ def _has_event(pos, signs, d, wall_fn, wall_params):
 
 
 @njit(_SIGNATURE, cache=True, error_model="numpy")
-def dp_run(pos, signs, clock, settings, max_steps, one_step, velocity_fn, self_g, pair_g,
+def dp_run(pos, signs, clock, settings, max_steps, normals, velocity_fn, self_g, pair_g,
            wall_fn, params, wall_params, k1):
     """Advance ``pos`` in place (module docstring).
 
     clock : [t, t_end, h, taken, rejected, status] (read and written; status as the constants)
-    settings : [alpha, alpha_prime, rtol, atol, max_step, annihilation_distance]
+    settings : [alpha, alpha_prime, rtol, atol, max_step, annihilation_distance, kick], kick =
+        sqrt(2 D) of the noise (0: none)
+    normals : (M, N, 2) standard normal numbers, one (N, 2) block per accepted step's kick
+        ``kick sqrt(h) normals[m]`` (unused without noise: M may be 0)
     k1 : (2N,) the slope at the current ``pos`` on entry, at the final ``pos`` on return.
     """
     n = pos.shape[0]
     alpha, alpha_p, rtol, atol, max_step, d = (settings[0], settings[1], settings[2],
                                                settings[3], settings[4], settings[5])
+    kick = settings[6]
+    used = 0
     t, t_end, h = clock[0], clock[1], clock[2]
     y = pos.reshape(2 * n)
     ks = np.empty((7, 2 * n))
@@ -127,11 +133,19 @@ def dp_run(pos, signs, clock, settings, max_steps, one_step, velocity_fn, self_g
         h = max(h, h_try * factor) if last and h_try < h else h_try * factor
         y[:] = y_new
         ks[0, :] = ks[6, :]
+        if kick > 0.0:
+            amp = kick * math.sqrt(h_try)
+            for i in range(n):
+                pos[i, 0] += amp * normals[used, i, 0]
+                pos[i, 1] += amp * normals[used, i, 1]
+            used += 1
+            velocity_fn(pos, signs, alpha, alpha_p, self_g, pair_g, params, out)
+            ks[0, :] = of
         if _has_event(pos, signs, d, wall_fn, wall_params):
             status = EVENT
             break
-        if one_step:
-            status = ONE_STEP if t < t_end else REACHED
+        if kick > 0.0 and used == normals.shape[0]:
+            status = NOISE_USED_UP if t < t_end else REACHED
             break
     k1[:] = ks[0, :]
     clock[0], clock[2], clock[5] = t, h, status

@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 from tiny_protocol import healing_header, tiny_protocol_text
 
-from gpe.errors import ProtocolError
+from gpe.errors import ProtocolError, SimulationError
 from gpe.run import products, reading
 from gpe.run import simulate as pipeline
 from gpe.run.frames import RunSeries
@@ -116,6 +116,14 @@ def test_bad_handoff_keys_name_the_key(extra, key):
                                                                           "seed = 3\n" + extra)
     with pytest.raises(ProtocolError, match=rf"\[evolution\] {key}: .*Accepted"):
         _protocol(text)
+
+
+def test_a_trap_without_a_point_vortex_domain_fails_before_any_file(tmp_path):
+    text = TINY_POINTS.replace('shape = "disk"\nradius_xi = 20.0',
+                               'shape = "annulus"\ninner_radius_xi = 5.0\nouter_radius_xi = 20.0')
+    with pytest.raises(SimulationError, match=r"\[evolution\] points_until: the annulus trap"):
+        pipeline.simulate(_protocol(text), tmp_path / "a.h5")
+    assert not list(tmp_path.iterdir())
 
 
 def _three_vortices(duration, interval, points=""):

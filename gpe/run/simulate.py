@@ -46,6 +46,8 @@ class RunProgress:
     n_plus: int
     n_minus: int
     time_unit: str
+    #: "gpe", or "points" for the point-vortex frames after a hand-off (no GPE steps taken)
+    phase: str = "gpe"
 
 
 
@@ -266,7 +268,7 @@ def _points_progress(progress, protocol, steps):
 
     def tell(t, n_plus, n_minus):
         progress(RunProgress(protocol.display_time(t), end, steps, 0.0, n_plus, n_minus,
-                             protocol.time_unit))
+                             protocol.time_unit, "points"))
     return tell
 
 

@@ -28,7 +28,10 @@ def _protocol(text=TINY_POINTS, source="tiny.toml"):
 
 
 def test_handoff_continues_the_last_frame_on_one_time_line(tmp_path):
-    out = pipeline.simulate(_protocol(), tmp_path / "p.h5")
+    told = []
+    out = pipeline.simulate(_protocol(), tmp_path / "p.h5", progress=told.append)
+    # the progress callback hears of every point frame too, marked as such
+    assert [p.t for p in told if p.phase == "points"] == [30.0 + 20.0 * k for k in range(10)]
     with RunFile.open(out) as run:
         n_gpe, n_points = run.n_frames, run.n_point_frames
         times, table = run.timeline(), run.read_vortices()

@@ -5,12 +5,14 @@ GPE part; the point vortices continue to ``points_until``.
 """
 
 import logging
+import shutil
 
 import numpy as np
 import pytest
 from tiny_protocol import healing_header, tiny_protocol_text
 
 from gpe.errors import ProtocolError, SimulationError
+from gpe.figures import standard
 from gpe.run import products, reading
 from gpe.run import simulate as pipeline
 from gpe.run.frames import RunSeries
@@ -27,9 +29,17 @@ def _protocol(text=TINY_POINTS, source="tiny.toml"):
     return parse_protocol(text, source=source)
 
 
-def test_handoff_continues_the_last_frame_on_one_time_line(tmp_path):
+@pytest.fixture(scope="module")
+def handoff_run(tmp_path_factory):
+    """The tiny protocol with a hand-off, simulated once: (run file, progress reports)."""
     told = []
-    out = pipeline.simulate(_protocol(), tmp_path / "p.h5", progress=told.append)
+    out = pipeline.simulate(_protocol(), tmp_path_factory.mktemp("handoff") / "p.h5",
+                            progress=told.append)
+    return out, told
+
+
+def test_handoff_continues_the_last_frame_on_one_time_line(handoff_run):
+    out, told = handoff_run
     # the progress callback hears of every point frame too, marked as such
     assert [p.t for p in told if p.phase == "points"] == [30.0 + 20.0 * k for k in range(10)]
     with RunFile.open(out) as run:
@@ -52,6 +62,17 @@ def test_handoff_continues_the_last_frame_on_one_time_line(tmp_path):
     assert len(series.times) == 16 and series.frames(default="last") == [15]
     assert set(first["track"]) <= set(last_gpe["track"])
     assert "point-vortex dynamics" in reading.summary_text(out)
+
+
+@pytest.mark.slow
+def test_figures_redetection_and_thinning_keep_the_point_frames(handoff_run, tmp_path):
+    out = tmp_path / "copy.h5"
+    shutil.copy(handoff_run[0], out)
+    with RunFile.open(out) as run:
+        times, table = run.timeline(), run.read_vortices()
+    # the standard figures draw the vortex counts over the whole time line
+    names = [p.name for p in standard.make_figures(out, tmp_path / "figures")]
+    assert "copy_vortex_counts.png" in names
     # re-detecting the snapshots (stored) and thinning them keep the point frames as they are
     products.redetect(out, store=True, csv_path=tmp_path / "v.csv")
     thin_snapshots(out, "last")

@@ -307,8 +307,10 @@ def _resolve_points(ev: Section, interval: float) -> dict:
     n_outputs = math.floor(ev.get("duration") / interval + 1e-9)
     gpe_end = n_outputs * interval
     if until <= gpe_end * (1 + 1e-9):
+        units = ev.ctx.units
+        ms = "" if units is None else f" = {units.time_to_ms(gpe_end):.6g} ms"
         ev.fail("points_until", f"ends at or before the GPE part, which ends at its last output "
-                f"t = {gpe_end:.6g} hbar/mu", f"a time after the end of the GPE part "
+                f"t = {gpe_end:.6g} hbar/mu{ms}", f"a time after the end of the GPE part "
                 f"({ev.key('duration')} rounded down to whole output intervals)")
     alpha = ev.get("points_friction", ev.get("damping"))
     if not alpha < 1.0:

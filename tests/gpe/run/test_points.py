@@ -186,8 +186,7 @@ def test_point_model_follows_the_gpe_for_50_ms(tmp_path):
     point vortices in the disk of radius R - 1 xi (gpe/run/gas.py). Over 50 ms the vortices
     travel 6-9 xi; the two agree to within 1 xi (the tolerance stated in
     docs/point-dynamics.md: the GPE positions wobble by ~0.5 xi about the point-model path,
-    sound from the imprint; the grid spacing is 0.75 xi). Without the image terms the point
-    model would not turn the vortices round the centre at all: the check is on the images."""
+    sound from the imprint; the grid spacing is 0.75 xi)."""
     gpe = pipeline.simulate(_protocol(_three_vortices(132.6, 2.6), "gpe.toml"), tmp_path / "g.h5")
     pts = pipeline.simulate(_protocol(_three_vortices(
         2.6, 2.6, "points_until_tau = 132.6\npoints_output_interval_tau = 26.0\npoints_friction = 0.0\n"),

@@ -169,13 +169,16 @@ def dos_progress(**options) -> Callable[[float, float], None]:
 
 def run_progress(**options) -> Callable[[Any], None]:
     """A callback for ``gpe.run.simulate.simulate(progress=...)``: simulated time of the run,
-    steps per second and the vortex numbers of the last frame."""
+    steps per second and the vortex numbers of the last frame; a second bar ("points") for the
+    point-vortex frames after a hand-off."""
     bar: dict[str, Counter] = {}
 
     def draw(p) -> None:
-        if "bar" not in bar:
-            bar["bar"] = Counter("run", p.time_unit, **options)
-        bar["bar"](p.t, p.t_end, f"{p.steps_per_s:,.0f} steps/s, N+={p.n_plus} N-={p.n_minus}")
+        phase = p.phase
+        if phase not in bar:
+            bar[phase] = Counter("run" if phase == "gpe" else phase, p.time_unit, **options)
+        rate = "" if phase != "gpe" else f"{p.steps_per_s:,.0f} steps/s, "
+        bar[phase](p.t, p.t_end, f"{rate}N+={p.n_plus} N-={p.n_minus}")
 
     return draw
 

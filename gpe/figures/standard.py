@@ -125,9 +125,12 @@ def make_figures(run_path, out_dir, *, frames=None, movie: bool = False, format:
                                         beam_paths=beam_paths(beams, t_end),
                                         beam_positions=beam_positions(beams, times, chosen)),
              "density_phase")
-        events = find_events(table, times) if table.size else None
-        save(plots.vortex_counts(table, times, events, time_ms=time_ms, drive=drive),
+        # the counts run over the whole time line: point-vortex frames after a hand-off too
+        timeline = np.asarray(run.timeline())
+        events = find_events(table, timeline) if table.size else None
+        save(plots.vortex_counts(table, timeline, events, time_ms=time_ms, drive=drive),
              "vortex_counts")
+        table = table[table["frame"] < len(times)]    # the snapshots' own rows, for the movie
         save(plots.energies(times, obs, time_ms=time_ms, mu_nK=mu_nK, drive=drive), "energies")
         for f in chosen:
             spec = kinetic_energy_spectra(lazy[f], grid)

@@ -109,7 +109,7 @@ class RunSeries:
     @classmethod
     def read(cls, run_path) -> "RunSeries":
         with RunFile.open(run_path, "r") as run:
-            return cls(str(run_path), protocol_of(run), np.asarray(run.frame_times()),
+            return cls(str(run_path), protocol_of(run), np.asarray(run.timeline()),
                        run.read_vortices(), run.is_complete())
 
     def frames(self, *, at_time=None, window=None, default="after_drive", time_unit="tau"):

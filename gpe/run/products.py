@@ -123,7 +123,15 @@ def redetect(run_path, *, threshold: float = DETECT_THRESHOLD, region: str = "tr
             raise VorthermError("--store replaces the whole vortex table, so it needs every "
                                 "frame: leave out --frames")
         with RunFile.open(run_path, "r+") as run:
-            run.replace_vortices(table)
+            # point-vortex frames after a hand-off have no snapshot to re-detect: kept as they
+            # are, and the tracks linked again over the whole time line
+            points = run.read_vortices()
+            points = points[points["frame"] >= n_frames].astype(table.dtype)
+            if points.size:
+                run.replace_vortices(track_vortices(np.concatenate([table, points]),
+                                                    run.timeline()))
+            else:
+                run.replace_vortices(table)
     _write_vortex_csv(csv_path, table, protocol)
     meta = {"format": "vortherm-vortices", "package_version": __version__,
             "table": csv_path.name, "run_file": str(run_path), "rows": int(table.size),

@@ -123,7 +123,8 @@ def summary_text(run_path) -> str:
     """Closing summary of a run: atoms, mu, healing length, sound speed, final vortex count."""
     with RunFile.open(run_path, "r") as run:
         protocol = protocol_of(run)
-        times = run.frame_times()
+        times = run.timeline()
+        n_points = run.n_point_frames
         table = run.read_vortices()
         obs = run.read_observables()
     u = protocol.units
@@ -143,6 +144,10 @@ def summary_text(run_path) -> str:
         f"{times[-1] if len(times) else 0:.4g} hbar/mu in {len(times)} frames",
         f"  vortices at the end: N+ = {n_plus}, N- = {n_minus}",
     ]
+    if n_points:
+        t_gpe = times[len(times) - n_points - 1]
+        lines.insert(-1, f"  of which point-vortex dynamics after t = {u.time_to_ms(t_gpe):.4g} ms "
+                         f"(GPE part): {n_points} frames")
     return "\n".join(lines)
 
 

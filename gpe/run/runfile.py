@@ -26,6 +26,7 @@ from gpe import __version__
 from gpe.errors import RunFileError
 from gpe.field.grid import Grid
 from gpe.run import scales
+from gpe.run.pointstore import PointFrames
 from gpe.run.scales import LEGACY_UNITS_ATTR, UNITS_ATTR, units_of
 
 FORMAT_NAME = "vortherm-run"
@@ -63,8 +64,12 @@ class Checkpoint:
         return np.random.Generator(bit_generator)
 
 
-class RunFile:
-    """An open run file.  Use :meth:`create` or :meth:`open`; works as a context manager."""
+class RunFile(PointFrames):
+    """An open run file.  Use :meth:`create` or :meth:`open`; works as a context manager.
+
+    Point-vortex frames after a hand-off (their rows, times and state): the methods of
+    gpe.run.pointstore.PointFrames.
+    """
 
     def __init__(self, handle: h5py.File, path: Path) -> None:
         self._f = handle
@@ -363,36 +368,48 @@ class RunFile:
                 scales.attach(ds, [scales.root_scale(self._f, "t")])
             _append(obs_group[name], n, float(observables.get(name, np.nan)))
         if vortices is not None and len(vortices):
-            rows = _vortex_rows(vortices, self.path)
-            if np.any(rows["frame"] != n):
+            if np.any(np.asarray(vortices["frame"]) != n):
                 raise RunFileError(f"{self.path}: vortex rows for frame {n} carry other frame "
                                    "numbers")
-            table = f["vortices"]
-            start = table.shape[0]
-            table.resize(start + len(rows), axis=0)
-            table[start:] = rows
-            scales.sync_index(f, "vortices", "vortex")
+            self._append_vortex_rows(vortices)
         f.flush()
         f["snapshots"].attrs["n_frames"] = n + 1  # the counter last: it marks a complete record
         f.flush()
         return n
 
+    def _append_vortex_rows(self, vortices: np.ndarray) -> None:
+        rows = _vortex_rows(vortices, self.path)
+        table = self._f["vortices"]
+        start = table.shape[0]
+        table.resize(start + len(rows), axis=0)
+        table[start:] = rows
+        scales.sync_index(self._f, "vortices", "vortex")
+
     def truncate_to_frame(self, n_frames: int) -> None:
-        """Keep frames 0..n_frames-1 (and their observables and vortex rows), drop the rest."""
+        """Keep frames 0..n_frames-1 (and their observables and vortex rows), drop the rest.
+
+        Point-vortex frames (gpe/run/pointstore.py) continue the last snapshot: they are kept
+        (up to their counter) when every complete snapshot is kept, dropped otherwise.
+        """
         f = self._f
         n_frames = int(n_frames)
         if not 0 <= n_frames <= f["snapshots/psi"].shape[0]:
             raise RunFileError(f"{self.path}: cannot truncate to {n_frames} frames; the file "
                                f"has {f['snapshots/psi'].shape[0]}")
+        if "points" in f and n_frames < self.n_frames:
+            del f["points"]
         dropped_complete = n_frames < self.n_frames
         f["snapshots"].attrs["n_frames"] = min(n_frames, self.n_frames)
         for ds in (f["snapshots/psi"], f["snapshots/t"], *f["observables"].values()):
             if ds.shape[0] > n_frames:
                 ds.resize(n_frames, axis=0)
+        if "points" in f and f["points/t"].shape[0] > self.n_point_frames:
+            f["points/t"].resize(self.n_point_frames, axis=0)
+        last = f["snapshots"].attrs["n_frames"] + self.n_point_frames
         table = f["vortices"]
-        if table.shape[0] and table[-1]["frame"] >= n_frames:
+        if table.shape[0] and table[-1]["frame"] >= last:
             rows = table[...]
-            self.replace_vortices(rows[rows["frame"] < n_frames])
+            self.replace_vortices(rows[rows["frame"] < last])
         if dropped_complete:
             f.attrs["complete"] = False
         f.flush()
@@ -411,9 +428,13 @@ class RunFile:
 
     # -- vortex table ----------------------------------------------------------------------------
     def read_vortices(self) -> np.ndarray:
-        """The vortex table of the complete frames (rows frame, t, x, y, sign, track)."""
+        """The vortex table of the complete frames (rows frame, t, x, y, sign, track).
+
+        Point-vortex frames after a hand-off are included: their frame numbers continue after
+        the snapshots, their times are in :meth:`timeline`.
+        """
         rows = self._f["vortices"][...]
-        return rows[rows["frame"] < self.n_frames]
+        return rows[rows["frame"] < self.n_frames + self.n_point_frames]
 
     def replace_vortices(self, table: np.ndarray) -> None:
         """Replace the whole vortex table atomically (e.g. after tracking or re-detection)."""

@@ -25,6 +25,7 @@ from gpe.errors import RunFileError
 from gpe.field.ground_state import find_ground_state
 from gpe.field.solver import Solver, SolverSettings
 from gpe.run.memory import check_memory
+from gpe.run.points import handoff_domain, run_points
 from gpe.run.reading import is_complete, protocol_of
 from gpe.run.runfile import RunFile
 
@@ -45,6 +46,8 @@ class RunProgress:
     n_plus: int
     n_minus: int
     time_unit: str
+    #: "gpe", or "points" for the point-vortex frames after a hand-off (no GPE steps taken)
+    phase: str = "gpe"
 
 
 
@@ -127,6 +130,8 @@ def simulate(protocol, out_path, *, resume: bool = False,
     check_memory(protocol, resume=resuming)
     grid = protocol.grid
     ev = protocol.evolution
+    if ev.points_until is not None:
+        handoff_domain(protocol)   # a trap without a point-vortex domain fails before any work
     beams = protocol.build_beams()
     t_end = ev.n_outputs * ev.output_interval
     time_unit = protocol.time_unit
@@ -153,7 +158,8 @@ def simulate(protocol, out_path, *, resume: bool = False,
         region = protocol.trap.detection_region(v_static)
         psi0, t0, step0, frame0 = ck.psi, ck.t, ck.step, ck.frame
         mu_run = run.attrs_float("mu_run")
-        run.truncate_to_frame(frame0)
+        if step0 < ev.n_steps or frame0 != run.n_frames:
+            run.truncate_to_frame(frame0)   # (drops point-vortex frames, which follow the GPE)
         logger.info("%s: resuming from the checkpoint at frame %d, t = %.6g hbar/mu (step %d)",
                     out_path, frame0, t0, step0)
         solver = _make_solver(protocol, v_static, beams, mu_run, psi0, t0, step0, threads)
@@ -208,6 +214,9 @@ def simulate(protocol, out_path, *, resume: bool = False,
                 progress(RunProgress(protocol.display_time(solver.t), protocol.display_time(t_end), solver.step_count,
                                      rate, int(np.count_nonzero(rows["sign"] > 0)),
                                      int(np.count_nonzero(rows["sign"] < 0)), time_unit))
+        if ev.points_until is not None:
+            run_points(run, protocol, None if progress is None else _points_progress(
+                progress, protocol, solver.step_count))
         _finish_tracks(run)
         run.mark_complete()
         logger.info("%s: complete, %d frames, %d steps", out_path, frame, solver.step_count)
@@ -253,11 +262,21 @@ def _write_frame(run, protocol, psi, t, v_static, beams, grid, region, frame) ->
     return rows
 
 
+def _points_progress(progress, protocol, steps):
+    """The run's progress callback, told about point-vortex frames (no GPE steps are taken)."""
+    end = protocol.display_time(protocol.evolution.points_until)
+
+    def tell(t, n_plus, n_minus):
+        progress(RunProgress(protocol.display_time(t), end, steps, 0.0, n_plus, n_minus,
+                             protocol.time_unit, "points"))
+    return tell
+
+
 def _finish_tracks(run) -> None:
-    """Link the vortices of all frames into tracks once the run is complete."""
+    """Link the vortices of all frames (point-vortex frames too) into tracks once complete."""
     table = run.read_vortices()
     if table.size:
-        run.replace_vortices(track_vortices(table, run.frame_times()))
+        run.replace_vortices(track_vortices(table, run.timeline()))
 
 
 def simulate_resume(run_path, *, progress=None, threads=None) -> Path:

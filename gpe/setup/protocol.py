@@ -97,6 +97,13 @@ class EvolutionConfig:
     checkpoint_every_outputs: int
     checkpoint_every_s: float
     fft_planning: str = "reproducible"
+    #: hand-off to point vortices: end time (None: no hand-off), output interval, mutual
+    #: friction alpha and alpha', relative tolerance of the adaptive integrator
+    points_until: float | None = field(default=None, metadata={"dim": "time"})
+    points_output_interval: float | None = field(default=None, metadata={"dim": "time"})
+    points_friction: float = 0.0
+    points_friction_prime: float = 0.0
+    points_tolerance: float = 1e-8
 
     @property
     def steps_per_output(self) -> int:
@@ -277,8 +284,49 @@ def _resolve_settings(gs: Section, imprints: list[Section], ev: Section) -> tupl
         duration=duration, dt=dt, output_interval=interval, gamma=ev.get("damping"),
         precision=ev.get("precision"), seed=ev.get("seed"),
         checkpoint_every_outputs=ev.get("checkpoint_every_outputs"), checkpoint_every_s=ev.get("checkpoint_every_s"),
-        fft_planning=ev.get("fft_planning"))
+        fft_planning=ev.get("fft_planning"), **_resolve_points(ev, interval))
     return ground, evolution
+
+
+def _resolve_points(ev: Section, interval: float) -> dict:
+    """The [evolution] points_* keys (hand-off to point-vortex dynamics), checked.
+
+    The friction alpha defaults to the damping gamma: for the damped GPE the two agree at
+    leading order in gamma (Tornkvist & Schroder, PRL 78, 1908 (1997) [memory]).
+    """
+    keys = ("points_until", "points_output_interval", "points_friction", "points_friction_prime",
+            "points_tolerance")
+    given = [k for k in keys if ev.has(k)]
+    if not ev.has("points_until"):
+        if given:
+            ev.fail(given[0], "is set but points_until is not, so no hand-off to point vortices "
+                    "happens", f"{ev.key('points_until')} (the end of the point-vortex part) "
+                    "beside it, or leave the points_* keys out")
+        return {}
+    until = ev.get("points_until")
+    n_outputs = math.floor(ev.get("duration") / interval + 1e-9)
+    gpe_end = n_outputs * interval
+    if until <= gpe_end * (1 + 1e-9):
+        units = ev.ctx.units
+        ms = "" if units is None else f" = {units.time_to_ms(gpe_end):.6g} ms"
+        ev.fail("points_until", f"ends at or before the GPE part, which ends at its last output "
+                f"t = {gpe_end:.6g} hbar/mu{ms}", f"a time after the end of the GPE part "
+                f"({ev.key('duration')} rounded down to whole output intervals)")
+    alpha = ev.get("points_friction", ev.get("damping"))
+    if not alpha < 1.0:
+        ev.fail("points_friction", f"alpha = {alpha} is not < 1", "a mutual friction alpha in [0, 1), "
+                "typically 1e-3 to 0.1")
+    alpha_prime = ev.get("points_friction_prime")
+    if not -1.0 < alpha_prime < 1.0:
+        ev.fail("points_friction_prime", f"alpha' = {alpha_prime} is outside (-1, 1)",
+                "a dimensionless alpha' in (-1, 1), usually 0")
+    rtol = ev.get("points_tolerance")
+    if not rtol < 0.1:
+        ev.fail("points_tolerance", f"{rtol} is not < 0.1", "a relative tolerance such as 1e-8")
+    return {"points_until": until,
+            "points_output_interval": ev.get("points_output_interval", interval),
+            "points_friction": alpha, "points_friction_prime": alpha_prime,
+            "points_tolerance": rtol}
 
 
 def _resolve_path(sec: Section):

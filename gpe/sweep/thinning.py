@@ -100,6 +100,15 @@ def _rewrite(run, tmp: Path, frames: list[int], keep) -> None:
             out.append_frame(float(times[old]), run.psi(old),
                              {name: float(v[old]) for name, v in observables.items()},
                              vortices=rows, units=units)
+        # point-vortex frames after a hand-off (gpe/run/pointstore.py) carry no snapshot: all
+        # are kept, renumbered after the kept snapshots
+        for k, t in enumerate(run.point_times()):
+            rows = table[table["frame"] == run.n_frames + k].copy()
+            rows["frame"] = len(frames) + k
+            out.append_point_frame(float(t), rows)
+        state = run.read_point_state()
+        if state is not None:
+            out.write_point_state(state.pop("pos"), state.pop("signs"), **state)
         if run.has_checkpoint():
             ck = run.read_checkpoint()
             out.write_checkpoint(ck.psi, ck.t, ck.step, len(frames), rng=ck.rng())

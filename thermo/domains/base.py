@@ -78,6 +78,24 @@ MOVE_SIGNATURE = types.float64(POINTS, SIGNS, types.int64, types.float64, types.
                                types.float64, SelfKernel, PairKernel)
 MoveKernel = types.FunctionType(MOVE_SIGNATURE)
 
+#: (x, y, params) -> gradient of the self energy 2 pi R(z) as a complex number
+#: d/dx + i d/dy. Units: E0 per length unit.
+SELF_GRADIENT_SIGNATURE = types.complex128(types.float64, types.float64, PARAMS)
+#: (x1, y1, x2, y2, params) -> gradient of the pair energy 4 pi G(z1, z2) with respect to the
+#: first point, as d/dx1 + i d/dy1. Units: E0 per length unit.
+PAIR_GRADIENT_SIGNATURE = types.complex128(types.float64, types.float64, types.float64,
+                                           types.float64, PARAMS)
+SelfGradientKernel = types.FunctionType(SELF_GRADIENT_SIGNATURE)
+PairGradientKernel = types.FunctionType(PAIR_GRADIENT_SIGNATURE)
+#: (pos, signs, alpha, alpha_prime, self_gradient, pair_gradient, params, out) -> None: the
+#: velocities du/ds of all vortices with mutual friction written into ``out`` (N, 2) (equations
+#: in :mod:`thermo.dynamics.velocity`). As for :data:`MOVE_SIGNATURE`, the gradient kernels are
+#: handed in so that the generic :func:`pair_sum_velocity` serves every domain; a domain may
+#: give a faster one of its own. Units: L per scaled time m L^2 / hbar.
+VELOCITY_SIGNATURE = types.void(POINTS, SIGNS, types.float64, types.float64, SelfGradientKernel,
+                                PairGradientKernel, PARAMS, POINTS)
+VelocityKernel = types.FunctionType(VELOCITY_SIGNATURE)
+
 
 class DomainKernels(NamedTuple):
     """The compiled kernels of one domain and the parameter vector they all take.
@@ -104,6 +122,53 @@ class DomainKernels(NamedTuple):
 #: The numba types of the fields of :class:`DomainKernels`, in order: a compiled loop declared
 #: with them in its signature is called with ``*domain.kernels()``.
 KERNEL_TYPES = (SelfKernel, PairKernel, WallKernel, MoveKernel, PARAMS)
+
+
+class GradientKernels(NamedTuple):
+    """The compiled energy gradients of one domain: what point-vortex dynamics moves by.
+
+    The Kirchhoff-Routh velocities are the symplectic gradient of the energy, so the domain
+    that gives the thermometry its energy gives the dynamics its velocities (the image terms
+    are the gradient of the self energy).
+
+    Attributes
+    ----------
+    self_gradient : numba dispatcher with :data:`SELF_GRADIENT_SIGNATURE`
+    pair_gradient : numba dispatcher with :data:`PAIR_GRADIENT_SIGNATURE`
+    velocity : numba dispatcher with :data:`VELOCITY_SIGNATURE`
+    params : numpy.ndarray float64, C-contiguous, shape (P,)
+        The same parameter vector as :class:`DomainKernels`.
+
+    Units: E0 per length unit.
+    """
+
+    self_gradient: Callable[..., complex]
+    pair_gradient: Callable[..., complex]
+    velocity: Callable[..., None]
+    params: np.ndarray
+
+
+@njit(VELOCITY_SIGNATURE, cache=True, error_model="numpy")
+def pair_sum_velocity(pos, signs, alpha, alpha_prime, self_gradient, pair_gradient, params, out):
+    """Velocities of all vortices from the self and pair gradient kernels. O(N^2).
+
+    With g = grad_i E: u_x' = (1 - alpha') (s_i/2) g_y - (alpha/2) g_x and u_y' =
+    -(1 - alpha') (s_i/2) g_x - (alpha/2) g_y (:mod:`thermo.dynamics.velocity`).
+
+    Units: positions in L, velocities in L per m L^2 / hbar.
+    """
+    n = pos.shape[0]
+    c = 0.5 * (1.0 - alpha_prime)
+    d = 0.5 * alpha
+    for i in range(n):
+        xi = pos[i, 0]
+        yi = pos[i, 1]
+        g = self_gradient(xi, yi, params)
+        for j in range(n):
+            if j != i:
+                g += signs[i] * signs[j] * pair_gradient(xi, yi, pos[j, 0], pos[j, 1], params)
+        out[i, 0] = c * signs[i] * g.imag - d * g.real
+        out[i, 1] = -c * signs[i] * g.real - d * g.imag
 
 
 @njit(MOVE_SIGNATURE, cache=True, error_model="numpy")
@@ -243,6 +308,23 @@ class Domain(ABC):
 
         Units: length unit.
         """
+
+    def gradient_kernels(self) -> GradientKernels:
+        """The compiled gradients of the self and pair energies (point-vortex dynamics).
+
+        A domain without them can still be sampled; its vortices cannot be moved by
+        :mod:`thermo.dynamics`.
+
+        Raises
+        ------
+        DomainError
+            Always, unless the domain overrides this method.
+
+        Units: E0 per length unit.
+        """
+        raise DomainError(f"the {self.kind or type(self).__name__} domain has no energy "
+                          "gradients, so point-vortex dynamics cannot run in it; domains with "
+                          "them: the disk and the box")
 
     # -- shared ----------------------------------------------------------------------------
     def contains(self, pos, margin: float = 0.0) -> np.ndarray:

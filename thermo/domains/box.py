@@ -16,6 +16,7 @@ in E0 = rho kappa^2 / (4 pi).
 
 from __future__ import annotations
 
+import cmath
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass
@@ -24,8 +25,10 @@ from typing import ClassVar
 import numpy as np
 from numba import njit
 
-from thermo.domains.base import (PAIR_SIGNATURE, SELF_SIGNATURE, WALL_SIGNATURE, Domain,
-                                 DomainKernels, as_points, check_sizes, pair_sum_move_change)
+from thermo.domains.base import (PAIR_GRADIENT_SIGNATURE, PAIR_SIGNATURE, SELF_GRADIENT_SIGNATURE,
+                                 SELF_SIGNATURE, VELOCITY_SIGNATURE, WALL_SIGNATURE, Domain,
+                                 DomainKernels, GradientKernels, as_points, check_sizes,
+                                 pair_sum_move_change)
 from thermo.errors import DomainError
 
 # Index of each entry of the parameter vector handed to the compiled kernels.
@@ -63,6 +66,34 @@ def _ln_abs_theta1(wr: float, wi: float, params: np.ndarray) -> float:
     return total
 
 
+@njit(cache=True, error_model="numpy")
+def _dlog_theta1(wr: float, wi: float, params: np.ndarray) -> complex:
+    """theta_1'(w) / theta_1(w) for complex w = wr + i wi (nome from ``params``).
+
+    The derivative of the product form used by :func:`_ln_abs_theta1`,
+
+    .. math:: \\frac{\\vartheta_1'}{\\vartheta_1}(w) = \\cot w + \\sum_{n \\ge 1}
+              2i\\Big[\\frac{a_n e^{-2iw}}{1 - a_n e^{-2iw}}
+                      - \\frac{a_n e^{2iw}}{1 - a_n e^{2iw}}\\Big], \\qquad a_n = q^{2n},
+
+    after the same argument reduction: theta1(w + pi tau) = -q^-1 e^{-2iw} theta1(w) subtracts
+    2i per shift, and the log-derivative has period pi along the real axis.
+    """
+    T = params[_P_T]
+    k = math.floor(wi / T + 0.5)
+    wr_r = wr - math.pi * math.floor(wr / math.pi + 0.5)
+    w = complex(wr_r, wi - k * T)
+    total = cmath.cos(w) / cmath.sin(w) - 2j * k
+    e_plus = cmath.exp(2j * w)
+    e_minus = cmath.exp(-2j * w)
+    q2 = params[_P_Q] * params[_P_Q]
+    a = 1.0
+    for _ in range(int(params[_P_NTERMS])):
+        a *= q2
+        total += 2j * (a * e_minus / (1.0 - a * e_minus) - a * e_plus / (1.0 - a * e_plus))
+    return total
+
+
 @njit(cache=True)
 def _box_corner(x: float, y: float, params: np.ndarray):
     """Centred scaled coordinates -> corner coordinates with the short side along X."""
@@ -93,6 +124,116 @@ def box_self(x: float, y: float, sign: int, params: np.ndarray) -> float:
     s = (math.log(0.5 * f) + params[_P_LNPRIME] + _ln_abs_theta1(f * X, f * Y, params)
          - _ln_abs_theta1(0.0, f * Y, params) - _ln_abs_theta1(f * X, 0.0, params))
     return -s
+
+
+@njit(PAIR_GRADIENT_SIGNATURE, cache=True, error_model="numpy")
+def box_pair_gradient(x1: float, y1: float, x2: float, y2: float, params: np.ndarray) -> complex:
+    """Gradient of :func:`box_pair` with respect to (x1, y1), as d/dx1 + i d/dy1.
+
+    Each ln|theta_1(w)| has d/d(Re w) = Re D and d/d(Im w) = -Im D with D = theta_1'/theta_1
+    (Cauchy-Riemann). Units: E0 per side along y.
+    """
+    X1, Y1 = _box_corner(x1, y1, params)
+    X2, Y2 = _box_corner(x2, y2, params)
+    f = math.pi / (2.0 * params[_P_A])
+    s = (_dlog_theta1(f * (X1 - X2), f * (Y1 - Y2), params)
+         + _dlog_theta1(f * (X1 + X2), f * (Y1 + Y2), params)
+         - _dlog_theta1(f * (X1 - X2), f * (Y1 + Y2), params)
+         - _dlog_theta1(f * (X1 + X2), f * (Y1 - Y2), params))
+    g_x = -2.0 * f * s.real
+    g_y = 2.0 * f * s.imag
+    if params[_P_ROTATE] > 0.5:
+        return complex(g_y, g_x)
+    return complex(g_x, g_y)
+
+
+@njit(SELF_GRADIENT_SIGNATURE, cache=True, error_model="numpy")
+def box_self_gradient(x: float, y: float, params: np.ndarray) -> complex:
+    """Gradient of :func:`box_self` (the image terms), as d/dx + i d/dy. Units: E0 per side along y."""
+    X, Y = _box_corner(x, y, params)
+    f = math.pi / params[_P_A]
+    d_xy = _dlog_theta1(f * X, f * Y, params)
+    d_y = _dlog_theta1(0.0, f * Y, params)
+    d_x = _dlog_theta1(f * X, 0.0, params)
+    g_x = -f * (d_xy.real - d_x.real)
+    g_y = f * (d_xy.imag - d_y.imag)
+    if params[_P_ROTATE] > 0.5:
+        return complex(g_y, g_x)
+    return complex(g_x, g_y)
+
+
+@njit(cache=True, error_model="numpy")
+def _dlog_theta1_of_z(z: complex, params: np.ndarray) -> complex:
+    """theta_1'(w) / theta_1(w) from z = exp(2 i w), for q^2 <= |z| <= 1/q.
+
+    The series of :func:`_dlog_theta1` in z (cot w = i (z + 1)/(z - 1)); a z with |z| < q
+    (Im w > T/2) is first shifted by pi tau (z / q^2, and -2i).
+    """
+    q = params[_P_Q]
+    q2 = q * q
+    total = 0j
+    if abs(z) < q:
+        z = z / q2
+        total = -2j
+    total += 1j * (z + 1.0) / (z - 1.0)
+    # a/(z - a) - a z/(1 - a z) = a (1 - z^2) / ((z - a)(1 - a z)); the terms fall like
+    # a_n max(|z|, 1/|z|) <= q^(2n - 1): stop below 1e-18 of the leading term
+    bound = max(abs(z), 1.0 / abs(z))
+    one_minus_z2 = 1.0 - z * z
+    a = 1.0
+    for _ in range(int(params[_P_NTERMS])):
+        a *= q2
+        if a * bound < 1e-18:
+            break
+        total += 2j * a * one_minus_z2 / ((z - a) * (1.0 - a * z))
+    return total
+
+
+@njit(VELOCITY_SIGNATURE, cache=True, error_model="numpy")
+def box_velocity(pos, signs, alpha, alpha_prime, self_gradient, pair_gradient, params, out):
+    """Velocities of all vortices in the rectangle, each pair visited once. O(N^2 / 2).
+
+    The same equations as :func:`thermo.domains.base.pair_sum_velocity` with the gradients of
+    :func:`box_pair_gradient`, written with z_k = exp(2 i f (X_k + i Y_k)) of each vortex so that
+    a pair needs no trigonometric function: the four arguments of the theta functions have
+    exp(2 i w) = z1 / z2, z1 z2, z1 conj(z2), z1 / conj(z2), and the partner's terms follow from
+    theta_1 being odd with real coefficients. ``pair_gradient`` is not needed.
+
+    Units: positions in the side along y, velocities per m L^2 / hbar.
+    """
+    n = pos.shape[0]
+    c = 0.5 * (1.0 - alpha_prime)
+    d = 0.5 * alpha
+    f = math.pi / (2.0 * params[_P_A])
+    rotate = params[_P_ROTATE] > 0.5
+    z = np.empty(n, dtype=np.complex128)
+    g = np.empty((n, 2))             # gradient in corner coordinates (X, Y)
+    for i in range(n):
+        X, Y = _box_corner(pos[i, 0], pos[i, 1], params)
+        z[i] = cmath.exp(2j * f * complex(X, Y))
+        gs = self_gradient(pos[i, 0], pos[i, 1], params)
+        if rotate:
+            g[i, 0], g[i, 1] = gs.imag, gs.real
+        else:
+            g[i, 0], g[i, 1] = gs.real, gs.imag
+    for i in range(n):
+        for j in range(i + 1, n):
+            zi, zj = z[i], z[j]
+            da = _dlog_theta1_of_z(zi / zj, params)
+            db = _dlog_theta1_of_z(zi * zj, params)
+            dc = _dlog_theta1_of_z(zi * zj.conjugate(), params)
+            dd = _dlog_theta1_of_z(zi / zj.conjugate(), params)
+            ss = -2.0 * f * signs[i] * signs[j]
+            s_i = da + db - dc - dd
+            s_j = -da + db + dc.conjugate() - dd.conjugate()
+            g[i, 0] += ss * s_i.real
+            g[i, 1] -= ss * s_i.imag
+            g[j, 0] += ss * s_j.real
+            g[j, 1] -= ss * s_j.imag
+    for i in range(n):
+        gx, gy = (g[i, 1], g[i, 0]) if rotate else (g[i, 0], g[i, 1])
+        out[i, 0] = c * signs[i] * gy - d * gx
+        out[i, 1] = -c * signs[i] * gx - d * gy
 
 
 @njit(WALL_SIGNATURE, cache=True, error_model="numpy")
@@ -177,6 +318,14 @@ class Box(Domain):
         """The rectangle's compiled kernels and its theta-function parameters."""
         return DomainKernels(box_self, box_pair, box_wall_distance, pair_sum_move_change,
                              self._params)
+
+    def gradient_kernels(self) -> GradientKernels:
+        """The rectangle's compiled energy gradients (theta-function log-derivatives).
+
+        Units: E0 per side along y.
+        """
+        return GradientKernels(box_self_gradient, box_pair_gradient, box_velocity,
+                               self._params)
 
     def distance_to_wall(self, pos) -> np.ndarray:
         """Distance of each point to the nearest side (negative outside). Units: side along y."""

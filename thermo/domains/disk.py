@@ -23,8 +23,10 @@ from typing import ClassVar
 import numpy as np
 from numba import njit
 
-from thermo.domains.base import (MOVE_SIGNATURE, PAIR_SIGNATURE, SELF_SIGNATURE, WALL_SIGNATURE,
-                                 Domain, DomainKernels, as_points, check_sizes)
+from thermo.domains.base import (MOVE_SIGNATURE, PAIR_GRADIENT_SIGNATURE, PAIR_SIGNATURE,
+                                 SELF_GRADIENT_SIGNATURE, SELF_SIGNATURE, VELOCITY_SIGNATURE,
+                                 WALL_SIGNATURE, Domain,
+                                 DomainKernels, GradientKernels, as_points, check_sizes)
 
 
 # error_model="numpy": coincident vortices give inf (caught by the callers), not an exception
@@ -41,6 +43,68 @@ def disk_pair(x1: float, y1: float, x2: float, y2: float, params: np.ndarray) ->
 def disk_self(x: float, y: float, sign: int, params: np.ndarray) -> float:
     """Self energy ln(1 - |u|^2) = 2 pi R(u) of the unit disk, either sign. Units: E0."""
     return math.log(1.0 - (x * x + y * y))
+
+
+@njit(SELF_GRADIENT_SIGNATURE, cache=True, error_model="numpy")
+def disk_self_gradient(x: float, y: float, params: np.ndarray) -> complex:
+    """Gradient of ln(1 - |u|^2): -2 u / (1 - |u|^2), as d/dx + i d/dy. Units: E0 / R."""
+    f = -2.0 / (1.0 - (x * x + y * y))
+    return complex(f * x, f * y)
+
+
+@njit(PAIR_GRADIENT_SIGNATURE, cache=True, error_model="numpy")
+def disk_pair_gradient(x1: float, y1: float, x2: float, y2: float, params: np.ndarray) -> complex:
+    """Gradient of :func:`disk_pair` with respect to (x1, y1), as d/dx1 + i d/dy1. Units: E0 / R."""
+    r2 = x2 * x2 + y2 * y2
+    num = 1.0 - 2.0 * (x1 * x2 + y1 * y2) + (x1 * x1 + y1 * y1) * r2
+    dx = x1 - x2
+    dy = y1 - y2
+    d2 = dx * dx + dy * dy
+    gx = 2.0 * (x1 * r2 - x2) / num - 2.0 * dx / d2
+    gy = 2.0 * (y1 * r2 - y2) / num - 2.0 * dy / d2
+    return complex(gx, gy)
+
+
+@njit(VELOCITY_SIGNATURE, cache=True, error_model="numpy")
+def disk_velocity(pos, signs, alpha, alpha_prime, self_gradient, pair_gradient, params, out):
+    """Velocities of all vortices in the disk, the gradients written out (no indirect calls).
+
+    The same equations as :func:`thermo.domains.base.pair_sum_velocity`; each pair is visited
+    once (its 1/d part is antisymmetric, its image part shares the numerator). ``self_gradient``
+    and ``pair_gradient`` (part of the common signature) are not needed. O(N^2 / 2).
+
+    Units: positions in R, velocities in R per m R^2 / hbar.
+    """
+    n = pos.shape[0]
+    c = 0.5 * (1.0 - alpha_prime)
+    d = 0.5 * alpha
+    g = np.empty((n, 2))
+    for i in range(n):
+        x1 = pos[i, 0]
+        y1 = pos[i, 1]
+        f = -2.0 / (1.0 - (x1 * x1 + y1 * y1))
+        g[i, 0] = f * x1
+        g[i, 1] = f * y1
+    for i in range(n):
+        x1 = pos[i, 0]
+        y1 = pos[i, 1]
+        r1 = x1 * x1 + y1 * y1
+        for j in range(i + 1, n):
+            x2 = pos[j, 0]
+            y2 = pos[j, 1]
+            r2 = x2 * x2 + y2 * y2
+            ss = 2.0 * signs[i] * signs[j]
+            inv_num = ss / (1.0 - 2.0 * (x1 * x2 + y1 * y2) + r1 * r2)
+            dx = x1 - x2
+            dy = y1 - y2
+            inv_d2 = ss / (dx * dx + dy * dy)
+            g[i, 0] += (x1 * r2 - x2) * inv_num - dx * inv_d2
+            g[i, 1] += (y1 * r2 - y2) * inv_num - dy * inv_d2
+            g[j, 0] += (x2 * r1 - x1) * inv_num + dx * inv_d2
+            g[j, 1] += (y2 * r1 - y1) * inv_num + dy * inv_d2
+    for i in range(n):
+        out[i, 0] = c * signs[i] * g[i, 1] - d * g[i, 0]
+        out[i, 1] = -c * signs[i] * g[i, 0] - d * g[i, 1]
 
 
 @njit(WALL_SIGNATURE, cache=True, error_model="numpy")
@@ -134,6 +198,11 @@ class Disk(Domain):
         """The disk's compiled kernels; the parameter vector is unused (one zero)."""
         return DomainKernels(disk_self, disk_pair, disk_wall_distance, disk_move_change,
                              np.zeros(1))
+
+    def gradient_kernels(self) -> GradientKernels:
+        """The disk's compiled energy gradients (image at u / |u|^2). Units: E0 / R."""
+        return GradientKernels(disk_self_gradient, disk_pair_gradient, disk_velocity,
+                               np.zeros(1))
 
     def distance_to_wall(self, pos) -> np.ndarray:
         """Distance 1 - |u| of each point to the circle (negative outside). Units: R."""

@@ -38,6 +38,7 @@ from gpe.errors import SimulationError, VorthermError
 from gpe.field.traps.base import VortexDomain
 from gpe.run.gas import CORE_RADIUS_XI, WALL_LAYER_XI, domain_for_trap
 from thermo.dynamics.integrate import DynamicsSettings, PointState, advance, initial_state
+from thermo.errors import DomainError
 
 logger = logging.getLogger(__name__)
 
@@ -50,7 +51,8 @@ def handoff_domain(protocol) -> VortexDomain:
     """
     try:
         vd = domain_for_trap(protocol.trap, CORE_RADIUS_XI, WALL_LAYER_XI)
-    except VorthermError as err:  # the shape's own refusal, re-worded for the key
+        vd.domain.gradient_kernels()      # a domain the thermometry has but dynamics lacks
+    except (VorthermError, DomainError) as err:  # the shape's own refusal, re-worded for the key
         raise SimulationError(f"{protocol.source_name}: [evolution] points_until: the "
                               f"{protocol.trap.shape} trap cannot hand off to point vortices "
                               f"({err}); accepted: a disk or box trap, or leave points_until "

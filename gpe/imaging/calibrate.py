@@ -25,7 +25,6 @@ Units: pixels in, micrometres in the model (``pixel_um`` converts).
 
 from __future__ import annotations
 
-import json
 import math
 from dataclasses import asdict, dataclass
 from pathlib import Path
@@ -35,6 +34,7 @@ import numpy as np
 from gpe.analysis.tracking import match_points
 from gpe.imaging.finder import Found
 from gpe.imaging.render import ImagingError
+from gpe.run.jsontext import dumps_strict
 
 
 @dataclass(frozen=True)
@@ -69,17 +69,12 @@ class DetectionModel:
                                     if math.isfinite(self.sign_error) else 0.0)}
 
     def write(self, path) -> Path:
-        """Write the model as JSON (curves and the [imaging] numbers)."""
+        """Write the model as strict JSON (curves and the [imaging] numbers; NaN as null)."""
         path = Path(path)
         data = asdict(self)
         data["imaging_um"] = self.imaging_um()
-        path.write_text(json.dumps(data, indent=1, allow_nan=False,
-                                   default=_nan_to_none), encoding="utf-8")
+        path.write_text(dumps_strict(data, indent=1) + "\n", encoding="utf-8")
         return path
-
-
-def _nan_to_none(v):
-    return None
 
 
 def _half_crossing(edges, eff) -> float:

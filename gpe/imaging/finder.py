@@ -4,7 +4,7 @@
 or read from a file by gpe.imaging.files), in pixels:
 
 1. **Envelope**: the image, lightly smoothed (Gaussian, ``core_px / 2``) against shot noise, is
-   closed (grey dilation then erosion, square window ~4 core widths): a closing fills dips
+   closed (grey dilation then erosion, round window of radius 2 core widths): a closing fills dips
    narrower than its window (the cores) and leaves the edge of the cloud where it is, unlike
    a plain smoothing that would draw false dips along the edge.
 2. **Fluid boundary**: the bulk level is the median of the envelope where it exceeds half its
@@ -13,9 +13,13 @@ or read from a file by gpe.imaging.files), in pixels:
    contour of a hard wall sits about 1.25 xi inside the wall, close to the wall layer that
    gpe.run.gas takes off the trap radius).
 3. **Candidates**: the relative depletion d = 1 - image/envelope, smoothed with a Gaussian of
-   the core width (a matched filter for a dip of that size), has local maxima inside the fluid;
-   their **score** is the smoothed depletion over its robust noise level (median absolute
-   deviation over the fluid, 1.4826 MAD; common practice for a Gaussian noise estimate).
+   half the core width (a matched filter for a dip of that size), has local maxima inside the fluid;
+   candidates closer than half a core width to the fluid's edge are left out (the closing is
+   least reliable there); their **score** is the smoothed depletion (less its median over the
+   fluid) over the noise the smoothing leaves of the pixel noise, sigma_pix / (2 sqrt(pi) s) for
+   a Gaussian of s pixels; sigma_pix comes from second differences (:func:`pixel_noise`), which
+   the cores themselves hardly affect, so a crowded image does not raise its own threshold.
+   A candidate also needs a filtered depth of at least ``MIN_DEPTH`` = 5% of the envelope.
 4. **Sub-pixel position**: a Gaussian dip ``A exp(-r^2/2w^2) + c`` is fitted to d in a window
    around each candidate (a few damped Gauss-Newton steps, all candidates at once). The
    position of a symmetric dip does not depend on the exact shape of its profile, so a
@@ -24,7 +28,7 @@ or read from a file by gpe.imaging.files), in pixels:
    are flagged.
 5. **Signs** from a velocity-selective image when one is given (gpe.imaging.render's channel):
    the selected fraction b = bragg/envelope minus its local mean is weighed with (y - y0)
-   (axis x) or (x - x0) (axis y) over a ring around the core; the flow along x of a vortex of
+   (axis x) or (x - x0) (axis y) over a ring from 1 to 2.5 core widths around the core; the flow along x of a vortex of
    circulation s is -s (y - y0)/r^2, so the sign is minus the sign of the first sum (plus for
    the second). Without a velocity image the signs are 0: unknown.
 
@@ -49,6 +53,13 @@ MIN_SCORE = 5.0
 _MAD_TO_SIGMA = 1.4826
 #: half-width of the closing window, in core widths
 CLOSING_HALF_WIDTH = 2.0
+#: rim of the fluid left out of the search (the closing is least reliable there), in core widths
+RIM = 0.5
+#: least depth of a candidate after the matched filter, as a fraction of the envelope: a
+#: noiseless image has no noise to set a threshold, and shallower dips are ripples of the optics
+MIN_DEPTH = 0.05
+#: outer radius of the ring the sign is read from, in core widths
+SIGN_RING = 2.5
 #: width of the matched filter, in core widths
 MATCHED = 0.5
 
@@ -115,15 +126,35 @@ def check_image(image, name: str = "image") -> np.ndarray:
     return arr
 
 
+def pixel_noise(values: np.ndarray, where: np.ndarray) -> float:
+    """Standard deviation of the pixel noise of an image, from its second differences.
+
+    The image is filtered with the 3 x 3 kernel [[1, -2, 1], [-2, 4, -2], [1, -2, 1]] (the
+    difference of two Laplacians), which cancels smooth structure up to second order and turns
+    white noise of deviation sigma into noise of deviation 6 sigma (its squared weights sum to
+    36): sigma = 1.4826 MAD / 6 over ``where`` (Immerkaer, Computer Vision and Image
+    Understanding 64, 300 (1996), with a median in place of his mean, against the cores).
+
+    Units: those of ``values``.
+    """
+    kernel = np.array([[1.0, -2.0, 1.0], [-2.0, 4.0, -2.0], [1.0, -2.0, 1.0]])
+    out = ndimage.convolve(values, kernel, mode="nearest")[where]
+    if out.size == 0:
+        return 0.0
+    return _MAD_TO_SIGMA * float(np.median(np.abs(out - np.median(out)))) / 6.0
+
+
 def envelope(image: np.ndarray, core_px: float) -> np.ndarray:
     """Cloud envelope with the cores filled: light smoothing, then a grey closing.
 
     Units: pixels; output in image counts.
     """
     smooth = ndimage.gaussian_filter(image, 0.5 * core_px, mode="nearest")
-    size = 2 * int(math.ceil(CLOSING_HALF_WIDTH * core_px)) + 1
-    return ndimage.minimum_filter(ndimage.maximum_filter(smooth, size, mode="nearest"), size,
-                                  mode="nearest")
+    h = math.ceil(CLOSING_HALF_WIDTH * core_px)
+    oy, ox = np.mgrid[-h:h + 1, -h:h + 1]
+    disk = ox * ox + oy * oy <= h * h + h      # round window: no corners at the cloud's edge
+    return ndimage.minimum_filter(ndimage.maximum_filter(smooth, footprint=disk, mode="nearest"),
+                                  footprint=disk, mode="nearest")
 
 
 def fluid_boundary(env: np.ndarray) -> tuple[Boundary, np.ndarray]:
@@ -141,7 +172,7 @@ def fluid_boundary(env: np.ndarray) -> tuple[Boundary, np.ndarray]:
 def _fit_dips(dep: np.ndarray, x0: np.ndarray, y0: np.ndarray, core_px: float,
               iterations: int = 8):
     """Damped Gauss-Newton fit of A exp(-r^2/2w^2) + c around each (x0, y0), vectorised."""
-    h = max(2, int(math.ceil(1.5 * core_px)))
+    h = max(2, math.ceil(1.5 * core_px))
     offs = np.arange(-h, h + 1)
     oy, ox = np.meshgrid(offs, offs, indexing="ij")
     ix, iy = np.rint(x0).astype(int), np.rint(y0).astype(int)
@@ -176,7 +207,7 @@ def _fit_dips(dep: np.ndarray, x0: np.ndarray, y0: np.ndarray, core_px: float,
 def _signs(bragg: np.ndarray, env: np.ndarray, x: np.ndarray, y: np.ndarray, axis: str,
            core_px: float) -> np.ndarray:
     """Sign of each core from the velocity-selective image (module docstring, step 5)."""
-    h = max(3, int(math.ceil(4.0 * core_px)))
+    h = max(3, math.ceil(SIGN_RING * core_px))
     offs = np.arange(-h, h + 1)
     oy, ox = np.meshgrid(offs, offs, indexing="ij")
     frac = np.where(env > 0, bragg / np.maximum(env, 1e-300), 0.0)
@@ -228,14 +259,14 @@ def find_cores(image, core_px: float, *, bragg=None, bragg_axis: str = "x",
     boundary, mask = fluid_boundary(env)
     dep = np.where(mask, 1.0 - img / np.maximum(env, 1e-300), 0.0)
     smooth = ndimage.gaussian_filter(dep, MATCHED * core_px, mode="constant")
-    inner = ndimage.binary_erosion(mask, iterations=max(1, int(round(0.5 * core_px))))
-    vals = smooth[mask]
-    level = float(np.median(vals))
-    noise = _MAD_TO_SIGMA * float(np.median(np.abs(vals - level)))
+    rim = round(RIM * core_px)     # iterations=0 would mean 'erode until nothing changes'
+    inner = ndimage.binary_erosion(mask, iterations=rim) if rim > 0 else mask
+    level = float(np.median(smooth[mask]))
+    noise = pixel_noise(dep, inner) / (2.0 * math.sqrt(math.pi) * MATCHED * core_px)
     score_map = (smooth - level) / max(noise, 1e-12)
-    size = 2 * int(math.ceil(core_px)) + 1
+    size = 2 * math.ceil(core_px) + 1
     peaks = (smooth == ndimage.maximum_filter(smooth, size, mode="constant")) & inner \
-        & (score_map > min_score)
+        & (score_map > min_score) & (smooth - level > MIN_DEPTH)
     iy, ix = np.nonzero(peaks)
     score = score_map[iy, ix]
     if ix.size == 0:

@@ -13,9 +13,9 @@ or read from a file by gpe.imaging.files), in pixels:
    contour of a hard wall sits about 1.25 xi inside the wall, close to the wall layer that
    gpe.run.gas takes off the trap radius).
 3. **Candidates**: the relative depletion d = 1 - image/envelope, smoothed with a Gaussian of
-   half the core width (a matched filter for a dip of that size), has local maxima inside the fluid;
-   candidates closer than half a core width to the fluid's edge are left out (the closing is
-   least reliable there); their **score** is the smoothed depletion (less its median over the
+   half the core width (a matched filter for a dip of that size), has local maxima inside the fluid
+   (d is computed out to where the envelope is a fifth of the bulk level, so that the dip of
+   a core next to the boundary is not cut in half); their **score** is the smoothed depletion (less its median over the
    fluid) over the noise the smoothing leaves of the pixel noise, sigma_pix / (2 sqrt(pi) s) for
    a Gaussian of s pixels; sigma_pix comes from second differences (:func:`pixel_noise`), which
    the cores themselves hardly affect, so a crowded image does not raise its own threshold.
@@ -53,8 +53,9 @@ MIN_SCORE = 5.0
 _MAD_TO_SIGMA = 1.4826
 #: half-width of the closing window, in core widths
 CLOSING_HALF_WIDTH = 2.0
-#: rim of the fluid left out of the search (the closing is least reliable there), in core widths
-RIM = 0.5
+#: the depletion is computed where the envelope exceeds this fraction of the bulk level, wider
+#: than the fluid (1/2), so that the dip of a core next to the boundary is not cut in half
+DEPLETION_FLOOR = 0.2
 #: least depth of a candidate after the matched filter, as a fraction of the envelope: a
 #: noiseless image has no noise to set a threshold, and shallower dips are ripples of the optics
 MIN_DEPTH = 0.05
@@ -257,15 +258,13 @@ def find_cores(image, core_px: float, *, bragg=None, bragg_axis: str = "x",
         raise ImagingError(f"bragg_axis = {bragg_axis!r}; accepted 'x' or 'y'")
     env = envelope(img, core_px)
     boundary, mask = fluid_boundary(env)
-    dep = np.where(mask, 1.0 - img / np.maximum(env, 1e-300), 0.0)
+    dep = np.where(env > DEPLETION_FLOOR * boundary.bulk, 1.0 - img / np.maximum(env, 1e-300), 0.0)
     smooth = ndimage.gaussian_filter(dep, MATCHED * core_px, mode="constant")
-    rim = round(RIM * core_px)     # iterations=0 would mean 'erode until nothing changes'
-    inner = ndimage.binary_erosion(mask, iterations=rim) if rim > 0 else mask
     level = float(np.median(smooth[mask]))
-    noise = pixel_noise(dep, inner) / (2.0 * math.sqrt(math.pi) * MATCHED * core_px)
+    noise = pixel_noise(dep, mask) / (2.0 * math.sqrt(math.pi) * MATCHED * core_px)
     score_map = (smooth - level) / max(noise, 1e-12)
     size = 2 * math.ceil(core_px) + 1
-    peaks = (smooth == ndimage.maximum_filter(smooth, size, mode="constant")) & inner \
+    peaks = (smooth == ndimage.maximum_filter(smooth, size, mode="constant")) & mask \
         & (score_map > min_score) & (smooth - level > MIN_DEPTH)
     iy, ix = np.nonzero(peaks)
     score = score_map[iy, ix]

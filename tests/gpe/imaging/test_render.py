@@ -49,7 +49,7 @@ def test_a_vortex_dip_is_the_core_profile_convolved_with_the_psf():
     n = img.density / img.counts_per_n0
     cols = np.arange(n.shape[1])
     x_xi = img.x0_xi + (cols + 0.5) * img.pixel_xi
-    row = int(round(-img.y0_xi / img.pixel_xi - 0.5))
+    row = round(-img.y0_xi / img.pixel_xi - 0.5)
     y_row = img.y0_xi + (row + 0.5) * img.pixel_xi
     near = np.abs(x_xi) < 5
     got = 1 - n[row, near]

@@ -21,6 +21,7 @@ Units: counts; pixel_um in um; core_px in pixels; t in the run's time unit.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -111,6 +112,19 @@ def write_stack(path, density, *, bragg=None, frame=None, t=None, truth=None,
     return path
 
 
+def _check_pixel(path: Path, pixel_um, where: str) -> None:
+    """A pixel size is None (not known) or a finite number > 0 um."""
+    if pixel_um is None:
+        return
+    try:
+        ok = math.isfinite(float(pixel_um)) and float(pixel_um) > 0
+    except (TypeError, ValueError):
+        ok = False
+    if not ok:
+        raise ImagingError(f"{path}: pixel size {pixel_um!r} ({where}); accepted a pixel side "
+                           "> 0 in micrometres (object plane), e.g. 0.5")
+
+
 def _read_picture(path: Path) -> np.ndarray:
     from PIL import Image, UnidentifiedImageError
 
@@ -150,6 +164,7 @@ def read_images(path, *, pixel_um: float | None = None) -> ImageStack:
     path = Path(path)
     if not path.exists():
         raise ImagingError(f"image file {path} does not exist")
+    _check_pixel(path, pixel_um, "pixel_um option")
     suffix = path.suffix.lower()
     if suffix in IMAGE_SUFFIXES:
         arr = _read_picture(path)
@@ -178,6 +193,7 @@ def read_images(path, *, pixel_um: float | None = None) -> ImageStack:
         frame = f["frame"][...] if "frame" in f else None
         t = f["t"][...] if "t" in f else None
     pix = pixel_um if pixel_um is not None else attrs.get("pixel_um")
+    _check_pixel(path, pix, "attribute pixel_um")
     core = attrs.get("core_px")
     return ImageStack(source=str(path), density=dens.astype(np.float64),
                       bragg=None if bragg is None else bragg.astype(np.float64),

@@ -184,8 +184,8 @@ def optics_and_pixels(density: np.ndarray, grid: Grid, psf_xi: float, pixel_xi: 
     transfer = (np.exp(-0.5 * (kx ** 2 + ky ** 2) * psf_xi ** 2)
                 * np.sinc(kx * pixel_xi / (2 * np.pi)) * np.sinc(ky * pixel_xi / (2 * np.pi)))
     smooth = np.real(np.fft.ifft2(np.fft.fft2(density) * transfer))
-    npx_x = int(math.floor(grid.length_x / pixel_xi + 1e-9))
-    npx_y = int(math.floor(grid.length_y / pixel_xi + 1e-9))
+    npx_x = math.floor(grid.length_x / pixel_xi + 1e-9)
+    npx_y = math.floor(grid.length_y / pixel_xi + 1e-9)
     if npx_x < 8 or npx_y < 8:
         raise ImagingError(f"pixel size {pixel_xi:g} xi leaves {npx_x} x {npx_y} pixels over the "
                            f"{grid.length_x:g} x {grid.length_y:g} xi field of view; accepted: "

@@ -77,3 +77,12 @@ def test_stacks_of_the_wrong_shape_and_other_bad_files_are_refused(tmp_path):
         read_images(tmp_path / "junk.png")
     with pytest.raises(ImagingError, match="does not exist"):
         read_images(tmp_path / "missing.h5")
+
+
+def test_a_pixel_size_of_zero_is_refused_naming_the_file(tmp_path):
+    write_image(tmp_path / "a.png", np.ones((16, 16)))
+    with pytest.raises(ImagingError, match=r"a.png: pixel size 0.0 .*accepted a pixel side > 0"):
+        read_images(tmp_path / "a.png", pixel_um=0.0)
+    write_stack(tmp_path / "z.h5", [np.ones((16, 16))], attrs={"pixel_um": 0.0})
+    with pytest.raises(ImagingError, match=r"z.h5: pixel size 0.0 \(attribute pixel_um\)"):
+        read_images(tmp_path / "z.h5")

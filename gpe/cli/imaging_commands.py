@@ -88,6 +88,9 @@ def register_find(sub) -> None:
                    help="least score (depletion over noise) of a detection (default 5)")
     p.add_argument("--calibrate", action="store_true",
                    help="measure the detection model against the stack's true vortices")
+    p.add_argument("--model", type=Path, metavar="DETECTION.json",
+                   help="put this detection model's [imaging] table (from an earlier "
+                        "--calibrate with the same camera settings) into the geometry TOML")
     p.add_argument("--force", action="store_true", help="overwrite existing outputs")
     p.set_defaults(handler=_cmd_find)
 
@@ -95,7 +98,8 @@ def register_find(sub) -> None:
 def _cmd_find(args) -> int:
     from gpe.imaging.files import read_images
     from gpe.imaging.finder import MIN_SCORE
-    from gpe.imaging.pipeline import calibrate_stack, find_all, find_stack
+    from gpe.errors import VorthermError
+    from gpe.imaging.pipeline import calibrate_stack, find_all, find_stack, read_detection_model
 
     csv = args.csv or args.images.with_name(args.images.stem + "_vortices.csv")
     outs = [(csv, "choose another file with --csv"),
@@ -103,7 +107,12 @@ def _cmd_find(args) -> int:
     model_path = csv.with_name(csv.stem + "_detection.json")
     if args.calibrate:
         outs.append((model_path, "choose another file with --csv"))
-    refuse_to_overwrite(outs, inputs=[args.images], force=args.force)
+    if args.calibrate and args.model is not None:
+        raise VorthermError("--calibrate and --model: give one (--calibrate measures the model "
+                            "on this stack, --model reuses one measured before)")
+    refuse_to_overwrite(outs, inputs=[args.images] + ([args.model] if args.model else []),
+                        force=args.force)
+    imaging = read_detection_model(args.model) if args.model is not None else None
     stack = read_images(args.images, pixel_um=args.pixel_um)
     score = MIN_SCORE if args.min_score is None else args.min_score
     found = find_all(stack, core_px=args.core_px, min_score=score)
@@ -112,7 +121,7 @@ def _cmd_find(args) -> int:
         model = calibrate_stack(stack, core_px=args.core_px, min_score=score, found=found)
         model.write(model_path)
     csv_path, toml_path = find_stack(stack, csv, core_px=args.core_px, min_score=score,
-                                     model=model, found=found)
+                                     model=model, imaging_um=imaging, found=found)
     n = sum(len(f) for f in found)
     unknown = sum(int((f.sign == 0).sum()) for f in found)
     print(f"{n} vortices in {len(found)} images -> {csv_path} (pixels), geometry {toml_path}")

@@ -10,7 +10,9 @@
   table from a detection model when one is given): what ``vortherm temperature`` reads.
   Rows of unknown sign get an empty sign field: the table reader lists them, it never drops
   them silently.
-* :func:`calibrate_stack`: the detection model of a stack that carries the true vortices.
+* :func:`calibrate_stack`: the detection model of a stack that carries the true vortices;
+  :func:`read_detection_model` reads its ``[imaging]`` numbers back, for the tables of real
+  images taken with the same camera settings.
 
 The expected width of a core's dip, which the finder needs, is computed from the camera
 (:func:`expected_core_px`): a Gaussian of rms width sigma0 = 1 xi for the in-situ core (the
@@ -33,8 +35,11 @@ from gpe.imaging.files import ImageStack, write_image, write_stack
 from gpe.imaging.finder import MIN_SCORE, Found, find_cores
 from gpe.imaging.render import Camera, ImagingError, render_frame
 from gpe.run.gas import CORE_RADIUS_XI
+from gpe.run.jsontext import loads_strict
 from gpe.run.runfile import RunFile
 from gpe.setup.units import HealingUnits
+from thermo.data.geometry import check_imaging
+from thermo.errors import MeasuredTableError
 
 #: rms width of an in-situ core's dip, in xi (see the module docstring)
 CORE_SIGMA_XI = 1.0
@@ -140,6 +145,25 @@ def calibrate_stack(stack: ImageStack, *, core_px: float | None = None,
                      match_px=max(1.0, _core_px(stack, core_px)))
 
 
+def read_detection_model(path) -> dict:
+    """The ``[imaging]`` table (um) of a detection model file written by
+    :meth:`gpe.imaging.calibrate.DetectionModel.write`, checked as a geometry file's table."""
+    path = Path(path)
+    try:
+        data = loads_strict(path.read_text(encoding="utf-8"))
+        table = data["imaging_um"]
+    except FileNotFoundError:
+        raise ImagingError(f"detection model {path} does not exist") from None
+    except (ValueError, KeyError, TypeError) as exc:
+        raise ImagingError(f"{path}: not a detection model (accepted: the JSON file written by "
+                           f"`vortherm find --calibrate`, with an 'imaging_um' table; {exc})"
+                           ) from None
+    try:
+        return check_imaging(table, f"{path}: imaging_um")
+    except MeasuredTableError as exc:
+        raise ImagingError(str(exc)) from None
+
+
 def _toml_value(v) -> str:
     if isinstance(v, str):
         return '"' + v.replace("\\", "\\\\").replace('"', '\\"') + '"'
@@ -150,11 +174,18 @@ def _toml_value(v) -> str:
 
 def find_stack(stack: ImageStack, out_csv, *, core_px: float | None = None,
                min_score: float = MIN_SCORE, model: DetectionModel | None = None,
+               imaging_um: dict | None = None,
                found: list[Found] | None = None) -> tuple[Path, Path]:
     """Measured table (CSV, pixels) and its geometry TOML from a stack (module docstring).
 
+    The TOML's ``[imaging]`` table comes from ``model`` (measured on this stack) or from
+    ``imaging_um`` (e.g. :func:`read_detection_model` of a calibration of the same camera).
     Returns (csv path, toml path). Units: pixels in the table, um in the TOML.
     """
+    if model is not None and imaging_um is not None:
+        raise ImagingError("give a detection model or an [imaging] table, not both")
+    if model is not None:
+        imaging_um = model.imaging_um()
     if stack.pixel_um is None:
         raise ImagingError(f"{stack.source}: no pixel size in the file; give pixel_um "
                            "(um per pixel in the object plane, > 0)")
@@ -178,9 +209,9 @@ def find_stack(stack: ImageStack, out_csv, *, core_px: float | None = None,
         geometry["core_um"] = CORE_RADIUS_XI * float(xi_um)
     toml = ["# geometry of the table beside it, from the fluid boundary of the images",
             *(f"{k} = {_toml_value(v)}" for k, v in geometry.items())]
-    if model is not None:
+    if imaging_um is not None:
         toml += ["", "# measured detection model (gpe.imaging.calibrate)", "[imaging]",
-                 *(f"{k} = {_toml_value(v)}" for k, v in model.imaging_um().items())]
+                 *(f"{k} = {_toml_value(v)}" for k, v in imaging_um.items())]
     tmp_csv = out_csv.with_name(out_csv.name + ".part")
     tmp_csv.write_text("\n".join(lines) + "\n", encoding="utf-8")
     toml_path = out_csv.with_suffix(".toml")

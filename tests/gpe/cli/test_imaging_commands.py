@@ -41,6 +41,11 @@ def test_image_then_find_with_calibration_writes_the_table_its_geometry_and_the_
     assert main(["find", str(tmp_path / "s_00002.png"), "--csv", str(tmp_path / "p.csv"),
                  "--pixel-um", "0.4", "--core-px", str(images.core_px)]) == 0
     assert "6 vortices in 1 images" in capsys.readouterr().out
+    # the model measured above, reused for the picture's table
+    assert main(["find", str(tmp_path / "s_00002.png"), "--csv", str(tmp_path / "q.csv"),
+                 "--pixel-um", "0.4", "--core-px", str(images.core_px),
+                 "--model", str(tmp_path / "t_detection.json")]) == 0
+    assert read_geometry_file(tmp_path / "q.toml")["imaging"] == geometry["imaging"]
 
 
 def test_wrong_inputs_exit_with_code_2_naming_what_is_wrong(run, tmp_path, capsys):
@@ -56,3 +61,7 @@ def test_wrong_inputs_exit_with_code_2_naming_what_is_wrong(run, tmp_path, capsy
     Image.fromarray(np.full((16, 16), 100, np.uint16)).save(tmp_path / "nopix.png")
     assert main(["find", str(tmp_path / "nopix.png"), "--core-px", "2"]) == 2
     assert "no pixel size" in capsys.readouterr().err
+    (tmp_path / "bad.json").write_text('{"imaging_um": {"blur_um": -1}}')
+    assert main(["find", str(tmp_path / "nopix.png"), "--pixel-um", "0.4", "--core-px", "2",
+                 "--model", str(tmp_path / "bad.json")]) == 2
+    assert "bad.json" in capsys.readouterr().err

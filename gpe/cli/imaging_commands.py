@@ -133,4 +133,6 @@ def _cmd_find(args) -> int:
               f"{model.false_per_image:.2f} false per image): blur {im['blur_um']:.3f} um, "
               f"edge loss {im['edge_loss_um']:.2f} um, resolution {im['resolution_um']:.2f} um, "
               f"sign error {im['sign_error']:.3f} -> {model_path}")
+        for note in model.notes():
+            print(f"note: {note}")
     return 0

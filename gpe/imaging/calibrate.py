@@ -68,11 +68,28 @@ class DetectionModel:
                 "sign_error": float(min(self.sign_error, 0.49)
                                     if math.isfinite(self.sign_error) else 0.0)}
 
+    def notes(self) -> list[str]:
+        """What the step model of :meth:`imaging_um` cannot represent, in words (may be empty)."""
+        out = []
+        for name, eff in (("distance to the wall", self.wall_efficiency),
+                          ("pair separation", self.sep_efficiency)):
+            e = np.array([np.nan if v is None else v for v in eff], dtype=float)
+            if np.isfinite(e).any() and np.nanmax(e) < 0.5:
+                out.append(f"the efficiency stays below 1/2 at every {name} measured: the "
+                           "imaging loses most vortices everywhere, which the thermometry's "
+                           "imaging model (edge loss, resolution, blur, sign errors) cannot "
+                           "represent; improve the resolution or the signal")
+        if self.false_per_image >= 1.0:
+            out.append(f"{self.false_per_image:.2f} false detections per image: the thermometry "
+                       "does not model false positives; raise the least score")
+        return out
+
     def write(self, path) -> Path:
         """Write the model as strict JSON (curves and the [imaging] numbers; NaN as null)."""
         path = Path(path)
         data = asdict(self)
         data["imaging_um"] = self.imaging_um()
+        data["notes"] = self.notes()
         path.write_text(dumps_strict(data, indent=1) + "\n", encoding="utf-8")
         return path
 

@@ -48,7 +48,7 @@ def _synthetic(rng, n_images=60, blur_px=0.3, wall_cut_px=4.0, flip=0.1, false=2
         seen = 40 - r > wall_cut_px
         det = xy[seen] + rng.normal(0, blur_px, (int(seen.sum()), 2))
         sg = np.where(rng.random(int(seen.sum())) < flip, -s[seen], s[seen])
-        extra = np.array([[200.0 + 10 * k, 200.0] for k in range(false)])  # far from all truth
+        extra = np.array([[200.0 + 10 * k, 200.0] for k in range(false)]).reshape(-1, 2)
         x = np.r_[det[:, 0], extra[:, 0]]
         y = np.r_[det[:, 1], extra[:, 1]]
         k = len(x)
@@ -73,6 +73,9 @@ def test_calibration_recovers_the_rule_the_detections_were_made_with(rng):
     assert im["sign_error"] == pytest.approx(0.1, abs=0.05)
     assert model.false_per_image == 2.0                          # [exact] as constructed
     check_imaging(im, "model")                                   # a valid [imaging] table
+    assert any("false detections" in n for n in model.notes())    # 2 per image, not modelled
+    lost = calibrate(*_synthetic(rng, wall_cut_px=60.0, false=0), pixel_um=0.5, match_px=2.0)
+    assert any("below 1/2 at every distance to the wall" in n for n in lost.notes())
 
 
 def test_calibration_needs_detections_and_truth_for_the_same_images():

@@ -47,6 +47,7 @@ def register_image(sub) -> None:
 
 
 def _cmd_image(args) -> int:
+    from gpe.cli.progress import counter
     from gpe.imaging.pipeline import render_run
     from gpe.imaging.render import Camera
     from gpe.run.reading import select_frames
@@ -61,8 +62,9 @@ def _cmd_image(args) -> int:
     with RunFile.open(args.run) as run:
         n = run.n_frames
     frames = select_frames(args.run, parse_frames(args.frames), n)
-    render_run(args.run, out, camera, frames=frames, seed=args.seed,
-               picture_format=args.pictures)
+    with counter("images", "frames") as bar:
+        render_run(args.run, out, camera, frames=frames, seed=args.seed,
+                   picture_format=args.pictures, progress=bar)
     print(f"{len(frames)} images written to {out}"
           + (f" (and {args.pictures} pictures beside it)" if args.pictures else ""))
     return 0

@@ -2,7 +2,9 @@
 
 * :func:`render_run`: chosen frames of a run rendered (gpe.imaging.render), written as an HDF5
   stack with the imaging parameters and the run's own vortices in pixel coordinates
-  (gpe.imaging.files), optionally one 16-bit PNG/TIFF per frame beside it.
+  (gpe.imaging.files), optionally one 16-bit PNG/TIFF per frame beside it. The stack is
+  written under a temporary name and renamed when complete: a rendering that dies leaves no
+  partial stack under the final name (rendering is cheap next to the run: start it again).
 * :func:`find_stack`: the finder (gpe.imaging.finder) on every image of a stack; the
   detections as a measured table (``shot, x, y, sign`` in pixels; ``weight`` = score), and
   beside it the geometry TOML (shape disk, the boundary radius in um, ``pixel_um``,
@@ -31,7 +33,7 @@ from pathlib import Path
 import numpy as np
 
 from gpe.imaging.calibrate import DetectionModel, calibrate
-from gpe.imaging.files import ImageStack, write_image, write_stack
+from gpe.imaging.files import ImageStack, to_uint16, write_image, write_stack
 from gpe.imaging.finder import MIN_SCORE, Found, find_cores
 from gpe.imaging.render import Camera, ImagingError, render_frame
 from gpe.run.gas import CORE_RADIUS_XI
@@ -78,9 +80,10 @@ def render_run(run_path, out_path, camera: Camera, *, frames=None, seed: int = 0
         all_t = run.frame_times()
         for i, f in enumerate(chosen):
             ren = render_frame(run.psi(f), grid, units, camera, rng)
-            dens.append(ren.density)
+            # 16 bits at once: a long run's stack stays a quarter of its float size in memory
+            dens.append(to_uint16(ren.density, f"{out_path}: frame {f}"))
             if ren.bragg is not None:
-                brag.append(ren.bragg)
+                brag.append(to_uint16(ren.bragg, f"{out_path}: velocity image of frame {f}"))
             times.append(float(all_t[f]))
             rows = table[table["frame"] == f]
             px, py = ren.to_pixels(rows["x"], rows["y"])

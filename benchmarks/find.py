@@ -15,11 +15,11 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # run from a checkout
 
-from gpe.field.grid import Grid  # noqa: E402
-from gpe.imaging.finder import find_cores  # noqa: E402
-from gpe.imaging.pipeline import expected_core_px  # noqa: E402
-from gpe.imaging.render import Camera, render_frame  # noqa: E402
-from gpe.setup.units import HealingUnits  # noqa: E402
+from gpe.field.grid import Grid
+from gpe.imaging.finder import find_cores
+from gpe.imaging.pipeline import expected_core_px
+from gpe.imaging.render import Camera, render_frame
+from gpe.setup.units import HealingUnits
 
 UNITS = HealingUnits(mass_kg=1.4431608971788639e-25, mu_J=2.761298e-31,
                      g2d_Jm2=6.018684450476965e-45)   # 87Rb, mu = 20 nK, f_z = 1 kHz

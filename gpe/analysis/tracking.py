@@ -19,12 +19,12 @@ from gpe.analysis.vortices import check_vortex_table
 from gpe.errors import VorthermError
 
 __all__ = [
-    "EVENT_DTYPE",
     "ANNIHILATION",
     "CREATION",
-    "track_vortices",
+    "EVENT_DTYPE",
     "find_events",
     "match_points",
+    "track_vortices",
 ]
 
 ANNIHILATION = -1
@@ -198,7 +198,7 @@ def find_events(tracked: np.ndarray, frame_times=None, *, max_speed: float = 1.0
         return np.empty(0, dtype=EVENT_DTYPE)
     order = np.lexsort((tracked["frame"], tracked["track"]))
     tab = tracked[order]
-    ids, first = np.unique(tab["track"], return_index=True)
+    _, first = np.unique(tab["track"], return_index=True)
     last = np.r_[first[1:], tab.size] - 1
     pos = np.column_stack([tab["x"], tab["y"]])
 

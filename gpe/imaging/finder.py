@@ -4,9 +4,10 @@
 or read from a file by gpe.imaging.files), in pixels:
 
 1. **Envelope**: the image, lightly smoothed (Gaussian, ``core_px / 2``) against shot noise, is
-   closed (grey dilation then erosion, round window of radius 2 core widths): a closing fills dips
-   narrower than its window (the cores) and leaves the edge of the cloud where it is, unlike
-   a plain smoothing that would draw false dips along the edge.
+   closed (grey dilation then erosion, near-round octagonal window of half-width 2 core
+   widths): a closing fills dips narrower than its window (the cores) and leaves the edge of
+   the cloud where it is, unlike a plain smoothing that would draw false dips along the edge
+   (and, the window being near round, draws no corners there either).
 2. **Fluid boundary**: the bulk level is the median of the envelope where it exceeds half its
    maximum; the fluid is where the envelope exceeds half the bulk level. Its centroid is the
    centre, and the radius of the disk of the same area the boundary radius (the half-density
@@ -152,10 +153,23 @@ def envelope(image: np.ndarray, core_px: float) -> np.ndarray:
     """
     smooth = ndimage.gaussian_filter(image, 0.5 * core_px, mode="nearest")
     h = math.ceil(CLOSING_HALF_WIDTH * core_px)
-    oy, ox = np.mgrid[-h:h + 1, -h:h + 1]
-    disk = ox * ox + oy * oy <= h * h + h      # round window: no corners at the cloud's edge
-    return ndimage.minimum_filter(ndimage.maximum_filter(smooth, footprint=disk, mode="nearest"),
-                                  footprint=disk, mode="nearest")
+    return _octagon_filter(_octagon_filter(smooth, h, ndimage.maximum_filter), h,
+                           ndimage.minimum_filter)
+
+
+_CROSS = np.array([[False, True, False], [True, True, True], [False, True, False]])
+
+
+def _octagon_filter(values: np.ndarray, h: int, extremum) -> np.ndarray:
+    """Max (or min) filter over an octagon of half-width h: a square of half-width ~0.6 h
+    (separable, cheap) followed by a diamond of radius ~0.4 h (repeated 3 x 3 crosses). Close to
+    round (diagonal reach 1.13 h against the square's 1.41 h), so the closing draws no corners
+    at the cloud's edge, at a fraction of the cost of a disk-shaped window."""
+    a = max(1, round(0.6 * h))
+    out = extremum(values, size=2 * a + 1, mode="nearest")
+    for _ in range(h - a):
+        out = extremum(out, footprint=_CROSS, mode="nearest")
+    return out
 
 
 def fluid_boundary(env: np.ndarray) -> tuple[Boundary, np.ndarray]:

@@ -19,11 +19,12 @@ from gpe.analysis.vortices import check_vortex_table
 from gpe.errors import VorthermError
 
 __all__ = [
-    "EVENT_DTYPE",
     "ANNIHILATION",
     "CREATION",
-    "track_vortices",
+    "EVENT_DTYPE",
     "find_events",
+    "match_points",
+    "track_vortices",
 ]
 
 ANNIHILATION = -1
@@ -128,17 +129,33 @@ def track_vortices(table: np.ndarray, frame_times=None, *, max_speed: float = 1.
     return out
 
 
-def _pair_ends(ends_plus, ends_minus, pos, limit):
-    """Optimal +/- pairing of track ends closer than limit. Returns list of (i_plus, i_minus)."""
-    if not (len(ends_plus) and len(ends_minus)):
-        return []
-    pp = pos[ends_plus]
-    pm = pos[ends_minus]
-    d = np.hypot(pp[:, None, 0] - pm[None, :, 0], pp[:, None, 1] - pm[None, :, 1])
+def match_points(a, b, limit: float) -> tuple[np.ndarray, np.ndarray]:
+    """Optimal one-to-one matching of points ``a`` (N, 2) to ``b`` (M, 2) closer than ``limit``.
+
+    ``scipy.optimize.linear_sum_assignment`` with cost = distance, links longer than ``limit``
+    forbidden (they cost more than any set of allowed ones, so the assignment first maximises
+    the number of allowed links, then minimises their total length). Returns the indices
+    (ia, ib) of the matched pairs. Used for track ends here and for detections against true
+    vortices (gpe.imaging.calibrate).
+
+    Units: any length, the same for a, b and limit.
+    """
+    a = np.asarray(a, dtype=np.float64).reshape(-1, 2)
+    b = np.asarray(b, dtype=np.float64).reshape(-1, 2)
+    if not (len(a) and len(b)):
+        return np.zeros(0, np.int64), np.zeros(0, np.int64)
+    d = np.hypot(a[:, None, 0] - b[None, :, 0], a[:, None, 1] - b[None, :, 1])
     forbidden = d > limit
     cost = np.where(forbidden, 1.0 + d.size * limit * 4.0, d)
     rows, cols = linear_sum_assignment(cost)
-    return [(ends_plus[r], ends_minus[c]) for r, c in zip(rows, cols) if not forbidden[r, c]]
+    good = ~forbidden[rows, cols]
+    return rows[good].astype(np.int64), cols[good].astype(np.int64)
+
+
+def _pair_ends(ends_plus, ends_minus, pos, limit):
+    """Optimal +/- pairing of track ends closer than limit. Returns list of (i_plus, i_minus)."""
+    rows, cols = match_points(pos[ends_plus], pos[ends_minus], limit)
+    return [(ends_plus[r], ends_minus[c]) for r, c in zip(rows, cols)]
 
 
 def find_events(tracked: np.ndarray, frame_times=None, *, max_speed: float = 1.0,
@@ -181,7 +198,7 @@ def find_events(tracked: np.ndarray, frame_times=None, *, max_speed: float = 1.0
         return np.empty(0, dtype=EVENT_DTYPE)
     order = np.lexsort((tracked["frame"], tracked["track"]))
     tab = tracked[order]
-    ids, first = np.unique(tab["track"], return_index=True)
+    _, first = np.unique(tab["track"], return_index=True)
     last = np.r_[first[1:], tab.size] - 1
     pos = np.column_stack([tab["x"], tab["y"]])
 

@@ -10,6 +10,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from gpe.cli.args import add_command, parse_frames, parse_seeds
+from gpe.cli.imaging_commands import register_find, register_image
 from gpe.cli.thermo_commands import (
     register_compare,
     register_temperature,
@@ -355,5 +356,5 @@ def _cmd_describe(args) -> int:
 
 
 REGISTRY = [_register_init, _register_schema, _register_run, _register_vortices, _register_plot,
-            register_temperature, register_compare, _register_sweep, _register_demo,
-            _register_describe]
+            register_temperature, register_compare, register_image, register_find,
+            _register_sweep, _register_demo, _register_describe]

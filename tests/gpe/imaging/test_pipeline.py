@@ -1,0 +1,161 @@
+"""Run file -> images -> finder -> measured table, against the run's own vortices."""
+
+import math
+import warnings
+
+import numpy as np
+import pytest
+
+from gpe.imaging.calibrate import match_image
+from gpe.imaging.files import read_images
+from gpe.imaging.pipeline import (
+    calibrate_stack,
+    expected_core_px,
+    find_all,
+    find_stack,
+    render_run,
+    stack_truth,
+)
+from gpe.imaging.render import Camera, ImagingError
+from gpe.run.runfile import RunFile
+from gpe.setup.units import HealingUnits
+from imprint_run import simulate_imprint_run
+from thermo.data.measured import read_measured
+
+GOOD = Camera(pixel_um=0.4, psf_um=0.3, counts_per_n0=400.0, bragg_axis="x")
+
+
+@pytest.fixture(scope="module")
+def run(tmp_path_factory):
+    """16 vortices imprinted out to 18.5 xi of a 20 xi disk, relaxed and moving (1-2 s)."""
+    folder = tmp_path_factory.mktemp("imaging")
+    return simulate_imprint_run(folder, n=16, placement_radius=18.5, min_sep=3.5,
+                                duration=10.0)
+
+
+@pytest.fixture(scope="module")
+def stack(run):
+    path = run.with_name("good_images.h5")
+    render_run(run, path, GOOD, seed=1)
+    return read_images(path)
+
+
+def test_the_finder_finds_the_runs_vortices_away_from_the_wall_within_half_a_pixel(run, stack):
+    """The run's phase-winding vortices are the truth. At 0.4 um pixels and a 0.3 um PSF, of the
+    vortices further than 4 xi from the trap wall at least 95% are found within 0.5 pixel, of
+    those further than 2 xi at least 80% (the dip of a core in the wall's depleted layer is
+    lopsided), with fewer than 1 false detection per image and every sign right."""
+    found = find_all(stack)
+    with RunFile.open(run) as r:
+        xi_um = HealingUnits.from_dict(r.units()).length_m * 1e6
+    wall_d, err, signs_ok = [], [], []
+    false = 0
+    for fd, (xy, sg) in zip(found, stack_truth(stack)):
+        i_f, i_t = match_image(fd, xy, stack.core_px)
+        x_um = (xy[:, 0] + 0.5) * GOOD.pixel_um + stack.attrs["x0_um"]
+        y_um = (xy[:, 1] + 0.5) * GOOD.pixel_um + stack.attrs["y0_um"]
+        wall_d.append(20.0 - np.hypot(x_um, y_um) / xi_um)
+        e = np.full(len(xy), np.inf)
+        e[i_t] = np.hypot(fd.x[i_f] - xy[i_t, 0], fd.y[i_f] - xy[i_t, 1])
+        err.append(e)
+        signs_ok.append(fd.sign[i_f] == sg[i_t])
+        false += len(fd) - len(i_f)
+    wall_d, err = np.concatenate(wall_d), np.concatenate(err)
+    far4, far2 = wall_d > 4.0, wall_d > 2.0
+    assert far4.sum() >= 40 and far2.sum() > far4.sum()      # both bands are populated
+    assert np.mean(err[far4] < 0.5) >= 0.95
+    assert np.mean(err[far2] < 0.5) >= 0.80
+    assert false / len(found) < 1.0
+    assert np.concatenate(signs_ok).all()
+
+
+def test_the_table_reads_as_a_measured_table_with_the_runs_geometry(run, stack, tmp_path):
+    """The CSV and its TOML are what thermo.data.measured reads: one shot per frame, positions in
+    the disk, the radius within 2% of the run's point-vortex domain (R - 1 xi wall layer, the
+    half-density contour of a hard wall is 1.25 xi inside it) and the centre the trap's."""
+    model = calibrate_stack(stack)
+    csv, toml = find_stack(stack, tmp_path / "t.csv", model=model)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")                       # no row left out
+        table = read_measured(csv)
+    with RunFile.open(run) as r:
+        xi_um = HealingUnits.from_dict(r.units()).length_m * 1e6
+    assert table.geometry.radius_um == pytest.approx(19.0 * xi_um, rel=0.02)
+    assert len(table.shots) == len(stack)
+    n_true = np.bincount(stack.truth["image"], minlength=len(stack))
+    assert abs(table.n_vortices.sum() - n_true.sum()) <= 0.1 * n_true.sum()
+    im = table.geometry.imaging_model()
+    assert im is not None and im.blur == pytest.approx(
+        model.blur_um / table.geometry.length_scale_um)
+    cx, cy = (-stack.attrs["x0_um"] / GOOD.pixel_um - 0.5, -stack.attrs["y0_um"] / GOOD.pixel_um - 0.5)
+    assert tuple(table.geometry.imaging_um) and "center_px" in toml.read_text()
+    centre = [float(v) for v in toml.read_text().split("center_px = [")[1].split("]")[0].split(",")]
+    assert centre == pytest.approx([cx, cy], abs=0.3)
+
+
+def test_unknown_signs_are_written_empty_and_reported_by_the_reader(run, tmp_path):
+    path = tmp_path / "nosign.h5"
+    render_run(run, path, Camera(pixel_um=0.4, psf_um=0.3, counts_per_n0=400.0), frames=[0, 1],
+               seed=2)
+    csv, _ = find_stack(read_images(path), tmp_path / "n.csv")
+    with pytest.warns(UserWarning, match="missing sign"):
+        table = read_measured(csv)
+    assert table.n_vortices.sum() == 0 and len(table.problems) > 10
+
+
+def test_expected_core_width_follows_the_free_expansion_of_a_gaussian():
+    """[exact] sigma(t)^2 = sigma0^2 + (hbar t / m sigma0)^2 with sigma0 = 1 xi, plus the PSF in
+    quadrature; 1 ms is 1/0.38191 hbar/mu for these units."""
+    units = HealingUnits(mass_kg=1.4431608971788639e-25, mu_J=2.761298e-31,
+                         g2d_Jm2=6.018684450476965e-45)
+    um = units.length_m * 1e6
+    cam = Camera(pixel_um=0.5, psf_um=0.4, tof_ms=1.0)
+    t = 1e-3 / units.time_s
+    assert expected_core_px(cam, units) == pytest.approx(
+        math.sqrt(1 + t ** 2 + (0.4 / um) ** 2) * um / 0.5, rel=1e-12)
+
+
+def test_bad_requests_are_refused(run, tmp_path):
+    with pytest.raises(ImagingError, match="picture format"):
+        render_run(run, tmp_path / "a.h5", GOOD, picture_format="jpeg")
+    with pytest.raises(ImagingError, match="no frames chosen"):
+        render_run(run, tmp_path / "a.h5", GOOD, frames=[])
+    stack = read_images(run.with_name("good_images.h5"))
+    stack.truth = None
+    with pytest.raises(ImagingError, match="no 'truth' table"):
+        calibrate_stack(stack)
+
+
+@pytest.mark.slow
+def test_round_trip_run_images_table_temperature_gives_the_runs_own_beta(tmp_path):
+    """Simulated run (8 vortices, 6 frames: the thermometry through an imaging model builds its
+    densities of states at standard effort, ~4 s per vortex-number group) -> rendered images ->
+    finder -> measured table with the detection model measured on the same stack ->
+    temperature. The run's own beta~N (gpe.run.thermometry on its phase-winding vortices) lies
+    inside the table's combined interval: its 95% statistical interval widened, in quadrature,
+    by the imaging systematic (the shift of beta~N between the table fitted through its
+    measured imaging model and fitted as if imaging were perfect)."""
+    from gpe.run.thermometry import temperature_of_run, temperature_of_table
+
+    run = simulate_imprint_run(tmp_path, n=8, placement_radius=16.0, min_sep=4.0,
+                               duration=10.0)
+    images = tmp_path / "rt_images.h5"
+    render_run(run, images, GOOD, seed=1)
+    stack = read_images(images)
+    model = calibrate_stack(stack)
+    csv, _ = find_stack(stack, tmp_path / "rt.csv", model=model)
+    own = temperature_of_run(run, per_frame=False, systematics=False)["ensemble"]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")              # the reader's notes on left-out rows
+        measured = temperature_of_table(csv, systematics=False)["ensemble"]
+        perfect = temperature_of_table(csv, systematics=False,
+                                       imaging_um={k: 0.0 for k in model.imaging_um()}
+                                       )["ensemble"]
+    b = measured["beta_n"]
+    lo, hi = measured["beta_n_ci95"]
+    shift = abs(b - perfect["beta_n"])
+    low, high = b - math.hypot(b - lo, shift), b + math.hypot(hi - b, shift)
+    print(f"run beta~N {own['beta_n']:.3f}; table {b:.3f}, combined [{low:.3f}, {high:.3f}]")
+    assert measured["n_shots"] == len(stack)
+    assert measured["groups"] == [{"n_plus": 4, "n_minus": 4, "shots": len(stack)}]
+    assert low <= own["beta_n"] <= high

@@ -14,19 +14,24 @@ or read from a file by gpe.imaging.files), in pixels:
    contour of a hard wall sits about 1.25 xi inside the wall, close to the wall layer that
    gpe.run.gas takes off the trap radius).
 3. **Candidates**: the relative depletion d = 1 - image/envelope, smoothed with a Gaussian of
-   half the core width (a matched filter for a dip of that size), has local maxima inside the fluid
-   (d is computed out to where the envelope is a fifth of the bulk level, so that the dip of
-   a core next to the boundary is not cut in half); their **score** is the smoothed depletion (less its median over the
+   half the core width (a matched filter for a dip of that size), has local maxima where the
+   envelope exceeds ``CANDIDATE_FLOOR`` = 0.4 of the bulk level (a little beyond the fluid's
+   half-density contour, where the maximum of a core next to the wall can lie; d is computed
+   out to where the envelope is a fifth of the bulk level, so that the dip of a core next to
+   the boundary is not cut in half); their **score** is the smoothed depletion (less its median over the
    fluid) over the noise the smoothing leaves of the pixel noise, sigma_pix / (2 sqrt(pi) s) for
    a Gaussian of s pixels; sigma_pix comes from second differences (:func:`pixel_noise`), which
    the cores themselves hardly affect, so a crowded image does not raise its own threshold.
    A candidate also needs a filtered depth of at least ``MIN_DEPTH`` = 5% of the envelope.
-4. **Sub-pixel position**: a Gaussian dip ``A exp(-r^2/2w^2) + c`` is fitted to d in a window
-   around each candidate (a few damped Gauss-Newton steps, all candidates at once). The
-   position of a symmetric dip does not depend on the exact shape of its profile, so a
-   Gaussian stands in for the core profile convolved with the optics. Fits that leave the
-   window or give a width outside [0.3, 3] core widths keep the candidate's pixel position and
-   are flagged.
+4. **Sub-pixel position**: the ratio image/envelope is fitted, in a window of half-width 2
+   core widths around each candidate, with a Gaussian dip on a plane,
+   ``(c0 + c1 u + c2 v)(1 - A exp(-r^2/2w^2))`` (a few damped Gauss-Newton steps, all
+   candidates at once). The plane takes up what the closing gets wrong next to the wall (its
+   fill level at a core there is set by the low rim on the wall side, which would pull a plain
+   dip fit away from the wall by up to half a pixel). The position of a symmetric dip does not
+   depend on the exact shape of its profile, so a Gaussian stands in for the core profile
+   convolved with the optics. Fits that leave the window or give a width outside [0.3, 3]
+   core widths keep the candidate's pixel position and are flagged.
 5. **Signs** from a velocity-selective image when one is given (gpe.imaging.render's channel):
    the selected fraction b = bragg/envelope minus its local mean is weighed with (y - y0)
    (axis x) or (x - x0) (axis y) over a ring from 1 to 2.5 core widths around the core; the flow along x of a vortex of
@@ -60,6 +65,12 @@ DEPLETION_FLOOR = 0.2
 #: least depth of a candidate after the matched filter, as a fraction of the envelope: a
 #: noiseless image has no noise to set a threshold, and shallower dips are ripples of the optics
 MIN_DEPTH = 0.05
+#: candidates are looked for where the envelope exceeds this fraction of the bulk level, a little
+#: beyond the fluid (1/2): the closing's envelope dips at a core next to the wall, and the
+#: depletion's maximum of such a core can lie just outside the half-density contour
+CANDIDATE_FLOOR = 0.4
+#: half-width of the window of the sub-pixel fit, in core widths
+FIT_HALF_WIDTH = 2.0
 #: outer radius of the ring the sign is read from, in core widths
 SIGN_RING = 2.5
 #: width of the matched filter, in core widths
@@ -184,34 +195,51 @@ def fluid_boundary(env: np.ndarray) -> tuple[Boundary, np.ndarray]:
                     radius_px=float(math.sqrt(mask.sum() / math.pi)), bulk=bulk), mask
 
 
-def _fit_dips(dep: np.ndarray, x0: np.ndarray, y0: np.ndarray, core_px: float,
-              iterations: int = 8):
-    """Damped Gauss-Newton fit of A exp(-r^2/2w^2) + c around each (x0, y0), vectorised."""
-    h = max(2, math.ceil(1.5 * core_px))
+def _windows(values: np.ndarray, ix: np.ndarray, iy: np.ndarray, h: int) -> np.ndarray:
+    """(K, (2h+1)^2) windows of ``values`` centred on the pixels (ix, iy), zero outside."""
     offs = np.arange(-h, h + 1)
     oy, ox = np.meshgrid(offs, offs, indexing="ij")
+    padded = np.pad(values, h, mode="constant")
+    return padded[iy[:, None, None] + h + oy[None], ix[:, None, None] + h + ox[None]].reshape(
+        len(ix), -1)
+
+
+def _fit_dips(ratio: np.ndarray, inside: np.ndarray, x0: np.ndarray, y0: np.ndarray,
+              core_px: float, iterations: int = 10):
+    """Damped Gauss-Newton fit of (c0 + c1 u + c2 v)(1 - A exp(-r^2/2w^2)) around each (x0, y0).
+
+    ``ratio`` is image / envelope, fitted where ``inside`` (the envelope above
+    DEPLETION_FLOOR of the bulk); (u, v) are the offsets from the window's centre pixel. The
+    plane is what the closing's envelope gets wrong near the wall (its fill level is set by the
+    low rim on the wall side), so a dip there is not pulled away from the wall. All candidates
+    at once. Returns the parameters (A, x, y, w, c0, c1, c2) and the fits that succeeded.
+
+    Units: pixels.
+    """
+    h = max(2, math.ceil(FIT_HALF_WIDTH * core_px))
+    offs = np.arange(-h, h + 1)
+    oy, ox = (o.reshape(1, -1).astype(float) for o in np.meshgrid(offs, offs, indexing="ij"))
     ix, iy = np.rint(x0).astype(int), np.rint(y0).astype(int)
-    padded = np.pad(dep, h, mode="constant")
-    win = padded[iy[:, None, None] + h + oy[None], ix[:, None, None] + h + ox[None]]
-    win = win.reshape(len(ix), -1)
-    gx = (ix[:, None] + ox.reshape(1, -1)).astype(float)
-    gy = (iy[:, None] + oy.reshape(1, -1)).astype(float)
-    p = np.stack([win.max(axis=1) - np.median(win, axis=1), x0.astype(float), y0.astype(float),
-                  np.full(len(ix), core_px), np.median(win, axis=1)], axis=1)
+    win = _windows(ratio, ix, iy, h)
+    wt = _windows(inside.astype(float), ix, iy, h)
+    gx, gy = ix[:, None] + ox, iy[:, None] + oy
+    k = len(ix)
+    p = np.zeros((k, 7))
+    p[:, 0], p[:, 1], p[:, 2], p[:, 3], p[:, 4] = 0.5, x0, y0, core_px, 1.0
     lam = 1e-2
     for _ in range(iterations):
-        a, xc, yc, w, c = p.T
-        dx, dy = gx - xc[:, None], gy - yc[:, None]
-        g = np.exp(-(dx * dx + dy * dy) / (2 * w[:, None] ** 2))
-        r = win - (a[:, None] * g + c[:, None])
-        jac = np.stack([g, a[:, None] * g * dx / w[:, None] ** 2,
-                        a[:, None] * g * dy / w[:, None] ** 2,
-                        a[:, None] * g * (dx * dx + dy * dy) / w[:, None] ** 3,
-                        np.ones_like(g)], axis=2)
+        a, xc, yc, w, c0, c1, c2 = (c[:, None] for c in p.T)
+        dx, dy = gx - xc, gy - yc
+        g = np.exp(-(dx * dx + dy * dy) / (2 * w * w))
+        back, dip = c0 + c1 * ox + c2 * oy, 1.0 - a * g
+        r = (win - back * dip) * wt
+        bag = back * a * g
+        jac = np.stack([-back * g, -bag * dx / w ** 2, -bag * dy / w ** 2,
+                        -bag * (dx * dx + dy * dy) / w ** 3, dip, dip * ox, dip * oy],
+                       axis=2) * wt[..., None]
         jtj = np.einsum("kni,knj->kij", jac, jac)
-        jtj += lam * np.eye(5)[None] * np.maximum(np.einsum("kii->ki", jtj), 1e-12)[:, None, :]
-        step = np.linalg.solve(jtj, np.einsum("kni,kn->ki", jac, r)[..., None])[..., 0]
-        p = p + step
+        jtj += lam * np.eye(7)[None] * np.maximum(np.einsum("kii->ki", jtj), 1e-12)[:, None, :]
+        p = p + np.linalg.solve(jtj, np.einsum("kni,kn->ki", jac, r)[..., None])[..., 0]
         p[:, 3] = np.clip(np.abs(p[:, 3]), 0.1 * core_px, 10 * core_px)
     ok = ((np.abs(p[:, 1] - x0) < 0.5 * h) & (np.abs(p[:, 2] - y0) < 0.5 * h)
           & (p[:, 3] > 0.3 * core_px) & (p[:, 3] < 3.0 * core_px) & (p[:, 0] > 0)
@@ -278,7 +306,8 @@ def find_cores(image, core_px: float, *, bragg=None, bragg_axis: str = "x",
     noise = pixel_noise(dep, mask) / (2.0 * math.sqrt(math.pi) * MATCHED * core_px)
     score_map = (smooth - level) / max(noise, 1e-12)
     size = 2 * math.ceil(core_px) + 1
-    peaks = (smooth == ndimage.maximum_filter(smooth, size, mode="constant")) & mask \
+    peaks = (smooth == ndimage.maximum_filter(smooth, size, mode="constant")) \
+        & (env > CANDIDATE_FLOOR * boundary.bulk) \
         & (score_map > min_score) & (smooth - level > MIN_DEPTH)
     iy, ix = np.nonzero(peaks)
     score = score_map[iy, ix]
@@ -294,7 +323,9 @@ def find_cores(image, core_px: float, *, bragg=None, bragg_axis: str = "x",
     sx = np.where(ddx < 0, -0.5 * (sp[iy + 1, ix + 2] - sp[iy + 1, ix]) / np.where(ddx < 0, ddx, -1), 0)
     sy = np.where(ddy < 0, -0.5 * (sp[iy + 2, ix + 1] - sp[iy, ix + 1]) / np.where(ddy < 0, ddy, -1), 0)
     x0, y0 = ix + np.clip(sx, -0.5, 0.5), iy + np.clip(sy, -0.5, 0.5)
-    p, ok = _fit_dips(dep, x0, y0, core_px)
+    inside = env > DEPLETION_FLOOR * boundary.bulk
+    p, ok = _fit_dips(np.where(inside, img / np.maximum(env, 1e-300), 0.0), inside, x0, y0,
+                      core_px)
     x = np.where(ok, p[:, 1], x0)
     y = np.where(ok, p[:, 2], y0)
     sign = (np.zeros(x.size, np.int8) if bragg is None

@@ -41,10 +41,11 @@ def stack(run):
 
 
 def test_the_finder_finds_the_runs_vortices_away_from_the_wall_within_half_a_pixel(run, stack):
-    """The run's phase-winding vortices are the truth. At 0.4 um pixels and a 0.3 um PSF, of the
-    vortices further than 4 xi from the trap wall at least 95% are found within 0.5 pixel, of
-    those further than 2 xi at least 80% (the dip of a core in the wall's depleted layer is
-    lopsided), with fewer than 1 false detection per image and every sign right."""
+    """The run's phase-winding vortices are the truth. At 0.4 um pixels and a 0.3 um PSF, the
+    issue's numbers: of the vortices further than 2 xi from the trap wall at least 95% are
+    found within 0.5 pixel, with fewer than 1 false detection per image (the thresholds are the
+    issue's, common practice for a finder at good resolution); every sign right. A core 2-3.5 xi
+    from the wall merges with the wall's depleted layer, so this band is the hard part."""
     found = find_all(stack)
     with RunFile.open(run) as r:
         xi_um = HealingUnits.from_dict(r.units()).length_m * 1e6
@@ -62,9 +63,8 @@ def test_the_finder_finds_the_runs_vortices_away_from_the_wall_within_half_a_pix
         false += len(fd) - len(i_f)
     wall_d, err = np.concatenate(wall_d), np.concatenate(err)
     far4, far2 = wall_d > 4.0, wall_d > 2.0
-    assert far4.sum() >= 40 and far2.sum() > far4.sum()      # both bands are populated
-    assert np.mean(err[far4] < 0.5) >= 0.95
-    assert np.mean(err[far2] < 0.5) >= 0.80
+    assert far4.sum() >= 40 and far2.sum() - far4.sum() >= 20   # both bands are populated
+    assert np.mean(err[far2] < 0.5) >= 0.95
     assert false / len(found) < 1.0
     assert np.concatenate(signs_ok).all()
 

@@ -204,23 +204,6 @@ class Annulus(Domain):
         return DomainKernels(annulus_self, annulus_pair, annulus_wall_distance,
                              pair_sum_move_change, params)
 
-    def hole_energy(self, pos, signs) -> np.ndarray:
-        """Cross energy -2 n sum_i s_i ln|u_i| of the vortices with the hole's circulation.
-
-        Parameters
-        ----------
-        pos : array_like, shape (..., N, 2)
-        signs : array_like of int, shape (N,)
-
-        Returns
-        -------
-        numpy.ndarray, shape (...)
-            Units: E0.
-        """
-        p = as_points(pos, "pos")
-        ln_r = 0.5 * np.log(p[..., 0] ** 2 + p[..., 1] ** 2)
-        return -2.0 * self.hole_winding * np.sum(np.asarray(signs) * ln_r, axis=-1)
-
     def distance_to_wall(self, pos) -> np.ndarray:
         """Distance min(1 - |u|, |u| - q) to the nearer circle (negative outside). Units: R."""
         p = as_points(pos, "pos")

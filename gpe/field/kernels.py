@@ -344,6 +344,16 @@ def multiply(psi, factor):
             psi[j, i] = psi[j, i] * factor[j, i]
 
 
+@njit(cache=True, error_model="numpy", fastmath=_FASTMATH)
+def add_mode_noise(psi_k, rows, cols, normals, amplitude):
+    """``psi_k[rows[m], cols[m]] += amplitude * (normals[0, m] + i normals[1, m])``, in place.
+
+    The thermal noise of the projected modes (gpe.field.stochastic).  Units: those of psi_k.
+    """
+    for m in range(rows.shape[0]):
+        psi_k[rows[m], cols[m]] += amplitude * complex(normals[0, m], normals[1, m])
+
+
 @njit(cache=True, error_model="numpy", parallel=True, fastmath=_FASTMATH)
 def multiply_and_norm(psi_k, factor, half_factor):
     """``psi_k *= factor`` and return ``sum |half_factor * psi_k|^2`` of the input.

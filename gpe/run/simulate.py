@@ -156,7 +156,13 @@ def simulate(protocol, out_path, *, resume: bool = False,
         run.truncate_to_frame(frame0)
         logger.info("%s: resuming from the checkpoint at frame %d, t = %.6g hbar/mu (step %d)",
                     out_path, frame0, t0, step0)
-        solver = _make_solver(protocol, v_static, beams, mu_run, psi0, t0, step0, threads)
+        if protocol.evolution.temperature > 0 and ck.rng_state is None:
+            run.close()
+            raise RunFileError(f"{out_path}: the checkpoint holds no noise generator state, "
+                               "which a finite-temperature run needs to resume; start it "
+                               "again with --force")
+        solver = _make_solver(protocol, v_static, beams, mu_run, psi0, t0, step0, threads,
+                              rng=ck.rng())
     else:
         v_static = protocol.build_trap()
         region = protocol.trap.detection_region(v_static)
@@ -177,7 +183,7 @@ def simulate(protocol, out_path, *, resume: bool = False,
                                                                    "ground_state_steps": gs.steps})
         t0, step0, frame0 = 0.0, 0, 0
         _write_frame(run, protocol, psi0, 0.0, v_static, beams, grid, region, frame=0)
-        run.write_checkpoint(psi0, 0.0, 0, 1)
+        run.write_checkpoint(psi0, 0.0, 0, 1, rng=solver.rng)
         run.close()
         tmp.replace(out_path)
         run = RunFile.open(out_path, "r+")
@@ -198,7 +204,8 @@ def simulate(protocol, out_path, *, resume: bool = False,
             done = solver.step_count >= ev.n_steps
             if (done or since_ck >= ev.checkpoint_every_outputs
                     or time.monotonic() - last_ck_wall >= ev.checkpoint_every_s):
-                run.write_checkpoint(solver.psi, solver.t, solver.step_count, frame)
+                run.write_checkpoint(solver.psi, solver.t, solver.step_count, frame,
+                                     rng=solver.rng)
                 since_ck, last_ck_wall = 0, time.monotonic()
                 logger.debug("%s: checkpoint at frame %d, step %d", out_path, frame,
                              solver.step_count)
@@ -236,11 +243,26 @@ def _stored_trap(run, protocol) -> np.ndarray:
     return v_static
 
 
-def _make_solver(protocol, v_static, beams, mu_run, psi0, t0, step0, threads):
+def thermal_noise_rng(seed: int) -> np.random.Generator:
+    """The generator of a run's thermal noise: its own stream of the protocol's seed.
+
+    ``SeedSequence(seed, spawn_key=(1,))``, independent of the ground-state noise, which is
+    drawn from ``default_rng(seed)``.
+    """
+    return np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(1,)))
+
+
+def _make_solver(protocol, v_static, beams, mu_run, psi0, t0, step0, threads, rng=None):
+    """The run's solver; ``rng`` (a checkpoint's generator) continues the thermal noise."""
     ev = protocol.evolution
     settings = SolverSettings(dt=ev.dt, gamma=ev.gamma, mu=mu_run, g=1.0,
-                              precision=ev.precision, threads=threads, fft_planning=ev.fft_planning)
-    return Solver(protocol.grid, v_static, beams, settings, psi0, t0=t0, step0=step0)
+                              precision=ev.precision, threads=threads, fft_planning=ev.fft_planning,
+                              temperature=ev.temperature, cutoff=ev.cutoff,
+                              norm_per_atom=protocol.units.coupling)
+    if settings.stochastic and rng is None:
+        rng = thermal_noise_rng(ev.seed)
+    return Solver(protocol.grid, v_static, beams, settings, psi0, t0=t0, step0=step0,
+                  rng=rng if settings.stochastic else None)
 
 
 def _write_frame(run, protocol, psi, t, v_static, beams, grid, region, frame) -> np.ndarray:

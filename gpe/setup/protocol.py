@@ -36,6 +36,7 @@ from gpe.field.beams import (
     array_offsets,
 )
 from gpe.field.grid import Grid
+from gpe.field.stochastic import largest_cutoff
 from gpe.field.traps.base import Trap, trap_shapes
 from gpe.setup.practice import check_practice
 from gpe.setup.schema import (
@@ -45,7 +46,13 @@ from gpe.setup.schema import (
     describe,
     describe_value,
 )
-from gpe.setup.units import BOHR_RADIUS_M, HealingUnits, get_species, quasi2d_coupling
+from gpe.setup.units import (
+    BOHR_RADIUS_M,
+    HealingUnits,
+    get_species,
+    quasi2d_coupling,
+    thermal_damping,
+)
 
 
 # ------------------------------------------------------------------------------------------
@@ -86,7 +93,12 @@ class GroundStateConfig:
 
 @dataclass(frozen=True)
 class EvolutionConfig:
-    """Real-time evolution settings. Units: times in hbar/mu; gamma dimensionless; seconds of wall time."""
+    """Real-time evolution settings. Units: times in hbar/mu; gamma dimensionless; seconds of wall time.
+
+    ``temperature`` (k_B T in mu) > 0 runs the stochastic projected GPE with the projector
+    energy ``cutoff`` (mu); ``gamma_source`` says whether gamma was "given" ([evolution]
+    damping) or "computed" from T and mu (:func:`gpe.setup.units.thermal_damping`).
+    """
 
     duration: float = field(metadata={"dim": "time"})
     dt: float = field(metadata={"dim": "time"})
@@ -97,6 +109,9 @@ class EvolutionConfig:
     checkpoint_every_outputs: int
     checkpoint_every_s: float
     fft_planning: str = "reproducible"
+    temperature: float = field(default=0.0, metadata={"dim": "energy"})
+    cutoff: float | None = field(default=None, metadata={"dim": "energy"})
+    gamma_source: str = "given"
 
     @property
     def steps_per_output(self) -> int:
@@ -256,7 +271,48 @@ def _resolve_grid(sec: Section, trap: Trap) -> Grid:
     return grid
 
 
-def _resolve_settings(gs: Section, imprints: list[Section], ev: Section) -> tuple:
+def _resolve_thermal(ev: Section, grid: Grid, units: HealingUnits, mass_kg: float,
+                     a_s_m: float) -> dict[str, Any]:
+    """Temperature, projector cutoff and gamma of [evolution] (the finite-temperature stage).
+
+    gamma is the given damping, or at T > 0 without one the high-temperature expression
+    (:func:`gpe.setup.units.thermal_damping`) at the unit mu (the Thomas-Fermi value).
+    Units: temperature, cutoff in mu.
+    """
+    temperature = ev.get("temperature")
+    gamma = ev.get("damping")
+    if temperature == 0:
+        if ev.has("cutoff"):
+            ev.fail("cutoff", "is given but the temperature is 0: the projector belongs to the "
+                    "finite-temperature stage, and a run at T = 0 is the deterministic one",
+                    "a temperature_nK > 0 with it, or no cutoff")
+        return {"temperature": 0.0, "cutoff": None, "gamma": gamma, "gamma_source": "given"}
+    if not ev.has("cutoff"):
+        ev.fail("cutoff", "missing: needed with temperature > 0 (the energy of the projector "
+                "onto the classical-field modes)", "cutoff_mu, typically 2 to 3 (common practice)")
+    cutoff, limit = ev.get("cutoff"), largest_cutoff(grid)
+    if cutoff > limit:
+        ev.fail("cutoff", f"{cutoff:.4g} mu is above the grid's k_max^2/2 = {limit:.4g} mu "
+                f"(k_max = pi/dx = {math.sqrt(2 * limit):.4g} 1/xi)",
+                f"a cutoff <= {limit:.4g} mu, or a finer grid")
+    if cutoff <= 1.0:
+        ev.fail("cutoff", f"{cutoff:.4g} mu is not above the chemical potential (1 mu): the "
+                "projected modes must hold the condensate", "cutoff_mu > 1, typically 2 to 3")
+    if ev.has("damping"):
+        if gamma == 0:
+            ev.fail("damping", "is 0 with temperature > 0: the noise strength 2 gamma k_B T "
+                    "would vanish", "damping > 0, or leave damping out to compute gamma from "
+                    "T and mu")
+        return {"temperature": temperature, "cutoff": cutoff, "gamma": gamma,
+                "gamma_source": "given"}
+    gamma = float(thermal_damping(temperature * units.temperature_K, units.mu_J,
+                                  cutoff * units.mu_J, mass_kg, a_s_m))
+    return {"temperature": temperature, "cutoff": cutoff, "gamma": gamma,
+            "gamma_source": "computed"}
+
+
+def _resolve_settings(gs: Section, imprints: list[Section], ev: Section,
+                      thermal: dict[str, Any]) -> tuple:
     ground = GroundStateConfig(
         dt=gs.get("dt"), mu_tolerance=gs.get("mu_tolerance"), energy_tolerance=gs.get("energy_tolerance"),
         max_steps=gs.get("max_steps"), fixed=gs.get("fixed"), noise_amplitude=gs.get("noise_amplitude"),
@@ -274,10 +330,11 @@ def _resolve_settings(gs: Section, imprints: list[Section], ev: Section) -> tupl
         ev.fail("damping", f"gamma = {ev.get('damping')} is not < 1", "a dimensionless gamma in [0, 1), "
                 "typically 1e-4 to 3e-2")
     evolution = EvolutionConfig(
-        duration=duration, dt=dt, output_interval=interval, gamma=ev.get("damping"),
+        duration=duration, dt=dt, output_interval=interval, gamma=thermal["gamma"],
         precision=ev.get("precision"), seed=ev.get("seed"),
         checkpoint_every_outputs=ev.get("checkpoint_every_outputs"), checkpoint_every_s=ev.get("checkpoint_every_s"),
-        fft_planning=ev.get("fft_planning"))
+        fft_planning=ev.get("fft_planning"), temperature=thermal["temperature"],
+        cutoff=thermal["cutoff"], gamma_source=thermal["gamma_source"])
     return ground, evolution
 
 
@@ -406,7 +463,8 @@ def parse_protocol(text: str, source: str = "<protocol>", overrides: Sequence[st
                             g2d_Jm2=g2d, chemical_potential_J=mu, number=number,
                             number_given=atoms.has("number"), norm=units.norm_for(number))
     grid = _resolve_grid(grid_sec, trap)
-    ground, evolution = _resolve_settings(gs, imprints, ev)
+    thermal = _resolve_thermal(ev, grid, units, species.mass_kg, a_s)
+    ground, evolution = _resolve_settings(gs, imprints, ev, thermal)
     beams = tuple(_resolve_beam(*secs) for secs in beam_secs)
     protocol = Protocol(source_name=source, source_text=text, overrides=tuple(overrides),
                         name=top.get("name") or Path(source).stem, description=top.get("description"),

@@ -36,6 +36,7 @@ SUFFIXES = {
     "length": {"SI": ("um", "xi"), "healing": ("xi",)},
     "time": {"SI": ("ms", "tau"), "healing": ("tau",)},
     "energy": {"SI": ("mu", "nK"), "healing": ("mu",)},
+    "temperature": {"SI": ("nK", "mu"), "healing": ("nK", "mu")},   # k_B T; nK in both systems
     "speed": {"SI": ("um_per_ms", "c"), "healing": ("c",)},
     "rate": {"SI": ("hz", "rad_per_ms", "rad_per_tau"), "healing": ("rad_per_tau",)},
     "angle": {"SI": ("deg", "rad"), "healing": ("deg", "rad")},
@@ -121,7 +122,10 @@ SCHEMA: dict[str, dict[str, Spec]] = {
                   "seed": Spec(I, default=0, check="nonneg"),
                   "checkpoint_every_outputs": Spec(I, default=10, check="positive"),
                   "checkpoint_every_s": Spec(F, default=600.0, check="positive"),
-                  "fft_planning": Spec(S, default="reproducible", choices=("reproducible", "measured"))},
+                  "fft_planning": Spec(S, default="reproducible", choices=("reproducible", "measured")),
+                  # -- finite temperature: the stochastic projected GPE (gpe/field/stochastic.py) --
+                  "temperature": Spec(F, "temperature", default=0.0, check="nonneg"),
+                  "cutoff": Spec(F, "energy", check="positive")},
     "beams": {"waist": Spec(F, "length", True, check="positive"),
               "height": Spec(F, "energy", True, check="nonzero"),
               "switch_on_time": Spec(F, "time", default=0.0, check="nonneg"),

@@ -68,6 +68,32 @@ def test_interrupted_run_resumes_to_the_same_file(tmp_path):
         np.testing.assert_array_equal(a.read_vortices(), b.read_vortices())
 
 
+@pytest.mark.slow
+def test_a_finite_temperature_run_resumes_bit_for_bit(tmp_path):
+    """The thermal noise generator is part of the checkpoint: an interrupted stochastic run
+    resumes to the same file (N+M steps == N steps, reopen, M steps)."""
+    text = tiny_protocol_text(duration=6.0).replace(
+        "damping = 0.01\n", "damping = 0.01\ntemperature_nK = 20.0\ncutoff_mu = 2.5\n")
+    protocol = parse_protocol(text, source=str(tmp_path / "warm.toml"))
+    whole = pipeline.simulate(protocol, tmp_path / "whole.h5")
+
+    def stop_after_frame_3(progress):
+        if progress.steps >= 3 * 20:
+            raise _Stop
+
+    part = tmp_path / "part.h5"
+    with pytest.raises(_Stop):
+        pipeline.simulate(protocol, part, progress=stop_after_frame_3)
+    pipeline.simulate_resume(part)
+    cold = pipeline.simulate(parse_protocol(tiny_protocol_text(duration=6.0)), tmp_path / "cold.h5")
+    with RunFile.open(whole, "r") as a, RunFile.open(part, "r") as b, RunFile.open(cold, "r") as c:
+        assert len(a.frame_times()) == 7
+        for i in range(len(a.frame_times())):
+            np.testing.assert_array_equal(a.psi(i), b.psi(i))
+        # the noise did act: the warm run's last frame is not the deterministic one
+        assert not np.allclose(a.psi(6), c.psi(6), atol=1e-3)
+
+
 def test_resuming_with_another_protocol_is_refused(tmp_path):
     """A run file keeps the protocol it was started with; continuing it with an edited one would
     join two runs in one file (frame k old, frame k+1 new)."""

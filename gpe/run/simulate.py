@@ -9,7 +9,9 @@ Units: simulation units throughout (xi, hbar/mu, mu); SI only in the summary tex
 
 from __future__ import annotations
 
+import json
 import logging
+import math
 import time
 import warnings
 from dataclasses import dataclass
@@ -17,16 +19,19 @@ from pathlib import Path
 from typing import Callable
 
 import numpy as np
+import scipy.constants as const
 
 from gpe.analysis import diagnostics
 from gpe.analysis.tracking import track_vortices
 from gpe.analysis.vortices import VORTEX_DTYPE, find_vortices
-from gpe.errors import RunFileError
+from gpe.errors import ProtocolWarning, RunFileError
 from gpe.field.ground_state import find_ground_state
 from gpe.field.solver import Solver, SolverSettings
 from gpe.run.memory import check_memory
 from gpe.run.reading import is_complete, protocol_of
 from gpe.run.runfile import RunFile
+from gpe.setup.schema import in_solved_mu
+from gpe.setup.units import axial_swelling
 
 logger = logging.getLogger(__name__)
 
@@ -173,14 +178,17 @@ def simulate(protocol, out_path, *, resume: bool = False,
                           f"after {gs.steps} steps (mu = {gs.mu:.6g}); raise "
                           "ground_state.max_steps or dt", stacklevel=2)
         mu_run = gs.mu
+        _warn_axial_swelling(protocol, mu_run)
         # the solver checks the time step against the potential: fail before writing a file
         solver = _make_solver(protocol, v_static, beams, mu_run, psi0, 0.0, 0, threads)
         out_path.parent.mkdir(parents=True, exist_ok=True)
         tmp = out_path.with_name(out_path.name + ".part")
         tmp.unlink(missing_ok=True)  # left by a run killed before its first checkpoint
         run = RunFile.create(tmp, protocol=protocol, static_potential=v_static,
-                             ground_state_psi=gs.psi, extra_attrs={"mu_run": mu_run,
-                                                                   "ground_state_steps": gs.steps})
+                             ground_state_psi=gs.psi, extra_attrs={
+                                 "mu_run": mu_run, "ground_state_steps": gs.steps,
+                                 "protocol_solved_mu_json": json.dumps(
+                                     in_solved_mu(protocol.to_dict(), mu_run))})
         t0, step0, frame0 = 0.0, 0, 0
         _write_frame(run, protocol, psi0, 0.0, v_static, beams, grid, region, frame=0)
         run.write_checkpoint(psi0, 0.0, 0, 1, rng=solver.rng)
@@ -221,6 +229,25 @@ def simulate(protocol, out_path, *, resume: bool = False,
     finally:
         run.close()
     return out_path
+
+
+#: mu / (hbar omega_z) above which the axial swelling is worth a warning (~8% wider at 0.34,
+#: gpe.setup.units.axial_swelling; the threshold is common practice for "quasi-2D").
+AXIAL_WARNING_RATIO = 0.3
+
+
+def _warn_axial_swelling(protocol, mu_run: float) -> None:
+    """Warn when the solved mu is not small against hbar omega_z, with the swelling estimate."""
+    hbar_omega_z = const.hbar * 2 * math.pi * protocol.atoms.axial_frequency_hz
+    ratio = mu_run * protocol.units.mu_J / hbar_omega_z
+    if ratio > AXIAL_WARNING_RATIO:
+        s = axial_swelling(ratio)
+        warnings.warn(ProtocolWarning(
+            f"{protocol.source_name}: the solved mu = {mu_run:.4g} mu is {ratio:.3g} hbar omega_z "
+            f"(above ~{AXIAL_WARNING_RATIO}): a Gaussian variational estimate puts the axial "
+            f"width at {s:.3f} l_z ({100 * (s - 1):.1f}% swelling), so the quasi-2D coupling "
+            f"g2D (frozen axial ground state) is ~{100 * (1 - 1 / s):.1f}% too strong; a higher "
+            "axial frequency or fewer atoms keep the gas quasi-2D"), stacklevel=3)
 
 
 def _stored_trap(run, protocol) -> np.ndarray:

@@ -366,6 +366,35 @@ def describe_value(name: str, value: Any, dim: str, u: HealingUnits) -> dict:
             f"{name}_{SI_OUT[dim]}": (np.asarray(value, dtype=float) * si).tolist()}
 
 
+#: Power of mu_solved/mu by which a value in each healing unit is divided when it is expressed
+#: in the solved mu's own units (xi ~ mu^-1/2, hbar/mu ~ mu^-1, c ~ mu^1/2).
+_SOLVED_POWERS = {"xi": -0.5, "tau": -1.0, "mu": 1.0, "c": 0.5, "rad_per_tau": 1.0}
+
+
+def in_solved_mu(described: dict, ratio: float) -> dict:
+    """The healing-unit values of a described protocol (``Protocol.to_dict()``) re-expressed in
+    the units of the solved chemical potential mu_s = ratio * mu (lengths in xi_s, times in
+    hbar/mu_s, energies in mu_s, speeds in c_s); SI values and unitless entries are left out.
+
+    Units: ratio = mu_s / mu, dimensionless; the keys keep their healing suffixes, now meaning
+    the solved units.
+    """
+    out: dict = {}
+    for key, value in described.items():
+        if isinstance(value, dict):
+            sub = in_solved_mu(value, ratio)
+            if sub:
+                out[key] = sub
+        elif isinstance(value, list) and value and all(isinstance(v, dict) for v in value):
+            out[key] = [in_solved_mu(v, ratio) for v in value]
+        elif value is not None and not isinstance(value, (str, bool)):
+            suffix = next((s for s in sorted(_SOLVED_POWERS, key=len, reverse=True)
+                           if key.endswith("_" + s)), None)
+            if suffix is not None:
+                out[key] = (np.asarray(value, dtype=float) / ratio ** _SOLVED_POWERS[suffix]).tolist()
+    return out
+
+
 def describe(obj: Any, u: HealingUnits) -> dict:
     out: dict[str, Any] = {"type": type(obj).__name__}
     for f in dataclasses.fields(obj):

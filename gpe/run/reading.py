@@ -153,8 +153,8 @@ def _solved_mu_lines(protocol, mu_solved: float) -> list[str]:
     if not (math.isfinite(mu_solved) and mu_solved > 0):
         return []
     c_s = math.sqrt(mu_solved)            # c ~ sqrt(mu): the sound speed of the solved mu
-    lines = [f"  in the solved mu_s = {mu_solved:.5g} mu (c_s = {c_s:.5g} c, xi_s = "
-             f"{1 / c_s:.5g} xi; the run file's protocol_solved_mu_json holds every quantity):"]
+    lines = [(f"  in the solved mu_s = {mu_solved:.5g} mu (c_s = {c_s:.5g} c, xi_s = "
+              f"{1 / c_s:.5g} xi; the run file's protocol_solved_mu_json holds every quantity):")]
     for i, beam in enumerate(protocol.beams):
         lines.append(f"    beam {i}: height {beam.height / mu_solved:.4g} mu_s, top speed "
                      f"{beam.path.max_speed / c_s:.4g} c_s, waist {beam.waist * c_s:.4g} xi_s")

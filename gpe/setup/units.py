@@ -178,11 +178,11 @@ def axial_swelling(mu_over_hbar_omega_z: float) -> float:
     r"""Gaussian variational estimate of the axial width of a quasi-2D gas, in units of l_z.
 
     With a Gaussian axial profile of width :math:`s\,l_z` the energy per atom is
-    :math:`	frac{\hbar\omega_z}{4}(s^{-2} + s^2) + \mu/(2s)`, :math:`\mu = g_{2D} n` the 2D
+    :math:`\tfrac{\hbar\omega_z}{4}(s^{-2} + s^2) + \mu/(2s)`, :math:`\mu = g_{2D} n` the 2D
     chemical potential at s = 1 (the 2D coupling scales as 1/s).  Its minimum solves
     :math:`s^4 - 1 = (\mu/\hbar\omega_z)\,s` (Gaussian variational ansatz as in Perez-Garcia,
     Michinel, Cirac, Lewenstein & Zoller, PRA 56, 1424 (1997), for the method; derivation
-    here), so :math:`s pprox 1 + \mu/(4\hbar\omega_z)` for a thin gas; the quasi-2D coupling
+    here), so :math:`s \approx 1 + \mu/(4\hbar\omega_z)` for a thin gas; the quasi-2D coupling
     of :func:`quasi2d_coupling` is then too large by the factor s.
 
     Units: mu / (hbar omega_z) dimensionless; returns s dimensionless (>= 1).
@@ -212,13 +212,12 @@ def thermal_damping(temperature_K: float, mu_J: float, cutoff_J: float, mass_kg:
     (Bradley, Gardiner & Davis, PRA 77, 033616 (2008); used by Rooney, Bradley & Blakie,
     PRA 81, 023630 (2010); the formula is written here from memory):
 
-    .. math:: \gamma = rac{8 a_s^2}{\lambda_{dB}^2} \sum_{j=1}^{\infty}
-              rac{e^{eta\mu(j+1)}}{e^{2eta\epsilon_{cut} j}}\,
-              \Phi\!\left[e^{eta(\mu - 2\epsilon_{cut})}, 1, j
-ight]^2,
+    .. math:: \gamma = \frac{8 a_s^2}{\lambda_{dB}^2} \sum_{j=1}^{\infty}
+              \frac{e^{\beta\mu(j+1)}}{e^{2\beta\epsilon_{cut} j}}\,
+              \Phi\!\left[e^{\beta(\mu - 2\epsilon_{cut})}, 1, j\right]^2,
 
     :math:`\Phi(z, 1, j) = \sum_{m \ge 0} z^m/(m + j)` the Lerch transcendent.  With
-    :math:`z = e^{eta(\mu - 2\epsilon_{cut})} < 1` the j-th term is :math:`e^{eta\mu} z^j
+    :math:`z = e^{\beta(\mu - 2\epsilon_{cut})} < 1` the j-th term is :math:`e^{\beta\mu} z^j
     \Phi(z, 1, j)^2`, so both sums converge geometrically; they are summed until the terms
     fall below 1e-17 of the total.  The expression is that of a 3D thermal reservoir; it is
     used as is for the quasi-2D gas (common practice).

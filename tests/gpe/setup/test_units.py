@@ -137,7 +137,7 @@ def test_thermal_damping_matches_the_integral_form_of_the_lerch_transcendent():
     for temperature, cutoff in ((100e-9, 2.5 * mu), (40e-9, 3.0 * mu)):
         beta = 1 / (sc.k * temperature)
         z = math.exp(beta * (mu - 2 * cutoff))
-        lerch = [integrate.quad(lambda t, j=j: math.exp(-j * t) / (1 - z * math.exp(-t)),
+        lerch = [integrate.quad(lambda t, j=j, z=z: math.exp(-j * t) / (1 - z * math.exp(-t)),
                                 0, math.inf, epsabs=0, epsrel=1e-12)[0] for j in range(1, 80)]
         total = sum(math.exp(beta * mu * (j + 1) - 2 * beta * cutoff * j) * phi**2
                     for j, phi in enumerate(lerch, start=1))
@@ -160,7 +160,7 @@ def test_axial_swelling_is_the_gaussian_variational_minimum():
     scipy's bounded scalar minimiser; thin-gas limit s = 1 + x/4 + O(x^2)."""
     from scipy.optimize import minimize_scalar
     for x in (0.05, 0.34, 1.0):
-        best = minimize_scalar(lambda s: (s**-2 + s**2) / 4 + x / (2 * s), bounds=(0.5, 3.0),
+        best = minimize_scalar(lambda s, x=x: (s**-2 + s**2) / 4 + x / (2 * s), bounds=(0.5, 3.0),
                                method="bounded", options={"xatol": 1e-12}).x
         assert axial_swelling(x) == pytest.approx(best, rel=1e-7)
     assert axial_swelling(1e-4) - 1 == pytest.approx(2.5e-5, rel=1e-3)

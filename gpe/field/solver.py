@@ -14,6 +14,12 @@ time of the step, which keeps the time-dependent splitting second order.  Inside
 costs one FFT pair; every call of ``advance`` closes the fused sequence, so calling it at the same
 step numbers (outputs and checkpoints) gives bitwise identical fields.
 
+With ``SolverSettings.temperature > 0`` the same step is the stochastic projected GPE
+(:mod:`gpe.field.stochastic`): the projector onto k^2/2 <= cutoff is folded into the kinetic
+factors and each step's thermal noise is added in k space after its nonlinear sub-step, so a
+step still costs one FFT pair; at temperature 0 the arithmetic is the deterministic one, bit
+for bit.
+
 Ground states (imaginary time) and the vortex imprint are in :mod:`gpe.field.ground_state`; their
 names are still importable from here.
 

@@ -36,7 +36,6 @@ from gpe.field.beams import (
     array_offsets,
 )
 from gpe.field.grid import Grid
-from gpe.field.stochastic import largest_cutoff
 from gpe.field.traps.base import Trap, trap_shapes
 from gpe.setup.practice import check_practice
 from gpe.setup.schema import (
@@ -46,13 +45,8 @@ from gpe.setup.schema import (
     describe,
     describe_value,
 )
-from gpe.setup.units import (
-    BOHR_RADIUS_M,
-    HealingUnits,
-    get_species,
-    quasi2d_coupling,
-    thermal_damping,
-)
+from gpe.setup.thermal import resolve_thermal
+from gpe.setup.units import BOHR_RADIUS_M, HealingUnits, get_species, quasi2d_coupling
 
 
 # ------------------------------------------------------------------------------------------
@@ -271,46 +265,6 @@ def _resolve_grid(sec: Section, trap: Trap) -> Grid:
     return grid
 
 
-def _resolve_thermal(ev: Section, grid: Grid, units: HealingUnits, mass_kg: float,
-                     a_s_m: float) -> dict[str, Any]:
-    """Temperature, projector cutoff and gamma of [evolution] (the finite-temperature stage).
-
-    gamma is the given damping, or at T > 0 without one the high-temperature expression
-    (:func:`gpe.setup.units.thermal_damping`) at the unit mu (the Thomas-Fermi value).
-    Units: temperature, cutoff in mu.
-    """
-    temperature = ev.get("temperature")
-    gamma = ev.get("damping")
-    if temperature == 0:
-        if ev.has("cutoff"):
-            ev.fail("cutoff", "is given but the temperature is 0: the projector belongs to the "
-                    "finite-temperature stage, and a run at T = 0 is the deterministic one",
-                    "a temperature_nK > 0 with it, or no cutoff")
-        return {"temperature": 0.0, "cutoff": None, "gamma": gamma, "gamma_source": "given"}
-    if not ev.has("cutoff"):
-        ev.fail("cutoff", "missing: needed with temperature > 0 (the energy of the projector "
-                "onto the classical-field modes)", "cutoff_mu, typically 2 to 3 (common practice)")
-    cutoff, limit = ev.get("cutoff"), largest_cutoff(grid)
-    if cutoff > limit:
-        ev.fail("cutoff", f"{cutoff:.4g} mu is above the grid's k_max^2/2 = {limit:.4g} mu "
-                f"(k_max = pi/dx = {math.sqrt(2 * limit):.4g} 1/xi)",
-                f"a cutoff <= {limit:.4g} mu, or a finer grid")
-    if cutoff <= 1.0:
-        ev.fail("cutoff", f"{cutoff:.4g} mu is not above the chemical potential (1 mu): the "
-                "projected modes must hold the condensate", "cutoff_mu > 1, typically 2 to 3")
-    if ev.has("damping"):
-        if gamma == 0:
-            ev.fail("damping", "is 0 with temperature > 0: the noise strength 2 gamma k_B T "
-                    "would vanish", "damping > 0, or leave damping out to compute gamma from "
-                    "T and mu")
-        return {"temperature": temperature, "cutoff": cutoff, "gamma": gamma,
-                "gamma_source": "given"}
-    gamma = float(thermal_damping(temperature * units.temperature_K, units.mu_J,
-                                  cutoff * units.mu_J, mass_kg, a_s_m))
-    return {"temperature": temperature, "cutoff": cutoff, "gamma": gamma,
-            "gamma_source": "computed"}
-
-
 def _resolve_settings(gs: Section, imprints: list[Section], ev: Section,
                       thermal: dict[str, Any]) -> tuple:
     ground = GroundStateConfig(
@@ -463,7 +417,7 @@ def parse_protocol(text: str, source: str = "<protocol>", overrides: Sequence[st
                             g2d_Jm2=g2d, chemical_potential_J=mu, number=number,
                             number_given=atoms.has("number"), norm=units.norm_for(number))
     grid = _resolve_grid(grid_sec, trap)
-    thermal = _resolve_thermal(ev, grid, units, species.mass_kg, a_s)
+    thermal = resolve_thermal(ev, grid, units, species.mass_kg, a_s)
     ground, evolution = _resolve_settings(gs, imprints, ev, thermal)
     beams = tuple(_resolve_beam(*secs) for secs in beam_secs)
     protocol = Protocol(source_name=source, source_text=text, overrides=tuple(overrides),

@@ -12,7 +12,6 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-import numpy as np
 import scipy.constants as const
 
 from gpe.errors import VorthermError
@@ -197,57 +196,6 @@ def axial_swelling(mu_over_hbar_omega_z: float) -> float:
         if abs(step) < 1e-15 * s:
             break
     return s
-
-
-def thermal_de_broglie(mass_kg: float, temperature_K: float) -> float:
-    """lambda_dB = sqrt(2 pi hbar^2 / (m k_B T)). Units: kg, K -> m."""
-    return math.sqrt(2.0 * math.pi * HBAR**2 / (mass_kg * BOLTZMANN * temperature_K))
-
-
-def thermal_damping(temperature_K: float, mu_J: float, cutoff_J: float, mass_kg: float,
-                    a_s_m: float) -> float:
-    r"""Dimensionless growth rate gamma of the simple-growth SPGPE at temperature T.
-
-    The high-temperature expression for a thermal cloud at (mu, T) above the cutoff
-    (Bradley, Gardiner & Davis, PRA 77, 033616 (2008); used by Rooney, Bradley & Blakie,
-    PRA 81, 023630 (2010); the formula is written here from memory):
-
-    .. math:: \gamma = \frac{8 a_s^2}{\lambda_{dB}^2} \sum_{j=1}^{\infty}
-              \frac{e^{\beta\mu(j+1)}}{e^{2\beta\epsilon_{cut} j}}\,
-              \Phi\!\left[e^{\beta(\mu - 2\epsilon_{cut})}, 1, j\right]^2,
-
-    :math:`\Phi(z, 1, j) = \sum_{m \ge 0} z^m/(m + j)` the Lerch transcendent.  With
-    :math:`z = e^{\beta(\mu - 2\epsilon_{cut})} < 1` the j-th term is :math:`e^{\beta\mu} z^j
-    \Phi(z, 1, j)^2`, so both sums converge geometrically; they are summed until the terms
-    fall below 1e-17 of the total.  The expression is that of a 3D thermal reservoir; it is
-    used as is for the quasi-2D gas (common practice).
-
-    Raises
-    ------
-    VorthermError
-        Unless T > 0 and cutoff > mu (the reservoir lies above the cutoff).
-
-    Units: temperature in K; mu, cutoff in J; mass in kg; a_s in m; gamma dimensionless.
-    """
-    if not (temperature_K > 0 and math.isfinite(temperature_K)):
-        raise VorthermError(f"thermal_damping needs T > 0, got {temperature_K!r} K")
-    if not cutoff_J > mu_J:
-        raise VorthermError("thermal_damping needs the cutoff above mu (the thermal reservoir "
-                            f"lies above it); got cutoff {cutoff_J!r} J <= mu {mu_J!r} J")
-    beta = 1.0 / (BOLTZMANN * temperature_K)
-    z = math.exp(beta * (mu_J - 2.0 * cutoff_J))
-    n_terms = int(min(1e6, math.ceil(40.0 / -math.log(z)))) + 2
-    m = np.arange(n_terms)
-    powers = z ** m                                    # z^m, m = 0 .. n-1
-    total = 0.0
-    for j in range(1, n_terms):
-        lerch = float(np.sum(powers / (m + j)))
-        term = powers[j] * lerch * lerch
-        total += term
-        if term < 1e-17 * total:
-            break
-    total *= math.exp(beta * mu_J)
-    return 8.0 * a_s_m**2 / thermal_de_broglie(mass_kg, temperature_K) ** 2 * total
 
 
 @dataclass(frozen=True)

@@ -33,7 +33,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 from gpe.field.fft import auto_threads, make_fft, planning_options  # noqa: E402
 from gpe.field.grid import Grid  # noqa: E402
 from gpe.field.solver import Solver, SolverSettings  # noqa: E402
-from gpe.field.stochastic import largest_cutoff  # noqa: E402
+from gpe.field.stochastic import largest_cutoff
 
 
 class OrbitingBeam:

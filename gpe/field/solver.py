@@ -332,7 +332,8 @@ class Solver:
 
     # -- named stages ----------------------------------------------------------------------------
     def kinetic_half(self, psi: np.ndarray | None = None) -> np.ndarray:
-        """Kinetic half step exp[-(i+gamma) k^2 dt/4] on a real-space field, in place."""
+        """Kinetic half step exp[-(i+gamma) k^2 dt/4] on a real-space field, in place (times
+        the projector when temperature > 0; the thermal noise is not part of this stage)."""
         psi = self.psi if psi is None else psi
         self._fft.forward(psi)
         kernels.multiply(psi, self._k_half)

@@ -93,7 +93,7 @@ def test_single_vortex_spectrum_matches_hankel_transform_and_falls_as_k_minus_3(
         # envelope makes H ring on the scale of a shell width). Without the mode-count
         # normalisation the shells at k = 0.5 and 1 are 11% low (28 and 56 lattice modes
         # for annuli of 10 pi and 20 pi [exact counts of the lattice]).
-        m = int(round(k_target / spec.dk))
+        m = round(k_target / spec.dk)
         ks = np.unique(np.round(k_modes[shell_of == m], 12))
         weights = np.array([np.count_nonzero(np.isclose(k_modes[shell_of == m], k)) for k in ks])
         hankel = np.array([integrate.trapezoid(g * j1(k * r) * r, r) for k in ks])

@@ -306,13 +306,21 @@ def nonlinear_damped_boxed(psi, factors, v_static, amp, gx, gy, row_lo, row_hi, 
 
 @njit(cache=True, error_model="numpy", parallel=True, fastmath=_FASTMATH)
 def nonlinear_imaginary(psi, scale, v_static, amp, gx, gy, g, mu, tau):
-    r"""Imaginary-time potential+nonlinear sub-step, in place, after rescaling by ``scale``.
+    r"""Exact imaginary-time potential+nonlinear sub-step, in place, after rescaling by ``scale``.
 
-    .. math:: \psi \leftarrow c\psi \exp[-(V + g|c\psi|^2 - \mu)\tau]
+    Solves :math:`\psi_\tau = -(W + g|\psi|^2)\psi`, :math:`W = V - \mu`, point by point in
+    closed form, starting from :math:`p = c\psi`.  The phase is constant and the density obeys
+    the logistic equation :math:`n' = -2(W + g n) n`, so with :math:`z = 2W\tau`
 
-    The rescaling lets the ground-state loop apply the normalisation of the previous step here
-    instead of in a separate pass.  Returns ``sum |psi|^2`` of the output.
-    Units: V, mu in mu; tau in hbar/mu.
+    .. math:: n(\tau) = \frac{n_0 e^{-z}}{1 + 2 g n_0 s}, \qquad
+              s = \tau\,\frac{1 - e^{-z}}{z} \quad (s = \tau \text{ at } W = 0).
+
+    The density is the one of the sub-flow at every instant, not the one at its start (an
+    explicit :math:`|\psi|^2` makes the sub-step, and hence the ground state, first order in
+    dt); being exact, the sub-step keeps the Strang fixed point second order.  The rescaling
+    lets the ground-state loop apply the normalisation of the previous step here instead of in
+    a separate pass.  Returns ``sum |psi|^2`` of the output.
+    Units: V, mu in mu; tau in hbar/mu; g in mu/n0.
     """
     ny, nx = psi.shape
     total = 0.0
@@ -320,9 +328,10 @@ def nonlinear_imaginary(psi, scale, v_static, amp, gx, gy, g, mu, tau):
         for i in range(nx):
             p = psi[j, i] * scale
             n0 = p.real * p.real + p.imag * p.imag
-            factor = math.exp(-(_local_potential(v_static, amp, gx, gy, j, i, mu) + g * n0) * tau)
-            psi[j, i] = p * factor
-            total += n0 * factor * factor
+            ratio, decay = exp_ratio(2.0 * _local_potential(v_static, amp, gx, gy, j, i, mu) * tau)
+            factor2 = decay / (1.0 + 2.0 * g * n0 * tau * ratio)
+            psi[j, i] = p * math.sqrt(factor2)
+            total += n0 * factor2
     return total
 
 
@@ -333,6 +342,16 @@ def multiply(psi, factor):
     for j in prange(ny):
         for i in range(nx):
             psi[j, i] = psi[j, i] * factor[j, i]
+
+
+@njit(cache=True, error_model="numpy", fastmath=_FASTMATH)
+def add_mode_noise(psi_k, rows, cols, normals, amplitude):
+    """``psi_k[rows[m], cols[m]] += amplitude * (normals[0, m] + i normals[1, m])``, in place.
+
+    The thermal noise of the projected modes (gpe.field.stochastic).  Units: those of psi_k.
+    """
+    for m in range(rows.shape[0]):
+        psi_k[rows[m], cols[m]] += amplitude * complex(normals[0, m], normals[1, m])
 
 
 @njit(cache=True, error_model="numpy", parallel=True, fastmath=_FASTMATH)

@@ -14,6 +14,12 @@ time of the step, which keeps the time-dependent splitting second order.  Inside
 costs one FFT pair; every call of ``advance`` closes the fused sequence, so calling it at the same
 step numbers (outputs and checkpoints) gives bitwise identical fields.
 
+With ``SolverSettings.temperature > 0`` the same step is the stochastic projected GPE
+(:mod:`gpe.field.stochastic`): the projector onto k^2/2 <= cutoff is folded into the kinetic
+factors and each step's thermal noise is added in k space after its nonlinear sub-step, so a
+step still costs one FFT pair; at temperature 0 the arithmetic is the deterministic one, bit
+for bit.
+
 Ground states (imaginary time) and the vortex imprint are in :mod:`gpe.field.ground_state`; their
 names are still importable from here.
 
@@ -34,6 +40,7 @@ from gpe.errors import SimulationError, VorthermError
 from gpe.field import kernels
 from gpe.field.fft import auto_threads, make_fft, planning_options
 from gpe.field.grid import Grid
+from gpe.field.stochastic import ThermalNoise, projector
 
 _PRECISIONS = {"complex128": np.complex128, "complex64": np.complex64}
 
@@ -61,8 +68,18 @@ class SolverSettings:
         How pyFFTW plans are chosen (:data:`gpe.field.fft.PLANNING`): "reproducible" gives
         bit-identical transforms in every process with the same thread count; "measured" may be
         faster but differs between processes and machines.
+    temperature : float
+        k_B T of the thermal cloud; > 0 turns on the stochastic projected GPE
+        (:mod:`gpe.field.stochastic`: needs gamma > 0, a cutoff and the solver's ``rng``);
+        0 is the deterministic solver, bit for bit.
+    cutoff : float or None
+        Projector energy: the Fourier modes with k^2/2 <= cutoff are kept (used only when
+        temperature > 0; typically 2-3 mu, common practice).
+    norm_per_atom : float
+        The norm of one atom, g~ = 1/(n0 xi^2) (:attr:`gpe.setup.units.HealingUnits.coupling`);
+        sets the noise so that modes hold k_B T/(eps - mu) atoms.
 
-    Units: dt in hbar/mu; mu in mu; g in mu / n0.
+    Units: dt in hbar/mu; mu, temperature, cutoff in mu; g in mu / n0; norm_per_atom in xi^2 n0.
     """
 
     dt: float
@@ -73,6 +90,9 @@ class SolverSettings:
     threads: int | None = None
     fft: str = "auto"
     fft_planning: str = "measured"
+    temperature: float = 0.0
+    cutoff: float | None = None
+    norm_per_atom: float = 1.0
 
     def __post_init__(self) -> None:
         if not math.isfinite(self.dt) or self.dt == 0:
@@ -94,6 +114,25 @@ class SolverSettings:
         if self.fft not in ("auto", "pyfftw", "scipy"):
             raise VorthermError(f'SolverSettings.fft must be "auto", "pyfftw" or "scipy", '
                                 f"got {self.fft!r}")
+        if not math.isfinite(self.temperature) or self.temperature < 0:
+            raise VorthermError(f"SolverSettings.temperature must be >= 0 (k_B T in mu), got "
+                                f"{self.temperature!r}")
+        if self.stochastic:
+            if self.gamma == 0:
+                raise VorthermError("SolverSettings.temperature > 0 needs gamma > 0: the thermal "
+                                    "noise strength is 2 gamma k_B T, so with gamma = 0 there is "
+                                    "no coupling to the thermal cloud")
+            if self.cutoff is None or not (math.isfinite(self.cutoff) and self.cutoff > 0):
+                raise VorthermError(f"SolverSettings.temperature > 0 needs a cutoff > 0 (energy of "
+                                    f"the projector in mu, typically 2-3), got {self.cutoff!r}")
+            if not (math.isfinite(self.norm_per_atom) and self.norm_per_atom > 0):
+                raise VorthermError(f"SolverSettings.norm_per_atom must be > 0, got "
+                                    f"{self.norm_per_atom!r}")
+
+    @property
+    def stochastic(self) -> bool:
+        """True for the stochastic projected GPE (temperature > 0)."""
+        return self.temperature > 0
 
     @property
     def dtype(self) -> np.dtype:
@@ -153,6 +192,10 @@ class Solver:
         Time and step counter of ``psi0``.  The time of step k is computed as
         ``(t0 - step0*dt) + k*dt``, so a run restarted from a checkpoint of a run that began at
         t = 0 reproduces its beam times, and hence its fields, bit for bit.
+    rng : numpy.random.Generator, optional
+        Source of the thermal noise; required when ``settings.temperature > 0``.  It is used in
+        place (``solver.rng``): store its ``bit_generator.state`` with a checkpoint and a restart
+        from that state draws the same noise.
 
     Attributes
     ----------
@@ -163,7 +206,8 @@ class Solver:
     """
 
     def __init__(self, grid: Grid, static_potential: np.ndarray, beams, settings: SolverSettings,
-                 psi0: np.ndarray, t0: float = 0.0, step0: int = 0) -> None:
+                 psi0: np.ndarray, t0: float = 0.0, step0: int = 0,
+                 rng: np.random.Generator | None = None) -> None:
         self.grid = grid
         self.settings = settings
         v_static = np.array(static_potential, dtype=np.float64, order="C")
@@ -189,6 +233,17 @@ class Solver:
         inv_n = 1.0 / (grid.nx * grid.ny)
         self._k_half = (np.exp(exponent) * inv_n).astype(settings.dtype)
         self._k_full = (np.exp(2.0 * exponent) * inv_n).astype(settings.dtype)
+        # The stochastic projected GPE (gpe.field.stochastic): the projector lives in the
+        # kinetic factors (zero outside the disk), the noise is added in k space.  At T = 0 none
+        # of this exists and the arithmetic is that of the deterministic solver.
+        self.rng = rng
+        self._noise = None
+        if settings.stochastic:
+            mask = projector(grid, settings.cutoff)
+            self._k_half *= mask
+            self._k_full *= mask
+            self._noise = ThermalNoise(grid, mask, settings.gamma, settings.temperature,
+                                       settings.norm_per_atom, settings.dt, rng)
         # The damped sub-step's factors of the static potential, computed once: per step only
         # the beam box (a few per cent of the grid for one beam) needs exponentials.
         self._damped_factors = None
@@ -277,7 +332,8 @@ class Solver:
 
     # -- named stages ----------------------------------------------------------------------------
     def kinetic_half(self, psi: np.ndarray | None = None) -> np.ndarray:
-        """Kinetic half step exp[-(i+gamma) k^2 dt/4] on a real-space field, in place."""
+        """Kinetic half step exp[-(i+gamma) k^2 dt/4] on a real-space field, in place (times
+        the projector when temperature > 0; the thermal noise is not part of this stage)."""
         psi = self.psi if psi is None else psi
         self._fft.forward(psi)
         kernels.multiply(psi, self._k_half)
@@ -309,12 +365,15 @@ class Solver:
     def _advance(self, n: int) -> int:
         """Arithmetic of n fused Strang steps; returns the steps done before a non-finite field."""
         psi, fft, dt, k0 = self.psi, self._fft, self.settings.dt, self.step_count
+        noise = self._noise
         fft.forward(psi)
         kernels.multiply(psi, self._k_half)
         fft.inverse(psi, normalise=False)
         for j in range(n):
             if j:
                 fft.forward(psi)
+                if noise is not None:   # the previous step's dW, after its nonlinear sub-step
+                    noise.add(psi)
                 kernels.multiply(psi, self._k_full)
                 fft.inverse(psi, normalise=False)
             self._beams.update(self._t_origin + (k0 + j + 0.5) * dt)
@@ -323,6 +382,8 @@ class Solver:
         # The closing half step maps a finite field to a finite one (bounded factors), so the
         # next step's sum is a sufficient check.
         fft.forward(psi)
+        if noise is not None:
+            noise.add(psi)
         kernels.multiply(psi, self._k_half)
         fft.inverse(psi, normalise=False)
         return n

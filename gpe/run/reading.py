@@ -127,11 +127,13 @@ def summary_text(run_path) -> str:
         n_points = run.n_point_frames
         table = run.read_vortices()
         obs = run.read_observables()
+        run_mu = run.attrs.get("mu_run")
     u = protocol.units
     last = table[table["frame"] == len(times) - 1] if len(times) else table[:0]
     n_plus = int(np.count_nonzero(last["sign"] > 0))
     n_minus = int(np.count_nonzero(last["sign"] < 0))
-    mu_solved = float(obs["mu"][0]) if "mu" in obs and len(obs["mu"]) else math.nan
+    mu_solved = (float(run_mu) if run_mu is not None else
+                 float(obs["mu"][0]) if "mu" in obs and len(obs["mu"]) else math.nan)
     lines = [
         f"run file: {run_path}",
         f"  atoms N = {protocol.atoms.number:.4g}; species {protocol.atoms.species}",
@@ -148,7 +150,24 @@ def summary_text(run_path) -> str:
         t_gpe = times[len(times) - n_points - 1]
         lines.insert(-1, f"  of which point-vortex dynamics after t = {u.time_to_ms(t_gpe):.4g} ms "
                          f"(GPE part): {n_points} frames")
-    return "\n".join(lines)
+    return "\n".join(lines + _solved_mu_lines(protocol, mu_solved))
+
+
+def _solved_mu_lines(protocol, mu_solved: float) -> list[str]:
+    """The protocol's stirring and thermal quantities in the solved mu's units (mu_s, c_s)."""
+    if not (math.isfinite(mu_solved) and mu_solved > 0):
+        return []
+    c_s = math.sqrt(mu_solved)            # c ~ sqrt(mu): the sound speed of the solved mu
+    lines = [(f"  in the solved mu_s = {mu_solved:.5g} mu (c_s = {c_s:.5g} c, xi_s = "
+              f"{1 / c_s:.5g} xi; the run file's protocol_solved_mu_json holds every quantity):")]
+    for i, beam in enumerate(protocol.beams):
+        lines.append(f"    beam {i}: height {beam.height / mu_solved:.4g} mu_s, top speed "
+                     f"{beam.path.max_speed / c_s:.4g} c_s, waist {beam.waist * c_s:.4g} xi_s")
+    ev = protocol.evolution
+    if ev.temperature > 0:
+        lines.append(f"    k_B T = {ev.temperature / mu_solved:.4g} mu_s, cutoff "
+                     f"{ev.cutoff / mu_solved:.4g} mu_s, gamma = {ev.gamma:.4g} ({ev.gamma_source})")
+    return lines
 
 
 def select_frames(run_path, frames, n_frames: int, default: str = "all") -> list[int]:

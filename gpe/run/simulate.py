@@ -9,7 +9,9 @@ Units: simulation units throughout (xi, hbar/mu, mu); SI only in the summary tex
 
 from __future__ import annotations
 
+import json
 import logging
+import math
 import time
 import warnings
 from dataclasses import dataclass
@@ -17,17 +19,20 @@ from pathlib import Path
 from typing import Callable
 
 import numpy as np
+import scipy.constants as const
 
 from gpe.analysis import diagnostics
 from gpe.analysis.tracking import track_vortices
 from gpe.analysis.vortices import VORTEX_DTYPE, find_vortices
-from gpe.errors import RunFileError
+from gpe.errors import ProtocolWarning, RunFileError
 from gpe.field.ground_state import find_ground_state
 from gpe.field.solver import Solver, SolverSettings
 from gpe.run.memory import check_memory
 from gpe.run.points import handoff_domain, run_points
 from gpe.run.reading import is_complete, protocol_of
 from gpe.run.runfile import RunFile
+from gpe.setup.schema import in_solved_mu
+from gpe.setup.units import axial_swelling
 
 logger = logging.getLogger(__name__)
 
@@ -162,7 +167,13 @@ def simulate(protocol, out_path, *, resume: bool = False,
             run.truncate_to_frame(frame0)   # (drops point-vortex frames, which follow the GPE)
         logger.info("%s: resuming from the checkpoint at frame %d, t = %.6g hbar/mu (step %d)",
                     out_path, frame0, t0, step0)
-        solver = _make_solver(protocol, v_static, beams, mu_run, psi0, t0, step0, threads)
+        if protocol.evolution.temperature > 0 and ck.rng_state is None:
+            run.close()
+            raise RunFileError(f"{out_path}: the checkpoint holds no noise generator state, "
+                               "which a finite-temperature run needs to resume; start it "
+                               "again with --force")
+        solver = _make_solver(protocol, v_static, beams, mu_run, psi0, t0, step0, threads,
+                              rng=ck.rng())
     else:
         v_static = protocol.build_trap()
         region = protocol.trap.detection_region(v_static)
@@ -173,17 +184,20 @@ def simulate(protocol, out_path, *, resume: bool = False,
                           f"after {gs.steps} steps (mu = {gs.mu:.6g}); raise "
                           "ground_state.max_steps or dt", stacklevel=2)
         mu_run = gs.mu
+        _warn_axial_swelling(protocol, mu_run)
         # the solver checks the time step against the potential: fail before writing a file
         solver = _make_solver(protocol, v_static, beams, mu_run, psi0, 0.0, 0, threads)
         out_path.parent.mkdir(parents=True, exist_ok=True)
         tmp = out_path.with_name(out_path.name + ".part")
         tmp.unlink(missing_ok=True)  # left by a run killed before its first checkpoint
         run = RunFile.create(tmp, protocol=protocol, static_potential=v_static,
-                             ground_state_psi=gs.psi, extra_attrs={"mu_run": mu_run,
-                                                                   "ground_state_steps": gs.steps})
+                             ground_state_psi=gs.psi, extra_attrs={
+                                 "mu_run": mu_run, "ground_state_steps": gs.steps,
+                                 "protocol_solved_mu_json": json.dumps(
+                                     in_solved_mu(protocol.to_dict(), mu_run))})
         t0, step0, frame0 = 0.0, 0, 0
         _write_frame(run, protocol, psi0, 0.0, v_static, beams, grid, region, frame=0)
-        run.write_checkpoint(psi0, 0.0, 0, 1)
+        run.write_checkpoint(psi0, 0.0, 0, 1, rng=solver.rng)
         run.close()
         tmp.replace(out_path)
         run = RunFile.open(out_path, "r+")
@@ -204,7 +218,8 @@ def simulate(protocol, out_path, *, resume: bool = False,
             done = solver.step_count >= ev.n_steps
             if (done or since_ck >= ev.checkpoint_every_outputs
                     or time.monotonic() - last_ck_wall >= ev.checkpoint_every_s):
-                run.write_checkpoint(solver.psi, solver.t, solver.step_count, frame)
+                run.write_checkpoint(solver.psi, solver.t, solver.step_count, frame,
+                                     rng=solver.rng)
                 since_ck, last_ck_wall = 0, time.monotonic()
                 logger.debug("%s: checkpoint at frame %d, step %d", out_path, frame,
                              solver.step_count)
@@ -223,6 +238,25 @@ def simulate(protocol, out_path, *, resume: bool = False,
     finally:
         run.close()
     return out_path
+
+
+#: mu / (hbar omega_z) above which the axial swelling is worth a warning (~8% wider at 0.34,
+#: gpe.setup.units.axial_swelling; the threshold is common practice for "quasi-2D").
+AXIAL_WARNING_RATIO = 0.3
+
+
+def _warn_axial_swelling(protocol, mu_run: float) -> None:
+    """Warn when the solved mu is not small against hbar omega_z, with the swelling estimate."""
+    hbar_omega_z = const.hbar * 2 * math.pi * protocol.atoms.axial_frequency_hz
+    ratio = mu_run * protocol.units.mu_J / hbar_omega_z
+    if ratio > AXIAL_WARNING_RATIO:
+        s = axial_swelling(ratio)
+        warnings.warn(ProtocolWarning(
+            f"{protocol.source_name}: the solved mu = {mu_run:.4g} mu is {ratio:.3g} hbar omega_z "
+            f"(above ~{AXIAL_WARNING_RATIO}): a Gaussian variational estimate puts the axial "
+            f"width at {s:.3f} l_z ({100 * (s - 1):.1f}% swelling), so the quasi-2D coupling "
+            f"g2D (frozen axial ground state) is ~{100 * (1 - 1 / s):.1f}% too strong; a higher "
+            "axial frequency or fewer atoms keep the gas quasi-2D"), stacklevel=3)
 
 
 def _stored_trap(run, protocol) -> np.ndarray:
@@ -245,11 +279,26 @@ def _stored_trap(run, protocol) -> np.ndarray:
     return v_static
 
 
-def _make_solver(protocol, v_static, beams, mu_run, psi0, t0, step0, threads):
+def thermal_noise_rng(seed: int) -> np.random.Generator:
+    """The generator of a run's thermal noise: its own stream of the protocol's seed.
+
+    ``SeedSequence(seed, spawn_key=(1,))``, independent of the ground-state noise, which is
+    drawn from ``default_rng(seed)``.
+    """
+    return np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(1,)))
+
+
+def _make_solver(protocol, v_static, beams, mu_run, psi0, t0, step0, threads, rng=None):
+    """The run's solver; ``rng`` (a checkpoint's generator) continues the thermal noise."""
     ev = protocol.evolution
     settings = SolverSettings(dt=ev.dt, gamma=ev.gamma, mu=mu_run, g=1.0,
-                              precision=ev.precision, threads=threads, fft_planning=ev.fft_planning)
-    return Solver(protocol.grid, v_static, beams, settings, psi0, t0=t0, step0=step0)
+                              precision=ev.precision, threads=threads, fft_planning=ev.fft_planning,
+                              temperature=ev.temperature, cutoff=ev.cutoff,
+                              norm_per_atom=protocol.units.coupling)
+    if settings.stochastic and rng is None:
+        rng = thermal_noise_rng(ev.seed)
+    return Solver(protocol.grid, v_static, beams, settings, psi0, t0=t0, step0=step0,
+                  rng=rng if settings.stochastic else None)
 
 
 def _write_frame(run, protocol, psi, t, v_static, beams, grid, region, frame) -> np.ndarray:

@@ -45,6 +45,7 @@ from gpe.setup.schema import (
     describe,
     describe_value,
 )
+from gpe.setup.thermal import resolve_thermal
 from gpe.setup.units import BOHR_RADIUS_M, HealingUnits, get_species, quasi2d_coupling
 
 
@@ -86,7 +87,12 @@ class GroundStateConfig:
 
 @dataclass(frozen=True)
 class EvolutionConfig:
-    """Real-time evolution settings. Units: times in hbar/mu; gamma dimensionless; seconds of wall time."""
+    """Real-time evolution settings. Units: times in hbar/mu; gamma dimensionless; seconds of wall time.
+
+    ``temperature`` (k_B T in mu) > 0 runs the stochastic projected GPE with the projector
+    energy ``cutoff`` (mu); ``gamma_source`` says whether gamma was "given" ([evolution]
+    damping) or "computed" from T and mu (:func:`gpe.setup.units.thermal_damping`).
+    """
 
     duration: float = field(metadata={"dim": "time"})
     dt: float = field(metadata={"dim": "time"})
@@ -104,6 +110,10 @@ class EvolutionConfig:
     points_friction: float = 0.0
     points_friction_prime: float = 0.0
     points_tolerance: float = 1e-8
+    #: finite temperature (SPGPE): k_B T, projector cutoff energy, where gamma came from
+    temperature: float = field(default=0.0, metadata={"dim": "energy"})
+    cutoff: float | None = field(default=None, metadata={"dim": "energy"})
+    gamma_source: str = "given"
 
     @property
     def steps_per_output(self) -> int:
@@ -263,7 +273,8 @@ def _resolve_grid(sec: Section, trap: Trap) -> Grid:
     return grid
 
 
-def _resolve_settings(gs: Section, imprints: list[Section], ev: Section) -> tuple:
+def _resolve_settings(gs: Section, imprints: list[Section], ev: Section,
+                      thermal: dict[str, Any]) -> tuple:
     ground = GroundStateConfig(
         dt=gs.get("dt"), mu_tolerance=gs.get("mu_tolerance"), energy_tolerance=gs.get("energy_tolerance"),
         max_steps=gs.get("max_steps"), fixed=gs.get("fixed"), noise_amplitude=gs.get("noise_amplitude"),
@@ -281,17 +292,19 @@ def _resolve_settings(gs: Section, imprints: list[Section], ev: Section) -> tupl
         ev.fail("damping", f"gamma = {ev.get('damping')} is not < 1", "a dimensionless gamma in [0, 1), "
                 "typically 1e-4 to 3e-2")
     evolution = EvolutionConfig(
-        duration=duration, dt=dt, output_interval=interval, gamma=ev.get("damping"),
+        duration=duration, dt=dt, output_interval=interval, gamma=thermal["gamma"],
         precision=ev.get("precision"), seed=ev.get("seed"),
         checkpoint_every_outputs=ev.get("checkpoint_every_outputs"), checkpoint_every_s=ev.get("checkpoint_every_s"),
-        fft_planning=ev.get("fft_planning"), **_resolve_points(ev, interval))
+        fft_planning=ev.get("fft_planning"), temperature=thermal["temperature"],
+        cutoff=thermal["cutoff"], gamma_source=thermal["gamma_source"], **_resolve_points(ev, interval, thermal["gamma"]))
     return ground, evolution
 
 
-def _resolve_points(ev: Section, interval: float) -> dict:
+def _resolve_points(ev: Section, interval: float, gamma: float) -> dict:
     """The [evolution] points_* keys (hand-off to point-vortex dynamics), checked.
 
-    The friction alpha defaults to the damping gamma: for the damped GPE the two agree at
+    The friction alpha defaults to the run's damping gamma (given, or computed from the
+    temperature of a stochastic run): for the damped GPE the two agree at
     leading order in gamma (Tornkvist & Schroder, PRL 78, 1908 (1997) [memory]).
     """
     keys = ("points_until", "points_output_interval", "points_friction", "points_friction_prime",
@@ -312,7 +325,7 @@ def _resolve_points(ev: Section, interval: float) -> dict:
         ev.fail("points_until", f"ends at or before the GPE part, which ends at its last output "
                 f"t = {gpe_end:.6g} hbar/mu{ms}", f"a time after the end of the GPE part "
                 f"({ev.key('duration')} rounded down to whole output intervals)")
-    alpha = ev.get("points_friction", ev.get("damping"))
+    alpha = ev.get("points_friction", gamma)
     if not alpha < 1.0:
         ev.fail("points_friction", f"alpha = {alpha} is not < 1", "a mutual friction alpha in [0, 1), "
                 "typically 1e-3 to 0.1")
@@ -454,7 +467,8 @@ def parse_protocol(text: str, source: str = "<protocol>", overrides: Sequence[st
                             g2d_Jm2=g2d, chemical_potential_J=mu, number=number,
                             number_given=atoms.has("number"), norm=units.norm_for(number))
     grid = _resolve_grid(grid_sec, trap)
-    ground, evolution = _resolve_settings(gs, imprints, ev)
+    thermal = resolve_thermal(ev, grid, units, species.mass_kg, a_s)
+    ground, evolution = _resolve_settings(gs, imprints, ev, thermal)
     beams = tuple(_resolve_beam(*secs) for secs in beam_secs)
     protocol = Protocol(source_name=source, source_text=text, overrides=tuple(overrides),
                         name=top.get("name") or Path(source).stem, description=top.get("description"),

@@ -36,6 +36,7 @@ SUFFIXES = {
     "length": {"SI": ("um", "xi"), "healing": ("xi",)},
     "time": {"SI": ("ms", "tau"), "healing": ("tau",)},
     "energy": {"SI": ("mu", "nK"), "healing": ("mu",)},
+    "temperature": {"SI": ("nK", "mu"), "healing": ("nK", "mu")},   # k_B T; nK in both systems
     "speed": {"SI": ("um_per_ms", "c"), "healing": ("c",)},
     "rate": {"SI": ("hz", "rad_per_ms", "rad_per_tau"), "healing": ("rad_per_tau",)},
     "angle": {"SI": ("deg", "rad"), "healing": ("deg", "rad")},
@@ -127,7 +128,10 @@ SCHEMA: dict[str, dict[str, Spec]] = {
                   "points_output_interval": Spec(F, "time", check="positive"),
                   "points_friction": Spec(F, check="nonneg"),
                   "points_friction_prime": Spec(F, default=0.0),
-                  "points_tolerance": Spec(F, default=1e-8, check="positive")},
+                  "points_tolerance": Spec(F, default=1e-8, check="positive"),
+                  # -- finite temperature: the stochastic projected GPE (gpe/field/stochastic.py) --
+                  "temperature": Spec(F, "temperature", default=0.0, check="nonneg"),
+                  "cutoff": Spec(F, "energy", check="positive")},
     "beams": {"waist": Spec(F, "length", True, check="positive"),
               "height": Spec(F, "energy", True, check="nonzero"),
               "switch_on_time": Spec(F, "time", default=0.0, check="nonneg"),
@@ -366,6 +370,35 @@ def describe_value(name: str, value: Any, dim: str, u: HealingUnits) -> dict:
         return {f"{name}_{SIM_OUT[dim]}": None}
     return {f"{name}_{SIM_OUT[dim]}": np.asarray(value, dtype=float).tolist(),
             f"{name}_{SI_OUT[dim]}": (np.asarray(value, dtype=float) * si).tolist()}
+
+
+#: Power of mu_solved/mu by which a value in each healing unit is divided when it is expressed
+#: in the solved mu's own units (xi ~ mu^-1/2, hbar/mu ~ mu^-1, c ~ mu^1/2).
+_SOLVED_POWERS = {"xi": -0.5, "tau": -1.0, "mu": 1.0, "c": 0.5, "rad_per_tau": 1.0}
+
+
+def in_solved_mu(described: dict, ratio: float) -> dict:
+    """The healing-unit values of a described protocol (``Protocol.to_dict()``) re-expressed in
+    the units of the solved chemical potential mu_s = ratio * mu (lengths in xi_s, times in
+    hbar/mu_s, energies in mu_s, speeds in c_s); SI values and unitless entries are left out.
+
+    Units: ratio = mu_s / mu, dimensionless; the keys keep their healing suffixes, now meaning
+    the solved units.
+    """
+    out: dict = {}
+    for key, value in described.items():
+        if isinstance(value, dict):
+            sub = in_solved_mu(value, ratio)
+            if sub:
+                out[key] = sub
+        elif isinstance(value, list) and value and all(isinstance(v, dict) for v in value):
+            out[key] = [in_solved_mu(v, ratio) for v in value]
+        elif value is not None and not isinstance(value, (str, bool)):
+            suffix = next((s for s in sorted(_SOLVED_POWERS, key=len, reverse=True)
+                           if key.endswith("_" + s)), None)
+            if suffix is not None:
+                out[key] = (np.asarray(value, dtype=float) / ratio ** _SOLVED_POWERS[suffix]).tolist()
+    return out
 
 
 def describe(obj: Any, u: HealingUnits) -> dict:

@@ -173,6 +173,31 @@ def tf_number_harmonic(g2d_Jm2: float, mu_J: float, mass_kg: float,
     return math.pi * mu_J**2 / (g2d_Jm2 * mass_kg * omega_x * omega_y)
 
 
+def axial_swelling(mu_over_hbar_omega_z: float) -> float:
+    r"""Gaussian variational estimate of the axial width of a quasi-2D gas, in units of l_z.
+
+    With a Gaussian axial profile of width :math:`s\,l_z` the energy per atom is
+    :math:`\tfrac{\hbar\omega_z}{4}(s^{-2} + s^2) + \mu/(2s)`, :math:`\mu = g_{2D} n` the 2D
+    chemical potential at s = 1 (the 2D coupling scales as 1/s).  Its minimum solves
+    :math:`s^4 - 1 = (\mu/\hbar\omega_z)\,s` (Gaussian variational ansatz as in Perez-Garcia,
+    Michinel, Cirac, Lewenstein & Zoller, PRA 56, 1424 (1997), for the method; derivation
+    here), so :math:`s \approx 1 + \mu/(4\hbar\omega_z)` for a thin gas; the quasi-2D coupling
+    of :func:`quasi2d_coupling` is then too large by the factor s.
+
+    Units: mu / (hbar omega_z) dimensionless; returns s dimensionless (>= 1).
+    """
+    x = float(mu_over_hbar_omega_z)
+    if not (math.isfinite(x) and x >= 0):
+        raise VorthermError(f"axial_swelling needs mu/(hbar omega_z) >= 0, got {x!r}")
+    s = 1.0 + x / 4.0
+    for _ in range(50):                       # Newton on s^4 - x s - 1, convex for s >= 1
+        step = (s**4 - x * s - 1.0) / (4.0 * s**3 - x)
+        s -= step
+        if abs(step) < 1e-15 * s:
+            break
+    return s
+
+
 @dataclass(frozen=True)
 class HealingUnits:
     """Conversion factors between SI and the simulation's healing units.

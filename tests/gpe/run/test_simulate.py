@@ -4,8 +4,11 @@ A tiny protocol in healing units (64^2 grid, disk of radius 20 xi, one beam on a
 every test to a few seconds.
 """
 
+import json
+
 import numpy as np
 import pytest
+import scipy.constants as sc
 from tiny_protocol import healing_header, tiny_protocol_text
 
 from gpe.errors import ProtocolWarning, RunFileError, SimulationError, VorthermError
@@ -28,12 +31,27 @@ def _protocol(tmp_path, overrides=()):
 
 def test_simulate_writes_a_complete_self_describing_run(tmp_path):
     protocol = _protocol(tmp_path)
-    out = pipeline.simulate(protocol, tmp_path / "tiny.h5")
+    with pytest.warns(ProtocolWarning, match="axial width") as caught:
+        out = pipeline.simulate(protocol, tmp_path / "tiny.h5")
     assert reading.is_complete(out)
     with RunFile.open(out, "r") as run:
         times = np.asarray(run.frame_times())
         obs = run.read_observables()
         assert run.protocol_text() == TINY
+        mu_run = run.attrs_float("mu_run")
+        solved = json.loads(run.attrs["protocol_solved_mu_json"])
+    # every protocol quantity also in the solved mu: heights / mu_s, speeds / c_s with
+    # c_s = sqrt(mu_s) c, lengths * sqrt(mu_s) (xi_s = xi / sqrt(mu_s)) [exact scalings]
+    assert solved["beams"][0]["height_mu"] == pytest.approx(2.0 / mu_run, rel=1e-12)
+    assert solved["beams"][0]["path"]["speed_c"] == pytest.approx(0.5 / mu_run**0.5, rel=1e-12)
+    assert solved["trap"]["radius_xi"] == pytest.approx(20.0 * mu_run**0.5, rel=1e-12)
+    assert f"height {2.0 / mu_run:.4g} mu_s" in reading.summary_text(out)
+    # mu/(hbar omega_z) = mu_s 20 nK k_B / (h 1 kHz) = 0.42 mu_s; the warning's swelling is the
+    # root s > 1 of s^4 - x s - 1 (Gaussian variational estimate, independent numpy.roots)
+    x = mu_run * 20e-9 * sc.k / (sc.h * 1000.0)
+    roots = np.roots([1.0, 0.0, 0.0, -x, -1.0])
+    s = max(r.real for r in roots if abs(r.imag) < 1e-12)
+    assert f"{s:.3f} l_z" in str(caught[0].message)
     np.testing.assert_allclose(times, np.arange(13) * 1.0, atol=1e-12)
     assert len(obs["energy"]) == 13
     # with damping the energy relative to mu N can only go down (dissipation), up to the
@@ -66,6 +84,31 @@ def test_interrupted_run_resumes_to_the_same_file(tmp_path):
         for i in range(len(a.frame_times())):
             np.testing.assert_array_equal(a.psi(i), b.psi(i))
         np.testing.assert_array_equal(a.read_vortices(), b.read_vortices())
+
+
+def test_a_finite_temperature_run_resumes_bit_for_bit(tmp_path):
+    """The thermal noise generator is part of the checkpoint: an interrupted stochastic run
+    resumes to the same file (N+M steps == N steps, reopen, M steps)."""
+    text = tiny_protocol_text(duration=6.0).replace(
+        "damping = 0.01\n", "damping = 0.01\ntemperature_nK = 20.0\ncutoff_mu = 2.5\n")
+    protocol = parse_protocol(text, source=str(tmp_path / "warm.toml"))
+    whole = pipeline.simulate(protocol, tmp_path / "whole.h5")
+
+    def stop_after_frame_3(progress):
+        if progress.steps >= 3 * 20:
+            raise _Stop
+
+    part = tmp_path / "part.h5"
+    with pytest.raises(_Stop):
+        pipeline.simulate(protocol, part, progress=stop_after_frame_3)
+    pipeline.simulate_resume(part)
+    cold = pipeline.simulate(parse_protocol(tiny_protocol_text(duration=6.0)), tmp_path / "cold.h5")
+    with RunFile.open(whole, "r") as a, RunFile.open(part, "r") as b, RunFile.open(cold, "r") as c:
+        assert len(a.frame_times()) == 7
+        for i in range(len(a.frame_times())):
+            np.testing.assert_array_equal(a.psi(i), b.psi(i))
+        # the noise did act: the warm run's last frame is not the deterministic one
+        assert not np.allclose(a.psi(6), c.psi(6), atol=1e-3)
 
 
 def test_resuming_with_another_protocol_is_refused(tmp_path):

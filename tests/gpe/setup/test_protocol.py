@@ -405,3 +405,38 @@ def test_a_dict_value_toml_cannot_hold_is_named_by_its_key():
     data["beams"][0]["waist_xi"] = None
     with pytest.raises(ProtocolError, match=r"beams\.0\.waist_xi = None.*accepted: numbers"):
         protocol_from_dict(data, source="mine")
+
+
+# -- finite temperature ([evolution] temperature_*, cutoff_*) ---------------------------------------
+def test_temperature_and_cutoff_are_read_in_si_and_gamma_is_computed_when_not_given():
+    p = parse(BASE, overrides=["evolution.temperature_nK=60.0", "evolution.cutoff_mu=2.5"])
+    u = p.units
+    # [exact] nK -> k_B T / mu with mu the unit of the protocol
+    assert p.evolution.temperature == pytest.approx(60e-9 * sc.k / u.mu_J, rel=1e-12)
+    assert p.evolution.cutoff == 2.5
+    # the given damping is kept...
+    assert p.evolution.gamma == 0.01 and p.evolution.gamma_source == "given"
+    # ...and without it gamma comes from T and mu (gpe.setup.units.thermal_damping)
+    free = BASE.replace("damping = 0.01\n", "")
+    q = parse(free, overrides=["evolution.temperature_nK=60.0", "evolution.cutoff_mu=2.5"])
+    assert q.evolution.gamma_source == "computed"
+    assert 1e-6 < q.evolution.gamma < 1e-1
+    assert q.to_dict()["evolution"]["temperature_nK"] == pytest.approx(60.0)
+    # a hand-off to point vortices takes its mutual friction from the run's gamma, computed here
+    ends = parse(free, overrides=["evolution.temperature_nK=60.0", "evolution.cutoff_mu=2.5",
+                                  f"evolution.points_until_tau={10 * q.evolution.duration}"])
+    assert ends.evolution.points_friction == q.evolution.gamma
+
+
+@pytest.mark.parametrize("overrides, key, words", [
+    (["evolution.temperature_nK=-5.0"], "temperature_nK", ">= 0"),
+    (["evolution.temperature_nK=50.0"], "cutoff_mu", "missing"),
+    (["evolution.temperature_nK=50.0", "evolution.cutoff_mu=500.0"], "cutoff_mu", "k_max"),
+    (["evolution.temperature_nK=50.0", "evolution.cutoff_mu=0.8"], "cutoff_mu", "above the chemical"),
+    (["evolution.temperature_nK=50.0", "evolution.cutoff_mu=2.5", "evolution.damping=0.0"],
+     "damping", "noise strength"),
+    (["evolution.cutoff_mu=2.5"], "cutoff_mu", "temperature is 0"),
+])
+def test_finite_temperature_errors_name_the_key(overrides, key, words):
+    message = error_of(BASE, overrides)
+    assert f"[evolution] {key}" in message and words in message and "Accepted" in message

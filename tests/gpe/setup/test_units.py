@@ -17,6 +17,7 @@ from gpe.setup.units import (
     tf_mu_flat,
     tf_mu_harmonic,
     tf_number_flat,
+    axial_swelling,
     tf_number_harmonic,
 )
 
@@ -123,3 +124,17 @@ def test_healing_units_definitions_and_round_trips():
     assert all(isinstance(v, float) for v in u.as_dict().values())
     with pytest.raises(VorthermError, match="mu_J"):
         HealingUnits(m, -1.0, g)
+
+
+def test_axial_swelling_is_the_gaussian_variational_minimum():
+    """[exact, derivation in gpe.setup.units.axial_swelling] minimising
+    (s^-2 + s^2)/4 + x/(2 s) over s (energies in hbar omega_z, x = mu/(hbar omega_z)) by
+    scipy's bounded scalar minimiser; thin-gas limit s = 1 + x/4 + O(x^2)."""
+    from scipy.optimize import minimize_scalar
+    for x in (0.05, 0.34, 1.0):
+        best = minimize_scalar(lambda s, x=x: (s**-2 + s**2) / 4 + x / (2 * s), bounds=(0.5, 3.0),
+                               method="bounded", options={"xatol": 1e-12}).x
+        assert axial_swelling(x) == pytest.approx(best, rel=1e-7)
+    assert axial_swelling(1e-4) - 1 == pytest.approx(2.5e-5, rel=1e-3)
+    assert 0.075 < axial_swelling(0.34) - 1 < 0.085      # the ~8% of a mu/(hbar omega_z) = 0.34 gas
+    assert axial_swelling(0.0) == 1.0

@@ -106,6 +106,7 @@ class Disk(Domain):
 
     kind: ClassVar[str] = "disk"
     size_names: ClassVar[tuple[str, ...]] = ("radius",)
+    conserves_angular_impulse: ClassVar[bool] = True
 
     @classmethod
     def from_sizes(cls, sizes: Mapping[str, float]) -> tuple["Disk", float]:

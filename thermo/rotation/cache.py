@@ -25,7 +25,12 @@ import numpy as np
 
 from thermo.dos.cache import CacheWarning, default_cache_dir
 from thermo.errors import SamplerError
-from thermo.rotation.table import DEFAULT_SETTINGS, RotatingSettings, RotatingTable, build_table
+from thermo.rotation.table import (
+    DEFAULT_SETTINGS,
+    RotatingSettings,
+    RotatingTable,
+    build_table,
+)
 
 #: bump when the file layout changes (it is part of the digest)
 FORMAT_VERSION = 1

@@ -36,8 +36,8 @@ omega~ / N dimensionless.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
 from collections.abc import Callable, Sequence
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np

@@ -99,8 +99,8 @@ def linear_profile(n_plus: int, n_minus: int, beta: float, omega: float,
             "exist; use solve_profile")
 
     def chi(x):
-        if abs(kappa) < 1e-8:          # kappa -> 0: chi = (Q + omega) (r^2 - 1/2)
-            return (q + omega) * (x * x - 0.5)
+        if abs(kappa) < 1e-8:          # kappa -> 0: chi = -(Q + omega) (r^2 - 1/2)
+            return -(q + omega) * (x * x - 0.5)
         if kappa > 0:
             shape = 1.0 - a * special.i0(a * x) / (2.0 * special.i1(a))
         else:

@@ -89,7 +89,7 @@ def solve_mbar(energies: np.ndarray, betas: np.ndarray, n_k: np.ndarray,
     return _newton(minus_u, ln_n, c, f, tol, max_iter)
 
 
-def _self_consistent(minus_u, ln_n, c, tol: float = 1e-3, max_iter: int = 60) -> np.ndarray:
+def _self_consistent(minus_u, ln_n, c, tol: float = 1e-3, max_iter: int = 12) -> np.ndarray:
     """A start for Newton: a few self-consistent MBAR iterations from f = 0.
 
     Slower to converge than Newton but safe from any start (Shirts & Chodera 2008, eq. 11):

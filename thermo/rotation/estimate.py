@@ -1,7 +1,7 @@
 """beta and omega of vortex configurations in the rotating ensemble exp[-beta (H - omega M)].
 
 Sign convention: p(x) proportional to exp[-beta (H(x) - omega M(x))], M = sum_i s_i |u_i|^2
-(omega > 0 favours M > 0). In the natural parameters (beta, gamma = beta omega) this is an
+(the factor exp(beta omega M) favours M of the sign of beta omega). In the natural parameters (beta, gamma = beta omega) this is an
 exponential family with sufficient statistics (H, M) (any statistics text):
 
 * **Ensemble** (:func:`estimate_rotating_ensemble`). Shots are grouped by (N+, N-), each group
@@ -162,15 +162,20 @@ def _surface(groups, tb, tw) -> np.ndarray:
 def _newton(groups, theta_b: float, gamma: float, replicate=None, steps: int = 30):
     """Maximise l in (theta_beta, gamma) by Newton from a start; returns (tb, gamma, fisher)."""
     box_b, _ = _theta_box(groups)
-    for it in range(steps):
+    clipped_before = False
+    for _ in range(steps):
         score = np.zeros(2)
         info = np.zeros((2, 2))
+        clipped = False
         for g in groups:
             b = g.c * theta_b
             w = gamma / b if abs(b) > 1e-12 else 0.0
-            w = float(np.clip(w, *g.table.omega_range))
-            mean, cov, _ = g.table.cumulants(b, w, replicate) if abs(b) > 1e-12 else \
-                g.table.cumulants(0.0, 0.0, replicate)
+            lo, hi = g.table.omega_range
+            clipped |= not lo <= w <= hi
+            w = float(np.clip(w, lo, hi))
+            mean, cov, _ = g.table.cumulants(b if abs(b) > 1e-12 else 0.0,
+                                             w if abs(b) > 1e-12 else 0.0, replicate,
+                                             third=False)
             score += g.weight * np.array([g.c * (mean[0] - g.h_mean), g.m_mean - mean[1]])
             info += g.weight * np.array([[g.c ** 2 * cov[0, 0], -g.c * cov[0, 1]],
                                          [-g.c * cov[0, 1], cov[1, 1]]])
@@ -180,9 +185,13 @@ def _newton(groups, theta_b: float, gamma: float, replicate=None, steps: int = 3
             break
         if replicate is not None:       # one step from the central solution
             return theta_b + step[0], gamma + step[1], info
+        if clipped and clipped_before:
+            break       # the maximum lies beyond the sampled omegas: a bound (see _result)
+        clipped_before = clipped
         theta_b = float(np.clip(theta_b + step[0], *box_b))
         gamma += step[1]
-        if np.all(np.abs(step) < 1e-9 * (1 + abs(theta_b) + abs(gamma))):
+        # converged far below any statistical error (the intervals are ~1/sqrt(W) wide)
+        if np.all(np.abs(step) < 1e-7 * (1 + abs(theta_b) + abs(gamma))):
             break
     return theta_b, gamma, info
 
@@ -321,12 +330,20 @@ def estimate_rotating_ensemble(configs: Sequence, domain: Any, core_radius: floa
     return _fit(groups, "ensemble maximum likelihood", n_shots, float(w.sum()), common)
 
 
-def _fit(groups, method, n_shots, n_eff, common, single_point=None) -> RotationEstimate:
+def _grid_fit(groups):
+    """The likelihood surface on the fine grid and Newton's maximum from its grid maximum."""
     (b0, b1), (w0, w1) = _theta_box(groups)
     tb, tw = np.linspace(b0, b1, N_FINE[0]), np.linspace(w0, w1, N_FINE[1])
     ll = _surface(groups, tb, tw)
     i, j = np.unravel_index(np.argmax(ll), ll.shape)
     theta_b, gamma, info = _newton(groups, float(tb[i]), float(tb[i] * tw[j]))
+    return tb, tw, ll, (i, j), theta_b, gamma, info
+
+
+def _fit(groups, method, n_shots, n_eff, common, single_point=None,
+         grid_fit=None) -> RotationEstimate:
+    tb, tw, ll, (_, j), theta_b, gamma, info = grid_fit or _grid_fit(groups)
+    w0, w1 = tw[0], tw[-1]
     t_b, t_g = theta_b, gamma
     e_b, e_w, se_b, se_w, theta_w = _errors(groups, t_b, t_g, info)
     if not (w0 <= theta_w <= w1) or not np.isfinite(theta_w):
@@ -374,12 +391,10 @@ def estimate_rotating_single(positions: Any, signs: Any, domain: Any, core_radiu
     provide = _provider(domain, core_radius, cache_dir, settings, seed, progress, table_provider)
     n = sum(key)
     g = _Group(key, provide(*key), 1.0 / n, float(n), 1.0, float(h[0]), float(m[0]))
-    (b0, b1), (w0, w1) = _theta_box([g])
-    tb, tw = np.linspace(b0, b1, N_FINE[0]), np.linspace(w0, w1, N_FINE[1])
-    ll = _surface([g], tb, tw)
-    i, j = np.unravel_index(np.argmax(ll), ll.shape)
-    theta_b, gamma, _ = _newton([g], float(tb[i]), float(tb[i] * tw[j]))
+    grid_fit = _grid_fit([g])
+    tb, tw, _, (_, j), theta_b, gamma, _ = grid_fit
     beta_mic, omega_mic = microcanonical(g.table, g.h_mean, g.m_mean, theta_b / n, gamma)
-    point = (float(np.clip(beta_mic * n, b0, b1)), float(np.clip(omega_mic / n, w0, w1))
-             if np.isfinite(omega_mic) else float(tw[j]))
-    return _fit([g], "microcanonical", 1, 1.0, "beta_n", single_point=point)
+    point = (float(np.clip(beta_mic * n, tb[0], tb[-1])),
+             float(np.clip(omega_mic / n, tw[0], tw[-1])) if np.isfinite(omega_mic)
+             else float(tw[j]))
+    return _fit([g], "microcanonical", 1, 1.0, "beta_n", single_point=point, grid_fit=grid_fit)

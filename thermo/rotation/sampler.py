@@ -6,8 +6,9 @@ point-vortex gas is
 
 .. math:: p(x) \\propto \\exp[-\\beta (H(x) - \\omega M(x))]
 
-(sign convention of this package: omega > 0 favours M > 0, i.e. positive vortices far from the
-centre and negative ones near it; at omega = 0 it is the canonical ensemble of
+(sign convention of this package; the factor exp(beta omega M) favours M of the sign of
+beta omega: at beta > 0 and omega > 0 positive vortices far from the centre and negative ones
+near it, at beta < 0 the reverse; at omega = 0 it is the canonical ensemble of
 :mod:`thermo.sampler`). Each state k has the reduced potential u_k = beta_k (H - omega_k M).
 
 One sweep = N single-vortex Metropolis moves per replica (acceptance

@@ -157,22 +157,35 @@ class RotatingTable:
         """ln Z(beta, omega) - ln Z(state 0), by reweighting the pooled samples (exact MBAR)."""
         return float(logsumexp(self._log_weights(beta, omega, replicate)))
 
-    def cumulants(self, beta: float, omega: float, replicate: int | None = None
-                  ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    def cumulants(self, beta: float, omega: float, replicate: int | None = None,
+                  third: bool = True) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
         """Cumulants of x = (H, M) at (beta, omega): mean (2,), covariance (2, 2), third (2, 2, 2).
 
-        ``replicate``: a bootstrap replicate's weights instead of the central ones.
+        ``replicate``: a bootstrap replicate's weights instead of the central ones;
+        ``third`` False skips the third cumulants (None).
 
         Units: H in E0, M in length unit^2 (products accordingly).
         """
         lw = self._log_weights(beta, omega, replicate)
-        w = np.exp(lw - lw.max())
+        lw -= lw.max()
+        w = np.exp(lw, out=lw)
         w /= w.sum()
-        x = np.stack([self.energies, self.impulses])            # (2, Ntot)
+        x = self.__dict__.get("_x")
+        if x is None:
+            x = np.stack([self.energies, self.impulses])        # (2, Ntot), kept
+            object.__setattr__(self, "_x", x)
         mean = x @ w
         d = x - mean[:, None]
-        cov = (d * w) @ d.T
-        k3 = np.einsum("in,jn,kn,n->ijk", d, d, d, w)
+        dw = d * w
+        cov = dw @ d.T
+        if not third:
+            return mean, cov, None
+        k3 = np.empty((2, 2, 2))
+        for i, j, k in np.ndindex(2, 2, 2):
+            if i <= j <= k:
+                val = float((dw[i] * d[j]) @ d[k])
+                for perm in {(i, j, k), (i, k, j), (j, i, k), (j, k, i), (k, i, j), (k, j, i)}:
+                    k3[perm] = val
         return mean, cov, k3
 
     def log_z_spline(self):
@@ -232,7 +245,7 @@ def table_from_samples(samples: RotatingSamples, n_boot: int, rng: np.random.Gen
     boot_ld = np.empty((n_boot, e.size))
     for b in range(n_boot):
         fb, _ = solve_mbar(e, samples.betas, n_k, counts=counts[b], f_init=f, reduced=u,
-                           tol=1e-7, max_iter=20)
+                           tol=1e-7, max_iter=3)
         boot_ld[b] = logsumexp(-u + (fb + np.log(n_k))[:, None], axis=0)
     b_axis = np.unique(samples.betas)
     w_axis = np.unique(samples.omegas)

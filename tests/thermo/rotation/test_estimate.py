@@ -137,3 +137,31 @@ def test_single_configuration_and_bad_input(rng):
     with pytest.raises(DomainError, match="does not conserve"):
         estimate_rotating_ensemble([(np.array([[0.1, 0.1], [-0.1, 0.2]]), [1, -1])], box,
                                    CORE, table_provider=lambda a, b: table)
+
+
+@pytest.mark.slow
+def test_mixed_vortex_numbers_share_beta_n_and_omega_over_n(rng):
+    """Shots of two vortex numbers drawn at one (beta~ N, omega~ / N) (a protocol whose vortex
+    number fluctuates from shot to shot): the joint fit over both groups (each with its own
+    table) covers the truth with intervals narrower than either group's alone (the likelihoods
+    add; common practice for a shared parameter)."""
+    settings = RotatingSettings(n_betas=8, n_omegas=5, n_sweeps=1500, n_boot=4)
+    truth = (-2.0, 0.5)
+    shots, weights, alone = [], [], {}
+    for key in ((2, 2), (3, 2)):
+        table = build_table(*key, Disk(), CORE, settings, np.random.default_rng(sum(key)))
+        c, w = _draws(*key, *truth, rng, shots=150)
+        shots += c
+        weights += list(w)
+        alone[key] = (table, estimate_rotating_ensemble(c, Disk(), CORE, weights=w,
+                                                        table_provider=lambda a, b, t=table: t))
+    both = estimate_rotating_ensemble(shots, Disk(), CORE, weights=weights,
+                                      table_provider=lambda a, b: alone[(a, b)][0])
+    assert both.groups == ((2, 2), (3, 2))
+    lo, hi = both.beta_n_ci95
+    assert lo <= truth[0] <= hi
+    lo, hi = both.omega_n_ci95
+    assert lo <= truth[1] <= hi
+    for _, est in alone.values():
+        assert (both.beta_n_ci95[1] - both.beta_n_ci95[0]
+                < est.beta_n_ci95[1] - est.beta_n_ci95[0])

@@ -25,8 +25,11 @@ exponential family with sufficient statistics (H, M) (any statistics text):
   d ln p / dx_a = -(1/2) L_ai k_ijk L_jk (L the inverse covariance, k the third cumulants;
   the two-variable form of thermo.dos.tables.beta_saddle_from_cumulants). Its intervals are
   the one-shot profile-likelihood intervals, extended to contain the value.
-* **Honesty.** An estimate or interval that reaches an edge of the sampled (beta, omega)
-  rectangle is reported as a bound on that side (``bounds``); the spread of the estimate over
+* **Honesty.** An ensemble estimate or interval that reaches ONE edge of the sampled
+  (beta, omega) rectangle is redone on tables with that range doubled (:func:`widened_settings`,
+  up to ``MAX_WIDEN`` times, each table cached like every build; ``extra["widened"]`` counts
+  them); what still reaches an edge is reported as a bound on that side (``bounds``). A single
+  configuration is not widened (its one-shot intervals usually span the range). The spread of the estimate over
   the table's bootstrap replicates (one Newton step each) widens the intervals in quadrature
   (``table_error``).
 
@@ -37,7 +40,7 @@ omega~ / N dimensionless.
 from __future__ import annotations
 
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -50,6 +53,8 @@ from thermo.rotation.cache import load_or_build_table
 from thermo.rotation.table import DEFAULT_SETTINGS, RotatingSettings, RotatingTable
 
 Q95_JOINT = float(chi2.ppf(0.95, 2))
+#: how many times the sampled range may be doubled for one estimate (see widened_settings)
+MAX_WIDEN = 2
 #: fine grid of the likelihood surfaces (beta x omega points)
 N_FINE = (201, 101)
 COMMON = ("beta_n", "beta")
@@ -318,16 +323,43 @@ def estimate_rotating_ensemble(configs: Sequence, domain: Any, core_radius: floa
     if small:
         raise ConfigurationError(f"shots with fewer than two vortices (groups {small}): beta "
                                  "and omega are undefined for them; drop them")
-    provide = _provider(domain, core_radius, cache_dir, settings, seed, progress, table_provider)
-    groups = []
-    for key, rows in sorted(grouped.items()):
-        idx, h, m = _stats(domain, rows)
-        wg = w[idx]
-        n = sum(key)
-        c, d = (1.0 / n, float(n)) if common == "beta_n" else (1.0, 1.0)
-        groups.append(_Group(key, provide(*key), c, d, float(wg.sum()),
-                             float(wg @ h / wg.sum()), float(wg @ m / wg.sum())))
-    return _fit(groups, "ensemble maximum likelihood", n_shots, float(w.sum()), common)
+    stats = {key: _stats(domain, rows) for key, rows in sorted(grouped.items())}
+    widened = 0
+    while True:
+        provide = _provider(domain, core_radius, cache_dir, settings, seed, progress,
+                            table_provider)
+        groups = []
+        for key, (idx, h, m) in stats.items():
+            wg = w[idx]
+            n = sum(key)
+            c, d = (1.0 / n, float(n)) if common == "beta_n" else (1.0, 1.0)
+            groups.append(_Group(key, provide(*key), c, d, float(wg.sum()),
+                                 float(wg @ h / wg.sum()), float(wg @ m / wg.sum())))
+        est = _fit(groups, "ensemble maximum likelihood", n_shots, float(w.sum()), common)
+        wider = widened_settings(settings, est.bounds)
+        if table_provider is not None or wider is None or widened >= MAX_WIDEN:
+            return replace(est, extra={**est.extra, "widened": widened})
+        settings, widened = wider, widened + 1
+
+
+def widened_settings(settings: RotatingSettings, bounds) -> RotatingSettings | None:
+    """Settings with the sampled range doubled on the axis whose ONE side an estimate reached.
+
+    As the beta-only ladder is widened (thermo.estimate, ``reach``): ranges, not clipping.
+    Both omega edges reached means omega is not determined (beta near 0), which a wider range
+    does not cure; then only a one-sided beta bound widens. None when nothing is to widen.
+
+    Units: omega_max_n dimensionless; beta in 1/E0.
+    """
+    b = {"beta low", "beta high"} & set(bounds)
+    o = {"omega low", "omega high"} & set(bounds)
+    changes = {}
+    if len(o) == 1:
+        changes["omega_max_n"] = 2.0 * settings.omega_max_n
+    if len(b) == 1:
+        changes.update(beta_max=2.0 * settings.beta_max, overshoot=2.0 * settings.overshoot,
+                       n_betas=settings.n_betas + 4)
+    return replace(settings, **changes) if changes else None
 
 
 def _grid_fit(groups):

@@ -165,3 +165,20 @@ def test_mixed_vortex_numbers_share_beta_n_and_omega_over_n(rng):
     for _, est in alone.values():
         assert (both.beta_n_ci95[1] - both.beta_n_ci95[0]
                 < est.beta_n_ci95[1] - est.beta_n_ci95[0])
+
+
+@pytest.mark.slow
+def test_an_estimate_beyond_the_sampled_omegas_widens_the_tables(rng, tmp_path):
+    """Ranges, not clipping (as for beta alone): shots drawn at omega~/N = 0.8 fitted first on
+    tables sampled only to omega~/N = 0.5 reach that edge; the estimate is redone on tables of
+    twice (and, if its interval still reaches the edge, four times) the range, each cached, and
+    then covers the truth without a bound."""
+    settings = RotatingSettings(n_betas=8, n_omegas=5, omega_max_n=0.5, n_sweeps=1500,
+                                n_boot=4)
+    configs, w = _draws(3, 0, -1.6, 0.8, rng, shots=150)
+    est = estimate_rotating_ensemble(configs, Disk(), CORE, weights=w, cache_dir=tmp_path,
+                                     settings=settings)
+    assert est.extra["widened"] >= 1 and not est.bounds, est.verdict
+    lo, hi = est.omega_n_ci95
+    assert lo <= 0.8 <= hi
+    assert len(list(tmp_path.glob("rot_3p0m_*.npz"))) == est.extra["widened"] + 1

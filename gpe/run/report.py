@@ -225,7 +225,7 @@ def text_report(result: dict) -> str:
     lines = [head, "-" * len(head)]
     for r in result["records"]:
         tval = r.get(tk, "")
-        tstr = f"{tval:12.4g}" if isinstance(tval, float) else f"{str(tval):>12}"
+        tstr = f"{tval:12.4g}" if isinstance(tval, float) else f"{tval!s:>12}"
         if "run" in r:
             tstr = f"{r['run'][-12:]:>12} {tstr.strip():>8}"
         n = r["n_plus"] + r["n_minus"]

@@ -181,7 +181,7 @@ class Domain(ABC):
     # -- to be provided by every domain ----------------------------------------------------
     @classmethod
     @abstractmethod
-    def from_sizes(cls, sizes: Mapping[str, float]) -> tuple["Domain", float]:
+    def from_sizes(cls, sizes: Mapping[str, float]) -> tuple[Domain, float]:
         """The domain of the given physical sizes and its length unit.
 
         Parameters

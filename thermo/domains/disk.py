@@ -109,7 +109,7 @@ class Disk(Domain):
     conserves_angular_impulse: ClassVar[bool] = True
 
     @classmethod
-    def from_sizes(cls, sizes: Mapping[str, float]) -> tuple["Disk", float]:
+    def from_sizes(cls, sizes: Mapping[str, float]) -> tuple[Disk, float]:
         """The disk of radius ``sizes["radius"]`` and that radius as the length unit.
 
         Units: those of ``sizes``.

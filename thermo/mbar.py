@@ -42,7 +42,8 @@ def tau_int(x: np.ndarray) -> float:
 
 def solve_mbar(energies: np.ndarray, betas: np.ndarray, n_k: np.ndarray,
                counts: np.ndarray | None = None, f_init: np.ndarray | None = None,
-               tol: float = 1e-10, max_iter: int = 200) -> tuple[np.ndarray, np.ndarray]:
+               tol: float = 1e-10, max_iter: int = 200, reduced: np.ndarray | None = None
+               ) -> tuple[np.ndarray, np.ndarray]:
     """Solve the MBAR equations for states u_k = beta_k E by Newton's method.
 
     Parameters
@@ -51,7 +52,11 @@ def solve_mbar(energies: np.ndarray, betas: np.ndarray, n_k: np.ndarray,
     counts : (Ntot,) multiplicity of each energy (bootstrap, or the occupation of energy
         bins when ``energies`` are bin energies), default all ones.
     f_init : (K,) starting free energies; default from thermodynamic integration (needs
-        the energies in state order, n_k per state, i.e. not binned).
+        the energies in state order, n_k per state, i.e. not binned), or zeros when
+        ``reduced`` is given.
+    reduced : (K, Ntot) reduced potentials u_k(x_n) of general states (e.g.
+        beta_k (E - omega_k M), thermo.rotation), replacing beta_k E_n; ``energies`` and
+        ``betas`` are then not used.
 
     Returns
     -------
@@ -60,10 +65,15 @@ def solve_mbar(energies: np.ndarray, betas: np.ndarray, n_k: np.ndarray,
 
     Units: energies in E0, betas in 1/E0, f dimensionless.
     """
+    ln_n = np.log(np.asarray(n_k, float))
+    if reduced is not None:
+        minus_u = -np.asarray(reduced, float) + ln_n[:, None]
+        c = np.ones(minus_u.shape[1]) if counts is None else np.asarray(counts, float)
+        f = _self_consistent(minus_u, ln_n, c) if f_init is None else np.array(f_init, float)
+        return _newton(minus_u, ln_n, c, f - f[0], tol, max_iter)
     e = np.asarray(energies, float)
     b = np.asarray(betas, float)
     c = np.ones_like(e) if counts is None else np.asarray(counts, float)
-    ln_n = np.log(np.asarray(n_k, float))
     k = b.size
     if f_init is None:
         # d f / d beta = <E>: per-state means of consecutive blocks of n_k samples
@@ -76,6 +86,31 @@ def solve_mbar(energies: np.ndarray, betas: np.ndarray, n_k: np.ndarray,
         f = np.array(f_init, float)
     f -= f[0]
     minus_u = -np.outer(b, e) + ln_n[:, None]               # (K, Ntot)
+    return _newton(minus_u, ln_n, c, f, tol, max_iter)
+
+
+def _self_consistent(minus_u, ln_n, c, tol: float = 1e-3, max_iter: int = 12) -> np.ndarray:
+    """A start for Newton: a few self-consistent MBAR iterations from f = 0.
+
+    Slower to converge than Newton but safe from any start (Shirts & Chodera 2008, eq. 11):
+    states that no sample of another state reaches yet make Newton's Hessian singular at
+    f = 0.
+    """
+    ln_c = np.log(np.where(c > 0, c, 1e-300))
+    f = np.zeros(minus_u.shape[0])
+    for _ in range(max_iter):
+        ld = logsumexp(minus_u + f[:, None], axis=0)
+        new = -logsumexp(minus_u - ln_n[:, None] - ld[None, :] + ln_c[None, :], axis=1)
+        new -= new[0]
+        if np.max(np.abs(new - f)) < tol:
+            return new
+        f = new
+    return f
+
+
+def _newton(minus_u, ln_n, c, f, tol, max_iter):
+    """Newton iterations on the convex MBAR objective (gauge f[0] = 0)."""
+    k = ln_n.size
 
     def objective(fv):
         a = minus_u + fv[:, None]
@@ -91,7 +126,10 @@ def solve_mbar(energies: np.ndarray, betas: np.ndarray, n_k: np.ndarray,
             break
         hess = np.diag(pc.sum(axis=1)) - pc @ pi.T
         step = np.zeros(k)
-        step[1:] = np.linalg.solve(hess[1:, 1:], -grad[1:])
+        try:
+            step[1:] = np.linalg.solve(hess[1:, 1:], -grad[1:])
+        except np.linalg.LinAlgError:      # identical states (e.g. every omega at beta = 0)
+            step[1:] = np.linalg.lstsq(hess[1:, 1:], -grad[1:], rcond=None)[0]
         t = 1.0
         while True:  # backtracking keeps Newton monotone far from the solution
             new_obj, new_a, new_ld = objective(f + t * step)

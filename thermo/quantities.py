@@ -32,6 +32,8 @@ QUANTITIES: dict[str, Quantity] = {q.name: q for q in (
     Quantity("beta", "1/E0", f"inverse temperature of the vortex gas, beta~ = beta E0, E0 = {E0}"),
     Quantity("beta_n", "1", "beta~ N, the inverse temperature times the vortex number: compares "
              "gases of different N"),
+    Quantity("omega", "E0", "rotation frequency of the rotating ensemble exp[-beta (H - omega M)], "
+             "M = sum s_i |u_i|^2 (in E0 per squared disk radius; thermo.rotation)"),
     Quantity("energy_per_vortex", "E0", "point-vortex energy per vortex (constant N ln(R/a) dropped)"),
     Quantity("dipole_moment", "domain size", "D = |sum s_i u_i| / N"),
     Quantity("c1", "1", "C1 = (1/N) sum_i s_i s_nn(i), nn the nearest neighbour"),

@@ -67,6 +67,12 @@ def register_temperature(sub) -> None:
     p.add_argument("--csv", type=Path, help="where to write the table (default: beside the source)")
     p.add_argument("--json", action="store_true", help="print the results as JSON on stdout")
     p.add_argument("--plot", action="store_true", help="draw beta(t) and clustering observables")
+    p.add_argument("--rotating", action="store_true",
+                   help="also fit the rotating ensemble exp[-beta (H - omega M)] (disk only; M = "
+                        "sum s_i |u_i|^2 in units of R^2): omega (in E0 = rho kappa^2/(4 pi) per "
+                        "R^2) and omega/N for every frame or shot and the ensemble, whether omega "
+                        "is non-zero, and the mean-field radial profile (with --plot, a figure "
+                        "<source>_meanfield.png); builds its own (beta, omega) tables")
     p.add_argument("--force", action="store_true",
                    help="overwrite an existing table (and figure) of an earlier call")
     p.set_defaults(handler=_cmd_temperature)
@@ -102,7 +108,7 @@ def _cmd_temperature(args) -> int:
         raise VorthermError(f"{flag}: {args.source} is a measured table (not a run file), whose "
                             f"shots are all used; leave out {flag}")
     imaging_um = check_imaging_options(args)
-    refuse_to_overwrite(temperature_outputs(args.source, args.csv, args.plot),
+    refuse_to_overwrite(temperature_outputs(args.source, args.csv, args.plot, args.rotating),
                         inputs=[args.source, *args.more_runs], force=args.force)
     if run_file:
         if args.window_ms is not None:
@@ -116,7 +122,8 @@ def _cmd_temperature(args) -> int:
             result = thermometry.temperature_of_runs(
                 [args.source, *args.more_runs], frames=parse_frames(args.frames),
                 window=args.window_ms, time_unit="ms", common=args.common, effort=args.effort,
-                systematics=not args.no_systematics, progress=dos_progress())
+                systematics=not args.no_systematics, progress=dos_progress(),
+                rotating=args.rotating)
         except VorthermError as exc:
             if args.window_ms is not None and "window" in str(exc):
                 raise VorthermError(f"{_time_option(args)}: {exc}") from None
@@ -131,13 +138,15 @@ def _cmd_temperature(args) -> int:
             args.source, shape=shape, core_um=args.core_um, pixel_um=args.pixel_um,
             center_px=args.center, strict=args.strict, effort=args.effort,
             imaging_um=imaging_um or None, common=args.common,
-            systematics=not args.no_systematics, progress=dos_progress(), **kw)
+            systematics=not args.no_systematics, progress=dos_progress(),
+            rotating=args.rotating, **kw)
     show_temperature(result, args.source, csv_path=args.csv, as_json=args.json, plot=args.plot,
-                     force=args.force)
+                     force=args.force, rotating=args.rotating)
     return 0
 
 
-def temperature_outputs(source: Path, csv_path: Path | None, plot: bool) -> list[tuple[Path, str]]:
+def temperature_outputs(source: Path, csv_path: Path | None, plot: bool,
+                        rotating: bool = False) -> list[tuple[Path, str]]:
     """The files ``temperature`` writes for ``source``, each with how to name it otherwise.
 
     Units: none.
@@ -147,11 +156,15 @@ def temperature_outputs(source: Path, csv_path: Path | None, plot: bool) -> list
     if plot:
         outputs.append((source.with_name(source.stem + "_temperature.png"),
                         "leave out --plot (the figure is named after the source)"))
+    if plot and rotating:
+        outputs.append((source.with_name(source.stem + "_meanfield.png"),
+                        "leave out --plot (the figure is named after the source)"))
     return outputs
 
 
 def show_temperature(result: dict, source: Path, *, csv_path: Path | None = None,
-                     as_json: bool = False, plot: bool = False, force: bool = False) -> None:
+                     as_json: bool = False, plot: bool = False, force: bool = False,
+                     rotating: bool = False) -> None:
     """Write the table (and figure) of a thermometry result and print it (text or JSON).
 
     Existing outputs are refused unless ``force`` (see :func:`temperature_outputs`).
@@ -162,7 +175,7 @@ def show_temperature(result: dict, source: Path, *, csv_path: Path | None = None
     from gpe.figures.style import save
     from gpe.run import report
 
-    outputs = temperature_outputs(source, csv_path, plot)
+    outputs = temperature_outputs(source, csv_path, plot, rotating)
     refuse_to_overwrite(outputs, inputs=[source], force=force)
     csv_path = outputs[0][0]
     report.write_records_csv(csv_path, result["records"], result["time_key"],
@@ -176,6 +189,13 @@ def show_temperature(result: dict, source: Path, *, csv_path: Path | None = None
         fig_path = save(thermo_figures.plot_temperature_series(result), outputs[1][0],
                         overwrite=True)   # refused above unless force
         print(f"figure written to {fig_path}")
+    if plot and rotating:
+        if "chi2" in (result["ensemble"].get("meanfield") or {}):
+            fig_path = save(thermo_figures.plot_meanfield(result["ensemble"]), outputs[2][0],
+                            overwrite=True)
+            print(f"figure written to {fig_path}")
+        else:
+            print("no mean-field figure: " + str(result["ensemble"].get("omega_verdict", "")))
 
 
 

@@ -219,3 +219,46 @@ def plot_comparison(comparison, *, length_scale_um: tuple[float, float] | None =
     flat[14].set_axis_off()
     legend_outside(fig, ncols=4)
     return fig
+
+
+def plot_meanfield(ensemble: dict) -> Any:
+    """Mean-field vortex densities at the fitted (beta, omega) against the radial histograms.
+
+    ``ensemble`` is an ensemble record with ``meanfield`` (gpe.run.rotating.ensemble_rotation):
+    the Poisson-Boltzmann n+(r), n-(r) of the largest group as lines, the measured or simulated
+    mean density per equal-area bin (counts per shot / bin area) as steps, the goodness of fit
+    in the title.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+
+    Units: r in the disk radius R; densities in vortices per R^2.
+    """
+    mf = ensemble.get("meanfield") or {}
+    if "chi2" not in mf:
+        raise ValueError("the ensemble record has no mean-field comparison (run with --rotating "
+                         f"on a disk); {mf.get('note', '')}")
+    edges = np.asarray(mf["edges"])
+    area = np.pi * np.diff(edges ** 2)
+    r = np.asarray(mf["r"])
+    fig = new_figure(6.0, 4.0)
+    ax = fig.subplots()
+    for sign, colour, dash, count in ((1, PLUS_COLOUR, "-", mf["n_plus"]),
+                                      (-1, MINUS_COLOUR, "--", mf["n_minus"])):
+        if not count:
+            continue
+        name = "plus" if sign > 0 else "minus"
+        obs = np.asarray(mf[f"observed_{name}"]) / area
+        ax.stairs(obs, edges, color=colour, lw=1.5, label=f"{'+' if sign > 0 else '-'} "
+                  "vortices, histogram")
+        ax.plot(r, mf[f"n_{name}_profile"], color=colour, ls=dash, lw=1,
+                label=f"{'+' if sign > 0 else '-'} mean field")
+    ax.set_xlabel("r / R")
+    ax.set_ylabel(r"vortex density [$R^{-2}$]")
+    ax.set_xlim(0, 1)
+    ax.set_title(rf"Poisson-Boltzmann at $\tilde\beta N$ = {ensemble['beta_rot_n']:.3g}, "
+                 rf"$\tilde\omega/N$ = {ensemble['omega_n']:.3g}: $\chi^2$ = {mf['chi2']:.3g} "
+                 f"/ {mf['dof']} bins (p = {mf['pvalue']:.2g})", fontsize=9)
+    legend_outside(fig)
+    return fig

@@ -31,6 +31,12 @@ CSV_UNITS = {"n_plus": "1", "n_minus": "1", "energy_per_vortex": "E0", "beta": "
              "c1": "1", "dipole_fraction": "1", "cluster_fraction": "1", "free_fraction": "1",
              "left_out_wall": "1", "left_out_pairs": "1", "verdict": "", "frame": "1",
              "shot": "", "run": ""}
+#: columns added when the records carry the rotating fit (``--rotating``, gpe.run.rotating)
+ROTATING_COLUMNS = ("omega", "omega_ci95_lo", "omega_ci95_hi", "omega_n", "omega_n_ci95_lo",
+                    "omega_n_ci95_hi", "beta_rot_n", "omega_pvalue", "omega_nonzero")
+CSV_UNITS.update({"omega": "E0", "omega_ci95_lo": "E0", "omega_ci95_hi": "E0", "omega_n": "E0",
+                  "omega_n_ci95_lo": "E0", "omega_n_ci95_hi": "E0", "beta_rot_n": "1",
+                  "omega_pvalue": "1", "omega_nonzero": ""})
 
 
 def flat_record(rec: dict) -> dict:
@@ -45,6 +51,9 @@ def flat_record(rec: dict) -> dict:
     out["beta_ci95_lo"], out["beta_ci95_hi"] = rec["beta_ci95"]
     out["beta_n_ci95_lo"], out["beta_n_ci95_hi"] = rec.get("beta_n_ci95", [math.nan] * 2)
     out["bound"] = rec.get("bound") or ""
+    if "omega" in rec:
+        out["omega_ci95_lo"], out["omega_ci95_hi"] = rec["omega_ci95"]
+        out["omega_n_ci95_lo"], out["omega_n_ci95_hi"] = rec["omega_n_ci95"]
     return out
 
 
@@ -72,7 +81,8 @@ def record_columns(records: list[dict], time_key: str, time_unit: str = ""
     first = ((["run"] if any("run" in r for r in records) else []) + [time_key]
              + (["frame"] if time_key == "t" else []))
     units = dict(CSV_UNITS, t=time_unit or "")
-    return [(c, units.get(c, "")) for c in first + list(CSV_COLUMNS)]
+    rotating = list(ROTATING_COLUMNS) if any("omega" in r for r in records) else []
+    return [(c, units.get(c, "")) for c in first + list(CSV_COLUMNS) + rotating]
 
 
 def write_records_csv(path, records: list[dict], time_key: str, time_unit: str = "") -> Path:
@@ -135,6 +145,30 @@ def beta_n_text(rec: dict) -> str:
     return f"{b:.3g} [{lo:.3g}, {hi:.3g}]"
 
 
+def omega_n_text(rec: dict) -> str:
+    """omega~ / N of a record in words: "0.41 [0.12, 0.7]", or "undefined"."""
+    w = rec.get("omega_n", math.nan)
+    if not isinstance(w, (int, float)) or not math.isfinite(w):
+        return "undefined"
+    lo, hi = rec.get("omega_n_ci95", [math.nan, math.nan])
+    return f"{w:.3g} [{lo:.3g}, {hi:.3g}]"
+
+
+def _rotating_lines(ens: dict) -> list[str]:
+    if "omega_verdict" not in ens:
+        return []
+    lines = [f"  rotating ensemble exp[-beta (H - omega M)]: {ens['omega_verdict']}"]
+    mf = ens.get("meanfield") or {}
+    if "chi2" in mf:
+        lines.append(f"  mean field (Poisson-Boltzmann at the fitted beta, omega; "
+                     f"{mf['n_plus']}+{mf['n_minus']}) vs radial histograms: chi2 = "
+                     f"{mf['chi2']:.3g} for {mf['dof']} bins (p = {mf['pvalue']:.2g})"
+                     + (f"; {mf['note']}" if mf.get("note") else ""))
+    elif mf.get("note"):
+        lines.append(f"  {mf['note']}")
+    return lines
+
+
 def _ensemble_lines(ens: dict, unit: str) -> list[str]:
     lines = []
     where = (f" (frames in {ens['window'][0]:.4g}..{ens['window'][1]:.4g}{unit})"
@@ -169,7 +203,7 @@ def _ensemble_lines(ens: dict, unit: str) -> list[str]:
         lines.append(f"  systematics (shift of beta~N): {'; '.join(parts)}; total {lo:+.2g}/{hi:+.2g}")
     if ens.get("imaging_note"):
         lines.append(f"  note: {ens['imaging_note']}")
-    return lines
+    return lines + _rotating_lines(ens)
 
 
 def text_report(result: dict) -> str:
@@ -186,10 +220,13 @@ def text_report(result: dict) -> str:
              else f"{tk + unit:>12}")
     head = (f"{first} {'N+':>4} {'N-':>4} {'E/N':>8} {'beta~N (95% interval)':>26} "
             f"{'D':>6} {'C1':>6} {'dip':>5} {'clu':>5} {'free':>5}")
+    rotating = any("omega" in r for r in result["records"])
+    if rotating:
+        head += f" {'omega~/N (95% interval)':>26}"
     lines = [head, "-" * len(head)]
     for r in result["records"]:
         tval = r.get(tk, "")
-        tstr = f"{tval:12.4g}" if isinstance(tval, float) else f"{str(tval):>12}"
+        tstr = f"{tval:12.4g}" if isinstance(tval, float) else f"{tval!s:>12}"
         if "run" in r:
             tstr = f"{r['run'][-12:]:>12} {tstr.strip():>8}"
         n = r["n_plus"] + r["n_minus"]
@@ -198,7 +235,8 @@ def text_report(result: dict) -> str:
             f"{tstr} {r['n_plus']:4d} {r['n_minus']:4d} {_fmt(r['energy_per_vortex'])} "
             f"{bn:>26} {_fmt(r['dipole_moment'], 6)} {_fmt(r['c1'], 6)} "
             f"{_fmt(r['dipole_fraction'], 5)} {_fmt(r['cluster_fraction'], 5)} "
-            f"{_fmt(r['free_fraction'], 5)}")
+            f"{_fmt(r['free_fraction'], 5)}"
+            + (f" {omega_n_text(r):>26}" if rotating else ""))
     lines.append("")
     lines.extend(_ensemble_lines(result["ensemble"], unit))
     if result.get("drive_note"):

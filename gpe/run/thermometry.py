@@ -22,6 +22,7 @@ from gpe.errors import VorthermError
 from gpe.run.frames import RunSeries, drive_end
 from gpe.run.gas import CORE_RADIUS_XI, WALL_LAYER_XI
 from gpe.run.reading import select_frames
+from gpe.run.rotating import configuration_rotation, ensemble_rotation, impulse_weights
 from thermo.classify import structure_observables
 from thermo.data.compare import shot_statistics
 from thermo.data.measured import read_measured
@@ -81,12 +82,13 @@ def _estimate_record(est) -> dict:
 
 
 def configuration_records(configs, domain, core_radius: float, *, effort: str = DEFAULT_EFFORT,
-                          cache_dir=None, progress=None) -> list[dict]:
+                          cache_dir=None, progress=None, rotating: bool = False) -> list[dict]:
     """One thermometry record per configuration (microcanonical beta at its energy).
 
     ``configs`` is a sequence of (positions, signs) in domain units. Fewer than two vortices
     give a record whose ``verdict`` says why beta is undefined (never a silent number).
     ``progress(done, total)`` is told the sweeps of every density-of-states build.
+    ``rotating`` adds omega (gpe.run.rotating.configuration_rotation).
     """
     settings = dos_settings(effort)
     records = []
@@ -100,6 +102,9 @@ def configuration_records(configs, domain, core_radius: float, *, effort: str = 
             obs = structure_observables(pos, signs)
             for key, values in obs.items():
                 rec[key] = float(values[0])
+        if rotating:
+            rec.update(configuration_rotation(pos, signs, domain, core_radius, effort=effort,
+                                              cache_dir=cache_dir, progress=progress))
         records.append(rec)
     return records
 
@@ -114,12 +119,14 @@ def _undefined_ensemble(n_configs: int, why: str) -> dict:
 
 def ensemble_record(configs, domain, core_radius: float, *, weights=None,
                     common: str = "beta_n", imaging=None,
-                    effort: str = DEFAULT_EFFORT, cache_dir=None, progress=None) -> dict:
+                    effort: str = DEFAULT_EFFORT, cache_dir=None, progress=None,
+                    rotating: bool = False, rotating_weights=None) -> dict:
     """beta~ N shared by an ensemble of configurations (thermo.estimate), as a record.
 
     Configurations with fewer than two vortices carry no temperature information and are left
     out (their number is reported as ``left_out_small``). ``weights`` (one per configuration,
-    in (0, 1]) count correlated frames as fewer independent ones.
+    in (0, 1]) count correlated frames as fewer independent ones. ``rotating`` adds omega
+    (gpe.run.rotating.ensemble_rotation, with ``rotating_weights`` or else ``weights``).
     """
     keep = [i for i, (_, s) in enumerate(configs) if len(s) >= 2]
     if not keep:
@@ -137,6 +144,10 @@ def ensemble_record(configs, domain, core_radius: float, *, weights=None,
                 "effort": effort,
                 "groups": [{"n_plus": a, "n_minus": b, "shots": n} for a, b, n in est.groups],
                 "left_out_small": len(configs) - len(keep), "imaging": est.imaging})
+    if rotating:
+        rec.update(ensemble_rotation(configs, domain, core_radius, common=common, effort=effort,
+                                     weights=rotating_weights if rotating_weights is not None
+                                     else weights, cache_dir=cache_dir, progress=progress))
     return rec
 
 
@@ -259,12 +270,14 @@ def frame_means(runs_configs, domain) -> dict:
 
 
 def _pooled(series_frames, *, common, effort, cache_dir, core_xi=CORE_RADIUS_XI,
-            wall_xi=WALL_LAYER_XI, wall_cut=1.0, progress=None, means=False) -> dict:
+            wall_xi=WALL_LAYER_XI, wall_cut=1.0, progress=None, means=False,
+            rotating=False) -> dict:
     """The ensemble of several runs' frames: each run a correlated series, runs independent.
 
     ``n_plus``/``n_minus`` are the mean vortex numbers over the frames (the fit's groups are in
     ``groups``)."""
     configs, weights, taus, left_wall, left_pairs, vd = [], [], [], 0, 0, None
+    rot_weights = []
     per_run = []
     for series, frames in series_frames:
         vd, gas = series.gas(frames, core_xi=core_xi, wall_xi=wall_xi, wall_cut=wall_cut)
@@ -273,11 +286,13 @@ def _pooled(series_frames, *, common, effort, cache_dir, core_xi=CORE_RADIUS_XI,
         w, tau = series_weights(cs, vd.domain)
         configs += cs
         weights += list(w)
+        rot_weights += impulse_weights(cs, vd.domain, w) if rotating else []
         taus.append(tau)
         left_wall += sum(gas[f].left_out_wall for f in frames)
         left_pairs += sum(gas[f].left_out_pairs for f in frames)
     rec = ensemble_record(configs, vd.domain, vd.core_radius, weights=weights, common=common,
-                          effort=effort, cache_dir=cache_dir, progress=progress)
+                          effort=effort, cache_dir=cache_dir, progress=progress,
+                          rotating=rotating, rotating_weights=rot_weights or None)
     rec.update({"n_plus": float(np.mean([np.sum(s > 0) for _, s in configs])),
                 "n_minus": float(np.mean([np.sum(s < 0) for _, s in configs])),
                 "frames": len(configs), "runs": len(series_frames), "tau_frames": taus,
@@ -317,13 +332,14 @@ def _run_choices() -> dict:
 def pooled_ensemble(run_paths, *, time: float | None = None, window=None,
                     default: str = "after_drive", time_unit: str = "tau",
                     common: str = "beta_n", effort: str = DEFAULT_EFFORT, cache_dir=None,
-                    systematics: bool = False, progress=None) -> dict:
+                    systematics: bool = False, progress=None, rotating: bool = False) -> dict:
     """The ensemble record of one or more runs (e.g. the seeds of one sweep point).
 
     Every run is an independent series; the frames of one run are correlated and weighted by
     thermo.data.units.series_weights. Times in ``time_unit`` ("tau" = hbar/mu, or "ms"); neither
     ``time`` nor ``window`` means gpe.run.frames.ensemble_frames's default.
     ``progress(done, total)`` is told the sweeps of every density-of-states build.
+    ``rotating`` adds omega to the central record (gpe.run.rotating; not to the systematics).
     """
     chosen = []
     for path in run_paths:
@@ -335,7 +351,7 @@ def pooled_ensemble(run_paths, *, time: float | None = None, window=None,
         return _pooled(chosen, common=common, effort=effort, cache_dir=cache_dir,
                        progress=progress, **choice)
 
-    rec = compute(means=True)
+    rec = compute(means=True, rotating=rotating)
     first, frames = chosen[0]
     shown = first.protocol.display_time(first.times)
     rec["window"] = [float(shown[frames[0]]), float(shown[frames[-1]])]
@@ -349,7 +365,7 @@ def temperature_of_run(run_path, *, frames=None, at_time: float | None = None,
                        ensemble_default: str = "after_drive", per_frame: bool = True,
                        common: str = "beta_n", effort: str = DEFAULT_EFFORT, cache_dir=None,
                        systematics: bool = True, with_ensemble: bool = True,
-                       progress=None) -> dict:
+                       progress=None, rotating: bool = False) -> dict:
     """Thermometry of a run file: beta of every chosen frame and of the run's ensemble.
 
     Parameters
@@ -364,6 +380,8 @@ def temperature_of_run(run_path, *, frames=None, at_time: float | None = None,
     with_ensemble : False leaves the ensemble out (:func:`temperature_of_runs` pools it).
     progress : ``progress(done, total)`` told the Monte Carlo sweeps of every
         density-of-states build (e.g. gpe.cli.progress.dos_progress()); None: silent.
+    rotating : add the rotation frequency omega to every record and to the ensemble
+        (gpe.run.rotating; the ensemble gets its mean-field comparison too).
 
     Returns
     -------
@@ -396,7 +414,8 @@ def temperature_of_run(run_path, *, frames=None, at_time: float | None = None,
         idx = [i for i, f in enumerate(chosen) if domains[f] == dom]
         recs = configuration_records([(gas[chosen[i]].positions, gas[chosen[i]].signs)
                                       for i in idx], dom, vd.core_radius, effort=effort,
-                                     cache_dir=cache_dir, progress=progress)
+                                     cache_dir=cache_dir, progress=progress,
+                                     rotating=rotating)
         for i, rec in zip(idx, recs):
             records[i] = rec
     t_user = protocol.display_time(times)
@@ -406,7 +425,7 @@ def temperature_of_run(run_path, *, frames=None, at_time: float | None = None,
     ensemble = pooled_ensemble([run_path], window=window, time=at_time,
                                default=ensemble_default, time_unit=time_unit, common=common,
                                effort=effort, cache_dir=cache_dir, systematics=systematics,
-                               progress=progress) if with_ensemble else {}
+                               progress=progress, rotating=rotating) if with_ensemble else {}
     end, why = drive_end(protocol)
     after = None if end is None else float(protocol.display_time(end))
     onset = (onset_verdict(t_user[chosen], records, unit, after=after) if per_frame
@@ -424,7 +443,7 @@ def temperature_of_run(run_path, *, frames=None, at_time: float | None = None,
 def temperature_of_runs(run_paths, *, frames=None, window=None, time_unit: str = "tau",
                         ensemble_default: str = "after_drive", common: str = "beta_n",
                         effort: str = DEFAULT_EFFORT, cache_dir=None,
-                        systematics: bool = True, progress=None) -> dict:
+                        systematics: bool = True, progress=None, rotating: bool = False) -> dict:
     """Thermometry of several runs (e.g. the seeds of one protocol): every run's frames, and
     one ensemble pooling the runs as independent series (:func:`pooled_ensemble`).
 
@@ -439,10 +458,11 @@ def temperature_of_runs(run_paths, *, frames=None, window=None, time_unit: str =
         return temperature_of_run(paths[0], frames=frames, window=window, time_unit=time_unit,
                                   ensemble_default=ensemble_default, common=common,
                                   effort=effort, cache_dir=cache_dir, systematics=systematics,
-                                  progress=progress)
+                                  progress=progress, rotating=rotating)
     results = [temperature_of_run(p, frames=frames, window=window, time_unit=time_unit,
                                   ensemble_default=ensemble_default, effort=effort,
-                                  cache_dir=cache_dir, with_ensemble=False, progress=progress)
+                                  cache_dir=cache_dir, with_ensemble=False, progress=progress,
+                                  rotating=rotating)
                for p in paths]
     out = dict(results[0])
     out["records"] = [dict(rec, run=Path(p).stem) for p, r in zip(paths, results)
@@ -450,7 +470,7 @@ def temperature_of_runs(run_paths, *, frames=None, window=None, time_unit: str =
     out["ensemble"] = pooled_ensemble(paths, window=window, default=ensemble_default,
                                       time_unit=time_unit, common=common, effort=effort,
                                       cache_dir=cache_dir, systematics=systematics,
-                                      progress=progress)
+                                      progress=progress, rotating=rotating)
     out["onset"] = " ".join(f"[{Path(p).stem}] {r['onset']}" for p, r in zip(paths, results))
     out["source"] = ", ".join(str(p) for p in paths)
     out["incomplete"] = "; ".join(f"{Path(p).stem}: {r['incomplete']}" for p, r in
@@ -489,7 +509,8 @@ def temperature_of_table(path, *, shape: str | None = None, radius_um: float | N
                          core_um: float | None = None, pixel_um: float | None = None,
                          center_px=None, strict: bool = False, imaging_um: dict | None = None,
                          common: str = "beta_n", effort: str = DEFAULT_EFFORT, cache_dir=None,
-                         systematics: bool = True, progress=None) -> dict:
+                         systematics: bool = True, progress=None,
+                         rotating: bool = False) -> dict:
     """Thermometry of a measured vortex table: beta of every shot and of the ensemble of shots.
 
     Geometry options override the TOML beside the table (thermo/data/geometry.py); the core
@@ -497,7 +518,8 @@ def temperature_of_table(path, *, shape: str | None = None, radius_um: float | N
     model is the ``[imaging]`` table of the geometry TOML, overridden key by key by
     ``imaging_um`` (keys of thermo.data.geometry.IMAGING_KEYS); without one, the estimate is of
     the imaged configurations and the record says so. Shots are independent (weights 1). Returns the same kind of dict as
-    :func:`temperature_of_run`, keyed by shot; ``progress`` as there.
+    :func:`temperature_of_run`, keyed by shot; ``progress`` and ``rotating`` as there (omega
+    is of the configurations as imaged: no imaging model is applied to it).
     """
     table = read_measured(path, shape=shape, radius_um=radius_um, width_um=width_um,
                           height_um=height_um, core_um=core_um, pixel_um=pixel_um,
@@ -505,21 +527,21 @@ def temperature_of_table(path, *, shape: str | None = None, radius_um: float | N
     model = table.geometry.imaging_model()
     core = table.core_radius
     records = configuration_records(table.configurations, table.domain, core, effort=effort,
-                                    cache_dir=cache_dir, progress=progress)
+                                    cache_dir=cache_dir, progress=progress, rotating=rotating)
     for rec, shot, kept in zip(records, table.shot_ids, table.admitted):
         rec.update({"shot": shot, "left_out_wall": kept.left_out_wall,
                     "left_out_pairs": kept.left_out_pairs})
 
-    def compute(core=core, scale_inv=1.0, wall_cut=1.0):
+    def compute(core=core, scale_inv=1.0, wall_cut=1.0, rotating=False):
         kept = table.admitted_with(core, wall_cut=wall_cut, scale=1.0 / scale_inv)
         rec = ensemble_record([(a.positions, a.signs) for a in kept], table.domain, core,
                               common=common, imaging=model, effort=effort, cache_dir=cache_dir,
-                              progress=progress)
+                              progress=progress, rotating=rotating)
         rec["left_out_wall"] = int(sum(a.left_out_wall for a in kept))
         rec["left_out_pairs"] = int(sum(a.left_out_pairs for a in kept))
         return rec
 
-    ensemble = compute()
+    ensemble = compute(rotating=rotating)
     ensemble["core_radius"] = core
     ensemble["core_given"] = table.core_given
     ensemble["imaging_um"] = dict(table.geometry.imaging_um)
@@ -539,12 +561,12 @@ def temperature_of_table(path, *, shape: str | None = None, radius_um: float | N
 
 
 def analyse(run_path, *, time: float | None = None, window=None, effort: str = DEFAULT_EFFORT,
-            cache_dir=None, systematics: bool = False) -> dict:
+            cache_dir=None, systematics: bool = False, rotating: bool = False) -> dict:
     """The ensemble record of one run at one time (nearest frame) or over a window (sweeps).
 
     Times in hbar/mu; neither given means the frames after the drive
     (gpe.run.frames.ensemble_frames). The same policy as :func:`temperature_of_run`, without the
-    per-frame estimates.
+    per-frame estimates; ``rotating`` adds omega.
     """
     return pooled_ensemble([run_path], time=time, window=window, effort=effort,
-                           cache_dir=cache_dir, systematics=systematics)
+                           cache_dir=cache_dir, systematics=systematics, rotating=rotating)

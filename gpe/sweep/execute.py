@@ -102,7 +102,8 @@ def run_point(task: PointTask) -> dict:
     m = task.measure
     at_time = None if m.at_time is None else m.at_time * scale
     window = None if m.window is None else (m.window[0] * scale, m.window[1] * scale)
-    return thermometry.analyse(run_path, time=at_time, window=window)
+    return thermometry.analyse(run_path, time=at_time, window=window,
+                               rotating="omega" in m.quantities)
 
 
 _WORKER_INTERRUPTED = False

@@ -21,7 +21,8 @@ import tomllib
 import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Mapping, Sequence
+from typing import Any
+from collections.abc import Mapping, Sequence
 
 from gpe.errors import ProtocolError, VorthermError
 
@@ -30,7 +31,12 @@ from gpe.errors import ProtocolError, VorthermError
 
 #: Quantities a sweep may measure (units and meanings in thermo.quantities.QUANTITIES).
 MEASURABLE = ("beta", "n_plus", "n_minus", "dipole_fraction", "cluster_fraction", "free_fraction",
-              "energy_per_vortex")
+              "energy_per_vortex", "omega")
+#: measured only when asked for by name: each costs its own tables (omega: the (beta, omega)
+#: tables of thermo.rotation, disk traps only)
+ON_REQUEST = ("omega",)
+#: what a [measure] table without ``quantities`` measures
+DEFAULT_QUANTITIES = tuple(q for q in MEASURABLE if q not in ON_REQUEST)
 
 SEED_KEY = "evolution.seed"
 
@@ -78,7 +84,7 @@ class Measure:
 
     at_time: float | None = None
     window: tuple[float, float] | None = None
-    quantities: tuple[str, ...] = MEASURABLE
+    quantities: tuple[str, ...] = DEFAULT_QUANTITIES
     time_unit: str = "protocol"
 
 
@@ -274,7 +280,7 @@ def _parse_measure(src: str, table: Any) -> Measure:
             window = (_number(f"{where}.{key}", w[0]), _number(f"{where}.{key}", w[1]))
             if not window[0] < window[1]:
                 raise SweepError(f"{where}.{key}: needs t0 < t1, got {w!r}")
-    quantities = table.get("quantities", list(MEASURABLE))
+    quantities = table.get("quantities", list(DEFAULT_QUANTITIES))
     if not isinstance(quantities, list) or not quantities:
         raise SweepError(f"{where}.quantities: expected a non-empty list of names")
     for q in quantities:

@@ -250,7 +250,7 @@ class Domain(ABC):
     # -- to be provided by every domain ----------------------------------------------------
     @classmethod
     @abstractmethod
-    def from_sizes(cls, sizes: Mapping[str, float]) -> tuple["Domain", float]:
+    def from_sizes(cls, sizes: Mapping[str, float]) -> tuple[Domain, float]:
         """The domain of the given physical sizes and its length unit.
 
         Parameters
@@ -326,7 +326,42 @@ class Domain(ABC):
                           "gradients, so point-vortex dynamics cannot run in it; domains with "
                           "them: the disk and the box")
 
+    #: Whether point-vortex dynamics in this shape conserves the signed angular impulse
+    #: M = sum_i s_i |u_i|^2 about the origin of its scaled coordinates (a rotationally
+    #: symmetric domain centred there: the disk). Only then is exp[-beta (H - omega M)] an
+    #: equilibrium ensemble (thermo.rotation).
+    conserves_angular_impulse: ClassVar[bool] = False
+
     # -- shared ----------------------------------------------------------------------------
+    def angular_impulse(self, pos, signs) -> np.ndarray:
+        """Signed angular impulse M = sum_i s_i |u_i|^2 of configurations.
+
+        Parameters
+        ----------
+        pos : array_like, shape (..., N, 2)
+            Scaled positions. Units: length unit.
+        signs : array_like, shape (N,) or (..., N)
+            +1 / -1.
+
+        Returns
+        -------
+        numpy.ndarray, shape (...)
+            Units: length unit squared.
+
+        Raises
+        ------
+        DomainError
+            For a shape whose dynamics does not conserve M (:attr:`conserves_angular_impulse`).
+        """
+        if not self.conserves_angular_impulse:
+            raise DomainError(
+                f"the {self.kind or type(self).__name__} domain does not conserve the angular "
+                "impulse M = sum s_i |u_i|^2 (no rotational symmetry), so there is no rotation "
+                "frequency omega to measure; accepted: a disk")
+        p = as_points(pos, "pos")
+        s = np.asarray(signs, float)
+        return np.sum(s * np.sum(p * p, axis=-1), axis=-1)
+
     def contains(self, pos, margin: float = 0.0) -> np.ndarray:
         """True where a point lies inside with its distance to the wall greater than ``margin``.
 

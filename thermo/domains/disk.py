@@ -170,9 +170,10 @@ class Disk(Domain):
 
     kind: ClassVar[str] = "disk"
     size_names: ClassVar[tuple[str, ...]] = ("radius",)
+    conserves_angular_impulse: ClassVar[bool] = True
 
     @classmethod
-    def from_sizes(cls, sizes: Mapping[str, float]) -> tuple["Disk", float]:
+    def from_sizes(cls, sizes: Mapping[str, float]) -> tuple[Disk, float]:
         """The disk of radius ``sizes["radius"]`` and that radius as the length unit.
 
         Units: those of ``sizes``.

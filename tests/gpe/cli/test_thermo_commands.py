@@ -344,3 +344,69 @@ def test_compare_refuses_a_time_outside_the_run_naming_the_option(one_run, tmp_p
     assert main(["compare", str(one_run), "--measured", str(table), "-o", str(stem),
                  "--sign-error", "0.7"]) == 2
     assert "--sign-error 0.7" in capsys.readouterr().err
+
+
+@pytest.mark.slow
+def test_temperature_rotating_adds_omega_everywhere(tmp_path, capsys, monkeypatch, rng):
+    """--rotating: omega for every shot and the ensemble (JSON, CSV, text), the omega = 0 test
+    and the mean-field figure; a box has no omega and says so. The (beta, omega) tables are
+    built at a reduced effort here (6 x 3 states, 200 sweeps): the numbers are not checked,
+    only that every output carries them (the estimators are tested in tests/thermo/rotation)."""
+    from gpe.run import rotating
+    from thermo.domains.box import Box
+
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
+    monkeypatch.setitem(rotating.ROTATING_EFFORT, "quick",
+                        {"n_sweeps": 200, "n_boot": 2, "n_betas": 6, "n_omegas": 3,
+                         "burn_in": 200})
+    table = tmp_path / "shots.csv"
+    _write_table(table, rng)
+    assert main(["temperature", str(table), "--disk-radius-um", "30", "--json", "--rotating",
+                 "--no-systematics", "--plot"]) == 0
+    doc = json.loads(capsys.readouterr().out.split("\nfigure written")[0])
+    usable = [s for s in doc["shots"] if s["n_plus"] + s["n_minus"] >= 2]
+    for rec in usable + [doc["ensemble"]]:
+        for key in ("omega", "omega_ci95", "omega_n", "beta_rot_n", "omega_pvalue",
+                    "omega_verdict"):
+            assert key in rec
+    ens = doc["ensemble"]
+    assert isinstance(ens["omega_nonzero"], bool)
+    assert ens["meanfield"]["dof"] >= 1 and len(ens["meanfield"]["edges"]) == 9
+    assert (tmp_path / "shots_meanfield.png").stat().st_size > 0
+    header = (tmp_path / "shots_temperature.csv").read_text().splitlines()[0].split(",")
+    assert "omega [E0]" in header and "omega_pvalue [1]" in header
+    assert main(["temperature", str(table), "--disk-radius-um", "30", "--rotating",
+                 "--no-systematics", "--force"]) == 0
+    text = capsys.readouterr().out
+    assert "omega~/N (95% interval)" in text and "rotating ensemble" in text
+    assert "mean field (Poisson-Boltzmann" in text
+    box = Box.from_sizes({"width": 1.0, "height": 1.0})[0]
+    rec = rotating.ensemble_rotation([(np.array([[0.1, 0.1], [-0.1, 0.2]]), np.array([1, -1]))],
+                                     box, 0.02, effort="quick")
+    assert np.isnan(rec["omega"]) and "does not conserve the angular impulse" in \
+        rec["omega_verdict"]
+
+
+@pytest.mark.slow
+def test_analyse_with_omega_gives_the_rotating_fields_a_sweep_reads(one_run, tmp_path, dos_cache,
+                                                                   monkeypatch):
+    """A sweep's [measure] quantities = ["omega"] calls analyse(..., rotating=True)
+    (gpe.sweep.execute.run_point), which must give a number (or NaN with a reason) under
+    "omega" beside beta. Reduced table effort (6 x 3 states, 200 sweeps): the plumbing is
+    checked here, the estimator in tests/thermo/rotation."""
+    import math
+
+    from gpe.run import rotating
+    from gpe.run.thermometry import analyse
+
+    monkeypatch.setitem(rotating.ROTATING_EFFORT, "quick",
+                        {"n_sweeps": 200, "n_boot": 2, "n_betas": 6, "n_omegas": 3,
+                         "burn_in": 200})
+    rec = analyse(one_run, rotating=True)
+    assert isinstance(float(rec["omega"]), float) and isinstance(rec["omega_verdict"], str)
+    assert "beta" in rec
+    if math.isfinite(rec["omega"]):
+        lo, hi = rec["omega_ci95"]
+        assert lo <= rec["omega"] <= hi
+    plain = analyse(one_run)
+    assert "omega" not in plain and plain["beta_n"] == rec["beta_n"]   # beta unchanged

@@ -2,7 +2,7 @@
 
 import math
 
-from gpe.figures.thermometry import plot_temperature_series
+from gpe.figures.thermometry import plot_meanfield, plot_temperature_series
 from thermo.estimate import thresholds
 
 
@@ -89,3 +89,32 @@ def test_comparison_figure_draws_every_panel(tmp_path, rng):
     # nine per-shot histograms, g_like, g_opposite, two example configurations, the table
     assert len(fig.axes) == 15
     assert all(ax.get_xlabel() for ax in fig.axes[:9])
+
+
+def test_meanfield_figure_draws_both_signs_against_their_histograms(rng):
+    """The mean-field figure of `temperature --rotating --plot`: one axes, a histogram and a
+    profile per sign present, the goodness of fit in the title; a record without a comparison
+    is refused with the reason."""
+    import numpy as np
+    import pytest
+
+    from thermo.rotation.meanfield import radial_fit, solve_profile
+
+    prof = solve_profile(4, 4, -0.2, 3.0)
+    shots = [(np.column_stack([0.9 * np.sqrt(rng.random(8)) * np.cos(phi),
+                               0.9 * np.sqrt(rng.random(8)) * np.sin(phi)]),
+              np.array([1] * 4 + [-1] * 4)) for phi in rng.random((20, 8)) * 2 * np.pi]
+    fit = radial_fit(shots, prof)
+    ens = {"beta_rot_n": -1.6, "omega_n": 0.375, "meanfield": {
+        "n_plus": 4, "n_minus": 4, "edges": fit.edges.tolist(),
+        "observed_plus": fit.observed_plus.tolist(), "observed_minus": fit.observed_minus.tolist(),
+        "r": prof.r.tolist(), "n_plus_profile": prof.n_plus.tolist(),
+        "n_minus_profile": prof.n_minus.tolist(), "chi2": fit.chi2, "dof": fit.dof,
+        "pvalue": fit.pvalue}}
+    fig = plot_meanfield(ens)
+    (ax,) = fig.axes
+    assert len(ax.lines) == 2 and len(ax.patches) == 2          # profiles and histograms
+    assert "chi^2" in ax.get_title() and f"/ {fit.dof} bins" in ax.get_title()
+    assert ax.get_xlabel() == "r / R"
+    with pytest.raises(ValueError, match="no mean-field comparison"):
+        plot_meanfield({"meanfield": {"note": "disk only"}})

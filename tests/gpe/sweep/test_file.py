@@ -14,6 +14,7 @@ import pytest
 from sweep_stand_in import write_sweep_file
 
 from gpe.sweep.file import MEASURABLE, SweepError, load_sweep, parse_sweep
+from thermo.quantities import QUANTITIES
 
 DEMO = Path(__file__).resolve().parents[3] / "runs" / "demo.toml"
 
@@ -75,7 +76,21 @@ def test_missing_base_protocol_is_reported(tmp_path):
 
 def test_quantity_table_is_complete():
     assert set(MEASURABLE) == {"beta", "n_plus", "n_minus", "dipole_fraction",
-                               "cluster_fraction", "free_fraction", "energy_per_vortex"}
+                               "cluster_fraction", "free_fraction", "energy_per_vortex", "omega"}
+    assert all(q in QUANTITIES for q in MEASURABLE)       # every one has its unit
+
+
+def test_omega_is_measured_only_when_asked_for(tmp_path):
+    """omega costs its own (beta, omega) tables: a [measure] table names it to get it."""
+    base = f'base = "{DEMO}"\n[[axes]]\nkey = "beams.0.waist_um"\nvalues = [2.0]\n'
+    plain = parse_sweep(base, tmp_path / "s.toml", check_protocol=False)
+    assert "omega" not in plain.measure.quantities
+    asked = parse_sweep(base + '[measure]\nquantities = ["omega"]\n', tmp_path / "s.toml",
+                        check_protocol=False)
+    assert asked.measure.quantities == ("beta", "omega")
+    with pytest.raises(SweepError, match="omegas"):
+        parse_sweep(base + '[measure]\nquantities = ["omegas"]\n', tmp_path / "s.toml",
+                    check_protocol=False)
 
 
 def test_demo_sweep_file_is_valid():

@@ -182,7 +182,7 @@ def _undefined(n_shots: int, n_plus: int, n_minus: int, why: str) -> BetaEstimat
                         regime="undefined", verdict=why)
 
 
-def _normalise(configs: Sequence, domain: Any, core_radius: float):
+def group_shots(configs: Sequence, domain: Any, core_radius: float):
     """Validate shots and group them by (N+, N-), positive vortices first.
 
     Returns key -> (positions (S, N, 2), shot indices (S,)).
@@ -287,7 +287,7 @@ def estimate_ensemble(configs: Sequence, domain: Any, core_radius: float, *,
     """
     if common not in COMMON:
         raise ConfigurationError(f"common = {common!r}; accepted: {', '.join(COMMON)}")
-    grouped = _normalise(configs, domain, core_radius)
+    grouped = group_shots(configs, domain, core_radius)
     if not grouped:
         raise ConfigurationError("no configurations given; pass a list of (positions, signs)")
     n_shots = sum(len(v[1]) for v in grouped.values())
@@ -433,7 +433,7 @@ def estimate_single(positions: Any, signs: Any, domain: Any, core_radius: float,
 
     Units: beta in 1/E0.
     """
-    grouped = _normalise([(positions, signs)], domain, core_radius)
+    grouped = group_shots([(positions, signs)], domain, core_radius)
     key = next(iter(grouped))
     if sum(key) < 2:
         return _undefined(1, *key, "beta undefined for one vortex: a lone vortex has "

@@ -46,7 +46,8 @@ from typing import Any
 import numpy as np
 from scipy.stats import chi2
 
-from thermo.energy import energy_batch, validate_configuration
+from thermo.energy import energy_batch
+from thermo.estimate import group_shots, signs_of
 from thermo.errors import ConfigurationError
 from thermo.fit import Q68, Q95, Z95, level_set, widen
 from thermo.rotation.cache import load_or_build_table
@@ -119,28 +120,10 @@ class _Group:
     m_mean: float
 
 
-def _group_configs(configs: Sequence, domain: Any, core_radius: float):
-    groups: dict[tuple[int, int], list] = {}
-    for k, item in enumerate(configs):
-        try:
-            pos, signs = item
-        except (TypeError, ValueError) as exc:
-            raise ConfigurationError(
-                f"shot {k}: expected a (positions (N, 2), signs (N,)) pair") from exc
-        try:
-            p, s = validate_configuration(pos, signs, domain, core_radius)
-        except ConfigurationError as exc:
-            raise ConfigurationError(f"shot {k}: {exc}") from exc
-        order = np.argsort(-s, kind="stable")
-        key = (int(np.sum(s > 0)), int(np.sum(s < 0)))
-        groups.setdefault(key, []).append((k, p[order], s[order]))
-    return groups
-
-
-def _stats(domain, rows) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    idx = np.array([r[0] for r in rows])
-    pos = np.stack([r[1] for r in rows])
-    signs = rows[0][2]
+def _stats(domain, key, shots) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Shot indices, H and M of one (N+, N-) group of :func:`thermo.estimate.group_shots`."""
+    pos, idx = shots
+    signs = signs_of(*key)
     return idx, energy_batch(pos, signs, domain), domain.angular_impulse(pos, signs)
 
 
@@ -311,8 +294,8 @@ def estimate_rotating_ensemble(configs: Sequence, domain: Any, core_radius: floa
     """
     if common not in COMMON:
         raise ConfigurationError(f"common = {common!r}; accepted: {', '.join(COMMON)}")
-    grouped = _group_configs(configs, domain, core_radius)
-    n_shots = sum(len(v) for v in grouped.values())
+    grouped = group_shots(configs, domain, core_radius)
+    n_shots = sum(len(v[1]) for v in grouped.values())
     if n_shots == 0:
         raise ConfigurationError("no configurations given; pass a list of (positions, signs)")
     w = np.ones(n_shots) if weights is None else np.asarray(weights, float)
@@ -323,7 +306,7 @@ def estimate_rotating_ensemble(configs: Sequence, domain: Any, core_radius: floa
     if small:
         raise ConfigurationError(f"shots with fewer than two vortices (groups {small}): beta "
                                  "and omega are undefined for them; drop them")
-    stats = {key: _stats(domain, rows) for key, rows in sorted(grouped.items())}
+    stats = {key: _stats(domain, key, shots) for key, shots in sorted(grouped.items())}
     widened = 0
     while True:
         provide = _provider(domain, core_radius, cache_dir, settings, seed, progress,
@@ -414,12 +397,12 @@ def estimate_rotating_single(positions: Any, signs: Any, domain: Any, core_radiu
 
     Units: beta in 1/E0, omega in E0.
     """
-    grouped = _group_configs([(positions, signs)], domain, core_radius)
-    key, rows = next(iter(grouped.items()))
+    grouped = group_shots([(positions, signs)], domain, core_radius)
+    key, shots = next(iter(grouped.items()))
     if sum(key) < 2:
         raise ConfigurationError(f"{sum(key)} vortex: beta and omega are undefined (for one "
                                  "vortex H and M are functions of one radius); need >= 2")
-    _, h, m = _stats(domain, rows)
+    _, h, m = _stats(domain, key, shots)
     provide = _provider(domain, core_radius, cache_dir, settings, seed, progress, table_provider)
     n = sum(key)
     g = _Group(key, provide(*key), 1.0 / n, float(n), 1.0, float(h[0]), float(m[0]))

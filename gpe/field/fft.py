@@ -6,8 +6,10 @@ Two backends implement :class:`FFTBackend`:
   scratch arrays and re-targeted at the caller's arrays without copying. Plans use all available
   cores by default. FFTW "wisdom" (the result of plan measurement) is cached on disk per host in
   the user's cache directory, so measuring happens once per machine and shape.
-* :class:`ScipyBackend` -- ``scipy.fft`` with ``workers=threads``; the fallback when pyFFTW is
-  missing. It writes through ``overwrite_x`` where scipy allows and copies into ``out`` otherwise.
+* :class:`ScipyBackend` -- ``scipy.fft`` with ``workers=threads``; the "auto" backend of the
+  reproducible planning mode (:data:`PLANNING`) and the fallback when pyFFTW is missing. It
+  writes through ``overwrite_x`` (in place, no allocation, for C-contiguous complex arrays) and
+  copies into ``out`` otherwise.
 
 Both transform the last two axes of a C-contiguous ``(ny, nx)`` array of ``complex128`` or
 ``complex64``, in place (``out is a`` or ``out=None``) or into a preallocated ``out``.
@@ -294,13 +296,20 @@ def pyfftw_available() -> bool:
     return True
 
 
-#: FFT planning modes. "reproducible": FFTW_ESTIMATE plans, chosen by FFTW's rules alone (no
-#: timing, no wisdom file), so two processes with the same shape, precision and thread count
-#: transform identically and a run resumed elsewhere continues bit for bit. "measured":
-#: FFTW_MEASURE plans timed on this machine and kept as wisdom: often faster, but the plan (and
-#: so the last bits of every transform) may differ between processes and machines.
-PLANNING = {"reproducible": {"planner": "FFTW_ESTIMATE", "wisdom": False},
-            "measured": {"planner": "FFTW_MEASURE", "wisdom": True}}
+#: FFT planning modes. "reproducible": transforms fixed by rule, never by timing, so two
+#: processes with the same shape and precision transform identically and a run resumed
+#: elsewhere continues bit for bit. With the "auto" backend this is scipy.fft (pocketfft: no
+#: planning at all; each 1D transform is computed the same way whatever the thread count),
+#: because FFTW_ESTIMATE plans for the strided column pass are slow: at 256^2 and 512^2 a 2D
+#: estimate-mode transform took 3.0 and 13.5 ms against 0.37 and ~1.1 ms measured and 0.7 and
+#: 3.3 ms with scipy.fft (one thread; benchmarks/step.py). With the "pyfftw" backend asked
+#: for explicitly it is FFTW_ESTIMATE with the process's wisdom forgotten first (FFTW applies
+#: any wisdom it holds even to estimate-mode plans, which would make them depend on what was
+#: planned before in the process). "measured": FFTW_MEASURE plans timed on this machine and
+#: kept as wisdom: fastest, but the plan (and so the last bits of every transform) may differ
+#: between processes and machines.
+PLANNING = {"reproducible": {"planner": "FFTW_ESTIMATE", "wisdom": False, "deterministic": True},
+            "measured": {"planner": "FFTW_MEASURE", "wisdom": True, "deterministic": False}}
 
 
 def planning_options(planning: str) -> dict:
@@ -330,6 +339,8 @@ def make_fft(
         Worker threads; all available cores by default.
     **options
         Passed to :class:`PyFFTWBackend` (``planner``, ``wisdom``); ignored by scipy.
+        ``deterministic`` (from :func:`planning_options`): the "auto" backend is then scipy.fft,
+        and an explicit "pyfftw" plans with no wisdom in the process (see :data:`PLANNING`).
 
     Units: none.
     """
@@ -340,12 +351,17 @@ def make_fft(
         raise VorthermError(f"FFT shape must be (ny, nx) with positive sizes, got {shape!r}")
     if threads is not None and int(threads) < 1:
         raise VorthermError(f"FFT threads must be >= 1 or None (all cores), got {threads!r}")
+    deterministic = options.pop("deterministic", False)
     if backend == "auto":
-        backend = "pyfftw" if pyfftw_available() else "scipy"
+        backend = "pyfftw" if pyfftw_available() and not deterministic else "scipy"
     if backend == "pyfftw":
         if not pyfftw_available():
             raise VorthermError('fft backend "pyfftw" requested but pyFFTW is not installed; '
                                 'install pyfftw or use "scipy" or "auto"')
+        if deterministic:
+            import pyfftw
+
+            pyfftw.forget_wisdom()   # estimate-mode plans would otherwise reuse measured ones
         return PyFFTWBackend(shape, dtype, threads, **options)
     if backend == "scipy":
         return ScipyBackend(shape, dtype, threads)

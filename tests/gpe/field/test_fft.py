@@ -9,6 +9,7 @@ from gpe.field.fft import (
     ScipyBackend,
     load_wisdom,
     make_fft,
+    planning_options,
     save_wisdom,
 )
 
@@ -109,6 +110,27 @@ def test_make_fft_validates_and_picks_backend(tmp_path):
         make_fft(SHAPE, np.float64)
     with pytest.raises(VorthermError, match="accepted"):
         make_fft(SHAPE, np.complex128, "mkl")
+
+
+def test_reproducible_planning_takes_no_timed_plan(tmp_path):
+    """The reproducible mode: with the "auto" backend it is scipy.fft (no planning at all);
+    with pyFFTW asked for, the wisdom that a measured plan left in the process is forgotten
+    first, because FFTW applies wisdom even to estimate-mode plans (FFTW 3 manual, "Words of
+    Wisdom", from memory; seen here at 256^2: an estimate plan made after a measured one ran 5x
+    faster)."""
+    pyfftw = pytest.importorskip("pyfftw")
+    assert isinstance(make_fft(SHAPE, np.complex128, "auto", **planning_options("reproducible")),
+                      ScipyBackend)
+    assert isinstance(make_fft(SHAPE, np.complex128, "auto", **planning_options("measured")),
+                      PyFFTWBackend)
+    pyfftw.forget_wisdom()
+    make_fft(SHAPE, np.complex128, "pyfftw", threads=1, **planning_options("reproducible"))
+    fresh = pyfftw.export_wisdom()                    # what estimate-mode planning alone holds
+    make_fft(SHAPE, np.complex128, "pyfftw", threads=1, planner="FFTW_MEASURE",
+             wisdom=tmp_path / "w.json")
+    assert pyfftw.export_wisdom() != fresh            # the measured plan left wisdom
+    make_fft(SHAPE, np.complex128, "pyfftw", threads=1, **planning_options("reproducible"))
+    assert pyfftw.export_wisdom() == fresh            # the reproducible plan did not use it
 
 
 def test_wisdom_round_trip_and_damaged_file(tmp_path):

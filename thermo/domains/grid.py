@@ -70,8 +70,16 @@ from numba import njit
 from scipy.ndimage import distance_transform_edt
 from scipy.sparse.linalg import splu
 
-from thermo.domains.base import (PAIR_SIGNATURE, SELF_SIGNATURE, WALL_SIGNATURE, Domain,
-                                 DomainKernels, as_points, check_sizes, pair_sum_move_change)
+from thermo.domains.base import (
+    PAIR_SIGNATURE,
+    SELF_SIGNATURE,
+    WALL_SIGNATURE,
+    Domain,
+    DomainKernels,
+    as_points,
+    check_sizes,
+    pair_sum_move_change,
+)
 from thermo.errors import DomainError
 
 #: bump when the table layout or the solver changes: part of the digest
@@ -94,8 +102,8 @@ def _bilinear(p, off, x, y):
     h = p[_HF]
     fx = (x - p[_X0]) / h
     fy = (y - p[_Y0]) / h
-    j = min(max(int(math.floor(fx)), 0), nx - 2)
-    i = min(max(int(math.floor(fy)), 0), ny - 2)
+    j = min(max(math.floor(fx), 0), nx - 2)
+    i = min(max(math.floor(fy), 0), ny - 2)
     tx = fx - j
     ty = fy - i
     b = off + i * nx + j
@@ -111,8 +119,8 @@ def _stencil(p, x, y):
     h = p[_HF] * p[_STRIDE]
     fx = (x - p[_X0]) / h
     fy = (y - p[_Y0]) / h
-    j = min(max(int(math.floor(fx)), 0), nxc - 2)
-    i = min(max(int(math.floor(fy)), 0), nyc - 2)
+    j = min(max(math.floor(fx), 0), nxc - 2)
+    i = min(max(math.floor(fy), 0), nyc - 2)
     return i * nxc + j, fx - j, fy - i
 
 
@@ -229,7 +237,6 @@ def _solve_table(mask, nu, h, stride):
     cj = np.arange(0, nx, stride)
     cgi, cgj = np.meshgrid(ci, cj, indexing="ij")
     cgi, cgj = cgi.ravel(), cgj.ravel()
-    m = cgi.size
     nu_c = _extend(mask, nu)[cgi, cgj]
     dist = h * np.hypot(cgi[:, None] - cgi[None, :], cgj[:, None] - cgj[None, :])
     w = np.sqrt(nu_c[:, None] * nu_c[None, :])

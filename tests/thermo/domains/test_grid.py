@@ -9,8 +9,11 @@ from thermo.domains.annulus import Annulus
 from thermo.domains.box import Box
 from thermo.domains.disk import Disk
 from thermo.domains.grid import GreenCacheWarning, GridDomain
+from thermo.dos.build import DosSettings
 from thermo.energy import energy_batch
 from thermo.errors import DomainError
+from thermo.estimate import estimate_ensemble
+from thermo.sampler import run_tempering
 
 SIGNS = np.array([1, 1, 1, -1, -1, -1])
 
@@ -48,8 +51,8 @@ def test_rectangle_converges_to_the_theta_function_box(tmp_path):
     # exactly, so the error is that of the interpolation (second order) [common practice].
     # Measured (table every 3rd node): 0.080 (24 nodes along y) and 0.016 (48).
     box = Box(1.5)
-    inside = lambda x, y: (np.abs(x) < 0.75 - 1e-9) & (np.abs(y) < 0.5 - 1e-9)  # noqa: E731
-    kw = dict(margin=0.12, stride=3, half_x=0.75, half_y=0.5)
+    inside = lambda x, y: (np.abs(x) < 0.75 - 1e-9) & (np.abs(y) < 0.5 - 1e-9)
+    kw = {"margin": 0.12, "stride": 3, "half_x": 0.75, "half_y": 0.5}
     coarse = _max_error(box, inside, 24, tmp_path, **kw)
     fine = _max_error(box, inside, 48, tmp_path, **kw)
     assert coarse < 0.1 and fine < 0.35 * coarse
@@ -119,3 +122,33 @@ def test_cache_reuses_and_rebuilds_a_damaged_table(tmp_path):
     other = GridDomain(mask, np.where(mask, 0.8, 0.0), h, (x[0], y[0]),
                        log_length_over_core=3.0, cache_dir=tmp_path)
     assert other.key() != a.key()
+
+
+def thomas_fermi_domain(n=40, cut=0.05, tmp_path=None):
+    """Harmonic trap, nu = 1 - r^2 / R^2 (length unit R), fluid where nu > ``cut``.
+
+    Cutting at nu = 0.05 moves the wall by 2.5 % of R; with nu ~ 2 (R - r)/R near the edge a
+    flux F through the cut layer changes G by F int nu dr ~ F R cut^2 / 4 there, so setting
+    G = 0 at the cut instead of at R changes G by ~6e-4 of its scale; and the Thomas-Fermi
+    profile itself fails within the edge layer, where nu ~ 0.1 for R = 50 healing lengths
+    (Dalfovo, Pitaevskii & Stringari, PRA 54, 4213 (1996), from memory)."""
+    x, y, h = _grid(n)
+    nu = 1.0 - x[None, :] ** 2 - y[:, None] ** 2
+    return GridDomain(nu > cut, np.where(nu > cut, nu, 0.0), h, (x[0], y[0]),
+                      log_length_over_core=np.log(50.0), cache_dir=tmp_path)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("beta", [-0.4, 0.5])
+def test_beta_recovered_in_a_harmonic_trap(beta, tmp_path):
+    # STYLE.md: estimators are tested on data drawn at a known parameter; as
+    # tests/thermo/test_estimate.py does for the disk, shots drawn by the sampler at beta in
+    # the Thomas-Fermi domain must give an estimate whose 95 % interval holds beta.
+    dom = thomas_fermi_domain(tmp_path=tmp_path)
+    core = 0.03
+    run = run_tempering(dom, 2, 2, [beta], 60 * 30, core, np.random.default_rng(19), thin=30)
+    configs = [(p, run.signs) for p in run.positions[0]]
+    res = estimate_ensemble(configs, dom, core, cache_dir=tmp_path,
+                            settings=DosSettings(n_temps=10, n_sweeps=1500, n_boot=20))
+    assert res.beta_ci95[0] <= beta <= res.beta_ci95[1], res
+    assert res.temperature_sign == ("negative" if beta < 0 else "positive")

@@ -71,6 +71,7 @@ from scipy.ndimage import distance_transform_edt
 from scipy.sparse.linalg import splu
 
 from thermo.domains.base import (
+    MOVE_SIGNATURE,
     PAIR_SIGNATURE,
     SELF_SIGNATURE,
     WALL_SIGNATURE,
@@ -78,7 +79,6 @@ from thermo.domains.base import (
     DomainKernels,
     as_points,
     check_sizes,
-    pair_sum_move_change,
 )
 from thermo.errors import DomainError
 
@@ -179,6 +179,62 @@ def grid_wall_distance(x: float, y: float, params: np.ndarray) -> float:
     if not (0.0 <= fx <= params[_NXF] - 1 and 0.0 <= fy <= params[_NYF] - 1):
         return -1.0
     return _bilinear(params, int(params[_OFF_WALL]), x, y)
+
+
+@njit(cache=True, error_model="numpy")
+def _row_sum(p, a, ax, ay, b, bx, by):
+    """sum_k sum_q wa_k wb_q T[ia_k, ib_q] for two precomputed stencils."""
+    nxc = int(p[_NXC])
+    m = nxc * int(p[_NYC])
+    off = int(p[_OFF_TAB])
+    total = 0.0
+    for k in range(4):
+        ra = a + (k & 1) + nxc * (k >> 1)
+        wk = (ax if k & 1 else 1.0 - ax) * (ay if k >> 1 else 1.0 - ay)
+        row = off + ra * m + b
+        s0 = (1.0 - bx) * p[row] + bx * p[row + 1]
+        s1 = (1.0 - bx) * p[row + nxc] + bx * p[row + nxc + 1]
+        total += wk * ((1.0 - by) * s0 + by * s1)
+    return total
+
+
+@njit(MOVE_SIGNATURE, cache=True, error_model="numpy")
+def grid_move_change(pos, signs, index, x_new, y_new, params, min_dist2, self_fn, pair_fn):
+    """E(after) - E(before) for moving vortex ``index``: the stencils and densities of the old
+    and new positions are computed once, each other vortex's once for both. O(N).
+
+    ``self_fn`` and ``pair_fn`` (part of the common signature) are not needed here.
+    Units: positions in L, energies in E0; +inf inside the hard core.
+    """
+    n = pos.shape[0]
+    x_old = pos[index, 0]
+    y_old = pos[index, 1]
+    s_k = signs[index]
+    d = grid_self(x_new, y_new, s_k, params) - grid_self(x_old, y_old, s_k, params)
+    an, anx, any_ = _stencil(params, x_new, y_new)
+    ao, aox, aoy = _stencil(params, x_old, y_old)
+    rn = math.sqrt(_nu(params, x_new, y_new))
+    ro = math.sqrt(_nu(params, x_old, y_old))
+    four_pi = 4.0 * math.pi
+    for j in range(n):
+        if j == index:
+            continue
+        xj = pos[j, 0]
+        yj = pos[j, 1]
+        dxn = x_new - xj
+        dyn = y_new - yj
+        dn = dxn * dxn + dyn * dyn
+        if dn < min_dist2:
+            return np.inf
+        dxo = x_old - xj
+        dyo = y_old - yj
+        do = dxo * dxo + dyo * dyo
+        b, bx, by = _stencil(params, xj, yj)
+        rj = math.sqrt(_nu(params, xj, yj))
+        e_new = -rn * rj * math.log(dn) + four_pi * _row_sum(params, an, anx, any_, b, bx, by)
+        e_old = -ro * rj * math.log(do) + four_pi * _row_sum(params, ao, aox, aoy, b, bx, by)
+        d += s_k * signs[j] * (e_new - e_old)
+    return d
 
 
 def _check_inputs(mask, density, spacing, origin):
@@ -394,7 +450,7 @@ class GridDomain(Domain):
 
     def kernels(self) -> DomainKernels:
         """Compiled kernels; params packs the header, fine nu, fine wall distance, the table."""
-        return DomainKernels(grid_self, grid_pair, grid_wall_distance, pair_sum_move_change,
+        return DomainKernels(grid_self, grid_pair, grid_wall_distance, grid_move_change,
                              self._params)
 
     @property

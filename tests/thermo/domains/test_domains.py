@@ -20,6 +20,7 @@ from thermo.domains.base import (
 from thermo.domains.annulus import Annulus
 from thermo.domains.box import Box
 from thermo.domains.disk import Disk
+from thermo.domains.grid import GridDomain
 from thermo.domains.kinds import domain_class, domain_classes
 from thermo.energy import energy, energy_batch, energy_change
 from thermo.errors import ConfigurationError, DomainError
@@ -178,9 +179,9 @@ def test_keys_and_validation():
 
 def test_the_domain_classes_are_found_by_kind():
     # discovered from the package, sorted by kind name; an unknown kind is refused by name
-    assert domain_classes() == {"annulus": Annulus, "box": Box, "disk": Disk}
+    assert domain_classes() == {"annulus": Annulus, "box": Box, "disk": Disk, "grid": GridDomain}
     assert domain_class("disk") is Disk and domain_class("box") is Box
-    with pytest.raises(DomainError, match="'hexagon' is not known; accepted: 'annulus', 'box', 'disk'"):
+    with pytest.raises(DomainError, match="'hexagon' is not known; accepted: 'annulus', 'box', 'disk', 'grid'"):
         domain_class("hexagon")
 
 

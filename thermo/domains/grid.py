@@ -1,0 +1,490 @@
+r"""A domain of any shape and areal density, its Green's function solved on a grid.
+
+Inputs: a boolean fluid ``mask`` and a relative areal density :math:`\nu = n/n_{\rm ref} \ge 0`
+on a uniform grid (node (i, j) at ``origin + spacing * (j, i)``), lengths in the domain's length
+unit L (positions scaled so that the fluid fits in about the unit disk, like :class:`Disk`).
+
+**Physics.** Mass conservation :math:`\nabla\cdot(n\mathbf v) = 0` gives
+:math:`n\mathbf v = \nabla\times(\psi\hat z)\,n_{\rm ref}`, and the quantized vorticity
+:math:`\nabla\times\mathbf v = \kappa\sum_i s_i\delta(\mathbf r - \mathbf r_i)` then reads
+:math:`-\nabla\cdot[(1/\nu)\nabla\psi] = \kappa\sum_i s_i\delta`, so
+:math:`\psi = \kappa\sum_i s_i G(\cdot, z_i)` with
+
+.. math:: -\nabla\cdot\Big[\frac1\nu\nabla G(z, z')\Big] = \delta(z - z'), \qquad G = 0
+          \text{ where the fluid ends}
+
+(self-adjoint, so G is symmetric). The kinetic energy :math:`\tfrac{m}{2}\int n v^2 =
+\tfrac{\rho}{2}\int\nu^{-1}|\nabla\psi|^2 = \tfrac{\rho\kappa}{2}\sum_i s_i\psi(z_i)` (by parts,
+:math:`\psi = 0` on the wall), i.e. the pair energy :math:`s_is_j\,4\pi G(z_i, z_j)` in
+:math:`E_0 = \rho\kappa^2/(4\pi)` as for every domain (:mod:`thermo.domains.base`).
+
+**Singular part.** With :math:`G = \sqrt{\nu}\,w` (Liouville substitution) the equation becomes
+:math:`-\nabla^2 w + V w = \sqrt{\nu(z')}\,\delta(z - z')`, :math:`V = \nabla^2\nu^{-1/2}/\nu^{-1/2}`,
+so :math:`G = -\tfrac{1}{2\pi}\sqrt{\nu(z)\nu(z')}\ln|z - z'| + H(z, z')` with H continuous
+(its worst term near the diagonal is :math:`O(r^2\ln r)`); for constant ν this is the usual
+:math:`-\tfrac1{2\pi}\ln|z-z'|`. The remainder H is tabulated.
+
+**Self energy.** A vortex's core radius scales with the local healing length,
+:math:`a(z) = a_{\rm ref}/\sqrt{\nu(z)}`. Integrating the energy outside the core by parts, the
+flux :math:`\nu^{-1}\partial_nG` through the core's rim is 1, so the self energy is
+:math:`\tfrac{\rho\kappa^2}{2}G(z + a, z)`, i.e. in E0
+:math:`2\pi H(z,z) - \nu\ln a(z) = 2\pi H(z,z) + \nu\ln(L/a_{\rm ref}) + \tfrac12\nu\ln\nu`.
+Dropping the constant :math:`\ln(L/a_{\rm ref})` per vortex (as every domain does),
+
+.. math:: E_{\rm self}(z) = 2\pi H(z, z) + (\nu - 1)\ln(L/a_{\rm ref}) + \tfrac12\nu\ln\nu,
+
+which is the disk's :math:`\ln(1 - |u|^2)` for ν = 1. The local-density logarithm is the result
+for vortices in inhomogeneous condensates of Rubinstein & Pismen, Physica D 78, 1 (1994) and
+Sheehy & Radzihovsky, Phys. Rev. A 70, 063620 (2004) (from memory; the derivation above is
+self-contained). ``log_length_over_core`` = ln(L/a_ref) (a_ref the effective core radius at the
+reference density) is needed only when ν is not 1 everywhere in the fluid.
+
+**Numerics.** Fluid nodes are unknowns, dry nodes hold G = 0. Five-point conservative finite
+differences with :math:`1/\nu` at the faces (mean of the two nodes; the fluid node's own value
+on a face to a dry node), one sparse LU factorisation (``scipy.sparse.linalg.splu``), one
+right-hand side per source node of a coarse table grid (every ``stride``-th node). On the
+diagonal the lattice Green's function of the five-point Laplacian is
+:math:`G_h(0) = -\tfrac1{2\pi}[\ln h - \gamma - \tfrac32\ln 2] + H` (the potential kernel of the
+square lattice; Spitzer, Principles of Random Walk (1976), from memory), scaled by the local ν.
+H is interpolated bilinearly in each argument on the coarse table (16 values per pair; a
+symmetric table gives a symmetric G); ν and the distance to the wall (to the nearest dry node)
+bilinearly on the fine grid. Errors are first order in the spacing (the wall is a staircase).
+
+Units: positions in L; energies in E0 = rho kappa^2 / (4 pi).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import math
+import os
+import warnings
+import zipfile
+from collections.abc import Mapping
+from pathlib import Path
+from typing import ClassVar
+
+import numpy as np
+import scipy.sparse as sp
+from numba import njit
+from scipy.ndimage import distance_transform_edt
+from scipy.sparse.linalg import splu
+
+from thermo.domains.base import (
+    MOVE_SIGNATURE,
+    PAIR_SIGNATURE,
+    SELF_SIGNATURE,
+    WALL_SIGNATURE,
+    Domain,
+    DomainKernels,
+    as_points,
+    check_sizes,
+)
+from thermo.errors import DomainError
+
+#: bump when the table layout or the solver changes: part of the digest
+TABLE_VERSION = 2
+_EULER_GAMMA = 0.5772156649015329
+# header of the parameter vector (then fine nu, fine wall distance, coarse table)
+(_NXF, _NYF, _X0, _Y0, _HF, _NXC, _NYC, _STRIDE, _LNLA, _OFF_NU, _OFF_WALL,
+ _OFF_TAB, _HEADER) = range(13)
+
+
+class GreenCacheWarning(UserWarning):
+    """A cached Green's-function table was damaged and is rebuilt; the message names the file."""
+
+
+@njit(cache=True, error_model="numpy")
+def _bilinear(p, off, x, y):
+    """Bilinear interpolation of the fine-grid field stored at params[off:]."""
+    nx = int(p[_NXF])
+    ny = int(p[_NYF])
+    h = p[_HF]
+    fx = (x - p[_X0]) / h
+    fy = (y - p[_Y0]) / h
+    j = min(max(math.floor(fx), 0), nx - 2)
+    i = min(max(math.floor(fy), 0), ny - 2)
+    tx = fx - j
+    ty = fy - i
+    b = off + i * nx + j
+    return ((1 - ty) * ((1 - tx) * p[b] + tx * p[b + 1])
+            + ty * ((1 - tx) * p[b + nx] + tx * p[b + nx + 1]))
+
+
+@njit(cache=True, error_model="numpy")
+def _stencil(p, x, y):
+    """Coarse-table corner index and weights (i00, wx, wy) of a point."""
+    nxc = int(p[_NXC])
+    nyc = int(p[_NYC])
+    h = p[_HF] * p[_STRIDE]
+    fx = (x - p[_X0]) / h
+    fy = (y - p[_Y0]) / h
+    j = min(max(math.floor(fx), 0), nxc - 2)
+    i = min(max(math.floor(fy), 0), nyc - 2)
+    return i * nxc + j, fx - j, fy - i
+
+
+@njit(cache=True, error_model="numpy")
+def _remainder(p, x1, y1, x2, y2):
+    """H(z1, z2) interpolated bilinearly in each argument on the coarse table."""
+    nxc = int(p[_NXC])
+    m = nxc * int(p[_NYC])
+    off = int(p[_OFF_TAB])
+    a, ax, ay = _stencil(p, x1, y1)
+    b, bx, by = _stencil(p, x2, y2)
+    wa = ((1 - ax) * (1 - ay), ax * (1 - ay), (1 - ax) * ay, ax * ay)
+    ia = (a, a + 1, a + nxc, a + nxc + 1)
+    wb = ((1 - bx) * (1 - by), bx * (1 - by), (1 - bx) * by, bx * by)
+    ib = (b, b + 1, b + nxc, b + nxc + 1)
+    total = 0.0
+    for k in range(4):
+        row = off + ia[k] * m
+        s = 0.0
+        for q in range(4):
+            s += wb[q] * p[row + ib[q]]
+        total += wa[k] * s
+    return total
+
+
+@njit(cache=True, error_model="numpy")
+def _nu(p, x, y):
+    return max(_bilinear(p, int(p[_OFF_NU]), x, y), 0.0)
+
+
+@njit(PAIR_SIGNATURE, cache=True, error_model="numpy")
+def grid_pair(x1: float, y1: float, x2: float, y2: float, params: np.ndarray) -> float:
+    """Pair energy 4 pi G(z1, z2) = -sqrt(nu1 nu2) ln|z1 - z2|^2 + 4 pi H. Units: E0."""
+    dx = x1 - x2
+    dy = y1 - y2
+    w = math.sqrt(_nu(params, x1, y1) * _nu(params, x2, y2))
+    return -w * math.log(dx * dx + dy * dy) + 4.0 * math.pi * _remainder(params, x1, y1, x2, y2)
+
+
+@njit(SELF_SIGNATURE, cache=True, error_model="numpy")
+def grid_self(x: float, y: float, sign: int, params: np.ndarray) -> float:
+    """Self energy 2 pi H(z,z) + (nu - 1) ln(L/a_ref) + nu ln(nu) / 2, either sign. Units: E0."""
+    nu = _nu(params, x, y)
+    e = 2.0 * math.pi * _remainder(params, x, y, x, y) + (nu - 1.0) * params[_LNLA]
+    if nu > 0.0:
+        e += 0.5 * nu * math.log(nu)
+    return e
+
+
+@njit(WALL_SIGNATURE, cache=True, error_model="numpy")
+def grid_wall_distance(x: float, y: float, params: np.ndarray) -> float:
+    """Distance to the nearest dry node, interpolated (negative outside the grid). Units: L."""
+    h = params[_HF]
+    fx = (x - params[_X0]) / h
+    fy = (y - params[_Y0]) / h
+    if not (0.0 <= fx <= params[_NXF] - 1 and 0.0 <= fy <= params[_NYF] - 1):
+        return -1.0
+    return _bilinear(params, int(params[_OFF_WALL]), x, y)
+
+
+@njit(cache=True, error_model="numpy")
+def _row_sum(p, a, ax, ay, b, bx, by):
+    """sum_k sum_q wa_k wb_q T[ia_k, ib_q] for two precomputed stencils."""
+    nxc = int(p[_NXC])
+    m = nxc * int(p[_NYC])
+    off = int(p[_OFF_TAB])
+    total = 0.0
+    for k in range(4):
+        ra = a + (k & 1) + nxc * (k >> 1)
+        wk = (ax if k & 1 else 1.0 - ax) * (ay if k >> 1 else 1.0 - ay)
+        row = off + ra * m + b
+        s0 = (1.0 - bx) * p[row] + bx * p[row + 1]
+        s1 = (1.0 - bx) * p[row + nxc] + bx * p[row + nxc + 1]
+        total += wk * ((1.0 - by) * s0 + by * s1)
+    return total
+
+
+@njit(MOVE_SIGNATURE, cache=True, error_model="numpy")
+def grid_move_change(pos, signs, index, x_new, y_new, params, min_dist2, self_fn, pair_fn):
+    """E(after) - E(before) for moving vortex ``index``: the stencils and densities of the old
+    and new positions are computed once, each other vortex's once for both. O(N).
+
+    ``self_fn`` and ``pair_fn`` (part of the common signature) are not needed here.
+    Units: positions in L, energies in E0; +inf inside the hard core.
+    """
+    n = pos.shape[0]
+    x_old = pos[index, 0]
+    y_old = pos[index, 1]
+    s_k = signs[index]
+    d = grid_self(x_new, y_new, s_k, params) - grid_self(x_old, y_old, s_k, params)
+    an, anx, any_ = _stencil(params, x_new, y_new)
+    ao, aox, aoy = _stencil(params, x_old, y_old)
+    rn = math.sqrt(_nu(params, x_new, y_new))
+    ro = math.sqrt(_nu(params, x_old, y_old))
+    four_pi = 4.0 * math.pi
+    for j in range(n):
+        if j == index:
+            continue
+        xj = pos[j, 0]
+        yj = pos[j, 1]
+        dxn = x_new - xj
+        dyn = y_new - yj
+        dn = dxn * dxn + dyn * dyn
+        if dn < min_dist2:
+            return np.inf
+        dxo = x_old - xj
+        dyo = y_old - yj
+        do = dxo * dxo + dyo * dyo
+        b, bx, by = _stencil(params, xj, yj)
+        rj = math.sqrt(_nu(params, xj, yj))
+        e_new = -rn * rj * math.log(dn) + four_pi * _row_sum(params, an, anx, any_, b, bx, by)
+        e_old = -ro * rj * math.log(do) + four_pi * _row_sum(params, ao, aox, aoy, b, bx, by)
+        d += s_k * signs[j] * (e_new - e_old)
+    return d
+
+
+def _check_inputs(mask, density, spacing, origin):
+    m = np.asarray(mask)
+    if m.ndim != 2 or m.dtype != bool:
+        raise DomainError(f"mask must be a 2-D boolean array (True = fluid); got dtype {m.dtype} "
+                          f"and shape {m.shape}")
+    nu = np.asarray(density, dtype=np.float64)
+    if nu.shape != m.shape:
+        raise DomainError(f"density has shape {nu.shape} but mask has shape {m.shape}; they must "
+                          "be on the same grid")
+    if min(m.shape) < 3 or not m.any():
+        raise DomainError("mask has no fluid (no True node); accepted: a 2-D boolean array with "
+                          "fluid nodes strictly inside the grid")
+    if m[0].any() or m[-1].any() or m[:, 0].any() or m[:, -1].any():
+        raise DomainError("mask touches the grid edge; accepted: fluid nodes strictly inside the "
+                          "grid (pad it with at least one row/column of dry nodes)")
+    inside = nu[m]
+    if not np.all(np.isfinite(inside)) or np.any(inside <= 0):
+        bad = np.argwhere(m & ~(np.isfinite(nu) & (nu > 0)))[0]
+        raise DomainError(f"density at node (row {bad[0]}, column {bad[1]}) inside the fluid is "
+                          f"{nu[tuple(bad)]!r}; accepted: finite values > 0 wherever mask is True "
+                          "(cut the fluid where the density falls below a threshold)")
+    h = float(spacing)
+    if not math.isfinite(h) or h <= 0:
+        raise DomainError(f"spacing must be a positive length; got {spacing!r}")
+    o = np.asarray(origin, dtype=np.float64).reshape(-1)
+    if o.shape != (2,) or not np.all(np.isfinite(o)):
+        raise DomainError(f"origin must be two finite numbers (x, y) of node (0, 0); got {origin!r}")
+    return m, nu, h, o
+
+
+def _solve_table(mask, nu, h, stride):
+    """The remainder H on the coarse nodes (every stride-th node) of the full grid."""
+    ny, nx = mask.shape
+    idx = -np.ones(mask.shape, dtype=np.int64)
+    idx[mask] = np.arange(int(mask.sum()))
+    inv = np.where(mask, 1.0 / np.where(mask, nu, 1.0), 0.0)
+    rows, cols, vals = [], [], []
+    diag = np.zeros(int(mask.sum()))
+    ii, jj = np.nonzero(mask)
+    for di, dj in ((0, 1), (0, -1), (1, 0), (-1, 0)):
+        ni, nj = ii + di, jj + dj
+        wet = mask[ni, nj]
+        face = np.where(wet, 0.5 * (inv[ii, jj] + inv[ni, nj]), inv[ii, jj])
+        diag += face
+        rows.append(idx[ii[wet], jj[wet]])
+        cols.append(idx[ni[wet], nj[wet]])
+        vals.append(-face[wet])
+    n = diag.size
+    a = sp.csc_matrix((np.concatenate(vals + [diag]),
+                       (np.concatenate(rows + [np.arange(n)]),
+                        np.concatenate(cols + [np.arange(n)]))), shape=(n, n))
+    lu = splu(a)
+    ci = np.arange(0, ny, stride)
+    cj = np.arange(0, nx, stride)
+    cgi, cgj = np.meshgrid(ci, cj, indexing="ij")
+    cgi, cgj = cgi.ravel(), cgj.ravel()
+    nu_c = _extend(mask, nu)[cgi, cgj]
+    dist = h * np.hypot(cgi[:, None] - cgi[None, :], cgj[:, None] - cgj[None, :])
+    w = np.sqrt(nu_c[:, None] * nu_c[None, :])
+    with np.errstate(divide="ignore"):
+        table = w * np.log(dist) / (2.0 * np.pi)          # G = 0: H = -singular part
+    np.fill_diagonal(table, nu_c * (math.log(h * stride)) / (2.0 * np.pi))
+    wet_c = np.nonzero(mask[cgi, cgj])[0]
+    unknown = idx[cgi[wet_c], cgj[wet_c]]
+    lattice = (math.log(h) - _EULER_GAMMA - 1.5 * math.log(2.0)) / (2.0 * np.pi)
+    for start in range(0, wet_c.size, 256):
+        block = wet_c[start:start + 256]
+        rhs = np.zeros((n, block.size))
+        rhs[unknown[start:start + 256], np.arange(block.size)] = 1.0   # (delta/h^2) * h^2
+        g = lu.solve(rhs)[unknown, :]                                 # at the wet coarse nodes
+        sub = g + _lattice_singular(cgi[wet_c], cgj[wet_c], cgi[block], cgj[block], h,
+                                    w[np.ix_(wet_c, block)])
+        for k, col in enumerate(block):
+            r = np.nonzero(wet_c == col)[0][0]
+            sub[r, k] = g[r, k] + nu_c[col] * lattice
+        table[np.ix_(wet_c, block)] = sub
+    table = 0.5 * (table + table.T)                   # exact symmetry of the solved table
+    return table, cj.size, ci.size
+
+
+def _lattice_singular(i1, j1, i2, j2, h, w):
+    """Minus the free five-point lattice Green's function at node offsets (off the diagonal):
+    (w / 2 pi) ln r - w cos(4 theta) h^2 / (24 pi r^2), its asymptotic expansion to O(r^-2)
+    (the potential kernel of the square lattice, from memory; checked against its exact values
+    a(2, 0) = 4 - 8/pi and a(1, 1) = 4/pi to 1e-3)."""
+    di = (i1[:, None] - i2[None, :]).astype(float)
+    dj = (j1[:, None] - j2[None, :]).astype(float)
+    r2 = np.where(di * di + dj * dj > 0, di * di + dj * dj, 1.0)
+    cos4 = (di ** 4 - 6 * di * di * dj * dj + dj ** 4) / (r2 * r2)
+    return w * (0.5 * np.log(r2 * h * h) / (2 * np.pi) - cos4 / (24 * np.pi * r2))
+
+
+def _extend(mask, nu):
+    """nu inside the fluid, the nearest fluid node's value outside (smooth up to the wall)."""
+    _, (ei, ej) = distance_transform_edt(~mask, return_indices=True)
+    return np.where(mask, nu, nu[ei, ej])
+
+
+def green_cache_dir() -> Path:
+    """$XDG_CACHE_HOME/vortherm/green (or ~/.cache/vortherm/green)."""
+    base = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
+    return Path(base) / "vortherm" / "green"
+
+
+def _load_or_solve(digest, mask, nu, h, stride, cache_dir):
+    path = Path(cache_dir or green_cache_dir()) / f"green_{digest}.npz"
+    if path.exists():
+        try:
+            with np.load(path, allow_pickle=False) as z:
+                if str(z["digest"]) == digest:
+                    return z["table"], int(z["nxc"]), int(z["nyc"])
+                raise ValueError("digest does not match the file name")
+        except (OSError, EOFError, ValueError, KeyError, zipfile.BadZipFile) as exc:
+            warnings.warn(GreenCacheWarning(f"{path}: damaged Green's-function cache entry "
+                                            f"({type(exc).__name__}: {exc}); rebuilding it now"),
+                          stacklevel=3)
+    table, nxc, nyc = _solve_table(mask, nu, h, stride)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    tmp = path.with_name(f"{path.name}.{os.getpid()}.part")
+    try:
+        with open(tmp, "wb") as fh:
+            np.savez(fh, table=table, nxc=nxc, nyc=nyc, digest=np.array(digest))
+        os.replace(tmp, path)
+    finally:
+        if os.path.exists(tmp):
+            os.remove(tmp)
+    return table, nxc, nyc
+
+
+class GridDomain(Domain):
+    """Any fluid mask and relative density on a uniform grid, Green's function solved numerically.
+
+    Parameters
+    ----------
+    mask : array_like of bool, shape (ny, nx)
+        True at fluid nodes; dry nodes on every grid edge.
+    density : array_like of float, shape (ny, nx)
+        Relative areal density nu = n / n_ref, finite and > 0 where mask is True (ignored
+        elsewhere).
+    spacing : float
+        Grid spacing. Units: L.
+    origin : (float, float)
+        Position (x, y) of node (row 0, column 0). Units: L.
+    log_length_over_core : float or None
+        ln(L / a_ref), a_ref the effective core radius at nu = 1; required unless nu = 1 in the
+        whole fluid.
+    stride : int
+        Coarse table node every ``stride`` fine nodes (default 2).
+    cache_dir : path or None
+        Where solved tables are kept (default ``$XDG_CACHE_HOME/vortherm/green``).
+
+    Units: lengths in L, energies in E0.
+    """
+
+    kind: ClassVar[str] = "grid"
+    size_names: ClassVar[tuple[str, ...]] = ("radius",)
+    #: fine nodes across the diameter of the uniform disk built by :meth:`from_sizes`
+    SIZES_NODES: ClassVar[int] = 40
+
+    def __init__(self, mask, density, spacing: float, origin=(0.0, 0.0),
+                 log_length_over_core: float | None = None, stride: int = 2,
+                 cache_dir=None) -> None:
+        m, nu, h, o = _check_inputs(mask, density, spacing, origin)
+        if isinstance(stride, bool) or not isinstance(stride, (int, np.integer)) or stride < 1:
+            raise DomainError(f"stride must be a whole number >= 1; got {stride!r}")
+        uniform = bool(np.all(nu[m] == 1.0))
+        if log_length_over_core is None:
+            if not uniform:
+                raise DomainError("log_length_over_core (ln of the length unit over the core "
+                                  "radius at nu = 1) is needed when the density is not uniform")
+            log_length_over_core = 0.0
+        lnla = float(log_length_over_core)
+        nu_in = np.where(m, nu, 0.0)
+        digest = hashlib.sha1(b"".join([
+            np.ascontiguousarray(m).tobytes(), np.ascontiguousarray(nu_in).tobytes(),
+            repr((m.shape, h, tuple(o), int(stride), TABLE_VERSION)).encode()])).hexdigest()[:20]
+        table, nxc, nyc = _load_or_solve(digest, m, nu_in, h, int(stride), cache_dir)
+        ny, nx = m.shape
+        wall = distance_transform_edt(m) * h
+        header = np.zeros(_HEADER)
+        header[[_NXF, _NYF, _X0, _Y0, _HF, _NXC, _NYC, _STRIDE, _LNLA]] = \
+            [nx, ny, o[0], o[1], h, nxc, nyc, stride, lnla]
+        header[_OFF_NU] = _HEADER
+        header[_OFF_WALL] = _HEADER + nx * ny
+        header[_OFF_TAB] = _HEADER + 2 * nx * ny
+        self._params = np.ascontiguousarray(np.concatenate(
+            [header, _extend(m, nu_in).ravel(), wall.ravel(), table.ravel()]))
+        self._mask, self._h, self._origin = m, h, o
+        self._digest, self._lnla = digest, lnla
+
+    @classmethod
+    def from_sizes(cls, sizes: Mapping[str, float]) -> tuple[GridDomain, float]:
+        """A uniform disk of ``sizes["radius"]`` on a grid of :attr:`SIZES_NODES` across; the
+        radius is the length unit. Units: those of ``sizes``."""
+        radius = check_sizes(cls, sizes)["radius"]
+        n = cls.SIZES_NODES + 4
+        h = 2.0 / cls.SIZES_NODES
+        x = (np.arange(n) - (n - 1) / 2) * h
+        mask = (x[None, :] ** 2 + x[:, None] ** 2) < 1.0
+        return cls(mask, np.ones_like(x[None, :] * x[:, None]), h, (x[0], x[0])), radius
+
+    def __eq__(self, other) -> bool:
+        return isinstance(other, GridDomain) and self.key() == other.key()
+
+    def __hash__(self) -> int:
+        return hash(self.key())
+
+    def key(self) -> tuple:
+        """("grid", digest of mask, density, grid and settings, ln(L/a_ref))."""
+        return ("grid", self._digest, round(self._lnla, 12))
+
+    def kernels(self) -> DomainKernels:
+        """Compiled kernels; params packs the header, fine nu, fine wall distance, the table."""
+        return DomainKernels(grid_self, grid_pair, grid_wall_distance, grid_move_change,
+                             self._params)
+
+    @property
+    def area(self) -> float:
+        """Fluid nodes times the cell area. Units: L^2."""
+        return float(self._mask.sum()) * self._h ** 2
+
+    @property
+    def max_step(self) -> float:
+        """The larger side of the grid. Units: L."""
+        return self._h * max(self._mask.shape)
+
+    def distance_to_wall(self, pos) -> np.ndarray:
+        """Distance to the nearest dry node (bilinear), negative outside the grid. Units: L."""
+        p = as_points(pos, "pos")
+        flat = p.reshape(-1, 2)
+        out = np.array([grid_wall_distance(x, y, self._params) if np.isfinite(x + y) else np.nan
+                        for x, y in flat])
+        return out.reshape(p.shape[:-1])
+
+    def sample_uniform(self, rng: np.random.Generator, n: int, margin: float = 0.0) -> np.ndarray:
+        """n points uniform where the distance to the wall exceeds ``margin`` (rejection).
+
+        Units: L.
+        """
+        ii, jj = np.nonzero(self._mask)
+        lo = self._origin + self._h * np.array([jj.min() - 1, ii.min() - 1])
+        hi = self._origin + self._h * np.array([jj.max() + 1, ii.max() + 1])
+        out = np.empty((0, 2))
+        for _ in range(1000):
+            if len(out) >= n:
+                break
+            cand = lo + (hi - lo) * rng.random((max(4 * n, 16), 2))
+            out = np.concatenate([out, cand[self.distance_to_wall(cand) > margin]])
+        if len(out) < n:
+            raise DomainError(f"a margin of {margin:g} L leaves no room in the grid domain")
+        return out[:n]

@@ -141,14 +141,20 @@ def thomas_fermi_domain(n=40, cut=0.05, tmp_path=None):
 @pytest.mark.slow
 @pytest.mark.parametrize("beta", [-0.4, 0.5])
 def test_beta_recovered_in_a_harmonic_trap(beta, tmp_path):
-    # STYLE.md: estimators are tested on data drawn at a known parameter; as
-    # tests/thermo/test_estimate.py does for the disk, shots drawn by the sampler at beta in
-    # the Thomas-Fermi domain must give an estimate whose 95 % interval holds beta.
+    """STYLE.md: estimators are tested on data drawn at a known parameter. Eight ensembles of
+    shots drawn by the sampler at beta in the Thomas-Fermi domain (seeds 1-8, one density of
+    states for all): their 95% intervals hold beta in at least 6 of 8 [binomial: a calibrated
+    interval fails this with probability 0.6%], and the sign is right in at least 7."""
     dom = thomas_fermi_domain(tmp_path=tmp_path)
     core = 0.03
-    run = run_tempering(dom, 2, 2, [beta], 60 * 30, core, np.random.default_rng(19), thin=30)
-    configs = [(p, run.signs) for p in run.positions[0]]
-    res = estimate_ensemble(configs, dom, core, cache_dir=tmp_path,
-                            settings=DosSettings(n_temps=10, n_sweeps=1500, n_boot=20))
-    assert res.beta_ci95[0] <= beta <= res.beta_ci95[1], res
-    assert res.temperature_sign == ("negative" if beta < 0 else "positive")
+    covered = right_sign = 0
+    for seed in range(1, 9):
+        run = run_tempering(dom, 2, 2, [beta], 60 * 30, core, np.random.default_rng(seed),
+                            thin=30)
+        configs = [(p, run.signs) for p in run.positions[0]]
+        res = estimate_ensemble(configs, dom, core, cache_dir=tmp_path, seed=0,
+                                settings=DosSettings(n_temps=10, n_sweeps=1500, n_boot=20))
+        covered += res.beta_ci95[0] <= beta <= res.beta_ci95[1]
+        right_sign += res.temperature_sign == ("negative" if beta < 0 else "positive")
+    assert covered >= 6, covered
+    assert right_sign >= 7, right_sign

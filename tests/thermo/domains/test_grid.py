@@ -10,7 +10,7 @@ from thermo.domains.box import Box
 from thermo.domains.disk import Disk
 from thermo.domains.grid import GreenCacheWarning, GridDomain
 from thermo.dos.build import DosSettings
-from thermo.energy import energy_batch
+from thermo.energy import energy, energy_batch, energy_change
 from thermo.errors import DomainError
 from thermo.estimate import estimate_ensemble
 from thermo.sampler import run_tempering
@@ -154,3 +154,23 @@ def test_beta_recovered_in_a_harmonic_trap(beta, tmp_path):
                             settings=DosSettings(n_temps=10, n_sweeps=1500, n_boot=20))
     assert res.beta_ci95[0] <= beta <= res.beta_ci95[1], res
     assert res.temperature_sign == ("negative" if beta < 0 else "positive")
+
+
+@pytest.mark.parametrize("harmonic", [False, True])
+def test_move_kernel_is_the_energy_difference(harmonic, tmp_path):
+    # [exact] the move kernel (its uniform-density branch multiplies the logarithms together)
+    # must equal E(after) - E(before) of the whole configuration.
+    if harmonic:
+        dom = thomas_fermi_domain(n=24, tmp_path=tmp_path)
+    else:
+        x, y, h = _grid(24)
+        mask = x[None, :] ** 2 + y[:, None] ** 2 < 1.0
+        dom = GridDomain(mask, np.ones(mask.shape), h, (x[0], y[0]), cache_dir=tmp_path)
+    rng = np.random.default_rng(8)
+    pts = dom.sample_uniform(rng, 12, margin=0.15)
+    conf, new = pts[:6], pts[6:]
+    for k in range(6):
+        moved = conf.copy()
+        moved[k] = new[k]
+        ref = energy(moved, SIGNS, dom) - energy(conf, SIGNS, dom)
+        assert energy_change(conf, SIGNS, dom, k, new[k]) == pytest.approx(ref, rel=1e-10, abs=1e-10)

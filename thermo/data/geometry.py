@@ -189,12 +189,17 @@ class Geometry:
 
 def _shape_class(shape: Any) -> type[Domain]:
     """The domain class of a geometry shape; refuse an unknown shape, listing the known ones."""
+    accepted = ", ".join(repr(k) for k, c in domain_classes().items() if c.from_geometry_file)
     try:
-        return domain_class(shape)
+        cls = domain_class(shape)
     except DomainError:
-        accepted = ", ".join(repr(k) for k in domain_classes())
         raise MeasuredTableError(
             f"geometry shape {shape!r} is not known; accepted: {accepted}") from None
+    if not cls.from_geometry_file:
+        raise MeasuredTableError(
+            f"geometry shape {shape!r} is built from a fluid mask and a density on a grid, "
+            f"which a geometry file cannot give; accepted: {accepted}")
+    return cls
 
 
 def _size_keys(shape: Any) -> tuple[str, ...]:

@@ -246,6 +246,10 @@ class Domain(ABC):
     #: Names of the physical sizes that fix the domain (e.g. ("radius",)), see
     #: :meth:`from_sizes`.
     size_names: ClassVar[tuple[str, ...]] = ()
+    #: Whether a measured table's geometry file may name this kind with its sizes alone. A
+    #: domain made from arrays (a mask and a density) sets False: its :meth:`from_sizes`
+    #: builds only a stand-in for the interface checks, which a table must never get.
+    from_geometry_file: ClassVar[bool] = True
 
     # -- to be provided by every domain ----------------------------------------------------
     @classmethod

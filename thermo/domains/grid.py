@@ -87,7 +87,7 @@ TABLE_VERSION = 2
 _EULER_GAMMA = 0.5772156649015329
 # header of the parameter vector (then fine nu, fine wall distance, coarse table)
 (_NXF, _NYF, _X0, _Y0, _HF, _NXC, _NYC, _STRIDE, _LNLA, _OFF_NU, _OFF_WALL,
- _OFF_TAB, _HEADER) = range(13)
+ _OFF_TAB, _UNIFORM, _HEADER) = range(14)
 
 
 class GreenCacheWarning(UserWarning):
@@ -216,6 +216,8 @@ def grid_move_change(pos, signs, index, x_new, y_new, params, min_dist2, self_fn
     rn = math.sqrt(_nu(params, x_new, y_new))
     ro = math.sqrt(_nu(params, x_old, y_old))
     four_pi = 4.0 * math.pi
+    uniform = params[_UNIFORM] > 0.0
+    acc = 1.0
     for j in range(n):
         if j == index:
             continue
@@ -230,11 +232,19 @@ def grid_move_change(pos, signs, index, x_new, y_new, params, min_dist2, self_fn
         dyo = y_old - yj
         do = dxo * dxo + dyo * dyo
         b, bx, by = _stencil(params, xj, yj)
-        rj = math.sqrt(_nu(params, xj, yj))
-        e_new = -rn * rj * math.log(dn) + four_pi * _row_sum(params, an, anx, any_, b, bx, by)
-        e_old = -ro * rj * math.log(do) + four_pi * _row_sum(params, ao, aox, aoy, b, bx, by)
-        d += s_k * signs[j] * (e_new - e_old)
-    return d
+        h_change = four_pi * (_row_sum(params, an, anx, any_, b, bx, by)
+                              - _row_sum(params, ao, aox, aoy, b, bx, by))
+        if uniform:
+            # nu = 1: the logarithms are multiplied together, one log per move (as the disk)
+            acc *= dn / do if s_k * signs[j] > 0 else do / dn
+            if acc > 1e100 or acc < 1e-100:
+                d -= math.log(acc)
+                acc = 1.0
+            d += s_k * signs[j] * h_change
+        else:
+            rj = math.sqrt(_nu(params, xj, yj))
+            d += s_k * signs[j] * (rj * (ro * math.log(do) - rn * math.log(dn)) + h_change)
+    return d - math.log(acc)
 
 
 def _check_inputs(mask, density, spacing, origin):
@@ -392,6 +402,7 @@ class GridDomain(Domain):
     """
 
     kind: ClassVar[str] = "grid"
+    from_geometry_file = False   # built from arrays; from_sizes is a stand-in
     size_names: ClassVar[tuple[str, ...]] = ("radius",)
     #: fine nodes across the diameter of the uniform disk built by :meth:`from_sizes`
     SIZES_NODES: ClassVar[int] = 40
@@ -422,6 +433,7 @@ class GridDomain(Domain):
         header[_OFF_NU] = _HEADER
         header[_OFF_WALL] = _HEADER + nx * ny
         header[_OFF_TAB] = _HEADER + 2 * nx * ny
+        header[_UNIFORM] = 1.0 if uniform else 0.0
         self._params = np.ascontiguousarray(np.concatenate(
             [header, _extend(m, nu_in).ravel(), wall.ravel(), table.ravel()]))
         self._mask, self._h, self._origin = m, h, o

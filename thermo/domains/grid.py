@@ -70,6 +70,7 @@ from numba import njit
 from scipy.ndimage import distance_transform_edt
 from scipy.sparse.linalg import splu
 
+from thermo.atomic import write_npz
 from thermo.domains.base import (
     MOVE_SIGNATURE,
     PAIR_SIGNATURE,
@@ -364,15 +365,8 @@ def _load_or_solve(digest, mask, nu, h, stride, cache_dir):
                                             f"({type(exc).__name__}: {exc}); rebuilding it now"),
                           stacklevel=3)
     table, nxc, nyc = _solve_table(mask, nu, h, stride)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = path.with_name(f"{path.name}.{os.getpid()}.part")
-    try:
-        with open(tmp, "wb") as fh:
-            np.savez(fh, table=table, nxc=nxc, nyc=nyc, digest=np.array(digest))
-        os.replace(tmp, path)
-    finally:
-        if os.path.exists(tmp):
-            os.remove(tmp)
+    write_npz(path, {"table": table, "nxc": nxc, "nyc": nyc, "digest": np.array(digest)},
+              compressed=False)
     return table, nxc, nyc
 
 

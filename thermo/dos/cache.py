@@ -29,6 +29,7 @@ from typing import Any
 
 import numpy as np
 
+from thermo.atomic import write_npz
 from thermo.dos import tables as dos_tables
 from thermo.dos.build import DosSettings, build
 from thermo.dos.model import DensityOfStates
@@ -115,14 +116,7 @@ def save(dos: DensityOfStates, path: Any, key: tuple, request: dict | None = Non
     arrays.update({f"diag__{k}": v for k, v in dos.diagnostics.items()})
     if dos.has_tables():   # the tables cost more than a load: a second process reuses them
         arrays.update({f"tab__{k}": v for k, v in dos.tables.items()})
-    tmp = path.with_name(f"{path.name}.{os.getpid()}.part")
-    try:
-        with open(tmp, "wb") as fh:
-            np.savez_compressed(fh, **arrays)
-        os.replace(tmp, path)
-    finally:
-        if os.path.exists(tmp):
-            os.remove(tmp)
+    write_npz(path, arrays)
 
 
 class CacheWarning(UserWarning):

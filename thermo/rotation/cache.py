@@ -14,7 +14,6 @@ from __future__ import annotations
 
 import hashlib
 import json
-import os
 import warnings
 import zipfile
 from dataclasses import asdict
@@ -23,6 +22,7 @@ from typing import Any
 
 import numpy as np
 
+from thermo.atomic import write_npz
 from thermo.dos.cache import CacheWarning, default_cache_dir
 from thermo.errors import SamplerError
 from thermo.rotation.table import (
@@ -67,14 +67,7 @@ def save(table: RotatingTable, path: Any, key: str) -> None:
     arrays = {k: getattr(table, k) for k in _ARRAYS}
     arrays.update({f"diag__{k}": v for k, v in table.diagnostics.items()})
     arrays["meta"] = np.array(json.dumps(meta))
-    tmp = path.with_name(f"{path.name}.{os.getpid()}.part")
-    try:
-        with open(tmp, "wb") as fh:
-            np.savez_compressed(fh, **arrays)
-        os.replace(tmp, path)
-    finally:
-        if os.path.exists(tmp):
-            os.remove(tmp)
+    write_npz(path, arrays)
 
 
 def load(path: Any) -> tuple[RotatingTable, str]:

@@ -57,7 +57,7 @@ class VortexDomain:
     Attributes
     ----------
     domain : thermo.domains.base.Domain
-        The unit domain (a disk or a box).
+        The unit domain (disk, box, annulus, or a grid domain for harmonic and mask traps).
     scale : float
         Length of one domain unit (disk: R_eff; box: the side along y).
     center : (float, float)
@@ -206,7 +206,7 @@ class Trap(ABC):
         lengths xi.
         """
         raise VorthermError(f"thermometry: trap shape {self.shape!r} has no point-vortex domain; accepted "
-                            "shapes: disk, box (harmonic as a flagged approximation)")
+                            "shapes: disk, box, annulus, harmonic, mask")
 
 
 @dataclass(frozen=True, kw_only=True)

@@ -16,7 +16,7 @@ import numpy as np
 
 from gpe.field.grid import Grid
 from gpe.field.traps.base import WALL_HEIGHT_KEY, Trap, TrapSection, VortexDomain
-from thermo.domains.disk import Disk
+from gpe.field.traps._numerical import DENSITY_CUT, domain_grid, grid_vortex_domain
 
 _RATE_KEY = {"kind": "float", "dim": "rate", "check": "positive"}
 #: Vortices are reported where V < 0.9 mu: the edge of the cloud, where the density fades, is left out.
@@ -134,18 +134,16 @@ class HarmonicTrap(Trap):
         return v_static < _DETECTION_LEVEL
 
     def vortex_domain(self, core_radius_xi: float, wall_layer_xi: float) -> VortexDomain:
-        """The disk of the Thomas-Fermi radius, flagged as an approximation.
-
-        At mu = 1, ``V(R) = 1`` gives ``R = sqrt(2) / omega`` with omega the geometric mean. The
-        density is not uniform, so the uniform-domain point-vortex model is only indicative; there
-        is no hard wall, so ``wall_layer_xi`` is not used.
+        """The Thomas-Fermi fluid nu = 1 - V on a grid, its Green's function solved numerically
+        (gpe.field.traps._numerical); the length unit is ``R = sqrt(2) / omega``, omega the
+        geometric mean. There is no hard wall, so ``wall_layer_xi`` is not used.
 
         Units
         -----
-        lengths xi.
+        lengths in xi.
         """
-        omega = math.sqrt(self.omega_x * self.omega_y)
-        r_tf = math.sqrt(2.0) / omega
-        return VortexDomain(Disk(), r_tf, (0.0, 0.0), core_radius_xi / r_tf,
-                            approximate=("harmonic trap: the uniform-disk point-vortex model of "
-                                         "radius R_TF is only an approximation"))
+        a, b = self.semi_axes()
+        grid = domain_grid(2.0 * a, 2.0 * b)
+        nu = 1.0 - self.potential(grid)
+        r_tf = math.sqrt(2.0 / (self.omega_x * self.omega_y))
+        return grid_vortex_domain(self.shape, grid, nu > DENSITY_CUT, nu, r_tf, core_radius_xi)

@@ -20,7 +20,8 @@ from scipy import ndimage
 
 from gpe.errors import ProtocolError
 from gpe.field.grid import Grid
-from gpe.field.traps.base import LENGTH_KEY, TrapSection, WalledTrap
+from gpe.field.traps.base import LENGTH_KEY, TrapSection, VortexDomain, WalledTrap
+from gpe.field.traps._numerical import domain_grid, grid_vortex_domain
 
 MASK_FORMATS = "a PNG/greyscale image readable by Pillow (.png, .bmp, .tif) or a 2D NumPy array (.npy)"
 _FILE_ACCEPTED = ("a path relative to the protocol file, of a PNG/BMP/TIFF image (allowed region bright) "
@@ -211,6 +212,22 @@ class MaskTrap(WalledTrap):
     def area(self) -> float:
         """Allowed pixels times the pixel area. Units: xi^2."""
         return int(self.allowed.sum()) * self.pixel_size**2
+
+    def vortex_domain(self, core_radius_xi: float, wall_layer_xi: float) -> VortexDomain:
+        """The allowed region shrunk by ``wall_layer_xi`` (the depleted layer at the wall), flat
+        (nu = 1), on a grid, its Green's function solved numerically
+        (gpe.field.traps._numerical); the length unit is the largest distance of a fluid node
+        from the trap centre.
+
+        Units
+        -----
+        lengths in xi.
+        """
+        grid = domain_grid(*self.extent())
+        fluid = self.signed_distance(grid) < -wall_layer_xi
+        reach = float(np.sqrt(grid.X ** 2 + grid.Y ** 2)[fluid].max()) if fluid.any() else 0.0
+        return grid_vortex_domain(self.shape, grid, fluid, np.ones(grid.shape), reach,
+                                  core_radius_xi)
 
     def signed_distance(self, grid: Grid) -> np.ndarray:
         """Signed distance to the mask's region as the grid samples it (negative inside). Units: xi."""

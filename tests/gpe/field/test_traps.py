@@ -169,11 +169,17 @@ def test_uncapped_harmonic_grows_as_its_formula_far_outside():
     assert trap.extent() == pytest.approx((2 * math.sqrt(2) / 0.2, 2 * math.sqrt(2) / 0.3))
 
 
-def test_a_mask_has_no_point_vortex_domain_and_the_others_shrink_by_the_wall_layer(tmp_path):
+def test_every_shape_has_a_point_vortex_domain_shrunk_by_the_wall_layer(tmp_path):
     png, _ = _disk_png(tmp_path)
     trap = MaskTrap(file=str(png), pixel_size=0.5)
-    with pytest.raises(VorthermError, match=f"trap shape '{trap.shape}' has no point-vortex domain"):
-        trap.vortex_domain(0.5, 1.0)
+    # a mask gets a grid domain of its region less the wall layer: for a drawn disk, [exact]
+    # area pi (R - layer)^2 and reach R - layer, to the grid's staircase (~1 node, 1.5%)
+    vd = trap.vortex_domain(0.5, 1.0)
+    r_eff = trap.area() ** 0.5 / math.sqrt(math.pi) - 1.0
+    assert vd.domain.kind == "grid" and vd.approximate == ""
+    assert vd.scale == pytest.approx(r_eff, rel=0.03)
+    assert vd.domain.area * vd.scale ** 2 == pytest.approx(math.pi * r_eff ** 2, rel=0.04)
+    assert vd.core_radius == pytest.approx(0.5 / vd.scale)
     # the annulus shrinks at both walls (test_thermometry.py checks its hole's circulation)
     vd = AnnulusTrap(inner_radius=5.0, outer_radius=20.0).vortex_domain(0.5, 1.0)
     assert vd.domain.inner == pytest.approx(6.0 / 19.0) and vd.scale == pytest.approx(19.0)

@@ -1,0 +1,79 @@
+"""Point-vortex domains solved on a grid, for the traps without an analytic one (harmonic, mask).
+
+A harmonic trap's fluid is not uniform and a mask's region is not a circle, so neither has a
+closed-form Green's function; both get a :class:`thermo.domains.grid.GridDomain` (the stream
+function of -div[(1/nu) grad G] = delta with G = 0 where the fluid ends, solved once and cached,
+see that module):
+
+* **harmonic**: the Thomas-Fermi ground state at mu = 1, nu = 1 - V(x, y) (the potential as the
+  run's own trap gives it, anisotropy and cap included), cut where nu < ``DENSITY_CUT``; the
+  length unit is the geometric-mean Thomas-Fermi radius sqrt(2)/omega, as before this domain
+  existed. The run's relaxed ground state differs from the Thomas-Fermi profile only in the
+  edge layer of a few healing lengths, which the cut removes (docs/numerical-domains.md).
+* **mask**: a flat-bottomed region (nu = 1) shrunk by the wall layer, as the disk and box are:
+  the fluid nodes are those deeper than ``wall_layer_xi`` inside the mask's own signed distance.
+  The length unit is the largest distance of a fluid node from the trap centre.
+
+The domain grid has ``DOMAIN_NODES`` nodes across the larger side of the fluid (plus dry
+margin). The effective core radius of the vortex energy at the reference density,
+a_ref = xi / (1.464 sqrt 2) = 0.483 xi, enters through ln(L/a_ref) (only where nu is not 1):
+E = pi n hbar^2/m ln(1.464 b / xi') for a vortex at the centre of a disk of radius b, with
+xi' = hbar / sqrt(2 m g n) (Pethick & Smith, Bose-Einstein Condensation in Dilute Gases,
+2nd ed. (2008), section 9.2; the constant from memory), and xi' = xi / sqrt 2 in healing units.
+
+Units: lengths in xi (trap side), in the domain's length unit on the thermo side.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from gpe.errors import VorthermError
+from gpe.field.grid import Grid
+from gpe.field.traps.base import VortexDomain
+from thermo.domains.grid import GridDomain
+from thermo.errors import DomainError
+
+#: nodes of the domain grid across the larger side of the fluid
+DOMAIN_NODES = 80
+#: dry margin of the domain grid on each side, in nodes
+MARGIN_NODES = 4
+#: a harmonic trap's fluid ends where the Thomas-Fermi density falls below this fraction of the
+#: centre's (moves the edge by 2.5% of R; docs/numerical-domains.md)
+DENSITY_CUT = 0.05
+#: effective core radius of the vortex energy at the reference density, in xi (module docstring)
+ENERGY_CORE_XI = 1.0 / (1.464 * math.sqrt(2.0))
+
+
+def domain_grid(extent_x: float, extent_y: float, nodes: int = DOMAIN_NODES) -> Grid:
+    """A square-celled grid centred on the trap, ``nodes`` across the larger extent plus a dry
+    margin. Units: xi."""
+    h = max(extent_x, extent_y) / nodes
+    nx = 2 * (math.ceil(0.5 * extent_x / h) + MARGIN_NODES)
+    ny = 2 * (math.ceil(0.5 * extent_y / h) + MARGIN_NODES)
+    return Grid(nx, ny, nx * h, ny * h)
+
+
+def grid_vortex_domain(shape: str, grid: Grid, fluid: np.ndarray, nu: np.ndarray,
+                       scale: float, core_radius_xi: float) -> VortexDomain:
+    """The :class:`GridDomain` of a fluid on ``grid`` (xi), in units of ``scale`` (xi).
+
+    Raises VorthermError naming the trap shape when the fluid is empty, touches the grid's edge
+    or is too small for a vortex gas. Units: xi.
+    """
+    if not fluid.any():
+        raise VorthermError(f"thermometry: the {shape} trap leaves no fluid for a vortex gas "
+                            "(no grid node inside its wall layer)")
+    if scale <= 4 * core_radius_xi:
+        raise VorthermError(f"thermometry: the {shape} trap's fluid reaches {scale:.3g} xi from "
+                            "its centre, too small for a vortex gas (need several healing "
+                            "lengths)")
+    try:
+        domain = GridDomain(fluid, np.where(fluid, nu, 0.0), spacing=grid.dx / scale,
+                            origin=(float(grid.x[0]) / scale, float(grid.y[0]) / scale),
+                            log_length_over_core=math.log(scale / ENERGY_CORE_XI))
+    except DomainError as err:
+        raise VorthermError(f"thermometry: the {shape} trap's grid domain: {err}") from err
+    return VortexDomain(domain, scale, (0.0, 0.0), core_radius_xi / scale)

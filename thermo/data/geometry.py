@@ -16,6 +16,13 @@ arguments override the file key by key. Accepted TOML keys::
     pixel_um = 0.8          # only if the table is in pixels
     center_px = [256.0, 240.0]
 
+    shape = "grid"          # instead of sizes: the cloud's own image (thermo.data.cloud_image)
+    mask_file = "cloud_mask.png"     # the fluid region (bright), or:
+    density_file = "cloud_mean.npy"  # a smooth column-density image (needs core_um)
+    density_cut = 0.05      # density image: fluid where n > 0.05 of the peak (default)
+    image_pixel_um = 0.8    # pixel size and trap centre of the image; default pixel_um and
+    image_center_px = [256.0, 240.0]  # center_px (an image from the table's own camera)
+
     [imaging]               # optional: how the imaging degrades the configurations
     blur_um = 0.5           # rms position error per coordinate
     resolution_um = 0.0     # pairs closer than this are lost (opposite) or merged (like)
@@ -47,13 +54,15 @@ from typing import Any, Sequence
 
 import numpy as np
 
+from thermo.data.cloud_image import DENSITY_CUT, image_domain
 from thermo.data.degrade import ImagingModel
 from thermo.domains.base import Domain
 from thermo.domains.kinds import domain_class, domain_classes
 from thermo.errors import DomainError, MeasuredTableError
 
 GEOMETRY_KEYS = ("shape", "radius_um", "width_um", "height_um", "inner_radius_um",
-                 "hole_winding", "core_um", "pixel_um", "center_px", "imaging")
+                 "hole_winding", "core_um", "pixel_um", "center_px", "imaging", "mask_file",
+                 "density_file", "density_cut", "image_pixel_um", "image_center_px")
 #: the size keys of all shapes (micrometres)
 _SIZE_KEYS = ("radius_um", "width_um", "height_um", "inner_radius_um")
 #: keys of the [imaging] table (lengths in um; sign_error a probability)
@@ -129,6 +138,11 @@ class Geometry:
     imaging_um: tuple = ()
     inner_radius_um: float | None = None
     hole_winding: int | None = None
+    image_kind: str | None = None
+    image_file: str | None = None
+    image_pixel_um: float | None = None
+    image_center_px: tuple[float, float] | None = None
+    density_cut: float = DENSITY_CUT
 
     def imaging_model(self):
         """The ``[imaging]`` table as a thermo.data.degrade.ImagingModel in scaled units, or
@@ -142,6 +156,11 @@ class Geometry:
                                     sign_flip=vals.get("sign_error", 0.0))
 
     def __post_init__(self) -> None:
+        if (self.shape == "grid") != (self.image_file is not None):
+            raise MeasuredTableError(
+                "shape = 'grid' is a cloud image: give mask_file or density_file with it (and "
+                f"no image for any other shape); got shape {self.shape!r}, image "
+                f"{self.image_file!r}")
         for key in _size_keys(self.shape):
             _positive(key, getattr(self, key), f"a {self.shape}")
         if self.core_um is not None and not (math.isfinite(self.core_um)
@@ -156,6 +175,19 @@ class Geometry:
                                          f"quanta; got {self.hole_winding!r}")
 
     def _scaled_domain(self) -> tuple[Domain, float]:
+        if self.shape == "grid":
+            cached = self.__dict__.get("_image_domain")
+            if cached is None:
+                if self.image_pixel_um is None or self.image_center_px is None:
+                    raise MeasuredTableError(
+                        f"{self.image_file}: an image geometry needs the image's pixel size and "
+                        "trap centre: image_pixel_um and image_center_px (or pixel_um and "
+                        "center_px)")
+                cached = image_domain(self.image_file, self.image_kind, self.image_pixel_um,
+                                      self.image_center_px, core_um=self.core_um,
+                                      density_cut=self.density_cut)
+                object.__setattr__(self, "_image_domain", cached)
+            return cached
         cls = _shape_class(self.shape)
         sizes = {name: getattr(self, f"{name}_um") for name in cls.size_names}
         try:
@@ -197,13 +229,16 @@ def _shape_class(shape: Any) -> type[Domain]:
             f"geometry shape {shape!r} is not known; accepted: {accepted}") from None
     if not cls.from_geometry_file:
         raise MeasuredTableError(
-            f"geometry shape {shape!r} is built from a fluid mask and a density on a grid, "
-            f"which a geometry file cannot give; accepted: {accepted}")
+            f"geometry shape {shape!r} is built from a fluid mask or a density image: give "
+            f"mask_file or density_file with it; accepted sizes for: {accepted}")
     return cls
 
 
 def _size_keys(shape: Any) -> tuple[str, ...]:
-    """Geometry keys (micrometres) that fix a domain of this shape, e.g. ("radius_um",)."""
+    """Geometry keys (micrometres) that fix a domain of this shape, e.g. ("radius_um",); none
+    for a cloud image (shape "grid")."""
+    if shape == "grid":
+        return ()
     keys = tuple(f"{name}_um" for name in _shape_class(shape).size_names)
     unknown = [k for k in keys if k not in GEOMETRY_KEYS]
     if unknown:
@@ -274,16 +309,24 @@ def read_geometry_file(path: str | Path) -> dict[str, Any]:
                                    or not isinstance(data["hole_winding"], int)):
         raise MeasuredTableError(f"{path}: hole_winding must be a whole number of circulation "
                                  f"quanta; got {data['hole_winding']!r}")
-    for key in (*_SIZE_KEYS, "core_um", "pixel_um"):
+    for key in ("mask_file", "density_file"):
+        if key in data:
+            if not isinstance(data[key], str) or not data[key]:
+                raise MeasuredTableError(f"{path}: {key} must be a file name; got {data[key]!r}")
+            data[key] = str((path.parent / data[key]).resolve())
+    if "mask_file" in data and "density_file" in data:
+        raise MeasuredTableError(f"{path}: give mask_file or density_file, not both")
+    for key in (*_SIZE_KEYS, "core_um", "pixel_um", "density_cut", "image_pixel_um"):
         if key in data and (isinstance(data[key], bool)
                             or not isinstance(data[key], (int, float))):
             raise MeasuredTableError(f"{path}: {key} must be a number; got {data[key]!r}")
-    if "center_px" in data:
-        c = data["center_px"]
-        if not (isinstance(c, list) and len(c) == 2
-                and all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in c)):
-            raise MeasuredTableError(
-                f"{path}: center_px must be a list of two numbers [x, y]; got {c!r}")
+    for key in ("center_px", "image_center_px"):
+        if key in data:
+            c = data[key]
+            if not (isinstance(c, list) and len(c) == 2
+                    and all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in c)):
+                raise MeasuredTableError(
+                    f"{path}: {key} must be a list of two numbers [x, y]; got {c!r}")
     if "imaging" in data:
         data["imaging"] = check_imaging(data["imaging"], f"{path}: [imaging]")
     return data
@@ -341,8 +384,11 @@ def resolve_geometry(table_path: str | Path, *, shape: str | None = None,
                  center_px=None if center_px is None else list(center_px))
     merged = {**data, **{k: v for k, v in given.items() if v is not None}}
     shp = merged.get("shape")
+    image_key = next((k for k in ("mask_file", "density_file") if merged.get(k)), None)
     if shp is None:
-        if merged.get("inner_radius_um") is not None:
+        if image_key is not None:
+            shp = "grid"
+        elif merged.get("inner_radius_um") is not None:
             shp = "annulus"
         elif merged.get("radius_um") is not None:
             shp = "disk"
@@ -359,7 +405,8 @@ def resolve_geometry(table_path: str | Path, *, shape: str | None = None,
                         hole_winding=merged.get("hole_winding"),
                         core_um=_opt_float(merged.get("core_um")),
                         imaging_um=tuple(sorted({**data.get("imaging", {}), **check_imaging(
-                            imaging_um or {}, "imaging options")}.items())))
+                            imaging_um or {}, "imaging options")}.items())),
+                        **_image_fields(merged, image_key))
     calib = None
     if merged.get("pixel_um") is not None or merged.get("center_px") is not None:
         if merged.get("pixel_um") is None or merged.get("center_px") is None:
@@ -368,6 +415,20 @@ def resolve_geometry(table_path: str | Path, *, shape: str | None = None,
         cx, cy = merged["center_px"]
         calib = PixelCalibration(float(merged["pixel_um"]), (float(cx), float(cy)))
     return geometry, calib
+
+
+def _image_fields(merged: dict, image_key: str | None) -> dict:
+    """The Geometry fields of a cloud image (mask or density), from the merged keys."""
+    if image_key is None:
+        return {}
+    pixel = merged.get("image_pixel_um", merged.get("pixel_um"))
+    centre = merged.get("image_center_px", merged.get("center_px"))
+    if pixel is not None:
+        _positive("image_pixel_um", pixel, "a cloud image")
+    return {"image_kind": image_key.removesuffix("_file"), "image_file": merged[image_key],
+            "image_pixel_um": _opt_float(pixel),
+            "image_center_px": None if centre is None else tuple(float(c) for c in centre),
+            "density_cut": float(merged.get("density_cut", DENSITY_CUT))}
 
 
 def _opt_float(v: Any) -> float | None:

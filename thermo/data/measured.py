@@ -426,6 +426,9 @@ def read_measured(path: str | Path, *, shape: str | None = None,
 def _describe(geometry: Geometry, calib: PixelCalibration | None) -> str:
     if geometry.shape == "disk":
         text = f"disk of radius {geometry.radius_um:g} um about the centre"
+    elif geometry.shape == "grid":
+        text = (f"{geometry.image_kind} image {Path(geometry.image_file).name} (fluid reaching "
+                f"{geometry.length_scale_um:g} um from the centre)")
     elif geometry.shape == "annulus":
         text = (f"annulus {geometry.inner_radius_um:g} < r < {geometry.radius_um:g} um about the "
                 f"centre with {geometry.hole_winding or 0} circulation quanta on its hole")

@@ -166,6 +166,12 @@ class Geometry:
         if self.core_um is not None and not (math.isfinite(self.core_um)
                                              and self.core_um > 0):
             raise MeasuredTableError(f"core_um must be a positive number; got {self.core_um}")
+        if (self.shape == "annulus" and self.core_um is not None
+                and self.inner_radius_um <= self.core_um):
+            raise MeasuredTableError(
+                f"inner_radius_um = {self.inner_radius_um:g} is not larger than the core "
+                f"(core_um = {self.core_um:g}): a hole that small is a pinned core, not a hole; "
+                "accepted: a hole several core radii across, or shape = \"disk\"")
         if self.hole_winding is not None:
             if self.shape != "annulus":
                 raise MeasuredTableError(f"hole_winding = {self.hole_winding!r} is for an "

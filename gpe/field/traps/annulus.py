@@ -86,6 +86,11 @@ class AnnulusTrap(WalledTrap):
         -----
         lengths xi.
         """
+        if self.inner_radius <= core_radius_xi:
+            raise VorthermError(f"thermometry: the annulus's hole (inner_radius "
+                                f"{self.inner_radius:.3g} xi) is not larger than a vortex core "
+                                f"({core_radius_xi:.3g} xi): it is a pinned core, not a hole; "
+                                "accepted: a hole several healing lengths across, or a disk trap")
         outer = self.outer_radius - wall_layer_xi
         inner = self.inner_radius + wall_layer_xi
         if outer - inner <= 4 * core_radius_xi:

@@ -98,6 +98,9 @@ def test_annulus_maps_to_the_ring_shrunk_at_both_walls():
     assert vd.scale == pytest.approx(20 - WALL_LAYER_XI) and vd.approximate == ""
     with pytest.raises(VorthermError, match="ring 5 < r < 6.5 xi is too narrow"):
         domain_for_trap(AnnulusTrap(inner_radius=5, outer_radius=6.5, wall_height=5))
+    with pytest.raises(VorthermError, match=r"annulus's hole \(inner_radius 0.4 xi\) is not "
+                                            r"larger than a vortex core \(0.5 xi\)"):
+        domain_for_trap(AnnulusTrap(inner_radius=0.4, outer_radius=20, wall_height=5))
 
 
 def _annulus_run(path, windings):

@@ -70,6 +70,10 @@ def test_bad_annulus_geometry_is_refused_by_key(tmp_path):
     p.write_text("shot, x, y, sign\na, 20.0, 0.0, 1\n")
     with pytest.raises(MeasuredTableError, match="inner_radius < radius; got inner_radius 50"):
         read_measured(p, shape="annulus", radius_um=40.0, inner_radius_um=50.0)
+    # a hole no larger than a vortex core is a pinned core, not a multiply connected domain
+    with pytest.raises(MeasuredTableError, match=r"inner_radius_um = 0.4 is not larger than the "
+                                                 r"core \(core_um = 0.5\)"):
+        read_measured(p, shape="annulus", radius_um=40.0, inner_radius_um=0.4, core_um=0.5)
     with pytest.raises(MeasuredTableError, match="hole_winding = 1 is for an annulus; a disk"):
         read_measured(p, radius_um=40.0, shape="disk", hole_winding=1)
     p.with_suffix(".toml").write_text('radius_um = 40.0\ninner_radius_um = 10.0\nhole_winding = 0.5\n')

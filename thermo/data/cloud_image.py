@@ -17,7 +17,7 @@ integers, position in um = (pixel - centre) * pixel_um) the image becomes a
   peak density), so ``core_um`` is required with a density image.
 
 The image is resampled (bilinear, ``scipy.ndimage.map_coordinates``) onto a square lattice of
-``NODES`` nodes across the fluid's larger extent, with a dry margin; the length unit L is the
+``NODES`` nodes across the fluid's larger extent, with a dry margin (table every ``STRIDE``-th); the length unit L is the
 largest distance of a fluid pixel from the centre, so that the fluid fits in the unit disk.
 
 Errors name the file and what is accepted: unreadable or missing files, images that are not
@@ -40,6 +40,8 @@ from thermo.errors import DomainError, MeasuredTableError
 
 #: nodes of the domain lattice across the fluid's larger extent
 NODES = 80
+#: the Green's function's table every STRIDE lattice nodes (as gpe.field.traps._numerical)
+STRIDE = 4
 #: dry margin of the lattice, in nodes
 MARGIN = 4
 #: default fluid edge of a density image, as a fraction of the peak density
@@ -161,7 +163,8 @@ def image_domain(path: str | Path, kind: str, pixel_um: float, center_px, *,
                             spacing=h_px / scale,
                             origin=((cc[0] - cx) / scale, (rr[0] - cy) / scale),
                             log_length_over_core=(None if kind == "mask"
-                                                  else math.log(length_um / core_um)))
+                                                  else math.log(length_um / core_um)),
+                            stride=STRIDE)
     except DomainError as exc:
         raise MeasuredTableError(f"{path} ({key}): {exc}") from None
     return domain, length_um

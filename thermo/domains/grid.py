@@ -86,9 +86,12 @@ from thermo.errors import DomainError
 #: bump when the table layout or the solver changes: part of the digest
 TABLE_VERSION = 2
 _EULER_GAMMA = 0.5772156649015329
-# header of the parameter vector (then fine nu, fine wall distance, coarse table)
+#: grid_self reads the fine-node field further than this many table cells from the wall
+SELF_NEAR_WALL = 2.0
+# header of the parameter vector (then fine nu, fine wall distance, fine self energy, coarse
+# table as float32); _INV_HF and _INV_HC are 1 / spacing of the fine and coarse grids
 (_NXF, _NYF, _X0, _Y0, _HF, _NXC, _NYC, _STRIDE, _LNLA, _OFF_NU, _OFF_WALL,
- _OFF_TAB, _UNIFORM, _HEADER) = range(14)
+ _OFF_TAB, _UNIFORM, _OFF_SELF, _INV_HF, _INV_HC, _HEADER) = range(17)
 
 
 class GreenCacheWarning(UserWarning):
@@ -100,9 +103,8 @@ def _bilinear(p, off, x, y):
     """Bilinear interpolation of the fine-grid field stored at params[off:]."""
     nx = int(p[_NXF])
     ny = int(p[_NYF])
-    h = p[_HF]
-    fx = (x - p[_X0]) / h
-    fy = (y - p[_Y0]) / h
+    fx = (x - p[_X0]) * p[_INV_HF]
+    fy = (y - p[_Y0]) * p[_INV_HF]
     j = min(max(math.floor(fx), 0), nx - 2)
     i = min(max(math.floor(fy), 0), ny - 2)
     tx = fx - j
@@ -117,9 +119,8 @@ def _stencil(p, x, y):
     """Coarse-table corner index and weights (i00, wx, wy) of a point."""
     nxc = int(p[_NXC])
     nyc = int(p[_NYC])
-    h = p[_HF] * p[_STRIDE]
-    fx = (x - p[_X0]) / h
-    fy = (y - p[_Y0]) / h
+    fx = (x - p[_X0]) * p[_INV_HC]
+    fy = (y - p[_Y0]) * p[_INV_HC]
     j = min(max(math.floor(fx), 0), nxc - 2)
     i = min(max(math.floor(fy), 0), nyc - 2)
     return i * nxc + j, fx - j, fy - i
@@ -130,7 +131,7 @@ def _remainder(p, x1, y1, x2, y2):
     """H(z1, z2) interpolated bilinearly in each argument on the coarse table."""
     nxc = int(p[_NXC])
     m = nxc * int(p[_NYC])
-    off = int(p[_OFF_TAB])
+    tab = p[int(p[_OFF_TAB]):].view(np.float32)
     a, ax, ay = _stencil(p, x1, y1)
     b, bx, by = _stencil(p, x2, y2)
     wa = ((1 - ax) * (1 - ay), ax * (1 - ay), (1 - ax) * ay, ax * ay)
@@ -139,10 +140,10 @@ def _remainder(p, x1, y1, x2, y2):
     ib = (b, b + 1, b + nxc, b + nxc + 1)
     total = 0.0
     for k in range(4):
-        row = off + ia[k] * m
+        row = ia[k] * m
         s = 0.0
         for q in range(4):
-            s += wb[q] * p[row + ib[q]]
+            s += wb[q] * tab[row + ib[q]]
         total += wa[k] * s
     return total
 
@@ -161,14 +162,28 @@ def grid_pair(x1: float, y1: float, x2: float, y2: float, params: np.ndarray) ->
     return -w * math.log(dx * dx + dy * dy) + 4.0 * math.pi * _remainder(params, x1, y1, x2, y2)
 
 
-@njit(SELF_SIGNATURE, cache=True, error_model="numpy")
-def grid_self(x: float, y: float, sign: int, params: np.ndarray) -> float:
-    """Self energy 2 pi H(z,z) + (nu - 1) ln(L/a_ref) + nu ln(nu) / 2, either sign. Units: E0."""
+@njit(cache=True, error_model="numpy")
+def _self_from_table(x, y, params):
+    """Self energy 2 pi H(z,z) + (nu - 1) ln(L/a_ref) + nu ln(nu) / 2 from the coarse table.
+    Units: E0."""
     nu = _nu(params, x, y)
     e = 2.0 * math.pi * _remainder(params, x, y, x, y) + (nu - 1.0) * params[_LNLA]
     if nu > 0.0:
         e += 0.5 * nu * math.log(nu)
     return e
+
+
+@njit(SELF_SIGNATURE, cache=True, error_model="numpy")
+def grid_self(x: float, y: float, sign: int, params: np.ndarray) -> float:
+    """Self energy (:func:`_self_from_table`), either sign. More than ``SELF_NEAR_WALL`` table
+    cells from the wall it is read by bilinear interpolation of its values at the fine nodes
+    (8 values with the wall distance, against the table's 16 + 4; smooth there, so the
+    second interpolation costs little); nearer the wall, where it falls as the log of the
+    distance, from the table itself. Units: E0."""
+    w = _bilinear(params, int(params[_OFF_WALL]), x, y)
+    if w * params[_INV_HC] < SELF_NEAR_WALL:
+        return _self_from_table(x, y, params)
+    return _bilinear(params, int(params[_OFF_SELF]), x, y)
 
 
 @njit(WALL_SIGNATURE, cache=True, error_model="numpy")
@@ -182,21 +197,10 @@ def grid_wall_distance(x: float, y: float, params: np.ndarray) -> float:
     return _bilinear(params, int(params[_OFF_WALL]), x, y)
 
 
-@njit(cache=True, error_model="numpy")
-def _row_sum(p, a, ax, ay, b, bx, by):
-    """sum_k sum_q wa_k wb_q T[ia_k, ib_q] for two precomputed stencils."""
-    nxc = int(p[_NXC])
-    m = nxc * int(p[_NYC])
-    off = int(p[_OFF_TAB])
-    total = 0.0
-    for k in range(4):
-        ra = a + (k & 1) + nxc * (k >> 1)
-        wk = (ax if k & 1 else 1.0 - ax) * (ay if k >> 1 else 1.0 - ay)
-        row = off + ra * m + b
-        s0 = (1.0 - bx) * p[row] + bx * p[row + 1]
-        s1 = (1.0 - bx) * p[row + nxc] + bx * p[row + nxc + 1]
-        total += wk * ((1.0 - by) * s0 + by * s1)
-    return total
+@njit(cache=True, error_model="numpy", inline="always")
+def _corner(p, q, nxc, w00, w01, w10, w11):
+    """Bilinear interpolation over the second argument in one table row (q: corner index)."""
+    return w00 * p[q] + w01 * p[q + 1] + w10 * p[q + nxc] + w11 * p[q + nxc + 1]
 
 
 @njit(MOVE_SIGNATURE, cache=True, error_model="numpy")
@@ -204,6 +208,9 @@ def grid_move_change(pos, signs, index, x_new, y_new, params, min_dist2, self_fn
     """E(after) - E(before) for moving vortex ``index``: the stencils and densities of the old
     and new positions are computed once, each other vortex's once for both. O(N).
 
+    The remainder's change 4 pi [H(z_new, z_j) - H(z_old, z_j)] is one sum over the eight
+    table rows of the new and old stencils (weights +w_new, -w_old, set up once per move) of
+    the bilinear interpolation at z_j (its four weights set up once per vortex j).
     ``self_fn`` and ``pair_fn`` (part of the common signature) are not needed here.
     Units: positions in L, energies in E0; +inf inside the hard core.
     """
@@ -212,8 +219,23 @@ def grid_move_change(pos, signs, index, x_new, y_new, params, min_dist2, self_fn
     y_old = pos[index, 1]
     s_k = signs[index]
     d = grid_self(x_new, y_new, s_k, params) - grid_self(x_old, y_old, s_k, params)
+    nxc = int(params[_NXC])
+    m = nxc * int(params[_NYC])
+    tab = params[int(params[_OFF_TAB]):].view(np.float32)
     an, anx, any_ = _stencil(params, x_new, y_new)
     ao, aox, aoy = _stencil(params, x_old, y_old)
+    n0 = an * m
+    n2 = n0 + nxc * m
+    o0 = ao * m
+    o2 = o0 + nxc * m
+    vn0, vn1 = (1.0 - anx) * (1.0 - any_), anx * (1.0 - any_)
+    vn2, vn3 = (1.0 - anx) * any_, anx * any_
+    vo0, vo1 = (1.0 - aox) * (1.0 - aoy), aox * (1.0 - aoy)
+    vo2, vo3 = (1.0 - aox) * aoy, aox * aoy
+    same_cell = an == ao
+    x0, y0, inv_hc = params[_X0], params[_Y0], params[_INV_HC]
+    jmax, imax = nxc - 2, int(params[_NYC]) - 2
+    dv0, dv1, dv2, dv3 = vn0 - vo0, vn1 - vo1, vn2 - vo2, vn3 - vo3
     rn = math.sqrt(_nu(params, x_new, y_new))
     ro = math.sqrt(_nu(params, x_old, y_old))
     four_pi = 4.0 * math.pi
@@ -232,9 +254,34 @@ def grid_move_change(pos, signs, index, x_new, y_new, params, min_dist2, self_fn
         dxo = x_old - xj
         dyo = y_old - yj
         do = dxo * dxo + dyo * dyo
-        b, bx, by = _stencil(params, xj, yj)
-        h_change = four_pi * (_row_sum(params, an, anx, any_, b, bx, by)
-                              - _row_sum(params, ao, aox, aoy, b, bx, by))
+        # the coarse stencil of vortex j (as _stencil, constants hoisted; fx, fy > 0 inside)
+        fx = (xj - x0) * inv_hc
+        fy = (yj - y0) * inv_hc
+        cj = min(int(fx), jmax)
+        ci = min(int(fy), imax)
+        b = ci * nxc + cj
+        bx = fx - cj
+        by = fy - ci
+        w00 = (1.0 - bx) * (1.0 - by)
+        w01 = bx * (1.0 - by)
+        w10 = (1.0 - bx) * by
+        w11 = bx * by
+        if same_cell:          # one stencil, the weights' differences: half the reads
+            h_change = four_pi * (
+                dv0 * _corner(tab, n0 + b, nxc, w00, w01, w10, w11)
+                + dv1 * _corner(tab, n0 + m + b, nxc, w00, w01, w10, w11)
+                + dv2 * _corner(tab, n2 + b, nxc, w00, w01, w10, w11)
+                + dv3 * _corner(tab, n2 + m + b, nxc, w00, w01, w10, w11))
+        else:
+            h_change = four_pi * (
+                vn0 * _corner(tab, n0 + b, nxc, w00, w01, w10, w11)
+                + vn1 * _corner(tab, n0 + m + b, nxc, w00, w01, w10, w11)
+                + vn2 * _corner(tab, n2 + b, nxc, w00, w01, w10, w11)
+                + vn3 * _corner(tab, n2 + m + b, nxc, w00, w01, w10, w11)
+                - vo0 * _corner(tab, o0 + b, nxc, w00, w01, w10, w11)
+                - vo1 * _corner(tab, o0 + m + b, nxc, w00, w01, w10, w11)
+                - vo2 * _corner(tab, o2 + b, nxc, w00, w01, w10, w11)
+                - vo3 * _corner(tab, o2 + m + b, nxc, w00, w01, w10, w11))
         if uniform:
             # nu = 1: the logarithms are multiplied together, one log per move (as the disk)
             acc *= dn / do if s_k * signs[j] > 0 else do / dn
@@ -370,6 +417,38 @@ def _load_or_solve(digest, mask, nu, h, stride, cache_dir):
     return table, nxc, nyc
 
 
+@njit(cache=True, error_model="numpy")
+def _self_at_nodes(params, xs, ys):
+    """:func:`_self_from_table` at the points (xs[i], ys[i])."""
+    out = np.empty(xs.size)
+    for i in range(xs.size):
+        out[i] = _self_from_table(xs[i], ys[i], params)
+    return out
+
+
+def _self_field(params: np.ndarray, mask: np.ndarray) -> np.ndarray:
+    """The self energy at the fine nodes (0 at dry nodes, never read: see grid_self).
+
+    Units: E0."""
+    ny, nx = mask.shape
+    h, x0, y0 = params[_HF], params[_X0], params[_Y0]
+    fy, fx = np.meshgrid(np.arange(ny), np.arange(nx), indexing="ij")
+    s_f = _self_at_nodes(params, (x0 + fx * h).ravel().astype(float),
+                         (y0 + fy * h).ravel().astype(float)).reshape(ny, nx)
+    return np.where(mask, s_f, 0.0).ravel()
+
+
+def _packed32(table: np.ndarray) -> np.ndarray:
+    """The remainder table as float32 (half the memory: a table of ~1 MB stays in a core's L2
+    cache, where the Monte Carlo's random reads are about twice as fast), two values per
+    float64 slot of the params array; the kernels read it through ``.view(np.float32)``.
+    H is O(1), so the rounding (~1e-7) is far below the discretisation error (~1e-2)."""
+    flat = np.ascontiguousarray(table, dtype=np.float32).ravel()
+    if flat.size % 2:
+        flat = np.append(flat, np.float32(0.0))
+    return flat.view(np.float64)
+
+
 class GridDomain(Domain):
     """Any fluid mask and relative density on a uniform grid, Green's function solved numerically.
 
@@ -426,10 +505,16 @@ class GridDomain(Domain):
             [nx, ny, o[0], o[1], h, nxc, nyc, stride, lnla]
         header[_OFF_NU] = _HEADER
         header[_OFF_WALL] = _HEADER + nx * ny
-        header[_OFF_TAB] = _HEADER + 2 * nx * ny
+        header[_OFF_SELF] = _HEADER + 2 * nx * ny
+        header[_OFF_TAB] = _HEADER + 3 * nx * ny
         header[_UNIFORM] = 1.0 if uniform else 0.0
+        header[_INV_HF], header[_INV_HC] = 1.0 / h, 1.0 / (h * stride)
         self._params = np.ascontiguousarray(np.concatenate(
-            [header, _extend(m, nu_in).ravel(), wall.ravel(), table.ravel()]))
+            [header, _extend(m, nu_in).ravel(), wall.ravel(), np.zeros(nx * ny),
+             _packed32(table)]))
+        # the self energy at the fine nodes, read by bilinear interpolation away from the wall
+        self._params[_HEADER + 2 * nx * ny: _HEADER + 3 * nx * ny] = _self_field(
+            self._params, m)
         self._mask, self._h, self._origin = m, h, o
         self._digest, self._lnla = digest, lnla
 

@@ -15,7 +15,7 @@ see that module):
   The length unit is the largest distance of a fluid node from the trap centre.
 
 The domain grid has ``DOMAIN_NODES`` nodes across the larger side of the fluid (plus dry
-margin). The effective core radius of the vortex energy at the reference density,
+margin), the table of the Green's function's smooth part every ``TABLE_STRIDE``-th node. The effective core radius of the vortex energy at the reference density,
 a_ref = xi / (1.464 sqrt 2) = 0.483 xi, enters through ln(L/a_ref) (only where nu is not 1):
 E = pi n hbar^2/m ln(1.464 b / xi') for a vortex at the centre of a disk of radius b, with
 xi' = hbar / sqrt(2 m g n) (Pethick & Smith, Bose-Einstein Condensation in Dilute Gases,
@@ -38,6 +38,10 @@ from thermo.errors import DomainError
 
 #: nodes of the domain grid across the larger side of the fluid
 DOMAIN_NODES = 80
+#: the Green's function's table has a node every TABLE_STRIDE grid nodes (20 across the fluid:
+#: a 1.4 MB table that stays in a core's cache; the staircase wall, not the table, dominates
+#: the error: docs/numerical-domains.md)
+TABLE_STRIDE = 4
 #: dry margin of the domain grid on each side, in nodes
 MARGIN_NODES = 4
 #: a harmonic trap's fluid ends where the Thomas-Fermi density falls below this fraction of the
@@ -73,7 +77,8 @@ def grid_vortex_domain(shape: str, grid: Grid, fluid: np.ndarray, nu: np.ndarray
     try:
         domain = GridDomain(fluid, np.where(fluid, nu, 0.0), spacing=grid.dx / scale,
                             origin=(float(grid.x[0]) / scale, float(grid.y[0]) / scale),
-                            log_length_over_core=math.log(scale / ENERGY_CORE_XI))
+                            log_length_over_core=math.log(scale / ENERGY_CORE_XI),
+                            stride=TABLE_STRIDE)
     except DomainError as err:
         raise VorthermError(f"thermometry: the {shape} trap's grid domain: {err}") from err
     return VortexDomain(domain, scale, (0.0, 0.0), core_radius_xi / scale)

@@ -66,8 +66,9 @@ def test_a_mask_image_of_a_disk_gives_the_disks_energies(tmp_path):
 def test_a_density_image_of_a_thomas_fermi_cloud_gives_fetter_svidzinsky_precession(tmp_path):
     """[pub] Fetter & Svidzinsky, J. Phys.: Condens. Matter 13, R135 (2001): in a Thomas-Fermi
     cloud a vortex at r0 precesses at Omega proportional to 1/(1 - r0^2/R^2) (ln(R/xi) prefactor
-    uncertain at order one, so the ratio to the centre's rate is tested, to 5.5% out to 0.4 R, as
-    for a harmonic trap's domain in tests/gpe/run/test_thermometry.py). Omega is -dE_self/dr over
+    uncertain at order one, so the ratio to the centre's rate is tested, to 5% out to 0.3 R, as
+    for a harmonic trap's domain in tests/gpe/run/test_thermometry.py; falling slowly further
+    out). Omega is -dE_self/dr over
     r nu(r); here L = sqrt(0.95) R (the fluid ends at 5% of the peak density)."""
     geometry, _ = resolve_geometry(_table(tmp_path, _density_geometry(tmp_path)))
     dom = geometry.domain()
@@ -75,14 +76,15 @@ def test_a_density_image_of_a_thomas_fermi_cloud_gives_fetter_svidzinsky_precess
     assert dom.area == pytest.approx(math.pi, rel=0.03)       # the unit disk of radius L
     params, big_r = dom.kernels().params, 1.0 / math.sqrt(0.95)  # R in units of L
 
-    def omega(u, d=0.02):          # u = r0 / R
+    def omega(u, d=0.05):          # u = r0 / R
         r = u * big_r
         slope = (grid_self(r + d, 0.0, 1, params) - grid_self(r - d, 0.0, 1, params)) / (2 * d)
         return -slope / (r * (1.0 - u * u))
 
     base = omega(0.1) * (1.0 - 0.01)
-    for u in (0.2, 0.3, 0.4):
-        assert omega(u) * (1.0 - u * u) / base == pytest.approx(1.0, abs=0.055)
+    law = [omega(u) * (1.0 - u * u) / base for u in (0.2, 0.3, 0.4)]
+    assert law[0] == pytest.approx(1.0, abs=0.05) and law[1] == pytest.approx(1.0, abs=0.05)
+    assert law[0] > law[1] > law[2] > 0.9
 
 
 def test_a_table_over_a_density_image_reads_in_that_domain(tmp_path):

@@ -67,7 +67,7 @@ from typing import ClassVar
 import numpy as np
 import scipy.sparse as sp
 from numba import njit
-from scipy.ndimage import distance_transform_edt
+from scipy.ndimage import distance_transform_edt, label
 from scipy.sparse.linalg import splu
 
 from thermo.atomic import write_npz
@@ -295,7 +295,7 @@ def grid_move_change(pos, signs, index, x_new, y_new, params, min_dist2, self_fn
     return d - math.log(acc)
 
 
-def _check_inputs(mask, density, spacing, origin):
+def _check_inputs(mask, density, spacing, origin, allow_holes=False):
     m = np.asarray(mask)
     if m.ndim != 2 or m.dtype != bool:
         raise DomainError(f"mask must be a 2-D boolean array (True = fluid); got dtype {m.dtype} "
@@ -310,6 +310,18 @@ def _check_inputs(mask, density, spacing, origin):
     if m[0].any() or m[-1].any() or m[:, 0].any() or m[:, -1].any():
         raise DomainError("mask touches the grid edge; accepted: fluid nodes strictly inside the "
                           "grid (pad it with at least one row/column of dry nodes)")
+    # dry nodes the fluid encloses (dry components, 4-connected like the stencil's walls, that do
+    # not reach the grid's edge): G = 0 on them would fix the flow around the hole silently
+    dry, _ = label(~m)
+    enclosed = ~m & ~np.isin(dry, np.unique(np.concatenate(
+        [dry[0], dry[-1], dry[:, 0], dry[:, -1]])))
+    if enclosed.any() and not allow_holes:
+        at = np.argwhere(enclosed)[0]
+        raise DomainError(f"mask has a hole: {int(enclosed.sum())} dry node(s) enclosed by fluid, "
+                          f"the first at (row {at[0]}, column {at[1]}); the circulation around a "
+                          "hole is a quantum number the grid domain does not model; accepted: a "
+                          "simply connected fluid (the annulus domain for a ring; fill a stray "
+                          "dry pixel)")
     inside = nu[m]
     if not np.all(np.isfinite(inside)) or np.any(inside <= 0):
         bad = np.argwhere(m & ~(np.isfinite(nu) & (nu > 0)))[0]
@@ -470,6 +482,11 @@ class GridDomain(Domain):
         Coarse table node every ``stride`` fine nodes (default 2).
     cache_dir : path or None
         Where solved tables are kept (default ``$XDG_CACHE_HOME/vortherm/green``).
+    allow_holes : bool
+        A fluid that encloses dry nodes is refused unless True: G = 0 on a hole is the
+        Dirichlet Green's function, which fixes the flow around the hole by the vortices'
+        positions instead of keeping its circulation quantized (a comparison with Lin's
+        Dirichlet annulus, not a superfluid ring; use the annulus domain for that).
 
     Units: lengths in L, energies in E0.
     """
@@ -482,8 +499,8 @@ class GridDomain(Domain):
 
     def __init__(self, mask, density, spacing: float, origin=(0.0, 0.0),
                  log_length_over_core: float | None = None, stride: int = 2,
-                 cache_dir=None) -> None:
-        m, nu, h, o = _check_inputs(mask, density, spacing, origin)
+                 cache_dir=None, allow_holes: bool = False) -> None:
+        m, nu, h, o = _check_inputs(mask, density, spacing, origin, allow_holes)
         if isinstance(stride, bool) or not isinstance(stride, (int, np.integer)) or stride < 1:
             raise DomainError(f"stride must be a whole number >= 1; got {stride!r}")
         uniform = bool(np.all(nu[m] == 1.0))

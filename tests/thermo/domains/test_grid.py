@@ -78,7 +78,7 @@ def test_annulus_converges_to_the_prime_function_annulus(tmp_path):
         x, y, h = _grid(n)
         rr = x[None, :] ** 2 + y[:, None] ** 2
         mask = (rr < 1.0) & (rr > q * q)
-        dom = GridDomain(mask, np.ones(mask.shape), h, (x[0], y[0]), stride=4,
+        dom = GridDomain(mask, np.ones(mask.shape), h, (x[0], y[0]), stride=4, allow_holes=True,
                          cache_dir=tmp_path)
         errors.append(np.max(np.abs(energy_batch(conf, SIGNS, dom) - ref)))
     assert errors[0] < 0.8 and errors[1] < 0.7 * errors[0]
@@ -105,6 +105,11 @@ def test_bad_inputs_are_refused_by_name(tmp_path):
         GridDomain(ok, np.ones((8, 9)), 0.1, cache_dir=tmp_path)
     with pytest.raises(DomainError, match="log_length_over_core"):
         GridDomain(ok, 0.5 * one, 0.1, cache_dir=tmp_path)
+    holed = ok.copy()
+    holed[3, 4] = False      # one dry node inside the fluid: a hole, whose circulation is lost
+    with pytest.raises(DomainError, match=r"mask has a hole: 1 dry node\(s\) enclosed by fluid, "
+                                          r"the first at \(row 3, column 4\)"):
+        GridDomain(holed, one, 0.1, cache_dir=tmp_path)
 
 
 def test_cache_reuses_and_rebuilds_a_damaged_table(tmp_path):

@@ -55,7 +55,7 @@ def handoff_domain(protocol) -> VortexDomain:
     except (VorthermError, DomainError) as err:  # the shape's own refusal, re-worded for the key
         raise SimulationError(f"{protocol.source_name}: [evolution] points_until: the "
                               f"{protocol.trap.shape} trap cannot hand off to point vortices "
-                              f"({err}); accepted: a disk or box trap, or leave points_until "
+                              f"({err}); accepted: a disk, box, harmonic or mask trap, or leave points_until "
                               "out") from err
     return vd
 

@@ -328,7 +328,7 @@ class Domain(ABC):
         """
         raise DomainError(f"the {self.kind or type(self).__name__} domain has no energy "
                           "gradients, so point-vortex dynamics cannot run in it; domains with "
-                          "them: the disk and the box")
+                          "them: the disk, the box and the grid")
 
     #: Whether point-vortex dynamics in this shape conserves the signed angular impulse
     #: M = sum_i s_i |u_i|^2 about the origin of its scaled coordinates (a rotationally

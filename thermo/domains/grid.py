@@ -73,11 +73,15 @@ from scipy.sparse.linalg import splu
 from thermo.atomic import write_npz
 from thermo.domains.base import (
     MOVE_SIGNATURE,
+    PAIR_GRADIENT_SIGNATURE,
     PAIR_SIGNATURE,
+    SELF_GRADIENT_SIGNATURE,
     SELF_SIGNATURE,
+    VELOCITY_SIGNATURE,
     WALL_SIGNATURE,
     Domain,
     DomainKernels,
+    GradientKernels,
     as_points,
     check_sizes,
 )
@@ -429,6 +433,65 @@ def _load_or_solve(digest, mask, nu, h, stride, cache_dir):
     return table, nxc, nyc
 
 
+@njit(SELF_GRADIENT_SIGNATURE, cache=True, error_model="numpy")
+def grid_self_gradient(x: float, y: float, params: np.ndarray) -> complex:
+    """Gradient of the self energy, a central difference over one table cell (the energy is
+    bilinear within a cell, so a shorter step would see its kinks; this one gives a gradient
+    that is continuous across cells). Units: E0 per L."""
+    d = 0.5 / params[_INV_HC]
+    gx = (grid_self(x + d, y, 1, params) - grid_self(x - d, y, 1, params)) / (2 * d)
+    gy = (grid_self(x, y + d, 1, params) - grid_self(x, y - d, 1, params)) / (2 * d)
+    return complex(gx, gy)
+
+
+@njit(PAIR_GRADIENT_SIGNATURE, cache=True, error_model="numpy")
+def grid_pair_gradient(x1: float, y1: float, x2: float, y2: float,
+                       params: np.ndarray) -> complex:
+    """Gradient of the pair energy with respect to (x1, y1): the logarithm's exactly, with the
+    density weights' gradient and the remainder's as central differences over a fine and a
+    table cell. Units: E0 per L."""
+    dx = x1 - x2
+    dy = y1 - y2
+    r2 = dx * dx + dy * dy
+    n1 = _nu(params, x1, y1)
+    w2 = math.sqrt(_nu(params, x2, y2))
+    w1 = math.sqrt(n1)
+    hf = 0.5 / params[_INV_HF]
+    gnx = (math.sqrt(_nu(params, x1 + hf, y1)) - math.sqrt(_nu(params, x1 - hf, y1))) / (2 * hf)
+    gny = (math.sqrt(_nu(params, x1, y1 + hf)) - math.sqrt(_nu(params, x1, y1 - hf))) / (2 * hf)
+    lg = math.log(r2)
+    gx = -w2 * (gnx * lg + w1 * 2.0 * dx / r2)
+    gy = -w2 * (gny * lg + w1 * 2.0 * dy / r2)
+    d = 0.5 / params[_INV_HC]
+    four_pi = 4.0 * math.pi
+    gx += four_pi * (_remainder(params, x1 + d, y1, x2, y2)
+                     - _remainder(params, x1 - d, y1, x2, y2)) / (2 * d)
+    gy += four_pi * (_remainder(params, x1, y1 + d, x2, y2)
+                     - _remainder(params, x1, y1 - d, x2, y2)) / (2 * d)
+    return complex(gx, gy)
+
+
+@njit(VELOCITY_SIGNATURE, cache=True, error_model="numpy")
+def grid_velocity(pos, signs, alpha, alpha_prime, self_gradient, pair_gradient, params, out):
+    """Velocities in a fluid of relative density nu: those of
+    :func:`thermo.domains.base.pair_sum_velocity` divided by nu at each vortex (Kirchhoff's
+    equations with the mass density rho nu in front of the vortex's velocity: a vortex where
+    the fluid is thin moves faster for the same energy gradient). Units: L per m L^2 / hbar."""
+    n = pos.shape[0]
+    c = 0.5 * (1.0 - alpha_prime)
+    d = 0.5 * alpha
+    for i in range(n):
+        xi = pos[i, 0]
+        yi = pos[i, 1]
+        g = self_gradient(xi, yi, params)
+        for j in range(n):
+            if j != i:
+                g += signs[i] * signs[j] * pair_gradient(xi, yi, pos[j, 0], pos[j, 1], params)
+        inv = 1.0 / max(_nu(params, xi, yi), 1e-12)
+        out[i, 0] = inv * (c * signs[i] * g.imag - d * g.real)
+        out[i, 1] = inv * (-c * signs[i] * g.real - d * g.imag)
+
+
 @njit(cache=True, error_model="numpy")
 def _self_at_nodes(params, xs, ys):
     """:func:`_self_from_table` at the points (xs[i], ys[i])."""
@@ -560,6 +623,13 @@ class GridDomain(Domain):
         """Compiled kernels; params packs the header, fine nu, fine wall distance, the table."""
         return DomainKernels(grid_self, grid_pair, grid_wall_distance, grid_move_change,
                              self._params)
+
+    def gradient_kernels(self) -> GradientKernels:
+        """Energy gradients (central differences over one table cell where the energy is
+        interpolated, the pair logarithm's exactly) and the density-weighted velocity kernel,
+        for point-vortex dynamics. Units: E0 per L."""
+        return GradientKernels(grid_self_gradient, grid_pair_gradient, grid_velocity,
+                               self._params)
 
     @property
     def area(self) -> float:

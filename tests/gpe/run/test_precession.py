@@ -15,8 +15,9 @@ from thermo.domains.grid import grid_self
 OMEGA = 0.05            # trap frequency in rad per hbar/mu: R_TF = sqrt(2)/omega = 28.3 xi
 
 
-def _precession_run(path, r0):
-    """One vortex imprinted at r0 (xi) in the ground state; undamped for 200 hbar/mu."""
+def _precession_run(path, r0, handoff=""):
+    """One vortex imprinted at r0 (xi) in the ground state; undamped for 200 hbar/mu (with
+    ``handoff``: the [evolution] keys of a hand-off to point vortices)."""
     text = healing_header("precession") + f"""[trap]
 shape = "harmonic"
 frequency_rad_per_tau = {OMEGA}
@@ -35,7 +36,7 @@ dt_tau = 0.05
 output_interval_tau = 20.0
 damping = 0.0
 seed = 3
-"""
+{handoff}"""
     return simulate(parse_protocol(text, source=str(path.with_suffix(".toml"))), path)
 
 
@@ -64,3 +65,21 @@ def test_a_vortex_in_a_harmonic_trap_precesses_at_the_point_vortex_rate(tmp_path
     omega_pv = -slope / (2 * u * (1 - u * u) * big_r ** 2)
     assert omega_gpe > 0                                    # counter-clockwise for sign +1
     assert omega_gpe / omega_pv == pytest.approx(1.0, abs=0.05)
+
+
+def test_the_point_vortex_hand_off_in_a_harmonic_trap_precesses_at_the_gpe_rate(tmp_path):
+    """The GPE part (200 hbar/mu, the test above's run at 0.3 R) hands its vortex to the point
+    dynamics of the trap's grid domain (velocities divided by the local density nu) up to
+    600 hbar/mu: the point vortex keeps the GPE's angular velocity within 5% (same source and
+    tolerance as above) and its radius within 0.5 xi."""
+    out = _precession_run(tmp_path / "handoff.h5", 8.5,
+                          "points_until_tau = 600.0\npoints_output_interval_tau = 50.0\n")
+    with RunFile.open(out) as run:
+        n_gpe, table = run.n_frames, run.read_vortices()
+    gpe, points = table[table["frame"] < n_gpe], table[table["frame"] >= n_gpe]
+    assert len(points) == 8 and np.all(points["sign"] == 1)          # 250, 300, ... 600
+    rates = [np.polyfit(part["t"], np.unwrap(np.arctan2(part["y"], part["x"])), 1)[0]
+             for part in (gpe, points)]
+    assert rates[1] / rates[0] == pytest.approx(1.0, abs=0.05)
+    radius = np.hypot(points["x"], points["y"])
+    assert np.all(np.abs(radius - np.hypot(gpe["x"], gpe["y"]).mean()) < 0.5)

@@ -49,7 +49,7 @@ def test_a_mask_image_of_a_disk_gives_the_disks_energies(tmp_path):
     """[pub] Kirchhoff-Routh energy of the disk, Lin, PNAS 27, 570 (1941). The mask's domain has
     its length unit L at the farthest fluid pixel (100.5 px) and drops ln(L/a) per vortex where
     the disk of radius R = 100 px drops ln(R/a), so E_grid = E_disk + N ln(R/L) [exact]; the rest
-    is the grid's staircase (80 nodes across: about 0.2, tests/thermo/domains/test_grid.py)."""
+    is the grid's staircase (80 nodes across: measured 0.18; tests/thermo/domains/test_grid.py)."""
     geometry, _ = resolve_geometry(_table(tmp_path, _mask_geometry(tmp_path)))
     assert geometry.shape == "grid" and geometry.image_kind == "mask"
     dom, scale = geometry.domain(), geometry.length_scale_um

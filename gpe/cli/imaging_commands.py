@@ -93,6 +93,10 @@ def register_find(sub) -> None:
     p.add_argument("--model", type=Path, metavar="DETECTION.json",
                    help="put this detection model's [imaging] table (from an earlier "
                         "--calibrate with the same camera settings) into the geometry TOML")
+    p.add_argument("--boundary", choices=("disk", "mask"), default="disk",
+                   help="the table's domain: the equal-area disk of the fluid boundary (default) "
+                        "or the fluid pixels themselves (written as CSV_fluid.png, a grid domain "
+                        "with its own Green's function)")
     p.add_argument("--force", action="store_true", help="overwrite existing outputs")
     p.set_defaults(handler=_cmd_find)
 
@@ -109,6 +113,8 @@ def _cmd_find(args) -> int:
     model_path = csv.with_name(csv.stem + "_detection.json")
     if args.calibrate:
         outs.append((model_path, "choose another file with --csv"))
+    if args.boundary == "mask":
+        outs.append((csv.with_name(csv.stem + "_fluid.png"), "choose another file with --csv"))
     if args.calibrate and args.model is not None:
         raise VorthermError("--calibrate and --model: give one (--calibrate measures the model "
                             "on this stack, --model reuses one measured before)")
@@ -123,7 +129,8 @@ def _cmd_find(args) -> int:
         model = calibrate_stack(stack, core_px=args.core_px, min_score=score, found=found)
         model.write(model_path)
     csv_path, toml_path = find_stack(stack, csv, core_px=args.core_px, min_score=score,
-                                     model=model, imaging_um=imaging, found=found)
+                                     model=model, imaging_um=imaging, found=found,
+                                     boundary=args.boundary)
     n = sum(len(f) for f in found)
     unknown = sum(int((f.sign == 0).sum()) for f in found)
     print(f"{n} vortices in {len(found)} images -> {csv_path} (pixels), geometry {toml_path}")

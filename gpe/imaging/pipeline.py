@@ -34,7 +34,7 @@ import numpy as np
 
 from gpe.imaging.calibrate import DetectionModel, calibrate
 from gpe.imaging.files import ImageStack, to_uint16, write_image, write_stack
-from gpe.imaging.finder import MIN_SCORE, Found, find_cores
+from gpe.imaging.finder import MIN_SCORE, Found, check_image, envelope, find_cores, fluid_boundary
 from gpe.imaging.render import Camera, ImagingError, render_frame
 from gpe.run.gas import CORE_RADIUS_XI
 from gpe.run.jsontext import loads_strict
@@ -175,16 +175,34 @@ def _toml_value(v) -> str:
     return repr(float(v))
 
 
+def fluid_mask(stack: ImageStack, core_px: float | None = None) -> np.ndarray:
+    """The cloud's fluid pixels over a stack: where the finder's envelope exceeds half its bulk
+    level (gpe.imaging.finder, step 2) in at least half of the images. Units: pixels."""
+    core = _core_px(stack, core_px)
+    votes = np.zeros(stack.density.shape[1:], dtype=np.int64)
+    for i in range(len(stack)):
+        env = envelope(check_image(stack.density[i], f"{stack.source} image {i}"), core)
+        votes += fluid_boundary(env)[1]
+    return 2 * votes >= len(stack)
+
+
 def find_stack(stack: ImageStack, out_csv, *, core_px: float | None = None,
                min_score: float = MIN_SCORE, model: DetectionModel | None = None,
                imaging_um: dict | None = None,
-               found: list[Found] | None = None) -> tuple[Path, Path]:
+               found: list[Found] | None = None, boundary: str = "disk") -> tuple[Path, Path]:
     """Measured table (CSV, pixels) and its geometry TOML from a stack (module docstring).
 
     The TOML's ``[imaging]`` table comes from ``model`` (measured on this stack) or from
     ``imaging_um`` (e.g. :func:`read_detection_model` of a calibration of the same camera).
-    Returns (csv path, toml path). Units: pixels in the table, um in the TOML.
+    ``boundary``: "disk" (the equal-area disk of the fluid boundary) or "mask" (the fluid
+    pixels themselves, :func:`fluid_mask`, written as ``<csv stem>_fluid.png`` beside the
+    table and named by ``mask_file``: the thermometry then solves the cloud's own Green's
+    function, thermo.data.cloud_image). Returns (csv path, toml path). Units: pixels in the
+    table, um in the TOML.
     """
+    if boundary not in ("disk", "mask"):
+        raise ImagingError(f"boundary = {boundary!r}; accepted 'disk' (the equal-area disk) or "
+                           "'mask' (the fluid pixels as the domain)")
     if model is not None and imaging_um is not None:
         raise ImagingError("give a detection model or an [imaging] table, not both")
     if model is not None:
@@ -207,6 +225,11 @@ def find_stack(stack: ImageStack, out_csv, *, core_px: float | None = None,
             lines.append(f"{int(shot)},{x:.4f},{y:.4f},{sign},{w:.3f}")
     geometry = {"shape": "disk", "radius_um": radius_px * stack.pixel_um,
                 "pixel_um": stack.pixel_um, "center_px": [float(centre[0]), float(centre[1])]}
+    mask_png = out_csv.with_name(out_csv.stem + "_fluid.png")
+    if boundary == "mask":
+        del geometry["radius_um"]
+        geometry["shape"] = "grid"
+        geometry["mask_file"] = mask_png.name
     xi_um = stack.attrs.get("xi_um")
     if xi_um:
         geometry["core_um"] = CORE_RADIUS_XI * float(xi_um)
@@ -215,6 +238,8 @@ def find_stack(stack: ImageStack, out_csv, *, core_px: float | None = None,
     if imaging_um is not None:
         toml += ["", "# measured detection model (gpe.imaging.calibrate)", "[imaging]",
                  *(f"{k} = {_toml_value(v)}" for k, v in imaging_um.items())]
+    if boundary == "mask":
+        write_image(mask_png, np.where(fluid_mask(stack, core_px), 65535, 0).astype(np.uint16))
     tmp_csv = out_csv.with_name(out_csv.name + ".part")
     tmp_csv.write_text("\n".join(lines) + "\n", encoding="utf-8")
     toml_path = out_csv.with_suffix(".toml")

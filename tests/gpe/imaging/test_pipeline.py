@@ -98,6 +98,28 @@ def test_the_table_reads_as_a_measured_table_with_the_runs_geometry(run, stack, 
     assert centre == pytest.approx([cx, cy], abs=0.3)
 
 
+def test_the_fluid_pixels_can_be_the_tables_domain(stack, tmp_path):
+    """boundary="mask": the fluid pixels become the table's grid domain (its own Green's
+    function, thermo.data.cloud_image). For the run's disk-shaped cloud [exact geometry] the mask
+    has the area of the equal-area disk that boundary="disk" writes (to a pixel's staircase) and
+    the positions are scaled by its farthest fluid pixel, about that radius."""
+    csv_d, _ = find_stack(stack, tmp_path / "d.csv")
+    csv_m, toml = find_stack(stack, tmp_path / "m.csv", boundary="mask")
+    assert 'mask_file = "m_fluid.png"' in toml.read_text()
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        disk, grid = read_measured(csv_d), read_measured(csv_m)
+    assert grid.domain.kind == "grid" and len(grid.shots) == len(disk.shots)
+    r_um = disk.geometry.radius_um
+    assert grid.domain.area * grid.length_scale_um ** 2 == pytest.approx(math.pi * r_um ** 2,
+                                                                         rel=0.03)
+    assert grid.length_scale_um == pytest.approx(r_um, rel=0.05)
+    assert sum(len(c[1]) for c in grid.configurations) == pytest.approx(
+        sum(len(c[1]) for c in disk.configurations), abs=3)
+    with pytest.raises(ImagingError, match="boundary = 'hexagon'"):
+        find_stack(stack, tmp_path / "x.csv", boundary="hexagon")
+
+
 def test_unknown_signs_are_written_empty_and_reported_by_the_reader(run, tmp_path):
     path = tmp_path / "nosign.h5"
     render_run(run, path, Camera(pixel_um=0.4, psf_um=0.3, counts_per_n0=400.0), frames=[0, 1],

@@ -276,7 +276,8 @@ def _signs(bragg: np.ndarray, env: np.ndarray, x: np.ndarray, y: np.ndarray, axi
     oy, ox = np.meshgrid(offs, offs, indexing="ij")
     frac = np.where(env > 0, bragg / np.maximum(env, 1e-300), 0.0)
     padded = np.pad(frac, h, mode="constant")
-    ix, iy = np.rint(x).astype(int), np.rint(y).astype(int)
+    ix = np.clip(np.rint(x).astype(int), 0, bragg.shape[1] - 1)
+    iy = np.clip(np.rint(y).astype(int), 0, bragg.shape[0] - 1)
     win = padded[iy[:, None, None] + h + oy[None], ix[:, None, None] + h + ox[None]]
     dx = ix[:, None, None] + ox[None] - x[:, None, None]
     dy = iy[:, None, None] + oy[None] - y[:, None, None]
@@ -357,6 +358,12 @@ def find_cores(image, core_px: float, *, bragg=None, bragg_axis: str = "x",
         env = np.where(inside, ndimage.gaussian_filter(clean, 0.5 * core_px, mode="nearest"), env)
         p2, ok2 = _fit_dips(np.where(inside, img / np.maximum(env, 1e-300), 0.0), inside, x, y,
                             core_px)
+        # a refit is kept only near the candidate's own pixel (as the first fit's test) and on
+        # the image
+        reach = 0.5 * max(2, math.ceil(FIT_HALF_WIDTH * core_px))
+        ok2 &= ((np.abs(p2[:, 1] - x0) < reach) & (np.abs(p2[:, 2] - y0) < reach)
+                & (p2[:, 1] >= 0) & (p2[:, 1] <= img.shape[1] - 1)
+                & (p2[:, 2] >= 0) & (p2[:, 2] <= img.shape[0] - 1))
         p = np.where(ok2[:, None], p2, p)
         ok = ok | ok2
         x = np.where(ok2, p2[:, 1], x)

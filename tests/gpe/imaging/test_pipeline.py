@@ -120,6 +120,19 @@ def test_the_fluid_pixels_can_be_the_tables_domain(stack, tmp_path):
         find_stack(stack, tmp_path / "x.csv", boundary="hexagon")
 
 
+def test_every_position_lies_on_the_image_after_an_expansion_to_its_edge(run, tmp_path):
+    """After 0.5 ms of flight the cloud fills the field of view: a dip at the edge must not be
+    refitted off the image (it once was, and the sign step then read outside the array)."""
+    path = tmp_path / "tof.h5"
+    render_run(run, path, Camera(pixel_um=0.5, psf_um=0.5, tof_ms=0.5, counts_per_n0=400.0,
+                                 bragg_axis="x"), seed=1)
+    tof = read_images(path)
+    ny, nx = tof.density.shape[1:]
+    for fd in find_all(tof):
+        assert np.all((fd.x >= 0) & (fd.x <= nx - 1) & (fd.y >= 0) & (fd.y <= ny - 1))
+        assert np.all(np.abs(fd.sign) == 1)
+
+
 def test_unknown_signs_are_written_empty_and_reported_by_the_reader(run, tmp_path):
     path = tmp_path / "nosign.h5"
     render_run(run, path, Camera(pixel_um=0.4, psf_um=0.3, counts_per_n0=400.0), frames=[0, 1],

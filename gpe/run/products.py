@@ -21,7 +21,7 @@ from gpe.errors import VorthermError
 from gpe.run.jsontext import dumps_strict
 from gpe.run.reading import protocol_of, select_frames
 from gpe.run.runfile import RunFile
-from gpe.run.simulate import DETECT_THRESHOLD
+from gpe.run.simulate import DETECT_THRESHOLD, detection_floor
 
 #: Columns of the vortex CSV: (name, unit, description). Positions about the grid centre.
 VORTEX_CSV_COLUMNS = (
@@ -107,10 +107,13 @@ def redetect(run_path, *, threshold: float = DETECT_THRESHOLD, region: str = "tr
         grid = protocol.grid
         v_static = protocol.build_trap()
         mask = protocol.trap.detection_region(v_static) if region == "trap" else None
+        beams = protocol.build_beams()
         tables = []
         for f in chosen:
+            v_beam = beams.potential(times[f], grid) if beams.n_beams else None
             det = find_vortices(np.asarray(run.psi(f)), grid.x, grid.y, threshold=threshold,
-                                region=mask)
+                                region=mask, floor=(detection_floor(v_static, v_beam)
+                                                    if region == "trap" else None))
             rows = np.empty(len(det), dtype=VORTEX_DTYPE)
             rows["frame"], rows["t"] = f, times[f]
             rows["x"], rows["y"], rows["sign"], rows["track"] = det.x, det.y, det.sign, -1

@@ -56,8 +56,19 @@ class RunProgress:
 
 
 
-def _detect(psi: np.ndarray, grid, region: np.ndarray, frame: int, t: float) -> np.ndarray:
-    det = find_vortices(psi, grid.x, grid.y, threshold=DETECT_THRESHOLD, region=region)
+def detection_floor(v_static: np.ndarray, v_beam: np.ndarray | None) -> np.ndarray:
+    """The Thomas-Fermi density 1 - V of the potential at the frame's time (mu = 1, beams
+    included), the floor of the run's vortex detection (gpe.analysis.vortices.find_vortices):
+    a core next to a hard wall is counted where the fluid is, though the frame's own density
+    dips there. Units: n0; potentials in mu."""
+    v = v_static if v_beam is None else v_static + v_beam
+    return np.clip(1.0 - v, 0.0, None)
+
+
+def _detect(psi: np.ndarray, grid, region: np.ndarray, frame: int, t: float,
+            floor: np.ndarray | None = None) -> np.ndarray:
+    det = find_vortices(psi, grid.x, grid.y, threshold=DETECT_THRESHOLD, region=region,
+                        floor=floor)
     rows = np.empty(len(det), dtype=VORTEX_DTYPE)
     rows["frame"] = frame
     rows["t"] = t
@@ -303,7 +314,7 @@ def _make_solver(protocol, v_static, beams, mu_run, psi0, t0, step0, threads, rn
 
 def _write_frame(run, protocol, psi, t, v_static, beams, grid, region, frame) -> np.ndarray:
     v_beam = beams.potential(t, grid) if beams.n_beams else None
-    rows = _detect(np.asarray(psi), grid, region, frame, t)
+    rows = _detect(np.asarray(psi), grid, region, frame, t, detection_floor(v_static, v_beam))
     state = diagnostics.FrameState(np.asarray(psi), t, grid, v_static, v_beam, 1.0,
                                    protocol.units, rows)
     run.append_frame(t, psi, diagnostics.evaluate(state), vortices=rows,

@@ -161,3 +161,42 @@ def test_relaxed_random_configuration_found_exactly(rng, n):
     assert np.unique(nearest).size == len(positions)
     assert same_sign.all()
     assert dist.max() < 0.1 * grid.dx
+
+
+def test_cores_next_to_a_hard_wall_are_kept_by_the_thomas_fermi_floor(rng):
+    """Vortices 1.6-2.4 xi inside a tanh wall (relaxed in imaginary time with the cores held,
+    as above, so the imprint is the truth): the closing of the frame's own density cannot fill
+    a core whose dip opens onto the wall's depleted layer, and at the runs' threshold (0.2 of
+    the peak, gpe.run.simulate.DETECT_THRESHOLD) the detector without a floor loses 2 of these
+    6 (so this configuration exercises the floor); with the Thomas-Fermi floor mu - V of the
+    potential every vortex is found, within 0.1 grid spacing, and nothing else."""
+    from gpe.field.grid import Grid
+    from gpe.field.ground_state import find_ground_state
+
+    grid = Grid(128, 128, 64.0, 64.0)
+    r = np.hypot(grid.X, grid.Y)
+    trap = 10.0 * (1.0 + np.tanh((r - 28.0) / 0.5))      # tanh-walled disk (common practice)
+    angles = np.linspace(0.0, 2 * np.pi, 6, endpoint=False) + 0.3
+    radii = 28.0 - np.array([1.6, 1.8, 2.0, 2.2, 2.4, 2.0])
+    near = np.column_stack([radii * np.cos(angles), radii * np.sin(angles)])
+    positions = np.vstack([near, [[0.0, 0.0], [8.0, 3.0]]])
+    signs = np.array([1, -1, 1, -1, 1, -1, 1, -1])
+    relaxed = find_ground_state(grid, trap, mu=1.0, dt=0.02, max_steps=400, check_every=100,
+                                tol=1e-8, vortices=(positions, signs))
+    floor = np.clip(1.0 - trap, 0.0, None)
+    det = find_vortices(relaxed.psi, grid.x, grid.y, threshold=0.2, floor=floor)
+    assert len(det) == len(positions)
+    dist, same_sign, nearest = match(det, positions, signs)
+    assert np.unique(nearest).size == len(positions) and same_sign.all()
+    assert dist.max() < 0.1 * grid.dx
+    assert len(find_vortices(relaxed.psi, grid.x, grid.y, threshold=0.2)) < len(det)
+
+
+@pytest.mark.parametrize("disk", [False, True])
+def test_the_floor_adds_no_ghosts_outside_the_fluid(rng, disk):
+    """The dust frames above with their own Thomas-Fermi density as the floor: only the
+    imprinted vortices (the floor is 0 where the fluid ends)."""
+    x, X, Y, psi, positions, signs, density = thomas_fermi_frame(rng, disk=disk)
+    det = find_vortices(psi, x, x, floor=density)
+    assert len(det) == len(positions)
+    assert match(det, positions, signs)[1].all()

@@ -83,6 +83,7 @@ from thermo.domains.base import (
     DomainKernels,
     GradientKernels,
     as_points,
+    pair_sum_velocity,
     check_sizes,
 )
 from thermo.errors import DomainError
@@ -477,19 +478,11 @@ def grid_velocity(pos, signs, alpha, alpha_prime, self_gradient, pair_gradient, 
     :func:`thermo.domains.base.pair_sum_velocity` divided by nu at each vortex (Kirchhoff's
     equations with the mass density rho nu in front of the vortex's velocity: a vortex where
     the fluid is thin moves faster for the same energy gradient). Units: L per m L^2 / hbar."""
-    n = pos.shape[0]
-    c = 0.5 * (1.0 - alpha_prime)
-    d = 0.5 * alpha
-    for i in range(n):
-        xi = pos[i, 0]
-        yi = pos[i, 1]
-        g = self_gradient(xi, yi, params)
-        for j in range(n):
-            if j != i:
-                g += signs[i] * signs[j] * pair_gradient(xi, yi, pos[j, 0], pos[j, 1], params)
-        inv = 1.0 / max(_nu(params, xi, yi), 1e-12)
-        out[i, 0] = inv * (c * signs[i] * g.imag - d * g.real)
-        out[i, 1] = inv * (-c * signs[i] * g.real - d * g.imag)
+    pair_sum_velocity(pos, signs, alpha, alpha_prime, self_gradient, pair_gradient, params, out)
+    for i in range(pos.shape[0]):
+        inv = 1.0 / max(_nu(params, pos[i, 0], pos[i, 1]), 1e-12)
+        out[i, 0] *= inv
+        out[i, 1] *= inv
 
 
 @njit(cache=True, error_model="numpy")

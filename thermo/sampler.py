@@ -57,28 +57,53 @@ def swap_probability(beta_i: float, beta_j: float, e_i: float, e_j: float) -> fl
 _V, _I, _F = types.float64[::1], types.int64, types.float64
 
 
+def neighbour_pairs(n_states: int) -> np.ndarray:
+    """The two alternating sets of neighbour exchanges (0-1, 2-3, ... then 1-2, 3-4, ...) of a
+    ladder of ``n_states``, shape (2, P, 2), rows padded with -1 (:func:`exchange_kernel`)."""
+    p = max(n_states // 2, 1)
+    out = np.full((2, p, 2), -1, dtype=np.int64)
+    for parity in (0, 1):
+        ks = np.arange(parity, n_states - 1, 2)
+        out[parity, :ks.size, 0], out[parity, :ks.size, 1] = ks, ks + 1
+    return out
+
+
 # kernels as first-class functions (*domain.kernels()): compiled once for all domains, cached
-@njit(types.void(types.float64[:, :, ::1], _V, SIGNS, _V, _V, _F, *KERNEL_TYPES, _F, _I, _I, _I,
-                 _I, _I, _F, types.float64[:, ::1], types.float64[:, :, :, ::1], _V, _V, _V, _V,
-                 _I, _I, _V, _V), cache=True)
-def _tempering_kernel(pos, energies, signs, betas, steps, max_step, self_fn, pair_fn, wall_fn,
-                      move_fn, params, core, sweep_start, sweep_stop, burn_in, thin, adapt_every,
-                      target, out_e, out_pos, move_acc, move_att, swap_acc, swap_att, seed,
-                      pos_stride, block_acc, block_att):
-    # sweeps sweep_start..sweep_stop-1 of one chain: called once for the whole run or in
-    # consecutive pieces (progress reports in between) with the same arrays; the generator is
-    # seeded at the first sweep only and numba keeps its state between calls in a thread, so
-    # the pieces draw exactly the numbers of one call
+@njit(cache=True)
+def impulse_kernel(conf, signs):
+    m = 0.0
+    for i in range(conf.shape[0]):
+        m += signs[i] * (conf[i, 0] * conf[i, 0] + conf[i, 1] * conf[i, 1])
+    return m
+
+
+@njit(types.void(types.float64[:, :, ::1], _V, _V, SIGNS, _V, _V, _V, _F, *KERNEL_TYPES, _F,
+                 _I, _I, _I, _I, _I, _F, types.float64[:, ::1], types.float64[:, ::1],
+                 types.float64[:, :, :, ::1], _V, _V, types.int64[:, :, ::1],
+                 types.float64[:, ::1], types.float64[:, ::1], _I, _I, _V, _V), cache=True)
+def exchange_kernel(pos, energies, impulses, signs, betas, omegas, steps, max_step, self_fn,
+                     pair_fn, wall_fn, move_fn, params, core, sweep_start, sweep_stop, burn_in,
+                     thin, adapt_every, target, out_e, out_m, out_pos, move_acc, move_att,
+                     pairs, swap_acc, swap_att, seed, pos_stride, block_acc, block_att):
+    # the one Metropolis and replica-exchange loop of the project: states k at (beta_k,
+    # omega_k) sample exp[-beta (E - omega M)], M = sum s |u|^2 tracked beside E (omega = 0:
+    # plain parallel tempering, thermo.sampler.run_tempering); exchanges between the pairs of
+    # the set ``sweep % n_sets`` (rows padded with -1). Sweeps sweep_start..sweep_stop-1 of one
+    # chain: called once for a whole run or in consecutive pieces (progress reports in between)
+    # with the same arrays; the generator is seeded at the first sweep only and numba keeps its
+    # state between calls in a thread, so the pieces draw exactly the numbers of one call
     if sweep_start == 0:
         np.random.seed(seed)
     n_rep = pos.shape[0]
     n = pos.shape[1]
+    n_sets = pairs.shape[0]
     min_d2 = 4.0 * core * core
-    rec = (sweep_start - burn_in) // thin if sweep_start > burn_in else 0   # recorded so far
+    rec = (sweep_start - burn_in) // thin if sweep_start > burn_in else 0
     for sweep in range(sweep_start, sweep_stop):
         production = sweep >= burn_in
         for k in range(n_rep):
             beta = betas[k]
+            omega = omegas[k]
             h = steps[k]
             conf = pos[k]
             acc = 0
@@ -91,11 +116,14 @@ def _tempering_kernel(pos, energies, signs, betas, steps, max_step, self_fn, pai
                 de = move_fn(conf, signs, i, xn, yn, params, min_d2, self_fn, pair_fn)
                 if de == np.inf:
                     continue
-                bde = beta * de
-                if bde <= 0.0 or np.random.random() < math.exp(-bde):
+                dm = signs[i] * (xn * xn + yn * yn - conf[i, 0] * conf[i, 0]
+                                 - conf[i, 1] * conf[i, 1])
+                du = beta * (de - omega * dm)
+                if du <= 0.0 or np.random.random() < math.exp(-du):
                     conf[i, 0] = xn
                     conf[i, 1] = yn
                     energies[k] += de
+                    impulses[k] += dm
                     acc += 1
             if production:
                 move_acc[k] += acc
@@ -105,32 +133,41 @@ def _tempering_kernel(pos, energies, signs, betas, steps, max_step, self_fn, pai
                 block_att[k] += n
             if (sweep + 1) % _ENERGY_REFRESH == 0:
                 energies[k] = total_energy_kernel(conf, signs, self_fn, pair_fn, params)
-        # neighbour swaps on alternating pairs (0-1, 2-3, ... then 1-2, 3-4, ...)
-        for k in range(sweep % 2, n_rep - 1, 2):
-            p = swap_probability(betas[k], betas[k + 1], energies[k], energies[k + 1])
+                impulses[k] = impulse_kernel(conf, signs)
+        s = sweep % n_sets
+        for p in range(pairs.shape[1]):
+            a = pairs[s, p, 0]
+            b = pairs[s, p, 1]
+            if a < 0:
+                break
+            ea, eb, ma, mb = energies[a], energies[b], impulses[a], impulses[b]
+            # log of the exchange ratio: beta_a (E - omega_a M) + ... rearranged so that at
+            # omega = 0 it is (beta_a - beta_b)(E_a - E_b) to the last bit
+            x = ((betas[a] - betas[b]) * (ea - eb)
+                 - (betas[a] * omegas[a] - betas[b] * omegas[b]) * (ma - mb))
             if production:
-                swap_att[k] += 1
-            if p >= 1.0 or np.random.random() < p:
+                swap_att[s, p] += 1
+            if x >= 0.0 or np.random.random() < math.exp(x):
                 if production:
-                    swap_acc[k] += 1
+                    swap_acc[s, p] += 1
                 for i in range(n):
                     for c in range(2):
-                        t = pos[k, i, c]
-                        pos[k, i, c] = pos[k + 1, i, c]
-                        pos[k + 1, i, c] = t
-                t = energies[k]
-                energies[k] = energies[k + 1]
-                energies[k + 1] = t
+                        t = pos[a, i, c]
+                        pos[a, i, c] = pos[b, i, c]
+                        pos[b, i, c] = t
+                energies[a], energies[b] = eb, ea
+                impulses[a], impulses[b] = mb, ma
         if not production and (sweep + 1) % adapt_every == 0:
             for k in range(n_rep):
                 rate = block_acc[k] / max(block_att[k], 1.0)
-                s = steps[k] * math.exp(2.0 * (rate - target))
-                steps[k] = min(max(s, _MIN_STEP), max_step)
+                st = steps[k] * math.exp(2.0 * (rate - target))
+                steps[k] = min(max(st, _MIN_STEP), max_step)
                 block_acc[k] = 0.0
                 block_att[k] = 0.0
         if production and (sweep - burn_in + 1) % thin == 0:
             for k in range(n_rep):
                 out_e[k, rec] = energies[k]
+                out_m[k, rec] = impulses[k]
                 if rec % pos_stride == 0:
                     for i in range(n):
                         out_pos[k, rec // pos_stride, i, 0] = pos[k, i, 0]
@@ -330,19 +367,25 @@ def run_tempering(domain: Domain, n_plus: int, n_minus: int, betas, n_sweeps: in
     out_pos = np.empty((k_rep, -(-s_rec // position_stride), n, 2))
     move_acc = np.zeros(k_rep)
     move_att = np.zeros(k_rep)
-    swap_acc = np.zeros(max(k_rep - 1, 0))
-    swap_att = np.zeros(max(k_rep - 1, 0))
+    pairs = neighbour_pairs(k_rep)
+    swap_acc, swap_att = np.zeros(pairs.shape[:2]), np.zeros(pairs.shape[:2])
     seed = int(rng.integers(0, 2**31 - 1))
     adapt_every = max(5, int(math.ceil(200 / n)))
     n_total = int(burn + s_rec * thin)
     block_acc, block_att = np.zeros(k_rep), np.zeros(k_rep)
+    impulses, out_m = np.zeros(k_rep), np.empty((k_rep, s_rec))   # tracked, unused at omega = 0
+    omegas = np.zeros(k_rep)
     for start, stop in _pieces(n_total, progress, n_reports):
-        _tempering_kernel(pos, energies, signs, b, steps, size, *kern, float(core_radius),
-                          start, stop, int(burn), int(thin), adapt_every,
-                          float(target_acceptance), out_e, out_pos, move_acc, move_att,
-                          swap_acc, swap_att, seed, int(position_stride), block_acc, block_att)
+        exchange_kernel(pos, energies, impulses, signs, b, omegas, steps, size, *kern,
+                        float(core_radius), start, stop, int(burn), int(thin), adapt_every,
+                        float(target_acceptance), out_e, out_m, out_pos, move_acc, move_att,
+                        pairs, swap_acc, swap_att, seed, int(position_stride), block_acc,
+                        block_att)
         if progress is not None:
             progress(stop, n_total)
+    # per neighbour pair (k, k + 1): set k % 2, slot k // 2
+    k_pairs = np.arange(max(k_rep - 1, 0))
+    swap_acc, swap_att = swap_acc[k_pairs % 2, k_pairs // 2], swap_att[k_pairs % 2, k_pairs // 2]
     tau = np.array([integrated_autocorr_time(e) for e in out_e])
     with np.errstate(invalid="ignore", divide="ignore"):
         ess = s_rec / tau

@@ -30,119 +30,14 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from numba import njit, types
 
 from thermo.autocorr import integrated_autocorr_time
-from thermo.domains.base import KERNEL_TYPES, SIGNS, Domain, kernel_array
+from thermo.domains.base import Domain, kernel_array
 from thermo.energy import total_energy_kernel
 from thermo.errors import SamplerError
-from thermo.sampler import default_ladder
+from thermo.sampler import default_ladder, exchange_kernel, impulse_kernel
 
 __all__ = ["RotatingSamples", "default_axes", "exchange_pairs", "run_rotating", "state_grid"]
-
-_REFRESH = 64          # sweeps between exact recomputations of H and M (round-off drift)
-_MIN_STEP = 1e-5       # smallest move half-width (as thermo.sampler)
-
-_V, _I, _F = types.float64[::1], types.int64, types.float64
-
-
-@njit(cache=True)
-def _impulse(conf, signs):
-    m = 0.0
-    for i in range(conf.shape[0]):
-        m += signs[i] * (conf[i, 0] * conf[i, 0] + conf[i, 1] * conf[i, 1])
-    return m
-
-
-@njit(types.void(types.float64[:, :, ::1], _V, _V, SIGNS, _V, _V, _V, _F, *KERNEL_TYPES, _F,
-                 _I, _I, _I, _I, _I, _F, types.float64[:, ::1], types.float64[:, ::1],
-                 types.float64[:, :, :, ::1], _V, _V, types.int64[:, :, ::1],
-                 types.float64[:, ::1], types.float64[:, ::1], _I, _I, _V, _V), cache=True)
-def _exchange_kernel(pos, energies, impulses, signs, betas, omegas, steps, max_step, self_fn,
-                     pair_fn, wall_fn, move_fn, params, core, sweep_start, sweep_stop, burn_in,
-                     thin, adapt_every, target, out_e, out_m, out_pos, move_acc, move_att,
-                     pairs, swap_acc, swap_att, seed, pos_stride, block_acc, block_att):
-    # the same structure as thermo.sampler._tempering_kernel (pieces of one chain, seeded
-    # at the first sweep), with M tracked beside E and a general exchange rule
-    if sweep_start == 0:
-        np.random.seed(seed)
-    n_rep = pos.shape[0]
-    n = pos.shape[1]
-    n_sets = pairs.shape[0]
-    min_d2 = 4.0 * core * core
-    rec = (sweep_start - burn_in) // thin if sweep_start > burn_in else 0
-    for sweep in range(sweep_start, sweep_stop):
-        production = sweep >= burn_in
-        for k in range(n_rep):
-            beta = betas[k]
-            omega = omegas[k]
-            h = steps[k]
-            conf = pos[k]
-            acc = 0
-            for _ in range(n):
-                i = np.random.randint(0, n)
-                xn = conf[i, 0] + h * (2.0 * np.random.random() - 1.0)
-                yn = conf[i, 1] + h * (2.0 * np.random.random() - 1.0)
-                if wall_fn(xn, yn, params) <= core:
-                    continue
-                de = move_fn(conf, signs, i, xn, yn, params, min_d2, self_fn, pair_fn)
-                if de == np.inf:
-                    continue
-                dm = signs[i] * (xn * xn + yn * yn - conf[i, 0] * conf[i, 0]
-                                 - conf[i, 1] * conf[i, 1])
-                du = beta * (de - omega * dm)
-                if du <= 0.0 or np.random.random() < math.exp(-du):
-                    conf[i, 0] = xn
-                    conf[i, 1] = yn
-                    energies[k] += de
-                    impulses[k] += dm
-                    acc += 1
-            if production:
-                move_acc[k] += acc
-                move_att[k] += n
-            else:
-                block_acc[k] += acc
-                block_att[k] += n
-            if (sweep + 1) % _REFRESH == 0:
-                energies[k] = total_energy_kernel(conf, signs, self_fn, pair_fn, params)
-                impulses[k] = _impulse(conf, signs)
-        s = sweep % n_sets
-        for p in range(pairs.shape[1]):
-            a = pairs[s, p, 0]
-            b = pairs[s, p, 1]
-            if a < 0:
-                break
-            ea, eb, ma, mb = energies[a], energies[b], impulses[a], impulses[b]
-            x = (betas[a] * (ea - omegas[a] * ma) + betas[b] * (eb - omegas[b] * mb)
-                 - betas[a] * (eb - omegas[a] * mb) - betas[b] * (ea - omegas[b] * ma))
-            if production:
-                swap_att[s, p] += 1
-            if x >= 0.0 or np.random.random() < math.exp(x):
-                if production:
-                    swap_acc[s, p] += 1
-                for i in range(n):
-                    for c in range(2):
-                        t = pos[a, i, c]
-                        pos[a, i, c] = pos[b, i, c]
-                        pos[b, i, c] = t
-                energies[a], energies[b] = eb, ea
-                impulses[a], impulses[b] = mb, ma
-        if not production and (sweep + 1) % adapt_every == 0:
-            for k in range(n_rep):
-                rate = block_acc[k] / max(block_att[k], 1.0)
-                st = steps[k] * math.exp(2.0 * (rate - target))
-                steps[k] = min(max(st, _MIN_STEP), max_step)
-                block_acc[k] = 0.0
-                block_att[k] = 0.0
-        if production and (sweep - burn_in + 1) % thin == 0:
-            for k in range(n_rep):
-                out_e[k, rec] = energies[k]
-                out_m[k, rec] = impulses[k]
-                if rec % pos_stride == 0:
-                    for i in range(n):
-                        out_pos[k, rec // pos_stride, i, 0] = pos[k, i, 0]
-                        out_pos[k, rec // pos_stride, i, 1] = pos[k, i, 1]
-            rec += 1
 
 
 def state_grid(betas, omegas) -> tuple[np.ndarray, np.ndarray]:
@@ -305,7 +200,7 @@ def run_rotating(domain: Domain, n_plus: int, n_minus: int, betas, omegas, n_swe
     kern = domain.kernels()
     energies = np.array([total_energy_kernel(pos[k], signs, kern.self_energy, kern.pair_energy,
                                              kern.params) for k in range(k_rep)])
-    impulses = np.array([_impulse(pos[k], signs) for k in range(k_rep)])
+    impulses = np.array([impulse_kernel(pos[k], signs) for k in range(k_rep)])
     steps = np.full(k_rep, min(0.3, domain.max_step / 4))
     s_rec = n_sweeps // thin
     out_e, out_m = np.empty((k_rep, s_rec)), np.empty((k_rep, s_rec))
@@ -322,7 +217,7 @@ def run_rotating(domain: Domain, n_plus: int, n_minus: int, betas, omegas, n_swe
         grid = np.linspace(0, n_total, min(n_reports, n_total) + 1).round()
         edges = np.unique(grid).astype(int).tolist()
     for start, stop in itertools.pairwise(edges):
-        _exchange_kernel(pos, energies, impulses, signs, b_states, w_states, steps,
+        exchange_kernel(pos, energies, impulses, signs, b_states, w_states, steps,
                          float(domain.max_step), *kern, float(core_radius), int(start),
                          int(stop), burn, int(thin), max(5, math.ceil(200 / n)),
                          float(target_acceptance), out_e, out_m, out_pos, move_acc, move_att,

@@ -91,6 +91,11 @@ from thermo.errors import DomainError
 #: bump when the table layout or the solver changes: part of the digest
 TABLE_VERSION = 2
 _EULER_GAMMA = 0.5772156649015329
+#: fastmath of the move kernel, the policy of gpe.field.kernels: fused multiply-adds,
+#: reciprocals, approximate library functions and signed zeros, but not nnan/ninf (the kernel
+#: returns +inf inside the hard core) and not reassoc (sums in a fixed order); 10-20% faster
+#: moves (N = 40: 645 against 756 ns uniform, 1010 against 1229 ns harmonic)
+_FASTMATH = {"contract", "arcp", "nsz", "afn"}
 #: grid_self reads the fine-node field further than this many table cells from the wall
 SELF_NEAR_WALL = 2.0
 # header of the parameter vector (then fine nu, fine wall distance, fine self energy, coarse
@@ -208,7 +213,7 @@ def _corner(p, q, nxc, w00, w01, w10, w11):
     return w00 * p[q] + w01 * p[q + 1] + w10 * p[q + nxc] + w11 * p[q + nxc + 1]
 
 
-@njit(MOVE_SIGNATURE, cache=True, error_model="numpy")
+@njit(MOVE_SIGNATURE, cache=True, error_model="numpy", fastmath=_FASTMATH)
 def grid_move_change(pos, signs, index, x_new, y_new, params, min_dist2, self_fn, pair_fn):
     """E(after) - E(before) for moving vortex ``index``: the stencils and densities of the old
     and new positions are computed once, each other vortex's once for both. O(N).

@@ -10,6 +10,7 @@ import warnings
 import numpy as np
 import pytest
 import scipy.constants as sc
+from imprint_run import imprinted_disk_text
 from tiny_protocol import healing_header, tiny_protocol_text
 
 from gpe.errors import ProtocolWarning, RunFileError, SimulationError
@@ -309,24 +310,8 @@ def test_a_runs_detection_keeps_the_vortices_next_to_the_wall(tmp_path):
     every frame of the run holds all four (the detection's Thomas-Fermi floor,
     gpe.run.simulate.detection_floor; without it the frame's closed density lost one of them at
     the runs' threshold, as tests/gpe/analysis/test_vortices.py shows on relaxed fields)."""
-    imprint = "".join(f"[[ground_state.imprint]]\nx_xi = {x}\ny_xi = {y}\nsign = {s:+d}\n"
-                      for x, y, s in [(18.2, 0.0, 1), (-12.0, -13.0, -1), (0.0, -18.0, 1),
-                                      (2.0, 3.0, -1)])
-    text = healing_header("wall") + f"""[trap]
-shape = "disk"
-radius_xi = 20.0
-[grid]
-nx = 64
-size_xi = 48.0
-[ground_state]
-dt_tau = 0.05
-{imprint}[evolution]
-duration_tau = 2.0
-dt_tau = 0.05
-output_interval_tau = 1.0
-damping = 0.03
-seed = 3
-"""
+    text = imprinted_disk_text([(18.2, 0.0), (-12.0, -13.0), (0.0, -18.0), (2.0, 3.0)],
+                               [1, -1, 1, -1], name="wall", duration=2.0, output_interval=1.0)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ProtocolWarning)      # quasi-2D note of these numbers
         out = pipeline.simulate(parse_protocol(text, source=str(tmp_path / "w.toml")),

@@ -10,7 +10,7 @@ from gpe.run.gas import domain_for_trap
 from gpe.run.runfile import RunFile
 from gpe.run.simulate import simulate
 from gpe.setup.protocol import parse_protocol
-from thermo.domains.grid import grid_self
+from thermo.dynamics.velocity import velocities
 
 OMEGA = 0.05            # trap frequency in rad per hbar/mu: R_TF = sqrt(2)/omega = 28.3 xi
 
@@ -49,8 +49,8 @@ def test_a_vortex_in_a_harmonic_trap_precesses_at_the_point_vortex_rate(tmp_path
     u = r/R; for the uniform disk this is hbar/(m (R^2 - r^2)), the image-vortex result of
     Saffman, Vortex Dynamics (1992)). The GPE vortex's angular velocity (a straight-line fit of
     its unwrapped angle over 200 hbar/mu) agrees within 5% at 0.3 R and 0.45 R (measured 0.8%
-    and 0.5% on this 0.75 xi grid, with dE_self/du a central difference over +-0.05 R, about
-    one cell of the Green's function's table; tolerance: the ~5% the project's reference
+    and 0.5% on this 0.75 xi grid, the rate from thermo.dynamics, whose dE_self/du is a central
+    difference over one cell of the Green's function's table; tolerance: the ~5% the project's reference
     values give for this check). The rate also follows the trap's 1/(1 - r^2/R^2) law (tested
     on the domain in test_thermometry.py)."""
     with RunFile.open(_precession_run(tmp_path / "precession.h5", r0)) as run:
@@ -59,10 +59,9 @@ def test_a_vortex_in_a_harmonic_trap_precesses_at_the_point_vortex_rate(tmp_path
     angle = np.unwrap(np.arctan2(table["y"], table["x"]))
     omega_gpe = np.polyfit(table["t"], angle, 1)[0]
     vd = domain_for_trap(HarmonicTrap(omega_x=OMEGA, omega_y=OMEGA))
-    params, big_r = vd.domain.kernels().params, vd.scale
-    u, d = float(np.hypot(table["x"], table["y"]).mean()) / big_r, 0.05
-    slope = (grid_self(u + d, 0.0, 1, params) - grid_self(u - d, 0.0, 1, params)) / (2 * d)
-    omega_pv = -slope / (2 * u * (1 - u * u) * big_r ** 2)
+    u = float(np.hypot(table["x"], table["y"]).mean()) / vd.scale
+    # thermo.dynamics: du/ds in scaled time s = t / R^2 (healing units)
+    omega_pv = velocities([[u, 0.0]], [1], vd.domain)[0, 1] / (u * vd.scale ** 2)
     assert omega_gpe > 0                                    # counter-clockwise for sign +1
     assert omega_gpe / omega_pv == pytest.approx(1.0, abs=0.05)
 

@@ -60,13 +60,11 @@ def test_a_harmonic_trap_gets_its_thomas_fermi_density_on_a_grid():
 
 def _precession_ratios(omega):
     """Omega(r0) (1 - r0^2) / Omega(0) at r0 = 0.2, 0.3, 0.4 R in the harmonic trap's domain."""
-    from thermo.domains.grid import grid_self
+    from thermo.dynamics.velocity import velocities
     vd = domain_for_trap(HarmonicTrap(omega_x=omega, omega_y=omega))
-    params = vd.domain.kernels().params
 
-    def angular_velocity(r, d=0.05):
-        slope = (grid_self(r + d, 0.0, 1, params) - grid_self(r - d, 0.0, 1, params)) / (2 * d)
-        return -slope / (r * (1.0 - r * r))
+    def angular_velocity(r):       # the point-vortex dynamics' own velocity, over r
+        return velocities([[r, 0.0]], [1], vd.domain)[0, 1] / r
 
     base = angular_velocity(0.1) * (1.0 - 0.01)
     return {r: angular_velocity(r) * (1.0 - r * r) / base for r in (0.2, 0.3, 0.4, 0.5)}
@@ -79,9 +77,9 @@ def test_a_vortex_in_the_harmonic_domain_precesses_as_fetter_and_svidzinsky_say(
     prefactor whose order-one part is uncertain; so the ratio Omega(r0)/Omega(0) is tested, to
     5% out to 0.3 R (the check the project's reference values set; the 2D prefactor is from
     memory). The
-    point-vortex angular velocity is Omega = -(dE_self/dr) / (r nu(r)) in the domain's units
-    (Hamilton's equations with the density-weighted Poisson bracket), E_self from the numerical
-    Green's function. The local-healing-length part of E_self makes the ratio fall below the
+    point-vortex angular velocity is that of thermo.dynamics in the grid domain, -(dE_self/dr)
+    / (2 r nu(r)) (Hamilton's equations with the density-weighted Poisson bracket), E_self from
+    the numerical Green's function. The local-healing-length part of E_self makes the ratio fall below the
     law further out (measured 0.99, 0.97, 0.94, 0.91 at 0.2-0.5 R in the smaller trap), less
     so in a larger trap (a larger logarithm)."""
     law = _precession_ratios(omega)

@@ -9,7 +9,7 @@ from PIL import Image
 from thermo.data.geometry import resolve_geometry
 from thermo.data.measured import read_measured
 from thermo.domains.disk import Disk
-from thermo.domains.grid import grid_self
+from thermo.dynamics.velocity import velocities
 from thermo.energy import energy_batch
 from thermo.errors import MeasuredTableError
 
@@ -68,18 +68,16 @@ def test_a_density_image_of_a_thomas_fermi_cloud_gives_fetter_svidzinsky_precess
     cloud a vortex at r0 precesses at Omega proportional to 1/(1 - r0^2/R^2) (ln(R/xi) prefactor
     uncertain at order one, so the ratio to the centre's rate is tested, to 5% out to 0.3 R, as
     for a harmonic trap's domain in tests/gpe/run/test_thermometry.py; falling slowly further
-    out). Omega is -dE_self/dr over
-    r nu(r); here L = sqrt(0.95) R (the fluid ends at 5% of the peak density)."""
+    out). Omega is thermo.dynamics' angular velocity, -(dE_self/dr) / (2 r nu(r)); here
+    L = sqrt(0.95) R (the fluid ends at 5% of the peak density)."""
     geometry, _ = resolve_geometry(_table(tmp_path, _density_geometry(tmp_path)))
     dom = geometry.domain()
     assert geometry.image_kind == "density"
     assert dom.area == pytest.approx(math.pi, rel=0.03)       # the unit disk of radius L
-    params, big_r = dom.kernels().params, 1.0 / math.sqrt(0.95)  # R in units of L
+    big_r = 1.0 / math.sqrt(0.95)                             # R in units of L
 
-    def omega(u, d=0.05):          # u = r0 / R
-        r = u * big_r
-        slope = (grid_self(r + d, 0.0, 1, params) - grid_self(r - d, 0.0, 1, params)) / (2 * d)
-        return -slope / (r * (1.0 - u * u))
+    def omega(u):                  # u = r0 / R: the point-vortex dynamics' angular velocity
+        return velocities([[u * big_r, 0.0]], [1], dom)[0, 1] / (u * big_r)
 
     base = omega(0.1) * (1.0 - 0.01)
     law = [omega(u) * (1.0 - u * u) / base for u in (0.2, 0.3, 0.4)]

@@ -213,6 +213,16 @@ def _corner(p, q, nxc, w00, w01, w10, w11):
     return w00 * p[q] + w01 * p[q + 1] + w10 * p[q + nxc] + w11 * p[q + nxc + 1]
 
 
+@njit(cache=True, error_model="numpy", inline="always")
+def _cell_sum(tab, r0, r2, m, b, nxc, v0, v1, v2, v3, w00, w01, w10, w11):
+    """sum over the four table rows of one stencil (rows r0, r0 + m, r2, r2 + m, weights v)
+    of the bilinear interpolation at the stencil b (weights w)."""
+    return (v0 * _corner(tab, r0 + b, nxc, w00, w01, w10, w11)
+            + v1 * _corner(tab, r0 + m + b, nxc, w00, w01, w10, w11)
+            + v2 * _corner(tab, r2 + b, nxc, w00, w01, w10, w11)
+            + v3 * _corner(tab, r2 + m + b, nxc, w00, w01, w10, w11))
+
+
 @njit(MOVE_SIGNATURE, cache=True, error_model="numpy", fastmath=_FASTMATH)
 def grid_move_change(pos, signs, index, x_new, y_new, params, min_dist2, self_fn, pair_fn):
     """E(after) - E(before) for moving vortex ``index``: the stencils and densities of the old
@@ -277,21 +287,12 @@ def grid_move_change(pos, signs, index, x_new, y_new, params, min_dist2, self_fn
         w10 = (1.0 - bx) * by
         w11 = bx * by
         if same_cell:          # one stencil, the weights' differences: half the reads
-            h_change = four_pi * (
-                dv0 * _corner(tab, n0 + b, nxc, w00, w01, w10, w11)
-                + dv1 * _corner(tab, n0 + m + b, nxc, w00, w01, w10, w11)
-                + dv2 * _corner(tab, n2 + b, nxc, w00, w01, w10, w11)
-                + dv3 * _corner(tab, n2 + m + b, nxc, w00, w01, w10, w11))
+            h_change = four_pi * _cell_sum(tab, n0, n2, m, b, nxc, dv0, dv1, dv2, dv3,
+                                           w00, w01, w10, w11)
         else:
             h_change = four_pi * (
-                vn0 * _corner(tab, n0 + b, nxc, w00, w01, w10, w11)
-                + vn1 * _corner(tab, n0 + m + b, nxc, w00, w01, w10, w11)
-                + vn2 * _corner(tab, n2 + b, nxc, w00, w01, w10, w11)
-                + vn3 * _corner(tab, n2 + m + b, nxc, w00, w01, w10, w11)
-                - vo0 * _corner(tab, o0 + b, nxc, w00, w01, w10, w11)
-                - vo1 * _corner(tab, o0 + m + b, nxc, w00, w01, w10, w11)
-                - vo2 * _corner(tab, o2 + b, nxc, w00, w01, w10, w11)
-                - vo3 * _corner(tab, o2 + m + b, nxc, w00, w01, w10, w11))
+                _cell_sum(tab, n0, n2, m, b, nxc, vn0, vn1, vn2, vn3, w00, w01, w10, w11)
+                - _cell_sum(tab, o0, o2, m, b, nxc, vo0, vo1, vo2, vo3, w00, w01, w10, w11))
         if uniform:
             # nu = 1: the logarithms are multiplied together, one log per move (as the disk)
             acc *= dn / do if s_k * signs[j] > 0 else do / dn

@@ -23,7 +23,7 @@ import numpy as np
 from numba import njit, types
 
 from thermo.domains.base import (PARAMS, POINTS, SIGNS, Domain, PairKernel, SelfKernel,
-                                 kernel_array)
+                                 fill_ledger, kernel_array)
 from thermo.errors import ConfigurationError
 
 __all__ = ["energy", "energy_batch", "energy_change", "validate_configuration",
@@ -210,5 +210,8 @@ def energy_change(pos, signs, domain: Domain, index: int, new_position) -> float
     new = np.asarray(new_position, dtype=np.float64).reshape(2)
     validate_configuration(new[None, :], s[:1], domain)
     k = domain.kernels()
+    n = p.shape[0]
+    ledger, out = np.zeros((n, n)), np.zeros(n)
+    fill_ledger(p, s, k.params, k.self_energy, k.pair_energy, k.move_change, ledger, out)
     return float(k.move_change(p, s, int(index), new[0], new[1], k.params, 0.0, k.self_energy,
-                               k.pair_energy))
+                               k.pair_energy, ledger, out))

@@ -28,7 +28,7 @@ import numpy as np
 from numba import njit, types
 
 from thermo.autocorr import integrated_autocorr_time
-from thermo.domains.base import KERNEL_TYPES, SIGNS, Domain, kernel_array
+from thermo.domains.base import KERNEL_TYPES, SIGNS, Domain, fill_ledger, kernel_array
 from thermo.energy import total_energy_kernel, validate_configuration
 from thermo.errors import SamplerError
 
@@ -80,22 +80,30 @@ def impulse_kernel(conf, signs):
 @njit(types.void(types.float64[:, :, ::1], _V, _V, SIGNS, _V, _V, _V, _F, *KERNEL_TYPES, _F,
                  _I, _I, _I, _I, _I, _F, types.float64[:, ::1], types.float64[:, ::1],
                  types.float64[:, :, :, ::1], _V, _V, types.int64[:, :, ::1],
-                 types.float64[:, ::1], types.float64[:, ::1], _I, _I, _V, _V), cache=True)
+                 types.float64[:, ::1], types.float64[:, ::1], _I, _I, _V, _V,
+                 types.float64[:, :, ::1], types.int64[::1], _V), cache=True)
 def exchange_kernel(pos, energies, impulses, signs, betas, omegas, steps, max_step, self_fn,
-                     pair_fn, wall_fn, move_fn, params, core, sweep_start, sweep_stop, burn_in,
+                     pair_fn, wall_fn, move_fn, params, keeps_ledger, core, sweep_start, sweep_stop, burn_in,
                      thin, adapt_every, target, out_e, out_m, out_pos, move_acc, move_att,
-                     pairs, swap_acc, swap_att, seed, pos_stride, block_acc, block_att):
+                     pairs, swap_acc, swap_att, seed, pos_stride, block_acc, block_att,
+                     ledgers, slots, work):
     # the one Metropolis and replica-exchange loop of the project: states k at (beta_k,
     # omega_k) sample exp[-beta (E - omega M)], M = sum s |u|^2 tracked beside E (omega = 0:
     # plain parallel tempering, thermo.sampler.run_tempering); exchanges between the pairs of
     # the set ``sweep % n_sets`` (rows padded with -1). Sweeps sweep_start..sweep_stop-1 of one
     # chain: called once for a whole run or in consecutive pieces (progress reports in between)
     # with the same arrays; the generator is seeded at the first sweep only and numba keeps its
-    # state between calls in a thread, so the pieces draw exactly the numbers of one call
+    # state between calls in a thread, so the pieces draw exactly the numbers of one call.
+    # State k's pair ledger (thermo.domains.base.MOVE_SIGNATURE), if the move kernel keeps
+    # one, is ledgers[slots[k]]: filled at the start of every call and at every energy
+    # refresh, row and column i set on an accepted move of vortex i, its slot exchanged with
+    # the configuration's
     if sweep_start == 0:
         np.random.seed(seed)
     n_rep = pos.shape[0]
     n = pos.shape[1]
+    for k in range(n_rep if keeps_ledger else 0):
+        fill_ledger(pos[k], signs, params, self_fn, pair_fn, move_fn, ledgers[slots[k]], work)
     n_sets = pairs.shape[0]
     min_d2 = 4.0 * core * core
     rec = (sweep_start - burn_in) // thin if sweep_start > burn_in else 0
@@ -106,6 +114,7 @@ def exchange_kernel(pos, energies, impulses, signs, betas, omegas, steps, max_st
             omega = omegas[k]
             h = steps[k]
             conf = pos[k]
+            ledger = ledgers[slots[k]]
             acc = 0
             for _ in range(n):
                 i = np.random.randint(0, n)
@@ -113,7 +122,8 @@ def exchange_kernel(pos, energies, impulses, signs, betas, omegas, steps, max_st
                 yn = conf[i, 1] + h * (2.0 * np.random.random() - 1.0)
                 if wall_fn(xn, yn, params) <= core:
                     continue
-                de = move_fn(conf, signs, i, xn, yn, params, min_d2, self_fn, pair_fn)
+                de = move_fn(conf, signs, i, xn, yn, params, min_d2, self_fn, pair_fn, ledger,
+                             work)
                 if de == np.inf:
                     continue
                 dm = signs[i] * (xn * xn + yn * yn - conf[i, 0] * conf[i, 0]
@@ -125,6 +135,10 @@ def exchange_kernel(pos, energies, impulses, signs, betas, omegas, steps, max_st
                     energies[k] += de
                     impulses[k] += dm
                     acc += 1
+                    if keeps_ledger:
+                        for j in range(n):
+                            ledger[i, j] = work[j]
+                            ledger[j, i] = work[j]
             if production:
                 move_acc[k] += acc
                 move_att[k] += n
@@ -134,6 +148,8 @@ def exchange_kernel(pos, energies, impulses, signs, betas, omegas, steps, max_st
             if (sweep + 1) % _ENERGY_REFRESH == 0:
                 energies[k] = total_energy_kernel(conf, signs, self_fn, pair_fn, params)
                 impulses[k] = impulse_kernel(conf, signs)
+                if keeps_ledger:
+                    fill_ledger(conf, signs, params, self_fn, pair_fn, move_fn, ledger, work)
         s = sweep % n_sets
         for p in range(pairs.shape[1]):
             a = pairs[s, p, 0]
@@ -157,6 +173,7 @@ def exchange_kernel(pos, energies, impulses, signs, betas, omegas, steps, max_st
                         pos[b, i, c] = t
                 energies[a], energies[b] = eb, ea
                 impulses[a], impulses[b] = mb, ma
+                slots[a], slots[b] = slots[b], slots[a]
         if not production and (sweep + 1) % adapt_every == 0:
             for k in range(n_rep):
                 rate = block_acc[k] / max(block_att[k], 1.0)
@@ -173,6 +190,16 @@ def exchange_kernel(pos, energies, impulses, signs, betas, omegas, steps, max_st
                         out_pos[k, rec // pos_stride, i, 0] = pos[k, i, 0]
                         out_pos[k, rec // pos_stride, i, 1] = pos[k, i, 1]
             rec += 1
+
+
+def ledger_arrays(n_states: int, n: int, keeps_ledger: bool = True
+                  ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Work arrays of :func:`exchange_kernel`'s pair ledgers for ``n_states`` configurations of
+    ``n`` vortices: the ledgers (n_states, n, n; empty rows if the kernel keeps none), the slot
+    of each state and the move kernel's output row
+    (:data:`thermo.domains.base.MOVE_SIGNATURE`)."""
+    rows = n if keeps_ledger else 0
+    return (np.zeros((n_states, rows, rows)), np.arange(n_states, dtype=np.int64), np.zeros(n))
 
 
 def _pieces(n_total: int, progress, n_reports: int) -> list[tuple[int, int]]:
@@ -375,12 +402,13 @@ def run_tempering(domain: Domain, n_plus: int, n_minus: int, betas, n_sweeps: in
     block_acc, block_att = np.zeros(k_rep), np.zeros(k_rep)
     impulses, out_m = np.zeros(k_rep), np.empty((k_rep, s_rec))   # tracked, unused at omega = 0
     omegas = np.zeros(k_rep)
+    ledgers, slots, work = ledger_arrays(k_rep, n, kern.keeps_ledger)
     for start, stop in _pieces(n_total, progress, n_reports):
         exchange_kernel(pos, energies, impulses, signs, b, omegas, steps, size, *kern,
                         float(core_radius), start, stop, int(burn), int(thin), adapt_every,
                         float(target_acceptance), out_e, out_m, out_pos, move_acc, move_att,
                         pairs, swap_acc, swap_att, seed, int(position_stride), block_acc,
-                        block_att)
+                        block_att, ledgers, slots, work)
         if progress is not None:
             progress(stop, n_total)
     # per neighbour pair (k, k + 1): set k % 2, slot k // 2

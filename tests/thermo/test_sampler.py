@@ -292,3 +292,34 @@ def test_read_only_ladder_and_start_are_accepted(rng):
     start.flags.writeable = False
     got = run_tempering(Disk(), 2, 1, betas, 50, 0.01, np.random.default_rng(3), initial=start)
     np.testing.assert_array_equal(got.energies, ref.energies)
+
+
+def _small_grid(uniform: bool, cache_dir):
+    """A 40-node disk of uniform density or a Thomas-Fermi profile nu = 1 - r^2 cut at 0.05."""
+    from thermo.domains.grid import GridDomain
+    h = 2.2 / 40
+    x = (np.arange(40) - 19.5) * h
+    nu = 1.0 - x[None, :] ** 2 - x[:, None] ** 2
+    mask = nu > (0.0 if uniform else 0.05)
+    density = np.ones(mask.shape) if uniform else np.where(mask, nu, 0.0)
+    return GridDomain(mask, density, h, (x[0], x[0]), stride=4, cache_dir=cache_dir,
+                      log_length_over_core=np.log(30.0))
+
+
+@pytest.mark.parametrize("kind", ["disk", "box", "annulus", "grid-uniform", "grid-harmonic"])
+def test_tracked_energies_are_those_of_the_configurations(kind, rng, tmp_path):
+    # the sampler adds up the move kernels' changes, which read the old position's pair terms
+    # from a ledger kept beside each configuration (and exchanged with it): over 40 sweeps, so
+    # before the first exact recomputation (every 64), and with exchanges between three
+    # states, every recorded energy must be the energy of its configuration recomputed from
+    # scratch [exact, up to round-off]
+    from thermo.domains.annulus import Annulus
+    domain = {"disk": lambda: Disk(), "box": lambda: Box(1.5),
+              "annulus": lambda: Annulus(0.3, hole_winding=1),
+              "grid-uniform": lambda: _small_grid(True, tmp_path),
+              "grid-harmonic": lambda: _small_grid(False, tmp_path)}[kind]()
+    res = run_tempering(domain, 4, 3, [0.4, 0.0, -0.4], 40, 0.02, rng, burn_in=0, thin=1)
+    assert res.swap_acceptance.max() > 0.0 and res.acceptance.min() > 0.1
+    for k in range(3):
+        np.testing.assert_allclose(energy_batch(res.positions[k], res.signs, domain),
+                                   res.energies[k], rtol=0, atol=1e-8)

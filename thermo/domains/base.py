@@ -69,15 +69,28 @@ SelfKernel = types.FunctionType(SELF_SIGNATURE)
 PairKernel = types.FunctionType(PAIR_SIGNATURE)
 WallKernel = types.FunctionType(WALL_SIGNATURE)
 
-#: (pos, signs, index, x_new, y_new, params, min_dist2, self_fn, pair_fn) -> E(after) -
-#: E(before) for moving one vortex, +inf when the new position is closer than sqrt(min_dist2)
-#: to another vortex. The domain's own self and pair kernels are handed in, so that one generic
-#: implementation (:func:`pair_sum_move_change`) serves every domain without a faster one of its
-#: own. Units: E0.
-MOVE_SIGNATURE = types.float64(POINTS, SIGNS, types.int64, types.float64, types.float64, PARAMS,
-                               types.float64, SelfKernel, PairKernel)
-MoveKernel = types.FunctionType(MOVE_SIGNATURE)
+#: The pair ledger of one configuration, (N, N): ``ledger[i, j]`` is what the move kernel wrote
+#: into ``out[j]`` when it last placed vortex i (see :data:`MOVE_SIGNATURE`).
+LEDGER = types.float64[:, ::1]
 
+#: (pos, signs, index, x_new, y_new, params, min_dist2, self_fn, pair_fn, ledger, out) ->
+#: E(after) - E(before) for moving one vortex, +inf when the new position is closer than
+#: sqrt(min_dist2) to another vortex. The domain's own self and pair kernels are handed in, so
+#: that one generic implementation (:func:`pair_sum_move_change`) serves every domain without a
+#: faster one of its own.
+#:
+#: The ledger spares a kernel the old position's pair terms: a kernel may read
+#: ``ledger[index, j]``, the quantity it wrote into ``out[j]`` (j != index) when vortex
+#: ``index`` was last placed at its present position with vortex j where it is now, and it
+#: writes that quantity for the new position into ``out``; ``out[index]`` (so the diagonal
+#: ``ledger[j, j]``) may hold a quantity of the placed vortex alone. The caller keeps the
+#: ledger (:func:`fill_ledger` once, then row and column ``index`` set to ``out`` when a move
+#: is accepted). The quantities are the kernel's own (a pair energy, a part of it, a local
+#: density), and a kernel with no use for them (the disk's) neither reads nor writes either
+#: array. Units: E0.
+MOVE_SIGNATURE = types.float64(POINTS, SIGNS, types.int64, types.float64, types.float64, PARAMS,
+                               types.float64, SelfKernel, PairKernel, LEDGER, types.float64[::1])
+MoveKernel = types.FunctionType(MOVE_SIGNATURE)
 #: (x, y, params) -> gradient of the self energy 2 pi R(z) as a complex number
 #: d/dx + i d/dy. Units: E0 per length unit.
 SELF_GRADIENT_SIGNATURE = types.complex128(types.float64, types.float64, PARAMS)
@@ -108,6 +121,10 @@ class DomainKernels(NamedTuple):
     move_change : numba dispatcher with :data:`MOVE_SIGNATURE`
     params : numpy.ndarray float64, C-contiguous, shape (P,)
         Shape parameters read by the kernels (never written).
+    keeps_ledger : bool
+        Whether ``move_change`` reads the pair ledger (:data:`MOVE_SIGNATURE`); a caller keeps
+        one only then. True unless the kernel says otherwise: a ledger kept in vain costs
+        time, one missing costs correctness.
 
     Units: as in the signatures (E0, length unit).
     """
@@ -117,11 +134,12 @@ class DomainKernels(NamedTuple):
     wall_distance: Callable[..., float]
     move_change: Callable[..., float]
     params: np.ndarray
+    keeps_ledger: bool = True
 
 
 #: The numba types of the fields of :class:`DomainKernels`, in order: a compiled loop declared
 #: with them in its signature is called with ``*domain.kernels()``.
-KERNEL_TYPES = (SelfKernel, PairKernel, WallKernel, MoveKernel, PARAMS)
+KERNEL_TYPES = (SelfKernel, PairKernel, WallKernel, MoveKernel, PARAMS, types.boolean)
 
 
 class GradientKernels(NamedTuple):
@@ -172,10 +190,13 @@ def pair_sum_velocity(pos, signs, alpha, alpha_prime, self_gradient, pair_gradie
 
 
 @njit(MOVE_SIGNATURE, cache=True, error_model="numpy")
-def pair_sum_move_change(pos, signs, index, x_new, y_new, params, min_dist2, self_fn, pair_fn):
+def pair_sum_move_change(pos, signs, index, x_new, y_new, params, min_dist2, self_fn, pair_fn,
+                         ledger, out):
     """E(after) - E(before) for moving vortex ``index``, from the self and pair kernels. O(N).
 
-    The generic :data:`MOVE_SIGNATURE` kernel: 2 self and 2(N - 1) pair evaluations per move.
+    The generic :data:`MOVE_SIGNATURE` kernel: 2 self and N - 1 pair evaluations per move, the
+    old position's pair energies being read from the ledger (like-sign pair energies,
+    ``out[j]`` = pair_fn(new, z_j)).
 
     Units: positions in the length unit, energies in E0; +inf inside the hard core.
     """
@@ -193,9 +214,27 @@ def pair_sum_move_change(pos, signs, index, x_new, y_new, params, min_dist2, sel
         dy = y_new - yj
         if dx * dx + dy * dy < min_dist2:
             return np.inf
-        d += s_k * signs[j] * (pair_fn(x_new, y_new, xj, yj, params)
-                               - pair_fn(x_old, y_old, xj, yj, params))
+        e = pair_fn(x_new, y_new, xj, yj, params)
+        out[j] = e
+        d += s_k * signs[j] * (e - ledger[index, j])
     return d
+
+
+@njit(types.void(POINTS, SIGNS, PARAMS, SelfKernel, PairKernel, MoveKernel, LEDGER,
+                 types.float64[::1]), cache=True)
+def fill_ledger(pos, signs, params, self_fn, pair_fn, move_fn, ledger, work):
+    """Fill the pair ledger of the configuration ``pos`` (:data:`MOVE_SIGNATURE`): each vortex
+    "moved" to where it is, with ``work`` (N,) as the kernel's output, row by row. Twice: a
+    kernel may read the other vortices' own quantities (the diagonal) when it writes a row,
+    and those are all in place after the first pass. O(N^2) pair terms. The configuration
+    must keep its vortices apart (no pair closer than the hard core)."""
+    n = pos.shape[0]
+    for _ in range(2):
+        for i in range(n):
+            move_fn(pos, signs, i, pos[i, 0], pos[i, 1], params, 0.0, self_fn, pair_fn, ledger,
+                    work)
+            for j in range(n):
+                ledger[i, j] = work[j]
 
 
 @njit(types.void(PairKernel, PARAMS, POINTS, POINTS, types.float64[::1]), cache=True)

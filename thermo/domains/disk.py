@@ -114,14 +114,16 @@ def disk_wall_distance(x: float, y: float, params: np.ndarray) -> float:
 
 
 @njit(MOVE_SIGNATURE, cache=True, error_model="numpy")
-def disk_move_change(pos, signs, index, x_new, y_new, params, min_dist2, self_fn, pair_fn):
+def disk_move_change(pos, signs, index, x_new, y_new, params, min_dist2, self_fn, pair_fn,
+                     ledger, out):
     """E(after) - E(before) for moving vortex ``index`` to (x_new, y_new) in the disk. O(N).
 
     The pair terms are ratios inside one logarithm, so they are multiplied together and a
     log is taken only when the running product leaves [1e-100, 1e100]: about one log per
     move instead of 2(N - 1). One factor is at most (4 / d_min^2)^2, far from overflow.
     Returns +inf if the new position is closer than sqrt(min_dist2) to another vortex.
-    ``self_fn`` and ``pair_fn`` (part of the common signature) are not needed here.
+    ``self_fn``, ``pair_fn`` and the pair ledger (part of the common signature) are not needed
+    here: the old position's terms cost no more than reading them.
 
     Units: positions in R, energies in E0.
     """
@@ -198,7 +200,7 @@ class Disk(Domain):
     def kernels(self) -> DomainKernels:
         """The disk's compiled kernels; the parameter vector is unused (one zero)."""
         return DomainKernels(disk_self, disk_pair, disk_wall_distance, disk_move_change,
-                             np.zeros(1))
+                             np.zeros(1), keeps_ledger=False)
 
     def gradient_kernels(self) -> GradientKernels:
         """The disk's compiled energy gradients (image at u / |u|^2). Units: E0 / R."""

@@ -224,14 +224,18 @@ def _cell_sum(tab, r0, r2, m, b, nxc, v0, v1, v2, v3, w00, w01, w10, w11):
 
 
 @njit(MOVE_SIGNATURE, cache=True, error_model="numpy", fastmath=_FASTMATH)
-def grid_move_change(pos, signs, index, x_new, y_new, params, min_dist2, self_fn, pair_fn):
-    """E(after) - E(before) for moving vortex ``index``: the stencils and densities of the old
-    and new positions are computed once, each other vortex's once for both. O(N).
+def grid_move_change(pos, signs, index, x_new, y_new, params, min_dist2, self_fn, pair_fn,
+                     ledger, out):
+    """E(after) - E(before) for moving vortex ``index``: the new position's stencil and density
+    computed once, each other vortex's once. O(N).
 
-    The remainder's change 4 pi [H(z_new, z_j) - H(z_old, z_j)] is one sum over the eight
-    table rows of the new and old stencils (weights +w_new, -w_old, set up once per move) of
-    the bilinear interpolation at z_j (its four weights set up once per vortex j).
-    ``self_fn`` and ``pair_fn`` (part of the common signature) are not needed here.
+    The old position's terms are read from the pair ledger (:data:`MOVE_SIGNATURE`), so only
+    the new position's table rows are interpolated (16 values per other vortex). The ledger
+    holds the remainder 4 pi H(z, z_j) where nu = 1 (the logarithms' ratios are multiplied
+    together, one log per move, as the disk's) and the whole pair energy -sqrt(nu nu_j)
+    ln|z - z_j|^2 + 4 pi H elsewhere (one log per pair); its diagonal holds each vortex's
+    sqrt(nu), so that no other vortex's density is interpolated. ``self_fn`` and ``pair_fn``
+    (part of the common signature) are not needed here.
     Units: positions in L, energies in E0; +inf inside the hard core.
     """
     n = pos.shape[0]
@@ -243,21 +247,13 @@ def grid_move_change(pos, signs, index, x_new, y_new, params, min_dist2, self_fn
     m = nxc * int(params[_NYC])
     tab = params[int(params[_OFF_TAB]):].view(np.float32)
     an, anx, any_ = _stencil(params, x_new, y_new)
-    ao, aox, aoy = _stencil(params, x_old, y_old)
     n0 = an * m
     n2 = n0 + nxc * m
-    o0 = ao * m
-    o2 = o0 + nxc * m
-    vn0, vn1 = (1.0 - anx) * (1.0 - any_), anx * (1.0 - any_)
-    vn2, vn3 = (1.0 - anx) * any_, anx * any_
-    vo0, vo1 = (1.0 - aox) * (1.0 - aoy), aox * (1.0 - aoy)
-    vo2, vo3 = (1.0 - aox) * aoy, aox * aoy
-    same_cell = an == ao
+    v0, v1 = (1.0 - anx) * (1.0 - any_), anx * (1.0 - any_)
+    v2, v3 = (1.0 - anx) * any_, anx * any_
     x0, y0, inv_hc = params[_X0], params[_Y0], params[_INV_HC]
     jmax, imax = nxc - 2, int(params[_NYC]) - 2
-    dv0, dv1, dv2, dv3 = vn0 - vo0, vn1 - vo1, vn2 - vo2, vn3 - vo3
     rn = math.sqrt(_nu(params, x_new, y_new))
-    ro = math.sqrt(_nu(params, x_old, y_old))
     four_pi = 4.0 * math.pi
     uniform = params[_UNIFORM] > 0.0
     acc = 1.0
@@ -271,9 +267,6 @@ def grid_move_change(pos, signs, index, x_new, y_new, params, min_dist2, self_fn
         dn = dxn * dxn + dyn * dyn
         if dn < min_dist2:
             return np.inf
-        dxo = x_old - xj
-        dyo = y_old - yj
-        do = dxo * dxo + dyo * dyo
         # the coarse stencil of vortex j (as _stencil, constants hoisted; fx, fy > 0 inside)
         fx = (xj - x0) * inv_hc
         fy = (yj - y0) * inv_hc
@@ -282,27 +275,22 @@ def grid_move_change(pos, signs, index, x_new, y_new, params, min_dist2, self_fn
         b = ci * nxc + cj
         bx = fx - cj
         by = fy - ci
-        w00 = (1.0 - bx) * (1.0 - by)
-        w01 = bx * (1.0 - by)
-        w10 = (1.0 - bx) * by
-        w11 = bx * by
-        if same_cell:          # one stencil, the weights' differences: half the reads
-            h_change = four_pi * _cell_sum(tab, n0, n2, m, b, nxc, dv0, dv1, dv2, dv3,
-                                           w00, w01, w10, w11)
-        else:
-            h_change = four_pi * (
-                _cell_sum(tab, n0, n2, m, b, nxc, vn0, vn1, vn2, vn3, w00, w01, w10, w11)
-                - _cell_sum(tab, o0, o2, m, b, nxc, vo0, vo1, vo2, vo3, w00, w01, w10, w11))
+        e = four_pi * _cell_sum(tab, n0, n2, m, b, nxc, v0, v1, v2, v3, (1.0 - bx) * (1.0 - by),
+                                bx * (1.0 - by), (1.0 - bx) * by, bx * by)
         if uniform:
-            # nu = 1: the logarithms are multiplied together, one log per move (as the disk)
+            # nu = 1: the logarithms' ratios multiplied together, one log per move (as the disk)
+            dxo = x_old - xj
+            dyo = y_old - yj
+            do = dxo * dxo + dyo * dyo
             acc *= dn / do if s_k * signs[j] > 0 else do / dn
             if acc > 1e100 or acc < 1e-100:
                 d -= math.log(acc)
                 acc = 1.0
-            d += s_k * signs[j] * h_change
         else:
-            rj = math.sqrt(_nu(params, xj, yj))
-            d += s_k * signs[j] * (rj * (ro * math.log(do) - rn * math.log(dn)) + h_change)
+            e -= ledger[j, j] * rn * math.log(dn)
+        out[j] = e
+        d += s_k * signs[j] * (e - ledger[index, j])
+    out[index] = rn
     return d - math.log(acc)
 
 

@@ -35,7 +35,7 @@ from thermo.autocorr import integrated_autocorr_time
 from thermo.domains.base import Domain, kernel_array
 from thermo.energy import total_energy_kernel
 from thermo.errors import SamplerError
-from thermo.sampler import default_ladder, exchange_kernel, impulse_kernel
+from thermo.sampler import default_ladder, exchange_kernel, impulse_kernel, ledger_arrays
 
 __all__ = ["RotatingSamples", "default_axes", "exchange_pairs", "run_rotating", "state_grid"]
 
@@ -211,6 +211,7 @@ def run_rotating(domain: Domain, n_plus: int, n_minus: int, betas, omegas, n_swe
     block_acc, block_att = np.zeros(k_rep), np.zeros(k_rep)
     seed = int(rng.integers(0, 2**31 - 1))
     n_total = int(burn + s_rec * thin)
+    ledgers, slots, work = ledger_arrays(k_rep, n, kern.keeps_ledger)
     if progress is None or n_total <= 1:
         edges = [0, n_total]
     else:
@@ -222,7 +223,7 @@ def run_rotating(domain: Domain, n_plus: int, n_minus: int, betas, omegas, n_swe
                          int(stop), burn, int(thin), max(5, math.ceil(200 / n)),
                          float(target_acceptance), out_e, out_m, out_pos, move_acc, move_att,
                          pairs, swap_acc, swap_att, seed, int(position_stride), block_acc,
-                         block_att)
+                         block_att, ledgers, slots, work)
         if progress is not None:
             progress(int(stop), n_total)
     tau = np.array([max(integrated_autocorr_time(e), integrated_autocorr_time(m))

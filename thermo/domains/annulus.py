@@ -190,6 +190,23 @@ class Annulus(Domain):
         """The outer diameter 2, which reaches every point from every other. Units: R."""
         return 2.0
 
+    @property
+    def hole_circulation(self) -> tuple[int, ...]:
+        """(hole_winding,). Units: quanta."""
+        return (self.hole_winding,)
+
+    def at_hole_circulation(self, windings) -> Annulus:
+        """The annulus with ``windings[0]`` quanta on its hole."""
+        w = tuple(windings)
+        if len(w) != 1:
+            raise DomainError(f"an annulus has one hole; got windings {w!r}")
+        return Annulus(self.inner, w[0])
+
+    def hole_region(self, pos, cut: float) -> np.ndarray:
+        """1 where |u| < inner + cut, else 0. Units: R."""
+        p = as_points(pos, "pos")
+        return (np.hypot(p[..., 0], p[..., 1]) < self.inner + cut).astype(np.int64)
+
     def key(self) -> tuple:
         """Hashable identity for caches: the radius ratio (12 digits) and the winding."""
         return ("annulus", round(self.inner, 12), self.hole_winding)

@@ -323,6 +323,27 @@ class Domain(ABC):
         """Area of the domain. Units: length unit squared."""
 
     @property
+    def hole_circulation(self) -> tuple[int, ...]:
+        """Circulation quanta around each hole of a multiply connected domain, in the domain's
+        order of its holes (empty for a simply connected one). Point-vortex motion keeps them,
+        so an ensemble is taken at fixed values. Units: quanta."""
+        return ()
+
+    def at_hole_circulation(self, windings) -> Domain:
+        """The same domain at other circulations on its holes (one whole number per hole)."""
+        if len(tuple(windings)):
+            raise DomainError(f"a {self.kind} has no hole to carry circulation; got "
+                              f"{tuple(windings)!r}")
+        return self
+
+    def hole_region(self, pos, cut: float) -> np.ndarray:
+        """Which hole's inner boundary of the gas each point lies within: k (1-based) where
+        ``pos`` is less than ``cut`` from hole k, else 0 (what a loop around hole k encloses
+        when it bounds the gas on the inside). Shape (...). Units: length unit."""
+        p = as_points(pos, "pos")
+        return np.zeros(p.shape[:-1], dtype=np.int64)
+
+    @property
     @abstractmethod
     def max_step(self) -> float:
         """Largest half-width of the square in which a Monte Carlo move is proposed.

@@ -13,7 +13,9 @@ unit L (positions scaled so that the fluid fits in about the unit disk, like :cl
 .. math:: -\nabla\cdot\Big[\frac1\nu\nabla G(z, z')\Big] = \delta(z - z'), \qquad G = 0
           \text{ where the fluid ends}
 
-(self-adjoint, so G is symmetric). The kinetic energy :math:`\tfrac{m}{2}\int n v^2 =
+(self-adjoint, so G is symmetric); in a fluid with holes G is Lin's Green's function at fixed
+circulations instead, constant on each hole's wall (:class:`GridDomain`, "Holes"). The kinetic
+energy :math:`\tfrac{m}{2}\int n v^2 =
 \tfrac{\rho}{2}\int\nu^{-1}|\nabla\psi|^2 = \tfrac{\rho\kappa}{2}\sum_i s_i\psi(z_i)` (by parts,
 :math:`\psi = 0` on the wall), i.e. the pair energy :math:`s_is_j\,4\pi G(z_i, z_j)` in
 :math:`E_0 = \rho\kappa^2/(4\pi)` as for every domain (:mod:`thermo.domains.base`).
@@ -89,7 +91,7 @@ from thermo.domains.base import (
 from thermo.errors import DomainError
 
 #: bump when the table layout or the solver changes: part of the digest
-TABLE_VERSION = 2
+TABLE_VERSION = 3
 _EULER_GAMMA = 0.5772156649015329
 #: fastmath of the move kernel, the policy of gpe.field.kernels: fused multiply-adds,
 #: reciprocals, approximate library functions and signed zeros, but not nnan/ninf (the kernel
@@ -101,7 +103,7 @@ SELF_NEAR_WALL = 2.0
 # header of the parameter vector (then fine nu, fine wall distance, fine self energy, coarse
 # table as float32); _INV_HF and _INV_HC are 1 / spacing of the fine and coarse grids
 (_NXF, _NYF, _X0, _Y0, _HF, _NXC, _NYC, _STRIDE, _LNLA, _OFF_NU, _OFF_WALL,
- _OFF_TAB, _UNIFORM, _OFF_SELF, _INV_HF, _INV_HC, _HEADER) = range(17)
+ _OFF_TAB, _UNIFORM, _OFF_SELF, _INV_HF, _INV_HC, _OFF_FLOW, _HEADER) = range(18)
 
 
 class GreenCacheWarning(UserWarning):
@@ -185,15 +187,21 @@ def _self_from_table(x, y, params):
 
 @njit(SELF_SIGNATURE, cache=True, error_model="numpy")
 def grid_self(x: float, y: float, sign: int, params: np.ndarray) -> float:
-    """Self energy (:func:`_self_from_table`), either sign. More than ``SELF_NEAR_WALL`` table
-    cells from the wall it is read by bilinear interpolation of its values at the fine nodes
-    (8 values with the wall distance, against the table's 16 + 4; smooth there, so the
-    second interpolation costs little); nearer the wall, where it falls as the log of the
-    distance, from the table itself. Units: E0."""
+    """Self energy (:func:`_self_from_table`), plus, where holes carry circulation, the
+    vortex's energy ``sign`` * F(z) in their flow (odd in the sign; F bilinear on the fine
+    nodes). More than ``SELF_NEAR_WALL`` table cells from the wall the even part is read by
+    bilinear interpolation of its values at the fine nodes (8 values with the wall distance,
+    against the table's 16 + 4; smooth there, so the second interpolation costs little);
+    nearer the wall, where it falls as the log of the distance, from the table itself.
+    Units: E0."""
     w = _bilinear(params, int(params[_OFF_WALL]), x, y)
     if w * params[_INV_HC] < SELF_NEAR_WALL:
-        return _self_from_table(x, y, params)
-    return _bilinear(params, int(params[_OFF_SELF]), x, y)
+        e = _self_from_table(x, y, params)
+    else:
+        e = _bilinear(params, int(params[_OFF_SELF]), x, y)
+    if params[_OFF_FLOW] > 0.0:
+        e += sign * _bilinear(params, int(params[_OFF_FLOW]), x, y)
+    return e
 
 
 @njit(WALL_SIGNATURE, cache=True, error_model="numpy")
@@ -294,7 +302,7 @@ def grid_move_change(pos, signs, index, x_new, y_new, params, min_dist2, self_fn
     return d - math.log(acc)
 
 
-def _check_inputs(mask, density, spacing, origin, allow_holes=False):
+def _check_inputs(mask, density, spacing, origin, hole_windings=None):
     m = np.asarray(mask)
     if m.ndim != 2 or m.dtype != bool:
         raise DomainError(f"mask must be a 2-D boolean array (True = fluid); got dtype {m.dtype} "
@@ -309,18 +317,21 @@ def _check_inputs(mask, density, spacing, origin, allow_holes=False):
     if m[0].any() or m[-1].any() or m[:, 0].any() or m[:, -1].any():
         raise DomainError("mask touches the grid edge; accepted: fluid nodes strictly inside the "
                           "grid (pad it with at least one row/column of dry nodes)")
-    # dry nodes the fluid encloses (dry components, 4-connected like the stencil's walls, that do
-    # not reach the grid's edge): G = 0 on them would fix the flow around the hole silently
-    dry, _ = label(~m)
-    enclosed = ~m & ~np.isin(dry, np.unique(np.concatenate(
-        [dry[0], dry[-1], dry[:, 0], dry[:, -1]])))
-    if enclosed.any() and not allow_holes:
-        at = np.argwhere(enclosed)[0]
-        raise DomainError(f"mask has a hole: {int(enclosed.sum())} dry node(s) enclosed by fluid, "
-                          f"the first at (row {at[0]}, column {at[1]}); the circulation around a "
-                          "hole is a quantum number the grid domain does not model; accepted: a "
-                          "simply connected fluid (the annulus domain for a ring; fill a stray "
-                          "dry pixel)")
+    holes = hole_labels(m)
+    n_holes = int(holes.max())
+    windings = () if hole_windings is None else tuple(hole_windings)
+    if n_holes and hole_windings is None:
+        at = np.argwhere(holes > 0)[0]
+        raise DomainError(f"mask has a hole: {int((holes > 0).sum())} dry node(s) enclosed by "
+                          f"fluid, the first at (row {at[0]}, column {at[1]}); the circulation "
+                          "around a hole is a quantum number of the gas: give hole_windings, "
+                          f"{n_holes} whole number(s) of quanta (holes in the order of their "
+                          "first node, row by row), or fill a stray dry pixel")
+    if len(windings) != n_holes or any(isinstance(w, (bool, np.bool_))
+                                       or not isinstance(w, (int, np.integer)) for w in windings):
+        raise DomainError(f"hole_windings = {hole_windings!r}: the mask has {n_holes} hole(s); "
+                          f"accepted: {n_holes} whole number(s) of circulation quanta"
+                          + (" (or None)" if n_holes == 0 else ""))
     inside = nu[m]
     if not np.all(np.isfinite(inside)) or np.any(inside <= 0):
         bad = np.argwhere(m & ~(np.isfinite(nu) & (nu > 0)))[0]
@@ -333,11 +344,30 @@ def _check_inputs(mask, density, spacing, origin, allow_holes=False):
     o = np.asarray(origin, dtype=np.float64).reshape(-1)
     if o.shape != (2,) or not np.all(np.isfinite(o)):
         raise DomainError(f"origin must be two finite numbers (x, y) of node (0, 0); got {origin!r}")
-    return m, nu, h, o
+    return m, nu, h, o, holes, tuple(int(w) for w in windings)
 
 
-def _solve_table(mask, nu, h, stride):
-    """The remainder H on the coarse nodes (every stride-th node) of the full grid."""
+def hole_labels(mask: np.ndarray) -> np.ndarray:
+    """The holes of a fluid mask, labelled 1, 2, ... in the order of their first node row by
+    row (0 elsewhere): the dry components, 4-connected like the stencil's walls, that do not
+    reach the grid's edge."""
+    dry, _ = label(~mask)
+    outer = np.unique(np.concatenate([dry[0], dry[-1], dry[:, 0], dry[:, -1]]))
+    enclosed = ~mask & ~np.isin(dry, outer)
+    out = np.zeros(mask.shape, dtype=np.int64)
+    first = {}
+    for lab in dry[enclosed]:          # raster order: first appearance numbers the holes
+        first.setdefault(int(lab), len(first) + 1)
+    for lab, k in first.items():
+        out[dry == lab] = k
+    return out
+
+
+def _solve_table(mask, nu, h, stride, holes):
+    """The remainder H on the coarse nodes (every stride-th node) of the full grid, and, if
+    the fluid has holes, their harmonic measures omega_k at the fine nodes and the capacity
+    matrix P (the hydrodynamic Green's function's remainder is in the table; see
+    :class:`GridDomain`)."""
     ny, nx = mask.shape
     idx = -np.ones(mask.shape, dtype=np.int64)
     idx[mask] = np.arange(int(mask.sum()))
@@ -358,6 +388,7 @@ def _solve_table(mask, nu, h, stride):
                        (np.concatenate(rows + [np.arange(n)]),
                         np.concatenate(cols + [np.arange(n)]))), shape=(n, n))
     lu = splu(a)
+    omega, capacity = _harmonic_measures(lu, mask, inv, holes, idx, ii, jj)
     ci = np.arange(0, ny, stride)
     cj = np.arange(0, nx, stride)
     cgi, cgj = np.meshgrid(ci, cj, indexing="ij")
@@ -382,8 +413,38 @@ def _solve_table(mask, nu, h, stride):
             r = np.nonzero(wet_c == col)[0][0]
             sub[r, k] = g[r, k] + nu_c[col] * lattice
         table[np.ix_(wet_c, block)] = sub
+    if capacity.size:
+        # Lin's Green's function at fixed circulations: G_h = G_D + omega(z)^T P^-1 omega(z')
+        om_c = omega[:, cgi, cgj]
+        table += om_c.T @ np.linalg.solve(capacity, om_c)
     table = 0.5 * (table + table.T)                   # exact symmetry of the solved table
-    return table, cj.size, ci.size
+    return table, cj.size, ci.size, omega, capacity
+
+
+def _harmonic_measures(lu, mask, inv, holes, idx, ii, jj):
+    """omega_k (k = 1..K) with -div(nu^-1 grad omega_k) = 0 in the fluid, 1 on hole k, 0 on
+    every other dry node (the same five-point operator and LU as G), and the capacity matrix
+    P_kl = sum over the faces of hole k of nu^-1 (delta_kl - omega_l(fluid side)), minus the
+    flux of omega_l into the fluid through hole k's wall (symmetric, made exactly so).
+    Shapes (K, ny, nx) and (K, K); empty without holes."""
+    k_holes = int(holes.max())
+    omega = np.zeros((k_holes,) + mask.shape)
+    if not k_holes:
+        return omega, np.zeros((0, 0))
+    rhs = np.zeros((ii.size, k_holes))
+    for di, dj in ((0, 1), (0, -1), (1, 0), (-1, 0)):
+        lab = holes[ii + di, jj + dj]
+        on = lab > 0
+        np.add.at(rhs, (idx[ii[on], jj[on]], lab[on] - 1), inv[ii[on], jj[on]])
+    sol = lu.solve(rhs)
+    for k in range(k_holes):
+        omega[k][mask] = sol[idx[mask], k]
+        omega[k][holes == k + 1] = 1.0
+    capacity = np.zeros((k_holes, k_holes))
+    for k in range(k_holes):
+        for l in range(k_holes):
+            capacity[k, l] = np.sum(rhs[:, k] * ((k == l) - sol[:, l]))
+    return omega, 0.5 * (capacity + capacity.T)
 
 
 def _lattice_singular(i1, j1, i2, j2, h, w):
@@ -410,22 +471,23 @@ def green_cache_dir() -> Path:
     return Path(base) / "vortherm" / "green"
 
 
-def _load_or_solve(digest, mask, nu, h, stride, cache_dir):
+def _load_or_solve(digest, mask, nu, h, stride, holes, cache_dir):
     path = Path(cache_dir or green_cache_dir()) / f"green_{digest}.npz"
     if path.exists():
         try:
             with np.load(path, allow_pickle=False) as z:
                 if str(z["digest"]) == digest:
-                    return z["table"], int(z["nxc"]), int(z["nyc"])
+                    return (z["table"], int(z["nxc"]), int(z["nyc"]), z["omega"],
+                            z["capacity"])
                 raise ValueError("digest does not match the file name")
         except (OSError, EOFError, ValueError, KeyError, zipfile.BadZipFile) as exc:
             warnings.warn(GreenCacheWarning(f"{path}: damaged Green's-function cache entry "
                                             f"({type(exc).__name__}: {exc}); rebuilding it now"),
                           stacklevel=3)
-    table, nxc, nyc = _solve_table(mask, nu, h, stride)
-    write_npz(path, {"table": table, "nxc": nxc, "nyc": nyc, "digest": np.array(digest)},
-              compressed=False)
-    return table, nxc, nyc
+    table, nxc, nyc, omega, capacity = _solve_table(mask, nu, h, stride, holes)
+    write_npz(path, {"table": table, "nxc": nxc, "nyc": nyc, "omega": omega,
+                     "capacity": capacity, "digest": np.array(digest)}, compressed=False)
+    return table, nxc, nyc, omega, capacity
 
 
 @njit(SELF_GRADIENT_SIGNATURE, cache=True, error_model="numpy")
@@ -512,7 +574,7 @@ def _packed32(table: np.ndarray) -> np.ndarray:
 
 
 class GridDomain(Domain):
-    """Any fluid mask and relative density on a uniform grid, Green's function solved numerically.
+    r"""Any fluid mask and relative density on a uniform grid, Green's function solved numerically.
 
     Parameters
     ----------
@@ -532,11 +594,29 @@ class GridDomain(Domain):
         Coarse table node every ``stride`` fine nodes (default 2).
     cache_dir : path or None
         Where solved tables are kept (default ``$XDG_CACHE_HOME/vortherm/green``).
-    allow_holes : bool
-        A fluid that encloses dry nodes is refused unless True: G = 0 on a hole is the
-        Dirichlet Green's function, which fixes the flow around the hole by the vortices'
-        positions instead of keeping its circulation quantized (a comparison with Lin's
-        Dirichlet annulus, not a superfluid ring; use the annulus domain for that).
+    hole_windings : sequence of int or None
+        Circulation quanta around each hole of the fluid (dry nodes it encloses), in the order
+        of the holes' first nodes row by row (:func:`hole_labels`); required if there are
+        holes. The gas is taken at these circulations (point-vortex motion keeps them).
+
+    **Holes.** A hole's circulation is a quantum number of its own, so G is Lin's Green's
+    function at fixed circulations (Lin, PNAS 27, 575 (1941)), and with the windings n_k the
+    energy gains each vortex's energy in the holes' flow. With G_D the Green's function that
+    vanishes on every wall, omega_k the harmonic measure of hole k (-div(nu^-1 grad omega_k)
+    = 0, 1 on hole k, 0 on the other walls) and P_kl = -(flux of omega_l into the fluid
+    through hole k), the stream function at circulations n_k (counter-clockwise, in quanta)
+    is psi = sum_i s_i G_D(., z_i) + sum_k c_k omega_k with c = P^-1 (n + Omega),
+    Omega_k = sum_i s_i omega_k(z_i) (the flux of G_D(., z_i) into hole k is omega_k(z_i), by
+    Green's identity). Integrating the energy by parts as in the module text, with psi = c_k on
+    hole k, gives in E0
+
+    .. math:: E = \sum_{i<j} s_is_j\,4\pi G_h(z_i, z_j) + \sum_i E_{\rm self}(z_i)
+              + 4\pi\sum_i s_i\,n^{\mathsf T}P^{-1}\omega(z_i) + 2\pi n^{\mathsf T}P^{-1}n,
+
+    G_h = G_D + omega^T P^-1 omega (smooth, so it goes into the tabulated remainder and the
+    self energy's Robin part), the constant last term dropped. For the annulus q < |z| < 1,
+    omega = ln|z| / ln q and P = 2 pi / ln(1/q), and this is the annulus domain's energy
+    (:mod:`thermo.domains.annulus`; tested).
 
     Units: lengths in L, energies in E0.
     """
@@ -549,8 +629,9 @@ class GridDomain(Domain):
 
     def __init__(self, mask, density, spacing: float, origin=(0.0, 0.0),
                  log_length_over_core: float | None = None, stride: int = 2,
-                 cache_dir=None, allow_holes: bool = False) -> None:
-        m, nu, h, o = _check_inputs(mask, density, spacing, origin, allow_holes)
+                 cache_dir=None, hole_windings=None) -> None:
+        m, nu, h, o, holes, windings = _check_inputs(mask, density, spacing, origin,
+                                                     hole_windings)
         if isinstance(stride, bool) or not isinstance(stride, (int, np.integer)) or stride < 1:
             raise DomainError(f"stride must be a whole number >= 1; got {stride!r}")
         uniform = bool(np.all(nu[m] == 1.0))
@@ -564,7 +645,8 @@ class GridDomain(Domain):
         digest = hashlib.sha1(b"".join([
             np.ascontiguousarray(m).tobytes(), np.ascontiguousarray(nu_in).tobytes(),
             repr((m.shape, h, tuple(o), int(stride), TABLE_VERSION)).encode()])).hexdigest()[:20]
-        table, nxc, nyc = _load_or_solve(digest, m, nu_in, h, int(stride), cache_dir)
+        table, nxc, nyc, omega, capacity = _load_or_solve(digest, m, nu_in, h, int(stride),
+                                                          holes, cache_dir)
         ny, nx = m.shape
         wall = distance_transform_edt(m) * h
         header = np.zeros(_HEADER)
@@ -576,14 +658,22 @@ class GridDomain(Domain):
         header[_OFF_TAB] = _HEADER + 3 * nx * ny
         header[_UNIFORM] = 1.0 if uniform else 0.0
         header[_INV_HF], header[_INV_HC] = 1.0 / h, 1.0 / (h * stride)
+        # the vortex's energy in the holes' flow, 4 pi n^T P^-1 omega(z) (none if all n = 0)
+        flow, packed = np.zeros((0,)), _packed32(table)
+        if any(windings):
+            coef = np.linalg.solve(capacity, np.asarray(windings, dtype=np.float64))
+            flow = 4.0 * np.pi * np.tensordot(coef, omega, axes=1).ravel()
+            header[_OFF_FLOW] = _HEADER + 3 * nx * ny + packed.size
         self._params = np.ascontiguousarray(np.concatenate(
             [header, _extend(m, nu_in).ravel(), wall.ravel(), np.zeros(nx * ny),
-             _packed32(table)]))
+             packed, flow]))
         # the self energy at the fine nodes, read by bilinear interpolation away from the wall
         self._params[_HEADER + 2 * nx * ny: _HEADER + 3 * nx * ny] = _self_field(
             self._params, m)
         self._mask, self._h, self._origin = m, h, o
         self._digest, self._lnla = digest, lnla
+        self._windings, self._omega, self._capacity = windings, omega, capacity
+        self._nu_in, self._uniform, self._stride, self._cache_dir = nu_in, uniform, stride, cache_dir
 
     @classmethod
     def from_sizes(cls, sizes: Mapping[str, float]) -> tuple[GridDomain, float]:
@@ -603,8 +693,60 @@ class GridDomain(Domain):
         return hash(self.key())
 
     def key(self) -> tuple:
-        """("grid", digest of mask, density, grid and settings, ln(L/a_ref))."""
-        return ("grid", self._digest, round(self._lnla, 12))
+        """("grid", digest of mask, density, grid and settings, ln(L/a_ref)), and the holes'
+        windings if the fluid has holes."""
+        base = ("grid", self._digest, round(self._lnla, 12))
+        return base + (self._windings,) if self._windings else base
+
+    @property
+    def hole_circulation(self) -> tuple[int, ...]:
+        """Circulation quanta on each hole, in the order of :func:`hole_labels` (empty for a
+        simply connected fluid). Units: quanta."""
+        return self._windings
+
+    def at_hole_circulation(self, windings) -> GridDomain:
+        """The same fluid at other circulations on its holes (the table is shared through the
+        cache: only the flow term changes)."""
+        return GridDomain(self._mask, self._nu_in, self._h, self._origin,
+                          self._lnla if not self._uniform else None, self._stride,
+                          self._cache_dir, hole_windings=windings)
+
+    def hole_region(self, pos, cut: float) -> np.ndarray:
+        """k where ``pos`` is less than ``cut`` from the nodes of hole k (the nearest such
+        hole), else 0; distances bilinear on the fine nodes. Units: L."""
+        p = as_points(pos, "pos")
+        flat = p.reshape(-1, 2)
+        out = np.zeros(flat.shape[0], dtype=np.int64)
+        best = np.full(flat.shape[0], float(cut))
+        holes = hole_labels(self._mask)
+        for k in range(1, int(holes.max()) + 1):
+            d = self._fine_bilinear(distance_transform_edt(holes != k) * self._h, flat)
+            near = d < best
+            out[near], best[near] = k, d[near]
+        return out.reshape(p.shape[:-1])
+
+    def _fine_bilinear(self, field: np.ndarray, flat: np.ndarray) -> np.ndarray:
+        """Bilinear interpolation of fine-node fields (..., ny, nx) at points (M, 2)."""
+        fx = (flat[:, 0] - self._origin[0]) / self._h
+        fy = (flat[:, 1] - self._origin[1]) / self._h
+        ny, nx = self._mask.shape
+        j = np.clip(np.floor(fx).astype(int), 0, nx - 2)
+        i = np.clip(np.floor(fy).astype(int), 0, ny - 2)
+        tx, ty = fx - j, fy - i
+        return ((1 - ty) * ((1 - tx) * field[..., i, j] + tx * field[..., i, j + 1])
+                + ty * ((1 - tx) * field[..., i + 1, j] + tx * field[..., i + 1, j + 1]))
+
+    @property
+    def capacity(self) -> np.ndarray:
+        """The holes' capacity matrix P (K, K); see the class text. Dimensionless."""
+        return self._capacity.copy()
+
+    def harmonic_measure(self, pos) -> np.ndarray:
+        """omega_k at ``pos`` (..., 2), bilinear on the fine nodes: shape (K, ...).
+        Dimensionless."""
+        p = as_points(pos, "pos")
+        val = self._fine_bilinear(self._omega, p.reshape(-1, 2))
+        return val.reshape((self._omega.shape[0],) + p.shape[:-1])
 
     def kernels(self) -> DomainKernels:
         """Compiled kernels; params packs the header, fine nu, fine wall distance, the table."""
@@ -614,7 +756,14 @@ class GridDomain(Domain):
     def gradient_kernels(self) -> GradientKernels:
         """Energy gradients (central differences over one table cell where the energy is
         interpolated, the pair logarithm's exactly) and the density-weighted velocity kernel,
-        for point-vortex dynamics. Units: E0 per L."""
+        for point-vortex dynamics. Units: E0 per L.
+
+        Raises DomainError where a hole carries circulation: the self-gradient signature has
+        no sign, and the holes' flow moves vortices and antivortices differently."""
+        if any(self._windings):
+            raise DomainError(f"point-vortex dynamics in a grid domain whose holes carry "
+                              f"circulation ({self._windings} quanta) is not modelled; "
+                              "accepted: a simply connected fluid or holes at zero winding")
         return GradientKernels(grid_self_gradient, grid_pair_gradient, grid_velocity,
                                self._params)
 

@@ -21,13 +21,12 @@ from pathlib import Path
 
 import numpy as np
 
-from gpe.analysis.circulation import winding_on_circle
+from gpe.analysis.circulation import winding_around_region
 from gpe.errors import VorthermError
 from gpe.run.gas import CORE_RADIUS_XI, WALL_LAYER_XI, domain_for_trap, gas_configuration
 from gpe.run.reading import protocol_of
 from gpe.run.runfile import RunFile
 from thermo.admission import CoreRadiusWarning, core_radius_note
-from thermo.domains.annulus import Annulus
 
 
 def drive_end(protocol) -> tuple[float | None, str]:
@@ -96,6 +95,11 @@ def ensemble_frames(times: np.ndarray, *, at_time: float | None = None,
                         "'last'")
 
 
+def quanta(windings: tuple[int, ...]):
+    """Circulation quanta as a report shows them: the number for one hole, the tuple for more."""
+    return windings[0] if len(windings) == 1 else tuple(windings)
+
+
 @dataclass(frozen=True)
 class RunSeries:
     """One run's frames as the thermometry needs them: times, vortex table, trap, protocol."""
@@ -126,9 +130,10 @@ class RunSeries:
             one_circulation=True):
         """(vortex domain, {frame: Admitted}) with these modelling choices (gpe/run/gas.py).
 
-        In an annulus the domain is at the circulation on the hole that all ``frames`` share
-        (:meth:`hole_windings`); with ``one_circulation=False`` it is left at none and frames
-        may differ (:meth:`frame_domains` gives each frame's).
+        In a domain with holes (an annulus, a mask with holes) the domain is at the circulation
+        on the holes that all ``frames`` share (:meth:`hole_windings`); with
+        ``one_circulation=False`` it is left at none and frames may differ
+        (:meth:`frame_domains` gives each frame's).
         """
         vd = domain_for_trap(self.protocol.trap, core_xi, wall_xi)
         note = core_radius_note(vd.core_radius, vd.domain,
@@ -141,44 +146,53 @@ class RunSeries:
         for f in sorted(set(frames)):
             rows = self.table[self.table["frame"] == f]
             out[f] = gas_configuration(rows["x"], rows["y"], rows["sign"], vd, wall_cut=wall_cut)
-        if isinstance(vd.domain, Annulus) and one_circulation:
-            vd = replace(vd, domain=Annulus(vd.domain.inner,
-                                            self.hole_winding(frames, vd, core_xi * wall_cut)))
+        if vd.domain.hole_circulation and one_circulation:
+            vd = replace(vd, domain=vd.domain.at_hole_circulation(
+                self.hole_winding(frames, vd, core_xi * wall_cut)))
         return vd, out
 
-    def hole_windings(self, frames, vd, cut_xi: float) -> dict[int, int]:
-        """Circulation quanta on an annulus's hole in each of ``frames``: {frame: winding}.
+    def hole_windings(self, frames, vd, cut_xi: float) -> dict[int, tuple[int, ...]]:
+        """Circulation quanta on the domain's holes in each of ``frames``: {frame: windings}.
 
-        The phase winding on the circle that bounds the gas on the inside (the shrunk inner wall
-        plus the wall cut ``cut_xi``): it counts the hole's circulation and any vortex left out
-        of the gas between that circle and the wall.
+        The phase winding along the loop that bounds the gas on the inside of each hole (the
+        shrunk wall plus the wall cut ``cut_xi``): it counts the hole's circulation and any
+        vortex left out of the gas between that loop and the wall. The loop is the edge of the
+        grid plaquettes within the cut of the hole (:meth:`Domain.hole_region`), whose windings
+        add up to the loop's (gpe.analysis.circulation).
 
         Units: cut_xi in xi.
         """
-        radius = vd.domain.inner * vd.scale + cut_xi
         windings = {}
+        n_holes = len(vd.domain.hole_circulation)
         with RunFile.open(self.path, "r") as run:
             grid = run.grid
+            xc = 0.5 * (grid.x[1:] + grid.x[:-1])
+            yc = 0.5 * (grid.y[1:] + grid.y[:-1])
+            X, Y = np.meshgrid((xc - vd.center[0]) / vd.scale, (yc - vd.center[1]) / vd.scale)
+            which = vd.domain.hole_region(np.stack([X, Y], axis=-1), cut_xi / vd.scale)
             for f in sorted(set(frames)):
-                windings[f] = winding_on_circle(run.psi(f), grid.x, grid.y, radius, vd.center,
-                                                where=f"{Path(self.path).name} frame {f}")
+                psi = run.psi(f)
+                windings[f] = tuple(
+                    winding_around_region(psi, which == k,
+                                          where=f"{Path(self.path).name} frame {f}")
+                    for k in range(1, n_holes + 1))
         return windings
 
     def frame_domains(self, frames, vd, cut_xi: float) -> dict[int, object]:
-        """The thermo domain of each frame: ``vd.domain``, or in an annulus the annulus at that
-        frame's circulation on the hole. Units: cut_xi in xi."""
-        if not isinstance(vd.domain, Annulus):
+        """The thermo domain of each frame: ``vd.domain``, or in a domain with holes that
+        domain at the frame's circulation on its holes. Units: cut_xi in xi."""
+        if not vd.domain.hole_circulation:
             return {f: vd.domain for f in frames}
-        return {f: Annulus(vd.domain.inner, w)
+        return {f: vd.domain.at_hole_circulation(w)
                 for f, w in self.hole_windings(frames, vd, cut_xi).items()}
 
-    def hole_winding(self, frames, vd, cut_xi: float) -> int:
-        """Circulation quanta on an annulus's hole, the same in every one of ``frames``.
+    def hole_winding(self, frames, vd, cut_xi: float) -> tuple[int, ...]:
+        """Circulation quanta on the domain's holes, the same in every one of ``frames``.
 
         Raises
         ------
         VorthermError
-            If the frames' windings differ (a vortex crossed into the hole): the ensemble is at
+            If the frames' windings differ (a vortex crossed into a hole): the ensemble is at
             one circulation, so the message lists where it changes and asks for a window.
 
         Units: cut_xi in xi.
@@ -187,10 +201,10 @@ class RunSeries:
         values = sorted(set(windings.values()))
         if len(values) > 1:
             order = sorted(windings)
-            changes = [f"frame {f} (t = {self.times[f]:.4g} hbar/mu): {windings[f]}"
+            changes = [f"frame {f} (t = {self.times[f]:.4g} hbar/mu): {quanta(windings[f])}"
                        for i, f in enumerate(order) if i == 0 or windings[f] != windings[order[i - 1]]]
             raise VorthermError(
-                f"{Path(self.path).name}: the circulation on the annulus's hole changes within "
+                f"{Path(self.path).name}: the circulation on the {vd.domain.kind}'s hole changes within "
                 f"the ensemble's frames ({', '.join(changes)} quanta from there on); the gas is "
                 "at one circulation: choose a window of frames where it is constant "
                 "(--window-ms / --time-ms)")

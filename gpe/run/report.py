@@ -246,8 +246,11 @@ def text_report(result: dict) -> str:
     if result.get("approximation"):
         lines.append(f"note: {result['approximation']}")
     if result.get("hole_windings"):
-        quanta = ", ".join(str(w) for w in result["hole_windings"])
-        lines.append(f"note: annulus: the gas is at the circulation on its hole ({quanta} quanta)")
+        quanta = ", ".join(str(tuple(w) if isinstance(w, (list, tuple)) else w)
+                           for w in result["hole_windings"])
+        holes = "holes" if isinstance(result["hole_windings"][0], (list, tuple)) else "hole"
+        lines.append(f"note: {result.get('domain', 'annulus')}: the gas is at the circulation on "
+                     f"its {holes} ({quanta} quanta)")
     if result.get("problems"):
         lines.append(f"note: {len(result['problems'])} table rows were left out (listed above)")
     lines.append("")

@@ -19,7 +19,7 @@ from pathlib import Path
 import numpy as np
 
 from gpe.errors import VorthermError
-from gpe.run.frames import RunSeries, drive_end
+from gpe.run.frames import RunSeries, drive_end, quanta
 from gpe.run.gas import CORE_RADIUS_XI, WALL_LAYER_XI
 from gpe.run.reading import select_frames
 from gpe.run.rotating import configuration_rotation, ensemble_rotation, impulse_weights
@@ -27,7 +27,6 @@ from thermo.classify import structure_observables
 from thermo.data.compare import shot_statistics
 from thermo.data.measured import read_measured
 from thermo.data.units import SeriesSample, mean_interval, series_weights
-from thermo.domains.annulus import Annulus
 from thermo.dos.build import DosSettings
 from thermo.estimate import estimate_ensemble, estimate_single
 
@@ -407,7 +406,7 @@ def temperature_of_run(run_path, *, frames=None, at_time: float | None = None,
     ens_frames = series.frames(at_time=at_time, window=window, default=ensemble_default,
                                time_unit=time_unit)
     vd, gas = series.gas(set(chosen) | set(ens_frames), one_circulation=False)
-    # one domain per frame (an annulus's hole may gain or lose quanta between frames)
+    # one domain per frame (a hole may gain or lose quanta between frames)
     domains = series.frame_domains(chosen, vd, CORE_RADIUS_XI)
     records = [None] * len(chosen)
     for dom in dict.fromkeys(domains.values()):
@@ -434,8 +433,8 @@ def temperature_of_run(run_path, *, frames=None, at_time: float | None = None,
             "records": records, "ensemble": ensemble, "onset": onset,
             "drive_end": after, "drive_note": why,
             "approximation": vd.approximate, "domain": vd.domain.kind,
-            "hole_windings": sorted({d.hole_winding for d in domains.values()})
-            if isinstance(vd.domain, Annulus) else [],
+            "hole_windings": sorted({quanta(d.hole_circulation) for d in domains.values()})
+            if vd.domain.hole_circulation else [],
             "run_complete": series.complete, "frames_stored": len(times),
             "frames_planned": planned, "incomplete": note}
 
@@ -555,8 +554,8 @@ def temperature_of_table(path, *, shape: str | None = None, radius_um: float | N
     return {"kind": "measured", "source": str(path), "time_key": "shot", "time_unit": "",
             "records": records, "ensemble": ensemble, "onset": ensemble["verdict"],
             "approximation": "", "domain": table.domain.kind,
-            "hole_windings": [table.domain.hole_winding]
-            if isinstance(table.domain, Annulus) else [],
+            "hole_windings": [quanta(table.domain.hole_circulation)]
+            if table.domain.hole_circulation else [],
             "problems": [str(p) for p in table.problems]}
 
 

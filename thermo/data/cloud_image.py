@@ -35,7 +35,7 @@ from pathlib import Path
 import numpy as np
 from scipy import ndimage
 
-from thermo.domains.grid import GridDomain
+from thermo.domains.grid import GridDomain, hole_labels
 from thermo.errors import DomainError, MeasuredTableError
 
 #: nodes of the domain lattice across the fluid's larger extent
@@ -105,7 +105,7 @@ def fluid_of(image: np.ndarray, kind: str, density_cut: float) -> tuple[np.ndarr
 
 def image_domain(path: str | Path, kind: str, pixel_um: float, center_px, *,
                  core_um: float | None = None, density_cut: float = DENSITY_CUT,
-                 nodes: int = NODES) -> tuple[GridDomain, float]:
+                 nodes: int = NODES, hole_winding=None) -> tuple[GridDomain, float]:
     """The grid domain of a cloud image and its length unit in um (module docstring).
 
     Parameters
@@ -114,6 +114,8 @@ def image_domain(path: str | Path, kind: str, pixel_um: float, center_px, *,
     pixel_um : pixel size; center_px : trap centre (column, row) in the image's pixels.
     core_um : core radius at the peak density (required for a density image).
     density_cut : fluid edge of a density image, as a fraction of the peak.
+    hole_winding : circulation quanta on the fluid's holes (an int for one hole, a sequence in
+        the holes' order row by row for several; None: 0 on every hole).
 
     Units: um; pixels.
     """
@@ -158,13 +160,21 @@ def image_domain(path: str | Path, kind: str, pixel_um: float, center_px, *,
     else:
         nu_nodes = np.ones(fluid_nodes.shape)
     scale = reach_px
+    n_holes = int(hole_labels(fluid_nodes).max())
+    windings = (hole_winding,) if isinstance(hole_winding, int) else tuple(hole_winding or ())
+    if hole_winding is None:
+        windings = (0,) * n_holes
+    if len(windings) != n_holes:
+        raise MeasuredTableError(f"{path} ({key}): hole_winding = {hole_winding!r} but the fluid "
+                                 f"has {n_holes} hole(s); accepted: one whole number of quanta "
+                                 "per hole, in the order of their first pixel row by row")
     try:
         domain = GridDomain(fluid_nodes, np.where(fluid_nodes, nu_nodes, 0.0),
                             spacing=h_px / scale,
                             origin=((cc[0] - cx) / scale, (rr[0] - cy) / scale),
                             log_length_over_core=(None if kind == "mask"
                                                   else math.log(length_um / core_um)),
-                            stride=STRIDE)
+                            stride=STRIDE, hole_windings=windings)
     except DomainError as exc:
         raise MeasuredTableError(f"{path} ({key}): {exc}") from None
     return domain, length_um

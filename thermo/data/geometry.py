@@ -74,6 +74,15 @@ _SAVE_AS = ("accepted: UTF-8 text, with or without a byte-order mark (BOM): save
             "(in a spreadsheet: 'CSV UTF-8')")
 
 
+
+def _is_winding(value, several: bool) -> bool:
+    """A whole number of quanta, or (``several``) a non-empty list of them."""
+    def one(v):
+        return isinstance(v, int) and not isinstance(v, bool)
+    if several and isinstance(value, (list, tuple)):
+        return len(value) > 0 and all(one(v) for v in value)
+    return one(value)
+
 def read_utf8_text(path: str | Path) -> str:
     """The text of a table or geometry file, decoded as UTF-8 (a leading BOM is dropped).
 
@@ -123,7 +132,9 @@ class Geometry:
     shape : the kind name of a thermo domain, ``"disk"``, ``"box"`` or ``"annulus"``.
     radius_um : disk radius (annulus: outer); width_um, height_um : box sides (x and y);
     inner_radius_um : the annulus's hole.
-    hole_winding : circulation quanta around an annulus's hole (None: not given, taken as 0).
+    hole_winding : circulation quanta around an annulus's hole, or around each hole of a mask or
+        density image (an int for one hole, a list in the holes' order row by row for several;
+        None: not given, taken as 0 on every hole).
     core_um : vortex core radius, ``None`` if not known.
     imaging_um : the ``[imaging]`` table as ((key, value), ...) (empty: no imaging model).
 
@@ -137,7 +148,7 @@ class Geometry:
     core_um: float | None = None
     imaging_um: tuple = ()
     inner_radius_um: float | None = None
-    hole_winding: int | None = None
+    hole_winding: int | tuple[int, ...] | None = None
     image_kind: str | None = None
     image_file: str | None = None
     image_pixel_um: float | None = None
@@ -173,12 +184,14 @@ class Geometry:
                 f"(core_um = {self.core_um:g}): a hole that small is a pinned core, not a hole; "
                 "accepted: a hole several core radii across, or shape = \"disk\"")
         if self.hole_winding is not None:
-            if self.shape != "annulus":
+            if self.shape not in ("annulus", "grid"):
                 raise MeasuredTableError(f"hole_winding = {self.hole_winding!r} is for an "
-                                         f"annulus; a {self.shape} has no hole")
-            if isinstance(self.hole_winding, bool) or not isinstance(self.hole_winding, int):
+                                         f"annulus or an image with holes; a {self.shape} has "
+                                         "no hole")
+            if not _is_winding(self.hole_winding, several=self.shape == "grid"):
                 raise MeasuredTableError(f"hole_winding must be a whole number of circulation "
-                                         f"quanta; got {self.hole_winding!r}")
+                                         f"quanta{' (or one per hole)' if self.shape == 'grid' else ''}"
+                                         f"; got {self.hole_winding!r}")
 
     def _scaled_domain(self) -> tuple[Domain, float]:
         if self.shape == "grid":
@@ -191,7 +204,8 @@ class Geometry:
                         "center_px)")
                 cached = image_domain(self.image_file, self.image_kind, self.image_pixel_um,
                                       self.image_center_px, core_um=self.core_um,
-                                      density_cut=self.density_cut)
+                                      density_cut=self.density_cut,
+                                      hole_winding=self.hole_winding)
                 object.__setattr__(self, "_image_domain", cached)
             return cached
         cls = _shape_class(self.shape)
@@ -311,10 +325,12 @@ def read_geometry_file(path: str | Path) -> dict[str, Any]:
     if unknown:
         raise MeasuredTableError(
             f"{path}: unknown key(s) {unknown}; accepted keys: {list(GEOMETRY_KEYS)}")
-    if "hole_winding" in data and (isinstance(data["hole_winding"], bool)
-                                   or not isinstance(data["hole_winding"], int)):
+    if "hole_winding" in data and not _is_winding(data["hole_winding"], several=True):
         raise MeasuredTableError(f"{path}: hole_winding must be a whole number of circulation "
-                                 f"quanta; got {data['hole_winding']!r}")
+                                 f"quanta (a list of them, one per hole, for an image with "
+                                 f"several holes); got {data['hole_winding']!r}")
+    if isinstance(data.get("hole_winding"), list):
+        data["hole_winding"] = tuple(data["hole_winding"])
     for key in ("mask_file", "density_file"):
         if key in data:
             if not isinstance(data[key], str) or not data[key]:

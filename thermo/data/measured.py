@@ -429,6 +429,8 @@ def _describe(geometry: Geometry, calib: PixelCalibration | None) -> str:
     elif geometry.shape == "grid":
         text = (f"{geometry.image_kind} image {Path(geometry.image_file).name} (fluid reaching "
                 f"{geometry.length_scale_um:g} um from the centre)")
+        if geometry.hole_winding is not None:
+            text += f" with {geometry.hole_winding} circulation quanta on its hole(s)"
     elif geometry.shape == "annulus":
         text = (f"annulus {geometry.inner_radius_um:g} < r < {geometry.radius_um:g} um about the "
                 f"centre with {geometry.hole_winding or 0} circulation quanta on its hole")

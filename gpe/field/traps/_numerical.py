@@ -12,7 +12,9 @@ see that module):
   edge layer of a few healing lengths, which the cut removes (docs/numerical-domains.md).
 * **mask**: a flat-bottomed region (nu = 1) shrunk by the wall layer, as the disk and box are:
   the fluid nodes are those deeper than ``wall_layer_xi`` inside the mask's own signed distance.
-  The length unit is the largest distance of a fluid node from the trap centre.
+  The length unit is the largest distance of a fluid node from the trap centre. A mask with
+  holes (a ring, say) gives a domain whose holes carry circulation, at zero until the run's
+  frames give each hole's winding (gpe.run.frames), as for the annulus.
 
 The domain grid has ``DOMAIN_NODES`` nodes across the larger side of the fluid (plus dry
 margin), the table of the Green's function's smooth part every ``TABLE_STRIDE``-th node. The effective core radius of the vortex energy at the reference density,
@@ -33,7 +35,7 @@ import numpy as np
 from gpe.errors import VorthermError
 from gpe.field.grid import Grid
 from gpe.field.traps.base import VortexDomain
-from thermo.domains.grid import GridDomain
+from thermo.domains.grid import GridDomain, hole_labels
 from thermo.errors import DomainError
 
 #: nodes of the domain grid across the larger side of the fluid
@@ -75,10 +77,12 @@ def grid_vortex_domain(shape: str, grid: Grid, fluid: np.ndarray, nu: np.ndarray
                             "its centre, too small for a vortex gas (need several healing "
                             "lengths)")
     try:
+        # holes carry no circulation yet: the run's frames give it (gpe.run.frames)
         domain = GridDomain(fluid, np.where(fluid, nu, 0.0), spacing=grid.dx / scale,
                             origin=(float(grid.x[0]) / scale, float(grid.y[0]) / scale),
                             log_length_over_core=math.log(scale / ENERGY_CORE_XI),
-                            stride=TABLE_STRIDE)
+                            stride=TABLE_STRIDE,
+                            hole_windings=(0,) * int(hole_labels(fluid).max()))
     except DomainError as err:
         raise VorthermError(f"thermometry: the {shape} trap's grid domain: {err}") from err
     return VortexDomain(domain, scale, (0.0, 0.0), core_radius_xi / scale)

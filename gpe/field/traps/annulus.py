@@ -75,7 +75,7 @@ class AnnulusTrap(WalledTrap):
     def vortex_domain(self, core_radius_xi: float, wall_layer_xi: float) -> VortexDomain:
         """The annulus shrunk by ``wall_layer_xi`` at both walls (the depleted layers), its
         length unit the shrunk outer radius; no circulation on the hole yet: the run's frames
-        give it (:func:`gpe.analysis.circulation.winding_on_circle`, gpe.run.frames).
+        give it (:func:`gpe.analysis.circulation.winding_around_region`, gpe.run.frames).
 
         Raises
         ------

@@ -22,7 +22,7 @@ from gpe.run.gas import (
 from gpe.run.frames import RunSeries
 from gpe.run.runfile import VORTEX_ROW, RunFile
 from gpe.run.thermometry import onset_verdict, temperature_of_run
-from gpe.setup.protocol import parse_protocol
+from gpe.setup.protocol import load_protocol, parse_protocol
 from thermo.domains.annulus import Annulus
 
 
@@ -275,3 +275,56 @@ def test_each_frame_of_an_annulus_run_is_at_its_own_hole_circulation(tmp_path):
     assert "annulus: the gas is at the circulation on its hole (1, 2 quanta)" in \
         report.text_report(res)
     assert report.json_report(res)["hole_windings"] == [1, 2]
+
+
+def _holed_mask_run(path, windings):
+    """A hand-written run in a mask trap: a disk of 20 xi with a hole of 5 xi about (6, 0) xi
+    (pixels of 0.5 xi); frame k has windings[k] quanta imprinted at the hole's centre and the
+    same two vortices in the fluid."""
+    c = (np.arange(81) - 40) * 0.5
+    X, Y = np.meshgrid(c, c)
+    allowed = (np.hypot(X, Y) <= 20.0) & (np.hypot(X - 6.0, Y) >= 5.0)
+    np.save(path.with_name("holed.npy"), allowed.astype(float))
+    text = tiny_protocol_text(duration=10.0, output_interval=2.0).replace(
+        'shape = "disk"\nradius_xi = 20.0', 'shape = "mask"\nfile = "holed.npy"\npixel_size_xi = 0.5')
+    path.with_suffix(".toml").write_text(text)
+    protocol = load_protocol(path.with_suffix(".toml"))
+    grid = protocol.grid
+    vortices = [(-12.0, 2.0), (8.0, 12.0)]
+    with RunFile.create(path, protocol=protocol) as run:
+        for f, n in enumerate(windings):
+            psi = imprint(grid.X, grid.Y, [(6.0, 0.0)] * abs(n), [int(np.sign(n))] * abs(n)) \
+                * imprint(grid.X, grid.Y, vortices, [1, -1])
+            rows = np.zeros(2, VORTEX_ROW)
+            rows["frame"], rows["t"], rows["track"] = f, 2.0 * f, -1
+            rows["x"], rows["y"], rows["sign"] = [v[0] for v in vortices], [v[1] for v in vortices], [1, -1]
+            run.append_frame(2.0 * f, psi, vortices=rows)
+        run.mark_complete()
+    return path
+
+
+def test_a_mask_runs_hole_carries_the_circulation_of_its_frames(tmp_path):
+    # a mask with an off-centre hole: the winding around the hole [exact for the imprinted
+    # field, whose other vortices lie outside the hole's wall cut] sets the grid domain's
+    # circulation, frame by frame; two frames at one and two quanta differ in energy by the
+    # vortices' energy in the extra quantum's flow, 4 pi P^-1 sum_i s_i omega(z_i)
+    # (thermo.domains.grid; the flow term itself is checked against the annulus there)
+    path = _holed_mask_run(tmp_path / "holed.h5", [1, 1, 2, 2])
+    series = RunSeries.read(path)
+    vd, gas = series.gas([0, 1])
+    assert vd.domain.kind == "grid" and vd.domain.hole_circulation == (1,)
+    assert all(len(g.signs) == 2 for g in gas.values())
+    with pytest.raises(VorthermError, match=r"holed.h5: the circulation on the grid's hole "
+                       r"changes .*frame 0 \(t = 0 hbar/mu\): 1, frame 2 \(t = 4 hbar/mu\): 2"):
+        series.gas([0, 1, 2])
+    res = temperature_of_run(path, window=(4.0, 6.0), systematics=False,
+                             cache_dir=tmp_path / "dos")
+    assert res["hole_windings"] == [1, 2]
+    g = gas[0]
+    omega = vd.domain.harmonic_measure(g.positions)[0]
+    flow = 4 * np.pi / vd.domain.capacity[0, 0] * np.sum(g.signs * omega)
+    e = [r["energy_per_vortex"] for r in res["records"]]
+    assert abs(flow) > 0.05
+    assert e[2] - e[0] == pytest.approx(flow / 2, rel=1e-6) and e[1] == e[0] and e[3] == e[2]
+    assert "grid: the gas is at the circulation on its hole (1, 2 quanta)" in \
+        report.text_report(res)

@@ -74,7 +74,7 @@ def test_bad_annulus_geometry_is_refused_by_key(tmp_path):
     with pytest.raises(MeasuredTableError, match=r"inner_radius_um = 0.4 is not larger than the "
                                                  r"core \(core_um = 0.5\)"):
         read_measured(p, shape="annulus", radius_um=40.0, inner_radius_um=0.4, core_um=0.5)
-    with pytest.raises(MeasuredTableError, match="hole_winding = 1 is for an annulus; a disk"):
+    with pytest.raises(MeasuredTableError, match="hole_winding = 1 is for an annulus or an image with holes; a disk has no hole"):
         read_measured(p, radius_um=40.0, shape="disk", hole_winding=1)
     p.with_suffix(".toml").write_text('radius_um = 40.0\ninner_radius_um = 10.0\nhole_winding = 0.5\n')
     with pytest.raises(MeasuredTableError, match="t.toml: hole_winding must be a whole number"):

@@ -9,12 +9,14 @@ vortices onto that domain:
   density vanishes over about one healing length at a hard wall, so the superfluid edge sits
   inside the nominal radius: common practice);
 * a box becomes a ``thermo.domains.box.Box`` with the same aspect ratio, shrunk the same way;
-* a harmonic trap becomes a thermo.domains.grid.GridDomain of its Thomas–Fermi density
-  nu = 1 - V (length unit the Thomas–Fermi radius), its Green's function solved on a grid
-  (gpe.field.traps._numerical): the energy of each vortex follows the local density;
+* a harmonic trap becomes a thermo.domains.grid.GridDomain of the density of its ground state
+  at mu = 1 (relaxed without beams or vortices; length unit the Thomas–Fermi radius), its
+  Green's function solved on a grid (gpe.field.traps._numerical): the energy of each vortex
+  follows the local density;
 * an annulus becomes thermo.domains.annulus.Annulus, shrunk by the wall layer at both walls, at
   the circulation its hole carries in the frames (gpe.run.frames.RunSeries.gas);
-* a mask trap becomes a uniform GridDomain of its allowed region shrunk by the wall layer.
+* a mask trap becomes a uniform GridDomain of its allowed region shrunk by the wall layer, whose
+  holes (if the mask has any) carry the circulation of the frames, as the annulus's.
 
 Vortices in the wall layer or closer to each other than two core radii (a pair about to
 annihilate) cannot be placed in the hard-core ensemble; they are left out by the one rule of

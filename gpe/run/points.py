@@ -51,11 +51,15 @@ def handoff_domain(protocol) -> VortexDomain:
     """
     try:
         vd = domain_for_trap(protocol.trap, CORE_RADIUS_XI, WALL_LAYER_XI)
+        if vd.domain.hole_circulation:    # the holes' flow is not in the point dynamics
+            raise DomainError("its fluid has a hole, whose circulation the point-vortex "
+                              "dynamics does not carry")
         vd.domain.gradient_kernels()      # a domain the thermometry has but dynamics lacks
     except (VorthermError, DomainError) as err:  # the shape's own refusal, re-worded for the key
         raise SimulationError(f"{protocol.source_name}: [evolution] points_until: the "
                               f"{protocol.trap.shape} trap cannot hand off to point vortices "
-                              f"({err}); accepted: a disk, box, harmonic or mask trap, or leave points_until "
+                              f"({err}); accepted: a disk, box, harmonic or mask trap without holes, or "
+                              "leave points_until "
                               "out") from err
     return vd
 

@@ -741,6 +741,15 @@ class GridDomain(Domain):
         """The holes' capacity matrix P (K, K); see the class text. Dimensionless."""
         return self._capacity.copy()
 
+    def local_density(self, pos) -> np.ndarray:
+        """The relative density nu at ``pos`` (..., 2), bilinear on the fine nodes (as the
+        kernels read it). Dimensionless."""
+        p = as_points(pos, "pos")
+        ny, nx = self._mask.shape
+        off = _HEADER
+        nu = self._params[off:off + nx * ny].reshape(ny, nx)
+        return np.maximum(self._fine_bilinear(nu, p.reshape(-1, 2)), 0.0).reshape(p.shape[:-1])
+
     def harmonic_measure(self, pos) -> np.ndarray:
         """omega_k at ``pos`` (..., 2), bilinear on the fine nodes: shape (K, ...).
         Dimensionless."""

@@ -16,7 +16,8 @@ import numpy as np
 
 from gpe.field.grid import Grid
 from gpe.field.traps.base import WALL_HEIGHT_KEY, Trap, TrapSection, VortexDomain
-from gpe.field.traps._numerical import DENSITY_CUT, domain_grid, grid_vortex_domain
+from gpe.field.traps._numerical import (DENSITY_CUT, domain_grid, grid_vortex_domain,
+                                        ground_state_density)
 
 _RATE_KEY = {"kind": "float", "dim": "rate", "check": "positive"}
 #: Vortices are reported where V < 0.9 mu: the edge of the cloud, where the density fades, is left out.
@@ -134,9 +135,10 @@ class HarmonicTrap(Trap):
         return v_static < _DETECTION_LEVEL
 
     def vortex_domain(self, core_radius_xi: float, wall_layer_xi: float) -> VortexDomain:
-        """The Thomas-Fermi fluid nu = 1 - V on a grid, its Green's function solved numerically
-        (gpe.field.traps._numerical); the length unit is ``R = sqrt(2) / omega``, omega the
-        geometric mean. There is no hard wall, so ``wall_layer_xi`` is not used.
+        """The fluid of the trap's ground state (relaxed at mu = 1, no beams) on a grid, its
+        Green's function solved numerically (gpe.field.traps._numerical); the length unit is
+        ``R = sqrt(2) / omega``, omega the geometric mean. There is no hard wall, so
+        ``wall_layer_xi`` is not used.
 
         Units
         -----
@@ -144,6 +146,6 @@ class HarmonicTrap(Trap):
         """
         a, b = self.semi_axes()
         grid = domain_grid(2.0 * a, 2.0 * b)
-        nu = 1.0 - self.potential(grid)
+        nu = ground_state_density(grid, self.potential(grid))
         r_tf = math.sqrt(2.0 / (self.omega_x * self.omega_y))
         return grid_vortex_domain(self.shape, grid, nu > DENSITY_CUT, nu, r_tf, core_radius_xi)

@@ -148,6 +148,17 @@ def test_a_trap_without_a_point_vortex_domain_fails_before_any_file(tmp_path):
     with pytest.raises(SimulationError, match=r"\[evolution\] points_until: the annulus trap"):
         pipeline.simulate(_protocol(text), tmp_path / "a.h5")
     assert not list(tmp_path.iterdir())
+    # a mask with a hole: its grid domain carries the hole's circulation, the dynamics does not
+    c = (np.arange(81) - 40) * 0.5
+    r = np.hypot(*np.meshgrid(c, c))
+    np.save(tmp_path / "ring.npy", ((r <= 20.0) & (r >= 5.0)).astype(float))
+    text = TINY_POINTS.replace('shape = "disk"\nradius_xi = 20.0',
+                               'shape = "mask"\nfile = "ring.npy"\npixel_size_xi = 0.5')
+    with pytest.raises(SimulationError, match=r"points_until: the mask trap cannot hand off.*"
+                                              r"has a hole"):
+        pipeline.simulate(parse_protocol(text, source="ring.toml", base_dir=tmp_path),
+                          tmp_path / "r.h5")
+    assert not (tmp_path / "r.h5").exists()
 
 
 def _three_vortices(duration, interval, points=""):

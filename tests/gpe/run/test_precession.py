@@ -48,8 +48,8 @@ def test_a_vortex_in_a_harmonic_trap_precesses_at_the_point_vortex_rate(tmp_path
     Omega = -(dE_self/du) / (2 u nu(u) R^2) in healing units (E in E0 = rho kappa^2/(4 pi),
     u = r/R; for the uniform disk this is hbar/(m (R^2 - r^2)), the image-vortex result of
     Saffman, Vortex Dynamics (1992)). The GPE vortex's angular velocity (a straight-line fit of
-    its unwrapped angle over 200 hbar/mu) agrees within 5% at 0.3 R and 0.45 R (measured 0.8%
-    and 0.5% on this 0.75 xi grid, the rate from thermo.dynamics, whose dE_self/du is a central
+    its unwrapped angle over 200 hbar/mu) agrees within 5% at 0.3 R and 0.45 R (measured 0.3%
+    and 0.2% on this 0.75 xi grid, the domain's density the trap's relaxed ground state; the rate from thermo.dynamics, whose dE_self/du is a central
     difference over one cell of the Green's function's table; tolerance: the ~5% the project's reference
     values give for this check). The rate also follows the trap's 1/(1 - r^2/R^2) law (tested
     on the domain in test_thermometry.py)."""

@@ -204,7 +204,8 @@ class RunSeries:
             changes = [f"frame {f} (t = {self.times[f]:.4g} hbar/mu): {quanta(windings[f])}"
                        for i, f in enumerate(order) if i == 0 or windings[f] != windings[order[i - 1]]]
             raise VorthermError(
-                f"{Path(self.path).name}: the circulation on the {vd.domain.kind}'s hole changes within "
+                f"{Path(self.path).name}: the circulation on the {vd.domain.kind}'s hole "
+                "changes within "
                 f"the ensemble's frames ({', '.join(changes)} quanta from there on); the gas is "
                 "at one circulation: choose a window of frames where it is constant "
                 "(--window-ms / --time-ms)")

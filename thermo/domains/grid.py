@@ -355,10 +355,8 @@ def hole_labels(mask: np.ndarray) -> np.ndarray:
     outer = np.unique(np.concatenate([dry[0], dry[-1], dry[:, 0], dry[:, -1]]))
     enclosed = ~mask & ~np.isin(dry, outer)
     out = np.zeros(mask.shape, dtype=np.int64)
-    first = {}
-    for lab in dry[enclosed]:          # raster order: first appearance numbers the holes
-        first.setdefault(int(lab), len(first) + 1)
-    for lab, k in first.items():
+    labs, first = np.unique(dry[enclosed], return_index=True)   # dry[enclosed]: raster order
+    for k, lab in enumerate(labs[np.argsort(first)], start=1):
         out[dry == lab] = k
     return out
 

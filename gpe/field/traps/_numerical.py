@@ -62,6 +62,9 @@ ENERGY_CORE_XI = 1.0 / (1.464 * math.sqrt(2.0))
 #: the ground-state density is rounded to this many decimals: its digest keys the Green's
 #: function's cache, which must not follow the last bits of an FFT
 DENSITY_DECIMALS = 9
+#: ground-state densities kept per process (a sweep over trap frequencies relaxes each trap
+#: once; the oldest is dropped beyond this many, ~80 kB each)
+KEPT_DENSITIES = 32
 _GROUND_DENSITIES: dict = {}
 
 
@@ -69,7 +72,8 @@ def ground_state_density(grid: Grid, potential: np.ndarray) -> np.ndarray:
     """|psi|^2 of the ground state in ``potential`` at mu = 1 (g = 1, so the Thomas-Fermi
     density is 1 - V), by imaginary time (:func:`gpe.field.ground_state.find_ground_state`,
     fixed chemical potential, dt = 0.05 hbar/mu, relative tolerance 1e-9), rounded to
-    ``DENSITY_DECIMALS`` decimals; kept for the process (a few hundred ms at 80 nodes).
+    ``DENSITY_DECIMALS`` decimals; the last ``KEPT_DENSITIES`` are kept for the process (a
+    relaxation takes a few hundred ms at 80 nodes).
 
     Units: V in mu, lengths in xi, density in n0.
     """
@@ -81,6 +85,8 @@ def ground_state_density(grid: Grid, potential: np.ndarray) -> np.ndarray:
         if not gs.converged:
             raise VorthermError(f"thermometry: the trap's ground state on the {grid.nx} x "
                                 f"{grid.ny} domain grid did not converge in {gs.steps} steps")
+        while len(_GROUND_DENSITIES) >= KEPT_DENSITIES:
+            _GROUND_DENSITIES.pop(next(iter(_GROUND_DENSITIES)))
         _GROUND_DENSITIES[key] = np.round(np.abs(gs.psi) ** 2, DENSITY_DECIMALS)
     return _GROUND_DENSITIES[key].copy()
 

@@ -83,10 +83,10 @@ def impulse_kernel(conf, signs):
                  types.float64[:, ::1], types.float64[:, ::1], _I, _I, _V, _V,
                  types.float64[:, :, ::1], types.int64[::1], _V), cache=True)
 def exchange_kernel(pos, energies, impulses, signs, betas, omegas, steps, max_step, self_fn,
-                     pair_fn, wall_fn, move_fn, params, keeps_ledger, core, sweep_start, sweep_stop, burn_in,
-                     thin, adapt_every, target, out_e, out_m, out_pos, move_acc, move_att,
-                     pairs, swap_acc, swap_att, seed, pos_stride, block_acc, block_att,
-                     ledgers, slots, work):
+                     pair_fn, wall_fn, move_fn, params, keeps_ledger, core, sweep_start,
+                     sweep_stop, burn_in, thin, adapt_every, target, out_e, out_m, out_pos,
+                     move_acc, move_att, pairs, swap_acc, swap_att, seed, pos_stride, block_acc,
+                     block_att, ledgers, slots, work):
     # the one Metropolis and replica-exchange loop of the project: states k at (beta_k,
     # omega_k) sample exp[-beta (E - omega M)], M = sum s |u|^2 tracked beside E (omega = 0:
     # plain parallel tempering, thermo.sampler.run_tempering); exchanges between the pairs of

@@ -671,6 +671,7 @@ class GridDomain(Domain):
         self._mask, self._h, self._origin = m, h, o
         self._digest, self._lnla = digest, lnla
         self._windings, self._omega, self._capacity = windings, omega, capacity
+        self._holes = holes
         self._nu_in, self._uniform, self._stride, self._cache_dir = nu_in, uniform, stride, cache_dir
 
     @classmethod
@@ -716,9 +717,8 @@ class GridDomain(Domain):
         flat = p.reshape(-1, 2)
         out = np.zeros(flat.shape[0], dtype=np.int64)
         best = np.full(flat.shape[0], float(cut))
-        holes = hole_labels(self._mask)
-        for k in range(1, int(holes.max()) + 1):
-            d = self._fine_bilinear(distance_transform_edt(holes != k) * self._h, flat)
+        for k in range(1, len(self._windings) + 1):
+            d = self._fine_bilinear(distance_transform_edt(self._holes != k) * self._h, flat)
             near = d < best
             out[near], best[near] = k, d[near]
         return out.reshape(p.shape[:-1])

@@ -86,6 +86,10 @@ def register_find(sub) -> None:
     p.add_argument("--pixel-um", type=float, help="pixel size in um (needed for PNG/TIFF)")
     p.add_argument("--core-px", type=float,
                    help="rms width of a core's dip in pixels (default: from the stack)")
+    p.add_argument("--psf-um", type=float, default=None,
+                   help="rms width of the imaging PSF in um (default: from the stack; a picture "
+                        "alone has none): dips shallower than half a vortex core's under these "
+                        "optics are not reported")
     p.add_argument("--min-score", type=float, default=None,
                    help="least score (depletion over noise) of a detection (default 5)")
     p.add_argument("--calibrate", action="store_true",
@@ -123,7 +127,7 @@ def _cmd_find(args) -> int:
     imaging = read_detection_model(args.model) if args.model is not None else None
     stack = read_images(args.images, pixel_um=args.pixel_um)
     score = MIN_SCORE if args.min_score is None else args.min_score
-    found = find_all(stack, core_px=args.core_px, min_score=score)
+    found = find_all(stack, core_px=args.core_px, min_score=score, psf_um=args.psf_um)
     model = None
     if args.calibrate:
         model = calibrate_stack(stack, core_px=args.core_px, min_score=score, found=found)

@@ -115,14 +115,32 @@ def _core_px(stack: ImageStack, core_px: float | None) -> float:
     return float(core)
 
 
+def optics_px(pixel_um: float | None, psf_um: float | None, name: str = "images"
+              ) -> float | None:
+    """rms width of the optics in pixels: the PSF and the pixel's own averaging (a square of
+    side p has variance p^2 / 12 per axis), in quadrature; None when either is unknown."""
+    if pixel_um is None or psf_um is None:
+        return None
+    if not (math.isfinite(psf_um) and psf_um >= 0):
+        raise ImagingError(f"{name}: PSF width {psf_um!r} um; accepted a width >= 0 (rms, per "
+                           "axis)")
+    return math.sqrt(psf_um ** 2 + pixel_um ** 2 / 12.0) / pixel_um
+
+
 def find_all(stack: ImageStack, *, core_px: float | None = None, min_score: float = MIN_SCORE,
-             bragg_axis: str | None = None) -> list[Found]:
-    """The finder on every image of a stack (signs from its velocity images, if any)."""
+             bragg_axis: str | None = None, psf_um: float | None = None) -> list[Found]:
+    """The finder on every image of a stack (signs from its velocity images, if any).
+
+    ``psf_um`` (default: the stack's ``psf_um`` attribute, when it has one) lets the finder
+    test each dip's depth against a vortex core's (gpe.imaging.finder, step 4c). Units: um.
+    """
     core = _core_px(stack, core_px)
     axis = bragg_axis or str(stack.attrs.get("bragg_axis") or "x")
+    psf = psf_um if psf_um is not None else stack.attrs.get("psf_um")
+    optics = optics_px(stack.pixel_um, None if psf is None else float(psf), str(stack.source))
     return [find_cores(stack.density[i], core,
                        bragg=None if stack.bragg is None else stack.bragg[i], bragg_axis=axis,
-                       min_score=min_score, name=f"{stack.source} image {i}")
+                       min_score=min_score, optics_px=optics, name=f"{stack.source} image {i}")
             for i in range(len(stack))]
 
 

@@ -41,6 +41,10 @@ def test_image_then_find_with_calibration_writes_the_table_its_geometry_and_the_
     assert main(["find", str(tmp_path / "s_00002.png"), "--csv", str(tmp_path / "p.csv"),
                  "--pixel-um", "0.4", "--core-px", str(images.core_px)]) == 0
     assert "6 vortices in 1 images" in capsys.readouterr().out
+    # with the optics given, the picture's cores pass the depth test
+    assert main(["find", str(tmp_path / "s_00002.png"), "--csv", str(tmp_path / "o.csv"),
+                 "--pixel-um", "0.4", "--core-px", str(images.core_px), "--psf-um", "0.3"]) == 0
+    assert "6 vortices in 1 images" in capsys.readouterr().out
     # the model measured above, reused for the picture's table
     assert main(["find", str(tmp_path / "s_00002.png"), "--csv", str(tmp_path / "q.csv"),
                  "--pixel-um", "0.4", "--core-px", str(images.core_px),
@@ -65,3 +69,7 @@ def test_wrong_inputs_exit_with_code_2_naming_what_is_wrong(run, tmp_path, capsy
     assert main(["find", str(tmp_path / "nopix.png"), "--pixel-um", "0.4", "--core-px", "2",
                  "--model", str(tmp_path / "bad.json")]) == 2
     assert "bad.json" in capsys.readouterr().err
+    assert main(["find", str(tmp_path / "nopix.png"), "--pixel-um", "0.4", "--core-px", "2",
+                 "--psf-um", "-0.3"]) == 2
+    err = capsys.readouterr().err
+    assert "nopix.png" in err and "PSF width -0.3 um" in err and "accepted" in err

@@ -91,3 +91,43 @@ def test_a_velocity_image_of_another_shape_and_a_zero_core_width_are_refused():
         find_cores(img, 2.0, bragg=np.ones((32, 32)), name="a.h5")
     with pytest.raises(ImagingError, match="core width"):
         find_cores(img, 0.0, name="a.h5")
+
+
+def test_with_the_optics_known_shallow_dips_are_not_taken_for_cores(field):
+    """Sound and density ripples make dips of their own, but no zero of the field. Twelve
+    shallow dips (the density lowered by 30% over a Gaussian of 1.2 xi, no phase winding) are
+    added between the 12 imprinted cores [exact zeros]. A Gaussian dip of full depth and width
+    s seen through optics of width o keeps its area, so in the image a core is
+    1 - o^2/(s^2 + o^2) deep [exact for Gaussians]; with the optics known (PSF and pixel) the
+    finder keeps a dip only if it reaches half of that: every core is kept and no shallow dip.
+    Without the optics the shallow dips are reported as cores, which is what the test removes."""
+    from gpe.imaging.pipeline import optics_px
+
+    grid, psi, pos, signs = field
+    rng = np.random.default_rng(5)
+    ripples = []
+    while len(ripples) < 12:
+        p = rng.uniform(-15.0, 15.0, 2)
+        if np.hypot(*p) < 15.0 and np.all(np.hypot(*(pos - p).T) > 3.5) and all(
+                np.hypot(*(p - q)) > 3.5 for q in ripples):
+            ripples.append(p)
+    dips = np.ones(grid.X.shape)
+    for x0, y0 in ripples:
+        dips *= 1.0 - 0.3 * np.exp(-((grid.X - x0) ** 2 + (grid.Y - y0) ** 2) / (2 * 1.2 ** 2))
+    camera = Camera(pixel_um=0.4, psf_um=0.3, counts_per_n0=400.0, bragg_axis="x")
+    img = render_frame(psi * np.sqrt(dips), grid, UNITS, camera, rng=np.random.default_rng(3))
+    core = expected_core_px(camera, UNITS)
+    tx, ty = img.to_pixels(pos[:, 0], pos[:, 1])
+    rx, ry = img.to_pixels(*np.array(ripples).T)
+
+    def near(found, x, y):
+        d = np.hypot(found.x[:, None] - x[None], found.y[:, None] - y[None])
+        return (d.min(axis=0) < 1.0).sum() if len(found) else 0
+
+    blind = find_cores(img.density, core, bragg=img.bragg)
+    assert near(blind, rx, ry) >= 5
+    seen = find_cores(img.density, core, bragg=img.bragg, optics_px=optics_px(0.4, 0.3))
+    assert near(seen, tx, ty) == len(pos) and near(seen, rx, ry) == 0
+    assert len(seen) == len(pos)
+    with pytest.raises(ImagingError, match="optics width"):
+        find_cores(img.density, core, optics_px=core)

@@ -43,34 +43,46 @@ def stack(run):
 
 def test_the_finder_finds_the_runs_vortices_away_from_the_wall_within_half_a_pixel(run, stack):
     """The run's phase-winding vortices are the truth (the zeros of the field, checked to
-    0.06 xi by Fourier interpolation of the stored field). At 0.4 um pixels and a 0.3 um PSF:
-    of the vortices further than 3 xi from the trap wall at least 95% are found within 0.5
-    pixel, with fewer than 1 false detection per image (thresholds: the issue's, common practice
-    for a finder at good resolution); every sign right. The issue asks this from 2 xi on; with
-    the refit this run gives 86-87 of 90 beyond 2 xi in three renders and another run 82-84 of
-    88 (pooled 95.3%, not with a margin; docs/imaging.md), so beyond 2 xi it is only required
-    to be found within one pixel here."""
-    found = find_all(stack)
+    0.06 xi by Fourier interpolation of the stored field). At 0.4 um pixels and a 0.3 um PSF,
+    pooled over three renders (independent shot noise): of the vortices further than 2 xi from
+    the trap wall at least 95% are found within 0.5 pixel, with fewer than 1 false detection per
+    image (thresholds: the issue's, common practice for a finder at good resolution); every
+    sign right. In the band 2-3 xi from the wall, where a core sits on the cloud's steep edge,
+    at least 85% (a threshold of this test, from the measurement below).
+
+    Measured with the edge-profile envelope and the neighbours divided out in the refit:
+    267/270 beyond 2 xi and 48/51 in the band (before: 257/270 and 38/51, which fails the
+    band). Not every run does as well (docs/imaging.md): over four runs and three renders each,
+    94.7% beyond 2 xi pooled; one run with pairs 1.4-2.9 xi apart and strong sound gives 85-88%."""
+    stacks = [stack]
+    for seed in (2, 3):
+        path = run.with_name(f"good_images_{seed}.h5")
+        render_run(run, path, GOOD, seed=seed)
+        stacks.append(read_images(path))
     with RunFile.open(run) as r:
         xi_um = HealingUnits.from_dict(r.units()).length_m * 1e6
     wall_d, err, signs_ok = [], [], []
-    false = 0
-    for fd, (xy, sg) in zip(found, stack_truth(stack)):
-        i_f, i_t = match_image(fd, xy, stack.core_px)
-        x_um = (xy[:, 0] + 0.5) * GOOD.pixel_um + stack.attrs["x0_um"]
-        y_um = (xy[:, 1] + 0.5) * GOOD.pixel_um + stack.attrs["y0_um"]
-        wall_d.append(20.0 - np.hypot(x_um, y_um) / xi_um)
-        e = np.full(len(xy), np.inf)
-        e[i_t] = np.hypot(fd.x[i_f] - xy[i_t, 0], fd.y[i_f] - xy[i_t, 1])
-        err.append(e)
-        signs_ok.append(fd.sign[i_f] == sg[i_t])
-        false += len(fd) - len(i_f)
+    false = images = 0
+    for st in stacks:
+        found = find_all(st)
+        images += len(found)
+        for fd, (xy, sg) in zip(found, stack_truth(st)):
+            i_f, i_t = match_image(fd, xy, st.core_px)
+            x_um = (xy[:, 0] + 0.5) * GOOD.pixel_um + st.attrs["x0_um"]
+            y_um = (xy[:, 1] + 0.5) * GOOD.pixel_um + st.attrs["y0_um"]
+            wall_d.append(20.0 - np.hypot(x_um, y_um) / xi_um)
+            e = np.full(len(xy), np.inf)
+            e[i_t] = np.hypot(fd.x[i_f] - xy[i_t, 0], fd.y[i_f] - xy[i_t, 1])
+            err.append(e)
+            signs_ok.append(fd.sign[i_f] == sg[i_t])
+            false += len(fd) - len(i_f)
     wall_d, err = np.concatenate(wall_d), np.concatenate(err)
     far4, far3, far2 = wall_d > 4.0, wall_d > 3.0, wall_d > 2.0
-    assert far4.sum() >= 40 and far2.sum() - far3.sum() >= 10   # both bands are populated
-    assert np.mean(err[far3] < 0.5) >= 0.95
-    assert np.mean(err[far2] < 1.0) >= 0.95
-    assert false / len(found) < 1.0
+    band = far2 & ~far3
+    assert far4.sum() >= 120 and band.sum() >= 30   # both bands are populated
+    assert np.mean(err[far2] < 0.5) >= 0.95
+    assert np.mean(err[band] < 0.5) >= 0.85
+    assert false / images < 1.0
     assert np.concatenate(signs_ok).all()
 
 
@@ -164,24 +176,19 @@ def test_bad_requests_are_refused(run, stack, tmp_path):
         calibrate_stack(dataclasses.replace(stack, truth=None))
 
 
-@pytest.mark.slow
-def test_round_trip_run_images_table_temperature_gives_the_runs_own_beta(tmp_path):
-    """Simulated run (8 vortices, 6 frames: the thermometry through an imaging model builds its
-    densities of states at standard effort, ~4 s per vortex-number group) -> rendered images ->
-    finder -> measured table with the detection model measured on the same stack ->
-    temperature. The run's own beta~N (gpe.run.thermometry on its phase-winding vortices) lies
-    inside the table's combined interval: its 95% statistical interval widened, in quadrature,
-    by the imaging systematic (the shift of beta~N between the table fitted through its
-    measured imaging model and fitted as if imaging were perfect)."""
+def _round_trip(run, tmp_path, stem: str):
+    """Run -> images (GOOD camera) -> finder -> table with the detection model measured on the
+    same stack -> temperature. Returns the run's own ensemble, the table's ensemble and the
+    table's combined interval: its 95% statistical interval widened, in quadrature, by the
+    imaging systematic (the shift of beta~N between the table fitted through its measured
+    imaging model and fitted as if imaging were perfect)."""
     from gpe.run.thermometry import temperature_of_run, temperature_of_table
 
-    run = simulate_imprint_run(tmp_path, n=8, placement_radius=16.0, min_sep=4.0,
-                               duration=10.0)
-    images = tmp_path / "rt_images.h5"
+    images = tmp_path / f"{stem}_images.h5"
     render_run(run, images, GOOD, seed=1)
     stack = read_images(images)
     model = calibrate_stack(stack)
-    csv, _ = find_stack(stack, tmp_path / "rt.csv", model=model)
+    csv, _ = find_stack(stack, tmp_path / f"{stem}.csv", model=model)
     own = temperature_of_run(run, per_frame=False, systematics=False)["ensemble"]
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")              # the reader's notes on left-out rows
@@ -192,10 +199,58 @@ def test_round_trip_run_images_table_temperature_gives_the_runs_own_beta(tmp_pat
     b = measured["beta_n"]
     lo, hi = measured["beta_n_ci95"]
     shift = abs(b - perfect["beta_n"])
-    low, high = b - math.hypot(b - lo, shift), b + math.hypot(hi - b, shift)
+    low = -math.inf if not math.isfinite(lo) else b - math.hypot(b - lo, shift)
+    high = math.inf if not math.isfinite(hi) else b + math.hypot(hi - b, shift)
     print(f"run beta~N {own['beta_n']:.3f}; table {b:.3f}, combined [{low:.3f}, {high:.3f}]")
-    assert measured["n_shots"] == len(stack)
+    return own, measured, (low, high), len(stack)
+
+
+@pytest.mark.slow
+def test_round_trip_run_images_table_temperature_gives_the_runs_own_beta(tmp_path):
+    """Simulated run (8 vortices, 6 frames: the thermometry through an imaging model builds its
+    densities of states at standard effort, ~4 s per vortex-number group) -> rendered images ->
+    finder -> measured table -> temperature (_round_trip). The run's own beta~N
+    (gpe.run.thermometry on its phase-winding vortices) lies inside the table's combined
+    interval."""
+    run = simulate_imprint_run(tmp_path, n=8, placement_radius=16.0, min_sep=4.0,
+                               duration=10.0)
+    own, measured, (low, high), n_images = _round_trip(run, tmp_path, "rt")
+    assert measured["n_shots"] == n_images
     # the finder's table holds the run's 4 + 4 in most shots (a false pair may add a group)
     groups = {(g["n_plus"], g["n_minus"]): g["shots"] for g in measured["groups"]}
-    assert groups.get((4, 4), 0) >= len(stack) - 1
+    assert groups.get((4, 4), 0) >= n_images - 1
+    assert low <= own["beta_n"] <= high
+
+
+@pytest.mark.slow
+def test_round_trip_of_two_like_sign_clusters_keeps_the_runs_negative_beta(tmp_path):
+    """The regime that matters for negative temperatures: 6 + 6 vortices imprinted as two
+    like-sign clusters (Gaussian spread 2.8 xi about (-8, 0) and (8, 0) xi, at least 3 xi
+    apart), relaxed and moving for 20 hbar/mu (11 frames), then _round_trip. The run's own
+    beta~N is negative and lies inside the table's combined interval; the table's is negative
+    too. Measured on three such configurations (imprint seeds 4, 5, 6; this test is seed 4):
+    run -3.71 / table -3.85 (-4.43 .. -3.32); run -3.88 / table a bound < -3.74; run -4.03 /
+    table -4.05 (-4.58 .. -3.57), every one inside. Before the finder's depth test and
+    edge-profile refit seed 5 fell outside (a bound < -4.26 against -3.88), with 1.2 false
+    detections per image against 0.09-0.36 now; seed 4 was inside then too (-3.87)."""
+    from gpe.run.simulate import simulate
+    from gpe.setup.protocol import parse_protocol
+    from imprint_run import imprinted_disk_text
+
+    rng = np.random.default_rng(4)
+    pos, signs = [], []
+    for cx, s in ((-8.0, 1), (8.0, -1)):
+        k = 0
+        while k < 6:
+            p = np.array([cx, 0.0]) + rng.normal(0.0, 2.8, 2)
+            if np.hypot(*p) < 16.0 and all(np.hypot(*(p - q)) > 3.0 for q in pos):
+                pos.append(p)
+                signs.append(s)
+                k += 1
+    text = imprinted_disk_text(pos, signs, name="clusters", duration=20.0, output_interval=2.0)
+    run = simulate(parse_protocol(text, source=str(tmp_path / "clusters.toml")),
+                   tmp_path / "clusters.h5")
+    own, measured, (low, high), n_images = _round_trip(run, tmp_path, "clusters")
+    assert measured["n_shots"] == n_images
+    assert own["beta_n"] < 0 and measured["beta_n"] < 0
     assert low <= own["beta_n"] <= high

@@ -32,16 +32,16 @@ or read from a file by gpe.imaging.files), in pixels:
    depend on the exact shape of its profile, so a Gaussian stands in for the core profile
    convolved with the optics. Fits that leave the window or give a width outside [0.3, 3]
    core widths keep the candidate's pixel position and are flagged.
-   **Refit**: the envelope is then estimated again from the image with the fitted dips
+   **Refit** (4b): the envelope is then estimated again from the image with the fitted dips
    divided out (no closing), as the cloud's edge profile times a slow modulation
    (:func:`profile_envelope`: the profile is the median across the whole edge at each level of
    the smoothed envelope, so a core on the steep edge does not leave its own residual in it),
    and every dip is fitted again from its first position with the *other* dips divided out of
-   its window. Measured on rendered frames of four simulated runs (three renders each; the
-   window's earlier refit smoothed the cleaned image locally and fitted each dip alone):
-   beyond 2 xi from the wall 94.7% of the vortices are found within half a pixel (91.2%
-   before), and 2-3 xi from the wall 89% (76% before) (docs/imaging.md).
-   **Depth** (when the optics are known, ``optics_px``): a vortex core is a zero of the
+   its window. Measured on rendered frames of four simulated runs (three renders each; before,
+   the refit smoothed the cleaned image locally and fitted each dip alone): beyond 2 xi from
+   the wall 94.7% of the vortices are found within half a pixel (91.2% before), and 2-3 xi
+   from the wall 89% (76% before) (docs/imaging.md).
+   **Depth** (4c, when the optics are known, ``optics_px``): a vortex core is a zero of the
    field, and a zero stays a zero in free expansion, so in the image its dip has the depth
    that the optics leave of a full one: for a Gaussian core of rms width s seen through
    optics of rms width o, 1 - o^2 / (s^2 + o^2) = 1 - (optics_px / core_px)^2 (the blurred
@@ -50,12 +50,12 @@ or read from a file by gpe.imaging.files), in pixels:
    dropped. On rendered frames of a stirred run (the demo, 41 frames after the beams are off,
    0.4 um pixels, 0.3 um PSF) the matched vortices' fitted depths are 0.68 or more and the
    unmatched detections' median is 0.14 (sound): false detections per image fall from 21.2 to
-   1.2, and 3 of 868 found vortices (unfitted) are lost (docs/imaging.md).
+   1.15, and the vortices found from 868 to 866 of 897 (docs/imaging.md).
 5. **Signs** from a velocity-selective image when one is given (gpe.imaging.render's channel):
    the selected fraction b = bragg/envelope minus its local mean is weighed with (y - y0)
-   (axis x) or (x - x0) (axis y) over a ring from 1 to 2.5 core widths around the core; the flow along x of a vortex of
-   circulation s is -s (y - y0)/r^2, so the sign is minus the sign of the first sum (plus for
-   the second). Without a velocity image the signs are 0: unknown.
+   (axis x) or (x - x0) (axis y) over a ring from 1 to 2.5 core widths around the core; the
+   flow along x of a vortex of circulation s is -s (y - y0)/r^2, so the sign is minus the
+   sign of the first sum (plus for the second). Without a velocity image the signs are 0: unknown.
 
 Pixel coordinates: (column, row) of the array, centres at integers; a positive vortex turns
 counter-clockwise in these coordinates (row index growing upwards).

@@ -7,7 +7,9 @@ assignment, links up to ``match_px`` long) and measures
 
 * the **detection efficiency** against the distance to the wall (the fluid boundary the finder
   reports) and against the distance to the nearest other vortex (pair separation), each in
-  bins with its binomial standard error;
+  bins with its binomial standard error; the separation curve also split by the sign of that
+  nearest vortex (like or opposite), since imaging treats the two kinds of close pair
+  differently (a like pair's dips merge into one, an opposite pair's flows cancel);
 * the **position error** (rms per coordinate of the matched pairs);
 * the **false positives** per image (detections matched to no true vortex);
 * the **sign-error rate** among matched detections with a known sign.
@@ -53,6 +55,10 @@ class DetectionModel:
     sep_efficiency: tuple
     sep_error: tuple
     sep_counts: tuple
+    like_sep_efficiency: tuple
+    like_sep_counts: tuple
+    opposite_sep_efficiency: tuple
+    opposite_sep_counts: tuple
     blur_um: float
     sign_error: float
     false_per_image: float
@@ -128,13 +134,18 @@ def _binned(values, hit, edges):
     return tuple(eff), tuple(err), tuple(cnt)
 
 
-def nearest_other(xy: np.ndarray) -> np.ndarray:
-    """Distance from each point to the nearest other point of the same image (inf if alone)."""
+def nearest_other(xy: np.ndarray, signs=None):
+    """Distance from each point to the nearest other point of the same image (inf if alone);
+    with ``signs``, also whether that nearest point has the same sign (False if alone)."""
     if len(xy) < 2:
-        return np.full(len(xy), np.inf)
+        far = np.full(len(xy), np.inf)
+        return far if signs is None else (far, np.zeros(len(xy), bool))
     d = np.hypot(xy[:, None, 0] - xy[None, :, 0], xy[:, None, 1] - xy[None, :, 1])
     np.fill_diagonal(d, np.inf)
-    return d.min(axis=1)
+    if signs is None:
+        return d.min(axis=1)
+    signs = np.asarray(signs)
+    return d.min(axis=1), signs[d.argmin(axis=1)] == signs
 
 
 def match_image(found: Found, true_xy: np.ndarray, match_px: float):
@@ -165,7 +176,7 @@ def calibrate(found: list[Found], truth: list[tuple[np.ndarray, np.ndarray]], pi
                             else np.arange(0.0, 8.01, 1.0))
     sep_edges = np.asarray(sep_edges_um if sep_edges_um is not None
                            else np.arange(0.0, 8.01, 1.0))
-    wall, sep, hit, err, sign_ok, sign_known = [], [], [], [], [], []
+    wall, sep, like, hit, err, sign_ok, sign_known = [], [], [], [], [], [], []
     false = 0
     for fd, (xy, sg) in zip(found, truth):
         xy = np.asarray(xy, dtype=float).reshape(-1, 2)
@@ -175,7 +186,9 @@ def calibrate(found: list[Found], truth: list[tuple[np.ndarray, np.ndarray]], pi
         h[i_t] = True
         cx, cy = fd.boundary.center_px
         wall.append((fd.boundary.radius_px - np.hypot(xy[:, 0] - cx, xy[:, 1] - cy)) * pixel_um)
-        sep.append(nearest_other(xy) * pixel_um)
+        d_near, like_near = nearest_other(xy, sg)
+        sep.append(d_near * pixel_um)
+        like.append(like_near)
         hit.append(h)
         false += len(fd) - len(i_f)
         err.append(np.column_stack([fd.x[i_f] - xy[i_t, 0], fd.y[i_f] - xy[i_t, 1]]))
@@ -188,11 +201,15 @@ def calibrate(found: list[Found], truth: list[tuple[np.ndarray, np.ndarray]], pi
     sign_rate = (float(1.0 - np.concatenate(sign_ok).mean()) if n_known else float("nan"))
     w_eff, w_err, w_cnt = _binned(wall_a, hit_a, wall_edges)
     s_eff, s_err, s_cnt = _binned(sep_a, hit_a, sep_edges)
+    like_a = np.concatenate(like)
+    l_eff, _, l_cnt = _binned(sep_a[like_a], hit_a[like_a], sep_edges)
+    o_eff, _, o_cnt = _binned(sep_a[~like_a], hit_a[~like_a], sep_edges)
     blur = float(np.sqrt(np.mean(err_a ** 2))) if len(err_a) else float("nan")
     return DetectionModel(
         pixel_um=float(pixel_um), wall_edges_um=tuple(map(float, wall_edges)),
         wall_efficiency=w_eff, wall_error=w_err, wall_counts=w_cnt,
         sep_edges_um=tuple(map(float, sep_edges)), sep_efficiency=s_eff, sep_error=s_err,
-        sep_counts=s_cnt, blur_um=blur, sign_error=sign_rate,
+        sep_counts=s_cnt, like_sep_efficiency=l_eff, like_sep_counts=l_cnt,
+        opposite_sep_efficiency=o_eff, opposite_sep_counts=o_cnt, blur_um=blur, sign_error=sign_rate,
         false_per_image=false / len(found), n_true=int(hit_a.size),
         n_matched=int(hit_a.sum()), n_images=len(found))

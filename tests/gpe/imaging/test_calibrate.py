@@ -126,3 +126,36 @@ def test_efficiency_falls_with_resolution_and_a_second_render_agrees_with_the_ca
             assert close < rest - 0.2, (close, rest)
     assert overall[0] > overall[1] > overall[2]
     assert overall[0] - overall[2] > 0.3
+
+
+def test_close_pairs_are_measured_apart_by_the_sign_of_the_neighbour():
+    """Detections by a known rule: pairs 2.4 px (1.2 um) apart, like-sign pairs both seen,
+    opposite-sign pairs both missed, isolated vortices seen. [exact, as constructed] The pair
+    separation's like-sign curve is 1 and its opposite-sign curve 0 in the 1-2 um bin, the
+    pooled curve 1/2 there, and every count adds up."""
+    boundary = Boundary(center_px=(50.0, 50.0), radius_px=45.0, bulk=1.0)
+    found, truth = [], []
+    for k in range(10):
+        xy, sg, seen = [], [], []
+        for j, (cx, cy) in enumerate([(30, 30), (70, 30), (30, 70), (70, 70)]):
+            a = 0.3 * k + j
+            off = 1.2 * np.array([np.cos(a), np.sin(a)])
+            s2 = 1 if j % 2 == 0 else -1              # pairs 0, 2 like; 1, 3 opposite
+            xy += [np.array([cx, cy]) + off, np.array([cx, cy]) - off]
+            sg += [1, s2]
+            seen += [s2 == 1, s2 == 1]
+        xy += [np.array([50.0, 50.0])]
+        sg += [-1]
+        seen += [True]
+        xy, sg, seen = np.array(xy), np.array(sg), np.array(seen)
+        det = xy[seen]
+        found.append(Found(x=det[:, 0], y=det[:, 1], sign=sg[seen].astype(np.int8),
+                           score=np.ones(len(det)), depth=np.ones(len(det)),
+                           width=np.ones(len(det)), fitted=np.ones(len(det), bool),
+                           boundary=boundary))
+        truth.append((xy, sg))
+    model = calibrate(found, truth, pixel_um=0.5, match_px=1.0)
+    assert model.like_sep_efficiency[1] == 1.0 and model.like_sep_counts[1] == 40
+    assert model.opposite_sep_efficiency[1] == 0.0 and model.opposite_sep_counts[1] == 40
+    assert model.sep_efficiency[1] == 0.5
+    assert sum(model.like_sep_counts) + sum(model.opposite_sep_counts) == model.n_true - 10

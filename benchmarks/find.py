@@ -3,8 +3,8 @@
 The image is rendered (gpe.imaging.render: 0.3 um PSF, pixels of the simulation grid's size,
 400 counts per pixel at the bulk density, shot noise, a velocity-selective channel) from a disk
 of fluid with 100 imprinted cores. Prints the time of one find_cores call (median of repeats),
-on the density alone and with the velocity image and the optics (step 4c's depth test), the ratio to one 512^2 FFT of the image, and how many of
-the cores were found.
+on the density alone and with the velocity image and the optics (step 4c's depth test), the
+ratio to one 512^2 FFT of the image, and how many of the cores were found.
 """
 
 import sys

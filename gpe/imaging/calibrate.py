@@ -210,6 +210,7 @@ def calibrate(found: list[Found], truth: list[tuple[np.ndarray, np.ndarray]], pi
         wall_efficiency=w_eff, wall_error=w_err, wall_counts=w_cnt,
         sep_edges_um=tuple(map(float, sep_edges)), sep_efficiency=s_eff, sep_error=s_err,
         sep_counts=s_cnt, like_sep_efficiency=l_eff, like_sep_counts=l_cnt,
-        opposite_sep_efficiency=o_eff, opposite_sep_counts=o_cnt, blur_um=blur, sign_error=sign_rate,
+        opposite_sep_efficiency=o_eff, opposite_sep_counts=o_cnt, blur_um=blur,
+        sign_error=sign_rate,
         false_per_image=false / len(found), n_true=int(hit_a.size),
         n_matched=int(hit_a.sum()), n_images=len(found))

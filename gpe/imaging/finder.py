@@ -392,9 +392,9 @@ def find_cores(image, core_px: float, *, bragg=None, bragg_axis: str = "x",
                                f"{img.shape}; accepted two images of the same shape")
     if bragg_axis not in ("x", "y"):
         raise ImagingError(f"bragg_axis = {bragg_axis!r}; accepted 'x' or 'y'")
-    if optics_px is not None and not (math.isfinite(optics_px) and 0 <= optics_px < core_px):
-        raise ImagingError(f"{name}: optics width {optics_px!r} pixels with a core width of "
-                           f"{core_px:g}; accepted 0 <= optics width < core width")
+    if optics_px is not None and not (math.isfinite(optics_px) and optics_px >= 0):
+        raise ImagingError(f"{name}: optics width {optics_px!r} pixels; accepted a width >= 0 "
+                           "(or none: no depth test)")
     env = envelope(img, core_px)
     boundary, mask = fluid_boundary(env)
     dep = np.where(env > DEPLETION_FLOOR * boundary.bulk, 1.0 - img / np.maximum(env, 1e-300), 0.0)
@@ -450,7 +450,7 @@ def find_cores(image, core_px: float, *, bragg=None, bragg_axis: str = "x",
         # step 4c: a vortex core is a zero of the field, so its dip is as deep as the optics
         # let it be; sound and density ripples make shallower ones (and dips that cannot be
         # fitted show no depth at all)
-        keep = ok & (depth >= CORE_DEPTH_SHARE * (1.0 - (optics_px / core_px) ** 2))
+        keep = ok & (depth >= CORE_DEPTH_SHARE * max(0.0, 1.0 - (optics_px / core_px) ** 2))
         x, y, score, depth, width, ok = (v[keep] for v in (x, y, score, depth, width, ok))
     sign = (np.zeros(x.size, np.int8) if bragg is None
             else _signs(bragg, env, x, y, bragg_axis, core_px))

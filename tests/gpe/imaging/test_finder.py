@@ -130,4 +130,4 @@ def test_with_the_optics_known_shallow_dips_are_not_taken_for_cores(field):
     assert near(seen, tx, ty) == len(pos) and near(seen, rx, ry) == 0
     assert len(seen) == len(pos)
     with pytest.raises(ImagingError, match="optics width"):
-        find_cores(img.density, core, optics_px=core)
+        find_cores(img.density, core, optics_px=-0.5, name="ripples.png")

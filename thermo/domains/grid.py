@@ -57,6 +57,7 @@ Units: positions in L; energies in E0 = rho kappa^2 / (4 pi).
 
 from __future__ import annotations
 
+import copy
 import hashlib
 import math
 import os
@@ -319,7 +320,6 @@ def _check_inputs(mask, density, spacing, origin, hole_windings=None):
                           "grid (pad it with at least one row/column of dry nodes)")
     holes = hole_labels(m)
     n_holes = int(holes.max())
-    windings = () if hole_windings is None else tuple(hole_windings)
     if n_holes and hole_windings is None:
         at = np.argwhere(holes > 0)[0]
         raise DomainError(f"mask has a hole: {int((holes > 0).sum())} dry node(s) enclosed by "
@@ -327,11 +327,7 @@ def _check_inputs(mask, density, spacing, origin, hole_windings=None):
                           "around a hole is a quantum number of the gas: give hole_windings, "
                           f"{n_holes} whole number(s) of quanta (holes in the order of their "
                           "first node, row by row), or fill a stray dry pixel")
-    if len(windings) != n_holes or any(isinstance(w, (bool, np.bool_))
-                                       or not isinstance(w, (int, np.integer)) for w in windings):
-        raise DomainError(f"hole_windings = {hole_windings!r}: the mask has {n_holes} hole(s); "
-                          f"accepted: {n_holes} whole number(s) of circulation quanta"
-                          + (" (or None)" if n_holes == 0 else ""))
+    windings = _check_windings(hole_windings, n_holes)
     inside = nu[m]
     if not np.all(np.isfinite(inside)) or np.any(inside <= 0):
         bad = np.argwhere(m & ~(np.isfinite(nu) & (nu > 0)))[0]
@@ -344,7 +340,18 @@ def _check_inputs(mask, density, spacing, origin, hole_windings=None):
     o = np.asarray(origin, dtype=np.float64).reshape(-1)
     if o.shape != (2,) or not np.all(np.isfinite(o)):
         raise DomainError(f"origin must be two finite numbers (x, y) of node (0, 0); got {origin!r}")
-    return m, nu, h, o, holes, tuple(int(w) for w in windings)
+    return m, nu, h, o, holes, windings
+
+
+def _check_windings(hole_windings, n_holes: int) -> tuple[int, ...]:
+    """``hole_windings`` as a tuple of ints, one per hole (None: no holes), or a DomainError."""
+    windings = () if hole_windings is None else tuple(hole_windings)
+    if len(windings) != n_holes or any(isinstance(w, (bool, np.bool_))
+                                       or not isinstance(w, (int, np.integer)) for w in windings):
+        raise DomainError(f"hole_windings = {hole_windings!r}: the mask has {n_holes} hole(s); "
+                          f"accepted: {n_holes} whole number(s) of circulation quanta"
+                          + (" (or None)" if n_holes == 0 else ""))
+    return tuple(int(w) for w in windings)
 
 
 def hole_labels(mask: np.ndarray) -> np.ndarray:
@@ -656,23 +663,29 @@ class GridDomain(Domain):
         header[_OFF_TAB] = _HEADER + 3 * nx * ny
         header[_UNIFORM] = 1.0 if uniform else 0.0
         header[_INV_HF], header[_INV_HC] = 1.0 / h, 1.0 / (h * stride)
-        # the vortex's energy in the holes' flow, 4 pi n^T P^-1 omega(z) (none if all n = 0)
-        flow, packed = np.zeros((0,)), _packed32(table)
-        if any(windings):
-            coef = np.linalg.solve(capacity, np.asarray(windings, dtype=np.float64))
-            flow = 4.0 * np.pi * np.tensordot(coef, omega, axes=1).ravel()
-            header[_OFF_FLOW] = _HEADER + 3 * nx * ny + packed.size
-        self._params = np.ascontiguousarray(np.concatenate(
+        base = np.ascontiguousarray(np.concatenate(
             [header, _extend(m, nu_in).ravel(), wall.ravel(), np.zeros(nx * ny),
-             packed, flow]))
+             _packed32(table)]))
         # the self energy at the fine nodes, read by bilinear interpolation away from the wall
-        self._params[_HEADER + 2 * nx * ny: _HEADER + 3 * nx * ny] = _self_field(
-            self._params, m)
+        base[_HEADER + 2 * nx * ny: _HEADER + 3 * nx * ny] = _self_field(base, m)
         self._mask, self._h, self._origin = m, h, o
         self._digest, self._lnla = digest, lnla
-        self._windings, self._omega, self._capacity = windings, omega, capacity
-        self._holes = holes
-        self._nu_in, self._uniform, self._stride, self._cache_dir = nu_in, uniform, stride, cache_dir
+        self._omega, self._capacity, self._holes = omega, capacity, holes
+        self._hole_distance = None
+        self._base = base
+        self._windings, self._params = windings, self._with_flow(windings)
+
+    def _with_flow(self, windings: tuple[int, ...]) -> np.ndarray:
+        """The kernels' parameters at these windings: the table and fields of this fluid, and
+        after them the vortex's energy in the holes' flow, 4 pi n^T P^-1 omega(z) (nothing if
+        every n is 0)."""
+        if not any(windings):
+            return self._base
+        coef = np.linalg.solve(self._capacity, np.asarray(windings, dtype=np.float64))
+        flow = 4.0 * np.pi * np.tensordot(coef, self._omega, axes=1).ravel()
+        params = np.concatenate([self._base, flow])
+        params[_OFF_FLOW] = self._base.size
+        return params
 
     @classmethod
     def from_sizes(cls, sizes: Mapping[str, float]) -> tuple[GridDomain, float]:
@@ -704,11 +717,14 @@ class GridDomain(Domain):
         return self._windings
 
     def at_hole_circulation(self, windings) -> GridDomain:
-        """The same fluid at other circulations on its holes (the table is shared through the
-        cache: only the flow term changes)."""
-        return GridDomain(self._mask, self._nu_in, self._h, self._origin,
-                          self._lnla if not self._uniform else None, self._stride,
-                          self._cache_dir, hole_windings=windings)
+        """The same fluid at other circulations on its holes: the table and fields are shared,
+        only the flow term is new (this domain itself if the windings are its own)."""
+        w = _check_windings(windings, len(self._windings))
+        if w == self._windings:
+            return self
+        other = copy.copy(self)
+        other._windings, other._params = w, self._with_flow(w)
+        return other
 
     def hole_region(self, pos, cut: float) -> np.ndarray:
         """k where ``pos`` is less than ``cut`` from the nodes of hole k (the nearest such
@@ -717,8 +733,11 @@ class GridDomain(Domain):
         flat = p.reshape(-1, 2)
         out = np.zeros(flat.shape[0], dtype=np.int64)
         best = np.full(flat.shape[0], float(cut))
-        for k in range(1, len(self._windings) + 1):
-            d = self._fine_bilinear(distance_transform_edt(self._holes != k) * self._h, flat)
+        if self._hole_distance is None:          # the fine nodes' distance to each hole, once
+            self._hole_distance = [distance_transform_edt(self._holes != k) * self._h
+                                   for k in range(1, len(self._windings) + 1)]
+        for k, dist in enumerate(self._hole_distance, start=1):
+            d = self._fine_bilinear(dist, flat)
             near = d < best
             out[near], best[near] = k, d[near]
         return out.reshape(p.shape[:-1])

@@ -127,6 +127,11 @@ def test_two_holes_take_their_windings_in_raster_order(tmp_path):
     e10 = energy(pos, [1], d10) - energy(pos, [-1], d10)
     e01 = energy(mirror, [1], d01) - energy(mirror, [-1], d01)
     assert abs(e10) > 0.1 and abs(e10 - e01) < 1e-6 * abs(e10)
+    # a domain at other windings shares the table; it is the one built at them [exact]
+    fresh = GridDomain(mask, np.ones(mask.shape), h, (x[0], y[0]), stride=4,
+                       hole_windings=(0, 1), cache_dir=tmp_path)
+    assert d10.at_hole_circulation((1, 0)) is d10 and d01.key() == fresh.key() != d10.key()
+    assert energy(mirror, [1], d01) == energy(mirror, [1], fresh)
     with pytest.raises(DomainError, match=r"hole_windings = \(1,\): the mask has 2 hole"):
         GridDomain(mask, np.ones(mask.shape), h, (x[0], y[0]), stride=4, hole_windings=(1,),
                    cache_dir=tmp_path)

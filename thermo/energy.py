@@ -211,7 +211,9 @@ def energy_change(pos, signs, domain: Domain, index: int, new_position) -> float
     validate_configuration(new[None, :], s[:1], domain)
     k = domain.kernels()
     n = p.shape[0]
-    ledger, out = np.zeros((n, n)), np.zeros(n)
-    fill_ledger(p, s, k.params, k.self_energy, k.pair_energy, k.move_change, ledger, out)
+    rows = n if k.keeps_ledger else 0               # the disk's kernel reads no ledger
+    ledger, out = np.zeros((rows, rows)), np.zeros(n)
+    if k.keeps_ledger:
+        fill_ledger(p, s, k.params, k.self_energy, k.pair_energy, k.move_change, ledger, out)
     return float(k.move_change(p, s, int(index), new[0], new[1], k.params, 0.0, k.self_energy,
                                k.pair_energy, ledger, out))

@@ -41,9 +41,12 @@ def plaquette_windings(psi: np.ndarray) -> np.ndarray:
     return np.rint(total / (2.0 * np.pi)).astype(np.int64)
 
 
-def winding_around_region(psi: np.ndarray, region: np.ndarray, *, where: str = "psi") -> int:
+def winding_around_region(psi: np.ndarray, region: np.ndarray, *, where: str = "psi",
+                          windings: np.ndarray | None = None) -> int:
     """Winding number of the phase of ``psi`` counter-clockwise along the boundary of a set of
-    plaquettes (``region``, bool, shape (ny - 1, nx - 1)): the sum of their windings.
+    plaquettes (``region``, bool, shape (ny - 1, nx - 1)): the sum of their windings
+    (``windings``: :func:`plaquette_windings` of ``psi`` computed before, for several regions
+    of one field).
 
     Raises VorthermError if the region is empty or reaches the grid's edge (its boundary would
     leave the grid). Units: none.
@@ -55,4 +58,4 @@ def winding_around_region(psi: np.ndarray, region: np.ndarray, *, where: str = "
     if not reg.any() or reg[0].any() or reg[-1].any() or reg[:, 0].any() or reg[:, -1].any():
         raise VorthermError(f"{where}: the loop around the hole is empty or leaves the grid; "
                             "accepted: a hole and its wall cut inside the grid")
-    return int(plaquette_windings(psi)[reg].sum())
+    return int((plaquette_windings(psi) if windings is None else windings)[reg].sum())

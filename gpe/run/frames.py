@@ -21,7 +21,7 @@ from pathlib import Path
 
 import numpy as np
 
-from gpe.analysis.circulation import winding_around_region
+from gpe.analysis.circulation import plaquette_windings, winding_around_region
 from gpe.errors import VorthermError
 from gpe.run.gas import CORE_RADIUS_XI, WALL_LAYER_XI, domain_for_trap, gas_configuration
 from gpe.run.reading import protocol_of
@@ -172,8 +172,9 @@ class RunSeries:
             which = vd.domain.hole_region(np.stack([X, Y], axis=-1), cut_xi / vd.scale)
             for f in sorted(set(frames)):
                 psi = run.psi(f)
+                plaquettes = plaquette_windings(psi)          # once for all the holes
                 windings[f] = tuple(
-                    winding_around_region(psi, which == k,
+                    winding_around_region(psi, which == k, windings=plaquettes,
                                           where=f"{Path(self.path).name} frame {f}")
                     for k in range(1, n_holes + 1))
         return windings

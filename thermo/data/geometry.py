@@ -73,8 +73,6 @@ _OTHER_BOMS = ((codecs.BOM_UTF32_LE, "UTF-32"), (codecs.BOM_UTF32_BE, "UTF-32"),
 _SAVE_AS = ("accepted: UTF-8 text, with or without a byte-order mark (BOM): save it as UTF-8 "
             "(in a spreadsheet: 'CSV UTF-8')")
 
-
-
 def _is_winding(value, several: bool) -> bool:
     """A whole number of quanta, or (``several``) a non-empty list of them."""
     def one(v):
@@ -82,6 +80,7 @@ def _is_winding(value, several: bool) -> bool:
     if several and isinstance(value, (list, tuple)):
         return len(value) > 0 and all(one(v) for v in value)
     return one(value)
+
 
 def read_utf8_text(path: str | Path) -> str:
     """The text of a table or geometry file, decoded as UTF-8 (a leading BOM is dropped).
